@@ -1,0 +1,315 @@
+// Binary payloads of the Redis store: one slot record or one archive item per hash field. Each payload
+// opens with a format version byte, a kind byte and a CRC32 of the rest, so a truncated, tampered or
+// foreign value is reported as corrupt instead of being decoded into wrong memories.
+
+import * as zlib from 'node:zlib';
+import { ErrorCodes, StoreError } from '../../src/errors.js';
+import type { ArchiveItem, ArchiveReason, SlotRecord } from '../../src/types.js';
+
+/** Bumped when the layout below changes; a reader refuses versions it does not know. */
+export const PAYLOAD_FORMAT = 1;
+export const KIND_SLOT = 1;
+export const KIND_ARCHIVE = 2;
+const HEADER = 6; // format(1) kind(1) crc32(4)
+
+export type KeyFormat = 'int8' | 'float32';
+const KEY_FLOAT32 = 0;
+const KEY_INT8 = 1;
+
+const ARCHIVE_REASONS: readonly ArchiveReason[] = ['superseded', 'capacity', 'decayed', 'expired'];
+
+// CRC-32 (IEEE 802.3 polynomial, reflected 0xEDB88320) — the same checksum as zlib/PNG. Node has
+// `zlib.crc32` from 20.15 and 22.2; older Node 20 releases fall back to the table version below.
+const nativeCrc32 = (zlib as { crc32?: (data: Uint8Array) => number }).crc32;
+let crcTable: Uint32Array | undefined;
+export function crc32(data: Uint8Array): number {
+  if (typeof nativeCrc32 === 'function') return nativeCrc32(data) >>> 0;
+  if (!crcTable) {
+    crcTable = new Uint32Array(256);
+    for (let n = 0; n < 256; n++) {
+      let c = n;
+      for (let k = 0; k < 8; k++) c = c & 1 ? 0xedb88320 ^ (c >>> 1) : c >>> 1;
+      crcTable[n] = c >>> 0;
+    }
+  }
+  let crc = 0xffffffff;
+  for (let i = 0; i < data.length; i++) crc = crcTable[(crc ^ data[i]!) & 0xff]! ^ (crc >>> 8);
+  return (crc ^ 0xffffffff) >>> 0;
+}
+
+/** Growable little-endian byte writer. */
+class Writer {
+  buf: Buffer;
+  pos = HEADER;
+  constructor(size: number) {
+    this.buf = Buffer.allocUnsafe(Math.max(size, 64));
+  }
+  private need(n: number): void {
+    if (this.pos + n <= this.buf.length) return;
+    const next = Buffer.allocUnsafe(Math.max(this.buf.length * 2, this.pos + n));
+    this.buf.copy(next, 0, 0, this.pos);
+    this.buf = next;
+  }
+  u8(v: number): void {
+    this.need(1);
+    this.buf[this.pos++] = v;
+  }
+  /** Unsigned LEB128 (common practice for compact lengths). */
+  varint(v: number): void {
+    this.need(5);
+    while (v >= 0x80) {
+      this.buf[this.pos++] = (v & 0x7f) | 0x80;
+      v >>>= 7;
+    }
+    this.buf[this.pos++] = v;
+  }
+  f64(v: number): void {
+    this.need(8);
+    this.buf.writeDoubleLE(v, this.pos);
+    this.pos += 8;
+  }
+  f32(v: number): void {
+    this.need(4);
+    this.buf.writeFloatLE(v, this.pos);
+    this.pos += 4;
+  }
+  str(s: string): void {
+    const n = Buffer.byteLength(s, 'utf8');
+    this.varint(n);
+    this.need(n);
+    this.buf.write(s, this.pos, n, 'utf8');
+    this.pos += n;
+  }
+  /** Writes the key in the chosen format; returns the vector a reader will decode. */
+  key(v: Float32Array, format: KeyFormat): Float32Array {
+    this.varint(v.length);
+    if (format === 'float32') {
+      this.u8(KEY_FLOAT32);
+      this.need(v.length * 4);
+      for (let j = 0; j < v.length; j++) this.buf.writeFloatLE(v[j]!, this.pos + 4 * j);
+      this.pos += v.length * 4;
+      return Float32Array.from(v);
+    }
+    // Symmetric per-vector int8 quantisation (scale = max|x| / 127), common practice for embedding
+    // storage; the reader re-normalises, so the worst component error is about scale / 2.
+    this.u8(KEY_INT8);
+    let max = 0;
+    for (let j = 0; j < v.length; j++) max = Math.max(max, Math.abs(v[j]!));
+    const scale = Math.fround(max / 127);
+    this.f32(scale);
+    this.need(v.length);
+    const q = new Int8Array(v.length);
+    for (let j = 0; j < v.length; j++) {
+      q[j] = scale === 0 ? 0 : Math.max(-127, Math.min(127, Math.round(v[j]! / scale)));
+      this.buf[this.pos + j] = q[j]! & 0xff;
+    }
+    this.pos += v.length;
+    return dequantise(q, scale);
+  }
+  finish(kind: number): Buffer {
+    const out = this.buf.subarray(0, this.pos);
+    out[0] = PAYLOAD_FORMAT;
+    out[1] = kind;
+    out.writeUInt32LE(crc32(out.subarray(HEADER)), 2);
+    return out;
+  }
+}
+
+function dequantise(q: Int8Array, scale: number): Float32Array {
+  const v = new Float32Array(q.length);
+  let s = 0;
+  for (let j = 0; j < q.length; j++) {
+    v[j] = q[j]! * scale;
+    s += v[j]! * v[j]!;
+  }
+  if (s > 0) {
+    const inv = 1 / Math.sqrt(s);
+    for (let j = 0; j < q.length; j++) v[j] = v[j]! * inv;
+  }
+  return v;
+}
+
+/** Bounds-checked reader; every overrun is a corrupt payload. */
+class Reader {
+  pos = HEADER;
+  constructor(readonly buf: Buffer, readonly what: string) {}
+  fail(reason: string): never {
+    throw corrupt(this.what, reason);
+  }
+  private need(n: number): void {
+    if (this.pos + n > this.buf.length) this.fail('truncated');
+  }
+  u8(): number {
+    this.need(1);
+    return this.buf[this.pos++]!;
+  }
+  varint(): number {
+    let v = 0;
+    for (let shift = 0; shift < 35; shift += 7) {
+      const b = this.u8();
+      v += (b & 0x7f) * 2 ** shift;
+      if ((b & 0x80) === 0) return v;
+    }
+    return this.fail('bad length');
+  }
+  f64(): number {
+    this.need(8);
+    const v = this.buf.readDoubleLE(this.pos);
+    this.pos += 8;
+    return v;
+  }
+  f32(): number {
+    this.need(4);
+    const v = this.buf.readFloatLE(this.pos);
+    this.pos += 4;
+    return v;
+  }
+  str(): string {
+    const n = this.varint();
+    this.need(n);
+    const s = this.buf.toString('utf8', this.pos, this.pos + n);
+    this.pos += n;
+    return s;
+  }
+  key(): Float32Array {
+    const dim = this.varint();
+    const format = this.u8();
+    if (format === KEY_FLOAT32) {
+      this.need(dim * 4);
+      const v = new Float32Array(dim);
+      for (let j = 0; j < dim; j++) v[j] = this.buf.readFloatLE(this.pos + 4 * j);
+      this.pos += dim * 4;
+      return v;
+    }
+    if (format !== KEY_INT8) this.fail(`unknown key format ${format}`);
+    const scale = this.f32();
+    this.need(dim);
+    const q = new Int8Array(this.buf.buffer.slice(this.buf.byteOffset + this.pos, this.buf.byteOffset + this.pos + dim));
+    this.pos += dim;
+    return dequantise(q, scale);
+  }
+  end(): void {
+    if (this.pos !== this.buf.length) this.fail('trailing bytes');
+  }
+}
+
+export function corrupt(what: string, reason: string): StoreError {
+  return new StoreError(
+    ErrorCodes.STORE_CORRUPT,
+    `redis store: ${what} failed its format check (${reason}); it was not used — erase the session or restore it from a backup`,
+    { details: { what, reason } },
+  );
+}
+
+function open(buf: Buffer, kind: number, what: string): Reader {
+  if (buf.length < HEADER) throw corrupt(what, 'too short');
+  if (buf[0] !== PAYLOAD_FORMAT) throw corrupt(what, `format version ${buf[0]}, expected ${PAYLOAD_FORMAT}`);
+  if (buf[1] !== kind) throw corrupt(what, `kind ${buf[1]}, expected ${kind}`);
+  if (buf.readUInt32LE(2) !== crc32(buf.subarray(HEADER))) throw corrupt(what, 'checksum mismatch');
+  return new Reader(buf, what);
+}
+
+const SLOT_PINNED = 1;
+const SLOT_PREVIOUS = 2;
+
+/** Encodes a slot; `key` is the vector a reader will get back (quantised when int8). */
+export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffer; key: Float32Array } {
+  const w = new Writer(HEADER + 64 + rec.key.length * (format === 'int8' ? 1 : 4) + 4 * (rec.keyText.length + rec.value.length) + 64);
+  w.u8((rec.pinned ? SLOT_PINNED : 0) | (rec.previous !== undefined ? SLOT_PREVIOUS : 0));
+  w.f64(rec.strength);
+  w.f64(rec.halfLife);
+  w.f64(rec.stamp);
+  w.f64(rec.created);
+  w.f64(rec.createdMs);
+  w.f64(rec.updatedMs);
+  w.varint(rec.reads);
+  w.str(rec.id);
+  w.str(rec.keyText);
+  w.str(rec.value);
+  if (rec.previous !== undefined) w.str(rec.previous);
+  w.varint(rec.provenance.length);
+  for (const p of rec.provenance) w.str(p);
+  const key = w.key(rec.key, format);
+  return { payload: w.finish(KIND_SLOT), key };
+}
+
+export function decodeSlot(buf: Buffer, what: string): SlotRecord {
+  const r = open(buf, KIND_SLOT, what);
+  const flags = r.u8();
+  const strength = r.f64();
+  const halfLife = r.f64();
+  const stamp = r.f64();
+  const created = r.f64();
+  const createdMs = r.f64();
+  const updatedMs = r.f64();
+  const reads = r.varint();
+  const id = r.str();
+  const keyText = r.str();
+  const value = r.str();
+  const previous = flags & SLOT_PREVIOUS ? r.str() : undefined;
+  const n = r.varint();
+  const provenance: string[] = [];
+  for (let i = 0; i < n; i++) provenance.push(r.str());
+  const key = r.key();
+  r.end();
+  const rec: SlotRecord = {
+    id, key, keyText, value, provenance, strength, halfLife, stamp, created, createdMs, updatedMs, reads,
+    pinned: (flags & SLOT_PINNED) !== 0,
+  };
+  if (previous !== undefined) rec.previous = previous;
+  return rec;
+}
+
+const ARCH_USER = 1;
+const ARCH_SUCCESSOR = 2;
+
+/** Encodes an archive item; `user` is the scope it was committed in (overrides `item.user`). */
+export function encodeArchive(item: ArchiveItem, user: string | undefined, format: KeyFormat): Buffer {
+  const w = new Writer(HEADER + 64 + item.key.length * (format === 'int8' ? 1 : 4) + 4 * (item.keyText.length + item.value.length) + 128);
+  w.u8((user !== undefined ? ARCH_USER : 0) | (item.successor !== undefined ? ARCH_SUCCESSOR : 0));
+  w.u8(ARCHIVE_REASONS.indexOf(item.reason));
+  w.f64(item.strength);
+  w.f64(item.halfLife);
+  w.f64(item.clock);
+  w.f64(item.createdMs);
+  w.f64(item.archivedMs);
+  w.str(item.id);
+  w.str(item.tenant);
+  w.str(item.session);
+  if (user !== undefined) w.str(user);
+  w.str(item.keyText);
+  w.str(item.value);
+  if (item.successor !== undefined) w.str(item.successor);
+  w.varint(item.provenance.length);
+  for (const p of item.provenance) w.str(p);
+  w.key(item.key, format);
+  return w.finish(KIND_ARCHIVE);
+}
+
+export function decodeArchive(buf: Buffer, what: string): ArchiveItem {
+  const r = open(buf, KIND_ARCHIVE, what);
+  const flags = r.u8();
+  const reason = ARCHIVE_REASONS[r.u8()];
+  if (reason === undefined) r.fail('unknown archive reason');
+  const strength = r.f64();
+  const halfLife = r.f64();
+  const clock = r.f64();
+  const createdMs = r.f64();
+  const archivedMs = r.f64();
+  const id = r.str();
+  const tenant = r.str();
+  const session = r.str();
+  const user = flags & ARCH_USER ? r.str() : undefined;
+  const keyText = r.str();
+  const value = r.str();
+  const successor = flags & ARCH_SUCCESSOR ? r.str() : undefined;
+  const n = r.varint();
+  const provenance: string[] = [];
+  for (let i = 0; i < n; i++) provenance.push(r.str());
+  const key = r.key();
+  r.end();
+  const item: ArchiveItem = { id, tenant, session, key, keyText, value, provenance, reason, strength, halfLife, clock, createdMs, archivedMs };
+  if (user !== undefined) item.user = user;
+  if (successor !== undefined) item.successor = successor;
+  return item;
+}

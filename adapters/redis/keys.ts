@@ -1,0 +1,83 @@
+// Redis key names of the store. Every key of one session carries the hash tag `{tenant:session}`, so a
+// commit's Lua script touches a single hash slot on Redis Cluster; a user's session set has its own tag.
+// Ids are escaped so that the mapping from (tenant, session) to keys is one-to-one.
+
+/**
+ * Percent-escapes `%`, `{` and `}` (and `:` in tenants): a brace would move Redis's hash tag, and a
+ * colon in a tenant would let tenant `a:b` + session `c` collide with tenant `a` + session `b:c`.
+ */
+export function escapeId(id: string, colon: boolean): string {
+  let out = '';
+  for (const ch of id) {
+    if (ch === '%') out += '%25';
+    else if (ch === '{') out += '%7B';
+    else if (ch === '}') out += '%7D';
+    else if (colon && ch === ':') out += '%3A';
+    else out += ch;
+  }
+  return out;
+}
+
+export function unescapeId(s: string): string {
+  return s.replace(/%(25|7B|7D|3A)/g, (_m, hex: string) => String.fromCharCode(parseInt(hex, 16)));
+}
+
+/** Escapes glob metacharacters for SCAN MATCH (Redis `stringmatchlen` syntax). */
+export function escapeGlob(s: string): string {
+  return s.replace(/[*?[\]\\^]/g, (c) => `\\${c}`);
+}
+
+/** The keys of one session, in the order the Lua scripts expect them. */
+export interface SessionKeys {
+  /** Hash: v (version), ep (epoch), c (clock), n (turns), cap, dim, u (user), as/au (archive tokens), rc (recent commit ids). */
+  meta: string;
+  /** Hash: slot index -> slot payload. */
+  slots: string;
+  /** Stream of events, field `e` = JSON. */
+  events: string;
+  /** Hash: item id -> archive payload, items of the session scope. */
+  arch: string;
+  /** Hash: item id -> archive payload, items this session put in its user's scope. */
+  uarch: string;
+  /** All of the above, for EXPIRE/DEL/SCAN checks. */
+  all: string[];
+}
+
+export class KeySpace {
+  constructor(readonly prefix: string) {}
+
+  /** The hash-tagged base of a session's keys, e.g. `tidemark:{acme:s1}`. */
+  sessionBase(tenant: string, session: string): string {
+    return `${this.prefix}{${escapeId(tenant, true)}:${escapeId(session, false)}}`;
+  }
+
+  session(tenant: string, session: string): SessionKeys {
+    const b = this.sessionBase(tenant, session);
+    const k = { meta: `${b}:meta`, slots: `${b}:slots`, events: `${b}:events`, arch: `${b}:arch`, uarch: `${b}:uarch` };
+    return { ...k, all: [k.meta, k.slots, k.events, k.arch, k.uarch] };
+  }
+
+  /** Set of the session ids a user has written to. Suffix `:sessions` never ends a session key. */
+  userSessions(tenant: string, user: string): string {
+    return `${this.prefix}{${escapeId(tenant, true)}:u:${escapeId(user, false)}}:sessions`;
+  }
+
+  /** SCAN MATCH pattern for the meta keys of one tenant. */
+  metaPattern(tenant: string): string {
+    return `${escapeGlob(this.prefix)}{${escapeGlob(escapeId(tenant, true))}:*}:meta`;
+  }
+
+  /** The session id of a meta key of `tenant`, or null when the key is not one. */
+  sessionOfMeta(tenant: string, key: string): string | null {
+    const head = `${this.prefix}{${escapeId(tenant, true)}:`;
+    if (!key.startsWith(head) || !key.endsWith('}:meta')) return null;
+    const inner = key.slice(head.length, -'}:meta'.length);
+    if (inner.includes('{') || inner.includes('}')) return null;
+    return unescapeId(inner);
+  }
+
+  /** SCAN MATCH pattern for every key of a session (used by tests and erase checks). */
+  sessionPattern(tenant: string, session: string): string {
+    return `${escapeGlob(this.sessionBase(tenant, session))}:*`;
+  }
+}

@@ -1,0 +1,541 @@
+// The Redis store: sessions, archive items and event streams in Redis or Redis Cluster, shared by every
+// bot process. A read is one EVALSHA (answered with just the version when this process's cached copy is
+// current), a commit is one EVALSHA that checks the version and applies the whole turn atomically.
+
+import { randomBytes } from 'node:crypto';
+import type { Archive } from '../../src/archive/archive.js';
+import { createArchive, type ArchiveOptions } from '../../src/archive/index.js';
+import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
+import { SlotTable } from '../../src/memory/slots.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, SessionSnapshot, Store } from '../../src/store/store.js';
+import type { ArchiveHit, ArchiveItem, ArchiveScope, SessionRef, StoredEvent } from '../../src/types.js';
+import { connectUrl, ensureReady, isCluster, runScript, unavailable, type RedisClient } from './client.js';
+import { corrupt, decodeArchive, decodeSlot, encodeArchive, encodeSlot, type KeyFormat } from './codec.js';
+import { KeySpace, type SessionKeys } from './keys.js';
+import { ARCHIVE_DELETE, ARCHIVE_FETCH, COMMIT, ERASE, LOAD } from './scripts.js';
+
+export interface RedisStoreOptions {
+  /**
+   * An ioredis `Redis` or `Cluster` instance, or a `redis://` URL (the store then creates a client with
+   * `REDIS_CLIENT_OPTIONS` and closes it on `close()`; a client you pass stays yours to close).
+   * Do not set ioredis `keyPrefix` on it: use `prefix`.
+   * @default 'redis://127.0.0.1:6379'
+   */
+  redis?: RedisClient | string;
+  /** Prepended to every key; must not contain `{` or `}` (they would move the hash tag). @default 'tidemark:' */
+  prefix?: string;
+  /**
+   * Seconds of inactivity after which a session's keys (slots, events, its archive items) expire; every
+   * commit refreshes it. 0 keeps sessions until erased. @default 2592000 (30 days)
+   */
+  idleTtlSeconds?: number;
+  /**
+   * How slot and archive keys are stored: `int8` (1 byte per dimension plus a per-vector scale; about a
+   * quarter of the memory, component error below 0.005 for unit vectors) or `float32` (exact).
+   * @default 'int8'
+   */
+  keyFormat?: KeyFormat;
+  /**
+   * Events kept per session stream (`XADD … MAXLEN ~ N`: Redis trims whole stream nodes, so a stream
+   * may hold up to one node — 100 entries by default — more). 0 stores no events. @default 1000
+   */
+  maxEvents?: number;
+  /**
+   * Sessions whose decoded slot table this process keeps, keyed by version (least recently used out);
+   * a read of an unchanged session then transfers only its version. Also bounds the archive scopes kept
+   * indexed. 0 disables both caches. @default 1000
+   */
+  cacheSessions?: number;
+  /** How long the first call waits for the initial connection (ms); later calls never wait. @default 2000 */
+  connectTimeoutMs?: number;
+  /** Options for each archive scope's nearest-neighbour index. */
+  archive?: ArchiveOptions;
+}
+
+export const REDIS_STORE_DEFAULTS = {
+  redis: 'redis://127.0.0.1:6379',
+  prefix: 'tidemark:',
+  idleTtlSeconds: 30 * 24 * 3600,
+  keyFormat: 'int8' as KeyFormat,
+  maxEvents: 1000,
+  cacheSessions: 1000,
+  connectTimeoutMs: 2000,
+} as const satisfies Omit<Required<RedisStoreOptions>, 'archive'>;
+
+type Resolved = Omit<Required<RedisStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
+
+interface CachedSession {
+  epoch: string;
+  version: number;
+  clock: number;
+  turns: number;
+  table: SlotTable;
+}
+
+interface ScopeSession {
+  token: string;
+  ids: string[];
+}
+
+interface ScopeCache {
+  sessions: Map<string, ScopeSession>;
+  items: Map<string, { item: ArchiveItem; session: string }>;
+  index: Archive | null;
+  /** Refreshes of one scope run one after another, so replies are applied in the order they were asked. */
+  lock: Promise<unknown>;
+}
+
+const token = (): string => randomBytes(8).toString('hex');
+const str = (b: unknown): string => (Buffer.isBuffer(b) ? b.toString('utf8') : String(b));
+
+function num(b: unknown, what: string, integer: boolean): number {
+  const s = str(b);
+  const n = Number(s);
+  if (s === '' || !Number.isFinite(n) || (integer && (!Number.isInteger(n) || n < 0))) throw corrupt(what, `not a number: ${describeValue(s)}`);
+  return n;
+}
+
+function scopeKeyOf(scope: ArchiveScope): string {
+  return 'user' in scope ? `u\u0000${scope.tenant}\u0000${scope.user}` : `s\u0000${scope.tenant}\u0000${scope.session}`;
+}
+
+export class RedisStore implements Store {
+  readonly name: string;
+  private client: RedisClient | undefined;
+  private readonly clientReady: Promise<RedisClient>;
+  private readonly ownsClient: boolean;
+  private readonly o: Resolved;
+  private readonly keys: KeySpace;
+  private readonly cache = new Map<string, CachedSession>();
+  private readonly scopes = new Map<string, ScopeCache>();
+  /** Sessions this process has added to their user's set (see commit()). */
+  private readonly linked = new Set<string>();
+  /** One id per CommitRequest object, so a re-sent commit is recognised as already applied. */
+  private readonly commitIds = new WeakMap<CommitRequest, string>();
+  private closed = false;
+
+  constructor(options: RedisStoreOptions = {}) {
+    const o = { ...REDIS_STORE_DEFAULTS, ...options };
+    const fail = (name: string, value: unknown, expected: string): never => {
+      throw new ConfigError(`redis store: ${name} must be ${expected}, got ${describeValue(value)}`, { details: { option: name } });
+    };
+    if (typeof o.prefix !== 'string' || /[{}]/.test(o.prefix)) fail('prefix', o.prefix, 'a string without { or }');
+    if (!Number.isInteger(o.idleTtlSeconds) || o.idleTtlSeconds < 0) fail('idleTtlSeconds', o.idleTtlSeconds, 'an integer >= 0 (0 = no TTL)');
+    if (o.keyFormat !== 'int8' && o.keyFormat !== 'float32') fail('keyFormat', o.keyFormat, "'int8' or 'float32'");
+    if (!Number.isInteger(o.maxEvents) || o.maxEvents < 0) fail('maxEvents', o.maxEvents, 'an integer >= 0');
+    if (!Number.isInteger(o.cacheSessions) || o.cacheSessions < 0) fail('cacheSessions', o.cacheSessions, 'an integer >= 0');
+    if (!Number.isFinite(o.connectTimeoutMs) || o.connectTimeoutMs <= 0) fail('connectTimeoutMs', o.connectTimeoutMs, 'a number of ms > 0');
+    const { redis, ...rest } = o;
+    this.o = rest;
+    this.keys = new KeySpace(o.prefix);
+    if (typeof redis === 'string') {
+      if (!/^rediss?:\/\//.test(redis)) fail('redis', redis, 'an ioredis Redis/Cluster instance or a redis:// URL');
+      this.name = 'redis';
+      this.ownsClient = true;
+      this.clientReady = connectUrl(redis).then((c) => {
+        // Errors reach callers through rejected commands; without a listener ioredis would also log them.
+        c.on('error', () => undefined);
+        this.client = c;
+        return c;
+      });
+      this.clientReady.catch(() => undefined);
+    } else {
+      if (typeof redis !== 'object' || redis === null || typeof (redis as RedisClient).callBuffer !== 'function') {
+        fail('redis', redis, 'an ioredis Redis/Cluster instance or a redis:// URL');
+      }
+      const prefix = (redis as { options?: { keyPrefix?: string } }).options?.keyPrefix;
+      if (prefix) fail('redis', `a client with keyPrefix ${prefix}`, 'a client without ioredis keyPrefix (use the prefix option)');
+      this.name = isCluster(redis) ? 'cluster' : 'redis';
+      this.ownsClient = false;
+      this.client = redis;
+      this.clientReady = Promise.resolve(redis);
+    }
+  }
+
+  /** The key names of a session (for tests and operational tooling). */
+  sessionKeys(tenant: string, session: string): SessionKeys {
+    return this.keys.session(tenant, session);
+  }
+
+  /** The key of a user's session set. */
+  userSessionsKey(tenant: string, user: string): string {
+    return this.keys.userSessions(tenant, user);
+  }
+
+  /** The underlying client (connects a URL-created one on first call). */
+  async redis(): Promise<RedisClient> {
+    return this.conn('connect');
+  }
+
+  async load(ref: SessionRef): Promise<SessionSnapshot | null> {
+    const k = this.keys.session(ref.tenant, ref.session);
+    const cached = this.cache.get(k.meta);
+    let reply: unknown;
+    try {
+      const c = await this.conn('load');
+      reply = await runScript(c, LOAD, [k.meta, k.slots], [cached ? `${cached.epoch}:${cached.version}` : '']);
+    } catch (err) {
+      throw unavailable('load', err);
+    }
+    if (reply === null) {
+      this.cache.delete(k.meta);
+      return null;
+    }
+    const r = reply as unknown[];
+    const version = num(r[0], 'session version', true);
+    const epoch = str(r[1]);
+    if (r.length === 2) {
+      // Unchanged since `cached` was sent; a commit from this process may since have moved it forward in place.
+      if (!cached) throw corrupt('load reply', 'unchanged without a cached copy');
+      this.touch(k.meta, cached);
+      return { version: cached.version, clock: cached.clock, turns: cached.turns, table: cached.table };
+    }
+    const clock = num(r[2], 'session clock', false);
+    const turns = num(r[3], 'session turns', true);
+    const capacity = num(r[4], 'session capacity', true);
+    const dim = num(r[5], 'session dim', true);
+    if (capacity < 1 || capacity > 1 << 16 || dim < 1 || dim > 1 << 16) throw corrupt('session shape', `capacity ${capacity}, dim ${dim}`);
+    const table = new SlotTable(capacity, dim);
+    const flat = r[6] as Buffer[];
+    for (let i = 0; i + 1 < flat.length; i += 2) {
+      const index = num(flat[i], 'slot index', true);
+      if (index >= capacity) throw corrupt(`slot ${index}`, `index beyond capacity ${capacity}`);
+      const rec = decodeSlot(flat[i + 1]!, `slot ${index} payload`);
+      if (rec.key.length !== dim) throw corrupt(`slot ${index} payload`, `key has ${rec.key.length} dims, session has ${dim}`);
+      table.set(index, rec);
+    }
+    const entry: CachedSession = { epoch, version, clock, turns, table };
+    if (this.o.cacheSessions > 0) this.touch(k.meta, entry);
+    return { version, clock, turns, table };
+  }
+
+  async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
+    const k = this.keys.session(ref.tenant, ref.session);
+    const { args, keys } = this.commitArgs(ref, req);
+    let reply: unknown;
+    try {
+      const c = await this.conn('commit');
+      if (ref.user) {
+        // The user's set lives under another hash tag, so it cannot join the commit script on Cluster.
+        // It is added *before* the commit and is idempotent: a crash between the two leaves a set member
+        // without a session (harmless: searches and erase skip it), never a session its user's erase
+        // would miss. A new session (expected version 0, also after an erase) always re-adds it.
+        const lk = `${k.meta}\u0000${ref.user}`;
+        if (req.expectedVersion === 0 || !this.linked.has(lk)) {
+          await c.sadd(this.keys.userSessions(ref.tenant, ref.user), ref.session);
+          if (this.linked.size > 100_000) this.linked.clear();
+          this.linked.add(lk);
+        }
+      }
+      reply = await runScript(c, COMMIT, k.all, args);
+    } catch (err) {
+      throw unavailable('commit', err);
+    }
+    const r = reply as unknown[];
+    const status = Number(r[0]);
+    const version = Number(r[1]);
+    const epoch = str(r[2]);
+    if (status === 0) return { ok: false, conflict: true, version };
+    if (status === 2) {
+      // Already applied by an earlier send of this same request; this process's copy may be behind.
+      this.cache.delete(k.meta);
+      return { ok: true, version };
+    }
+    this.applyToCache(k.meta, req, epoch, version, keys);
+    return { ok: true, version };
+  }
+
+  async searchArchive(scope: ArchiveScope, query: Float32Array, k: number): Promise<ArchiveHit[]> {
+    if (k <= 0) return [];
+    const sc = await this.refreshScope(scope);
+    if (sc.items.size === 0) return [];
+    if (!sc.index || sc.index.dim !== query.length) {
+      sc.index = createArchive(query.length, this.o.archive);
+      for (const [id, { item }] of sc.items) if (item.key.length === query.length) sc.index.add(id, item.key);
+    }
+    const hits: ArchiveHit[] = [];
+    for (const m of sc.index.search(query, k)) {
+      const entry = sc.items.get(m.id);
+      if (entry) hits.push({ item: entry.item, cosine: m.cosine });
+    }
+    return hits;
+  }
+
+  async listArchive(scope: ArchiveScope, limit = 100): Promise<ArchiveItem[]> {
+    const sc = await this.refreshScope(scope);
+    return [...sc.items.values()]
+      .map((e) => e.item)
+      .sort((x, y) => y.archivedMs - x.archivedMs || y.clock - x.clock)
+      .slice(0, limit);
+  }
+
+  async deleteArchive(scope: ArchiveScope, ids: readonly string[]): Promise<number> {
+    if (ids.length === 0) return 0;
+    try {
+      const c = await this.conn('deleteArchive');
+      const sessions = 'user' in scope ? await c.smembers(this.keys.userSessions(scope.tenant, scope.user)) : [scope.session];
+      const field = 'user' in scope ? 'au' : 'as';
+      const counts = await Promise.all(
+        sessions.map((s) => {
+          const k = this.keys.session(scope.tenant, s);
+          return runScript(c, ARCHIVE_DELETE, [k.meta, 'user' in scope ? k.uarch : k.arch], [field, token(), ...ids]);
+        }),
+      );
+      return counts.reduce<number>((sum, n) => sum + Number(n), 0);
+    } catch (err) {
+      throw unavailable('deleteArchive', err);
+    }
+  }
+
+  async readEvents(ref: SessionRef, limit = 100): Promise<StoredEvent[]> {
+    if (limit <= 0) return [];
+    let entries: [string, string[]][];
+    try {
+      const c = await this.conn('readEvents');
+      entries = (await c.xrevrange(this.keys.session(ref.tenant, ref.session).events, '+', '-', 'COUNT', limit)) as [string, string[]][];
+    } catch (err) {
+      throw unavailable('readEvents', err);
+    }
+    const out: StoredEvent[] = [];
+    for (let i = entries.length - 1; i >= 0; i--) {
+      const fields = entries[i]![1];
+      const at = fields.indexOf('e');
+      try {
+        out.push(JSON.parse(fields[at + 1]!) as StoredEvent);
+      } catch {
+        throw corrupt('event stream entry', 'not valid JSON');
+      }
+    }
+    return out;
+  }
+
+  async erase(target: EraseTarget): Promise<EraseReport> {
+    const report: EraseReport = { sessions: 0, slots: 0, archiveItems: 0, events: 0 };
+    try {
+      const c = await this.conn('erase');
+      let sessions: string[];
+      let userSet: string | undefined;
+      if ('user' in target) {
+        userSet = this.keys.userSessions(target.tenant, target.user);
+        sessions = await c.smembers(userSet);
+        this.scopes.delete(scopeKeyOf({ tenant: target.tenant, user: target.user }));
+      } else {
+        sessions = [target.session];
+      }
+      for (const s of sessions) {
+        const k = this.keys.session(target.tenant, s);
+        const r = (await runScript(c, ERASE, k.all, [])) as unknown[];
+        report.sessions += Number(r[0]);
+        report.slots += Number(r[1]);
+        report.archiveItems += Number(r[2]);
+        report.events += Number(r[3]);
+        const user = str(r[4]);
+        this.forget(target.tenant, s, k, user);
+        if (user && !userSet) await c.srem(this.keys.userSessions(target.tenant, user), s);
+      }
+      if (userSet) await c.del(userSet);
+    } catch (err) {
+      throw unavailable('erase', err);
+    }
+    return report;
+  }
+
+  async listSessions(tenant: string, limit = 1000): Promise<string[]> {
+    const out: string[] = [];
+    const pattern = this.keys.metaPattern(tenant);
+    try {
+      const c = await this.conn('listSessions');
+      const nodes = isCluster(c) ? c.nodes('master') : [c];
+      for (const node of nodes) {
+        let cursor = '0';
+        do {
+          const [next, keys] = await node.scan(cursor, 'MATCH', pattern, 'COUNT', 1000);
+          cursor = next;
+          for (const key of keys) {
+            const s = this.keys.sessionOfMeta(tenant, key);
+            if (s !== null && out.length < limit) out.push(s);
+          }
+        } while (cursor !== '0' && out.length < limit);
+      }
+    } catch (err) {
+      throw unavailable('listSessions', err);
+    }
+    return out;
+  }
+
+  async close(): Promise<void> {
+    if (this.closed) return;
+    this.closed = true;
+    this.cache.clear();
+    this.scopes.clear();
+    if (!this.ownsClient) return;
+    const c = await this.clientReady.catch(() => undefined);
+    if (!c) return;
+    try {
+      if (c.status === 'ready') await c.quit();
+      else c.disconnect();
+    } catch {
+      c.disconnect();
+    }
+  }
+
+  private async conn(op: string): Promise<RedisClient> {
+    if (this.closed) throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `redis store: ${op} after close()`);
+    const c = this.client ?? (await this.clientReady);
+    await ensureReady(c, this.o.connectTimeoutMs);
+    return c;
+  }
+
+  private commitArgs(ref: SessionRef, req: CommitRequest): { args: (string | Buffer | number)[]; keys: (Float32Array | null)[] } {
+    if (!Number.isInteger(req.capacity) || req.capacity < 1 || !Number.isInteger(req.dim) || req.dim < 1) {
+      throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `commit with capacity ${req.capacity} and dim ${req.dim}; both must be integers >= 1`);
+    }
+    let id = this.commitIds.get(req);
+    if (!id) this.commitIds.set(req, (id = token()));
+    const kf = this.o.keyFormat;
+    const args: (string | Buffer | number)[] = [
+      req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
+      this.o.idleTtlSeconds, this.o.maxEvents, token(), req.ops.length, req.archive.length, req.events.length,
+    ];
+    const keys: (Float32Array | null)[] = [];
+    for (const op of req.ops) {
+      if (!Number.isInteger(op.index) || op.index < 0 || op.index >= req.capacity) {
+        throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `commit op for slot ${op.index} outside capacity ${req.capacity}`);
+      }
+      if (op.slot) {
+        if (op.slot.key.length !== req.dim) throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `commit op for slot ${op.index} has ${op.slot.key.length} dims, commit says ${req.dim}`);
+        const enc = encodeSlot(op.slot, kf);
+        args.push(String(op.index), enc.payload);
+        keys.push(enc.key);
+      } else {
+        args.push(String(op.index), '');
+        keys.push(null);
+      }
+    }
+    for (const item of req.archive) args.push(item.id, encodeArchive(item, ref.user, kf));
+    for (const ev of req.events) args.push(JSON.stringify(ev));
+    return { args, keys };
+  }
+
+  /** Moves this process's cached copy forward by the ops just committed, when it was the version committed against. */
+  private applyToCache(metaKey: string, req: CommitRequest, epoch: string, version: number, keys: (Float32Array | null)[]): void {
+    if (this.o.cacheSessions === 0) return;
+    let entry = this.cache.get(metaKey);
+    if (req.expectedVersion === 0) {
+      entry = { epoch, version: 0, clock: 0, turns: 0, table: new SlotTable(req.capacity, req.dim) };
+    } else if (!entry || entry.epoch !== epoch || entry.version !== req.expectedVersion) {
+      this.cache.delete(metaKey);
+      return;
+    }
+    if (entry.table.capacity !== req.capacity || entry.table.dim !== req.dim) {
+      entry.table = entry.table.dim === req.dim ? entry.table.clone(req.capacity) : new SlotTable(req.capacity, req.dim);
+    }
+    req.ops.forEach((op, i) => {
+      // The cached copy holds what any other process would decode (quantised keys), not the caller's floats.
+      if (op.slot) entry!.table.set(op.index, { ...op.slot, key: keys[i]! });
+      else entry!.table.clear(op.index);
+    });
+    entry.version = version;
+    entry.clock = req.clock;
+    entry.turns = req.turns;
+    this.touch(metaKey, entry);
+  }
+
+  private touch(metaKey: string, entry: CachedSession): void {
+    if (this.o.cacheSessions === 0) return;
+    this.cache.delete(metaKey);
+    this.cache.set(metaKey, entry);
+    if (this.cache.size > this.o.cacheSessions) this.cache.delete(this.cache.keys().next().value!);
+  }
+
+  /**
+   * Brings the scope's cached items and index up to date. Every call asks Redis for each session's
+   * archive token (one round trip; a user scope adds one SMEMBERS first) and fetches only the sessions
+   * whose token moved. So a search sees every item committed before the search started.
+   */
+  private refreshScope(scope: ArchiveScope): Promise<ScopeCache> {
+    const key = scopeKeyOf(scope);
+    let sc = this.scopes.get(key);
+    if (!sc) {
+      sc = { sessions: new Map(), items: new Map(), index: null, lock: Promise.resolve() };
+      if (this.o.cacheSessions > 0) {
+        this.scopes.set(key, sc);
+        if (this.scopes.size > this.o.cacheSessions) this.scopes.delete(this.scopes.keys().next().value!);
+      }
+    } else {
+      this.scopes.delete(key);
+      this.scopes.set(key, sc);
+    }
+    const cache = sc;
+    const run = cache.lock.then(() => this.refreshNow(scope, cache));
+    cache.lock = run.catch(() => undefined);
+    return run;
+  }
+
+  private async refreshNow(scope: ArchiveScope, sc: ScopeCache): Promise<ScopeCache> {
+    const user = 'user' in scope ? scope.user : undefined;
+    let sessions: string[];
+    let replies: unknown[];
+    try {
+      const c = await this.conn('searchArchive');
+      sessions = user !== undefined ? await c.smembers(this.keys.userSessions(scope.tenant, user)) : [(scope as { session: string }).session];
+      replies = await Promise.all(
+        sessions.map((s) => {
+          const k = this.keys.session(scope.tenant, s);
+          const cached = sc.sessions.get(s);
+          return runScript(c, ARCHIVE_FETCH, [k.meta, user !== undefined ? k.uarch : k.arch], [user !== undefined ? 'au' : 'as', cached ? `=${cached.token}` : '']);
+        }),
+      );
+    } catch (err) {
+      throw unavailable('searchArchive', err);
+    }
+    const live = new Set(sessions);
+    for (const s of [...sc.sessions.keys()]) if (!live.has(s)) this.dropScopeSession(sc, s);
+    sessions.forEach((s, i) => {
+      const r = replies[i] as unknown[] | null;
+      if (r === null) {
+        this.dropScopeSession(sc, s);
+        return;
+      }
+      if (r.length === 1) return; // unchanged
+      this.dropScopeSession(sc, s);
+      const ids: string[] = [];
+      const flat = r[1] as Buffer[];
+      for (let j = 0; j + 1 < flat.length; j += 2) {
+        const item = decodeArchive(flat[j + 1]!, 'archive item payload');
+        if (user !== undefined && item.user !== user) continue;
+        sc.items.set(item.id, { item, session: s });
+        if (sc.index && sc.index.dim === item.key.length) sc.index.add(item.id, item.key);
+        ids.push(item.id);
+      }
+      sc.sessions.set(s, { token: str(r[0]), ids });
+    });
+    return sc;
+  }
+
+  private dropScopeSession(sc: ScopeCache, session: string): void {
+    const entry = sc.sessions.get(session);
+    if (!entry) return;
+    for (const id of entry.ids) {
+      if (sc.items.get(id)?.session === session) {
+        sc.items.delete(id);
+        sc.index?.remove(id);
+      }
+    }
+    sc.sessions.delete(session);
+  }
+
+  private forget(tenant: string, session: string, k: SessionKeys, user: string): void {
+    this.cache.delete(k.meta);
+    this.scopes.delete(scopeKeyOf({ tenant, session }));
+    if (user) {
+      this.scopes.delete(scopeKeyOf({ tenant, user }));
+      this.linked.delete(`${k.meta}\u0000${user}`);
+    }
+  }
+}
+
+/** A Store on Redis or Redis Cluster (see RedisStoreOptions). */
+export function redisStore(options?: RedisStoreOptions): RedisStore {
+  return new RedisStore(options);
+}

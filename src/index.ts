@@ -1,0 +1,50 @@
+// tidemark: working memory for chatbots. The front door: the factory, the public types, the
+// extension points and their defaults, and the error classes. Adapters live in subpath exports
+// (tidemark/redis, tidemark/http, tidemark/transformers) so their dependencies load only when used.
+
+export { createTidemark, Tidemark, TIDEMARK_DEFAULTS } from './middleware/tidemark.js';
+export type {
+  TidemarkOptions,
+  OutboxOptions,
+  WrapContext,
+  WrapInput,
+  WriteOptions,
+  WriteReport,
+  SessionView,
+  SlotView,
+} from './middleware/tidemark.js';
+export type { Reply } from './middleware/stream.js';
+export type * from './middleware/events.js';
+export type * from './types.js';
+
+export type { Embedder } from './embed/embedder.js';
+export { HashingEmbedder, hashingEmbedder, HASHING_EMBEDDER_DEFAULTS } from './embed/hashing.js';
+export type { HashingEmbedderOptions } from './embed/hashing.js';
+export { EmbeddingCache } from './embed/cache.js';
+
+export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, EraseTarget, EraseReport } from './store/store.js';
+export { MemoryStore, memoryStore, MEMORY_STORE_DEFAULTS } from './store/memory.js';
+export type { MemoryStoreOptions } from './store/memory.js';
+
+export type { Archive, ArchiveMatch } from './archive/archive.js';
+
+export type { Extractor, Candidate } from './memory/extract.js';
+export { RuleExtractor } from './memory/extract.js';
+export { SlotTable } from './memory/slots.js';
+export { MEMORY_DEFAULTS, READ_DEFAULTS, WRITE_DEFAULTS } from './memory/params.js';
+export type { MemoryParams, ReadParams, WriteParams } from './memory/params.js';
+export { DEFAULT_GATE_WEIGHTS } from './memory/gate.js';
+export type { GateFeatures, GateWeights } from './memory/gate.js';
+export { PROMPT_DEFAULTS, approxTokens } from './memory/prompt.js';
+export type { PromptOptions, TokenCounter } from './memory/prompt.js';
+
+export {
+  TidemarkError,
+  InputError,
+  ConfigError,
+  StoreError,
+  EmbedderError,
+  ErrorCodes,
+  isTidemarkError,
+} from './errors.js';
+export type { ErrorCode } from './errors.js';

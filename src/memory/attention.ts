@@ -1,0 +1,162 @@
+// The attention read over a session's slots. Scores
+//   z_i = beta * cos(q, K_i) + gamma * lexical_i(q) + delta * ln(s_i)
+// (additive scoring as in Bahdanau et al. 2015; dot-product similarity of unit vectors as in Vaswani
+// et al. 2017), weights a = softmax(z / tau), then top-k selection with a minimum weight and a mass
+// cut. lexical_i is Okapi BM25 over slot text normalised by the best score of this read. Optional
+// multi-hop reads follow End-To-End Memory Networks (Sukhbaatar et al. 2015): q' = normalize(q + sum a_i v_i).
+
+import { bm25Scores, docStats, type DocStats } from './bm25.js';
+import { decayed } from './decay.js';
+import type { ReadParams } from './params.js';
+import type { SlotTable } from './slots.js';
+import { STOPWORDS, tokenize } from './text.js';
+
+/** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
+export interface AttentionResult {
+  cosine: Float64Array;
+  /** BM25 normalised to [0, 1] by the best slot of this read. */
+  lexical: Float64Array;
+  /** Raw BM25. */
+  lexicalRaw: Float64Array;
+  strength: Float64Array;
+  score: Float64Array;
+  weight: Float64Array;
+  /** Selected slot indices, best first. */
+  selected: number[];
+  used: number;
+  topCosine: number;
+  topWeight: number;
+  entropy: number;
+  /** Whether the best relevant slot passes the hit threshold. */
+  hit: boolean;
+}
+
+/** Query terms for BM25: content words of the query (all words when it has none). */
+export function queryTerms(text: string): string[] {
+  const words = tokenize(text);
+  const content = words.filter((w) => !STOPWORDS.has(w));
+  return content.length > 0 ? content : words;
+}
+
+interface LexEntry {
+  ids: string[];
+  stats: Array<DocStats | null>;
+}
+
+// Token statistics per slot, cached per table and validated by revision id, so a read tokenises only
+// slots written since the last read. Held weakly: an erased or dropped table takes its text with it.
+const lexCache = new WeakMap<SlotTable, LexEntry>();
+
+/** BM25 document statistics of every slot (null for free slots), from the cache when still valid. */
+export function slotDocStats(table: SlotTable): Array<DocStats | null> {
+  let e = lexCache.get(table);
+  if (!e) {
+    e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null) };
+    lexCache.set(table, e);
+  }
+  for (let i = 0; i < table.capacity; i++) {
+    if (!table.isUsed(i)) {
+      e.stats[i] = null;
+      e.ids[i] = '';
+      continue;
+    }
+    if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
+      e.ids[i] = table.ids[i]!;
+      e.stats[i] = docStats(tokenize(`${table.keyText[i]} ${table.value[i]}`).filter((w) => !STOPWORDS.has(w)));
+    }
+  }
+  return e.stats;
+}
+
+/** Numerically stable softmax of `z / tau` over the entries where `mask[i]` is true. */
+export function softmaxMasked(z: Float64Array, mask: (i: number) => boolean, tau: number, out: Float64Array): void {
+  let max = -Infinity;
+  for (let i = 0; i < z.length; i++) if (mask(i) && z[i]! > max) max = z[i]!;
+  out.fill(0);
+  if (max === -Infinity) return;
+  let sum = 0;
+  for (let i = 0; i < z.length; i++) {
+    if (!mask(i)) continue;
+    const e = Math.exp((z[i]! - max) / tau);
+    out[i] = e;
+    sum += e;
+  }
+  for (let i = 0; i < z.length; i++) out[i] = out[i]! / sum;
+}
+
+/**
+ * One read over the table at clock `now`. `q` must be unit length. Costs one pass over
+ * capacity x dim floats plus BM25 over the query terms.
+ */
+export function attend(table: SlotTable, now: number, q: Float32Array, terms: readonly string[], p: ReadParams): AttentionResult {
+  const cap = table.capacity;
+  const dim = table.dim;
+  const keys = table.keys;
+  const cosine = new Float64Array(cap);
+  const strength = new Float64Array(cap);
+  const score = new Float64Array(cap);
+  const weight = new Float64Array(cap);
+  const lexicalRaw = new Float64Array(cap);
+  const lexical = new Float64Array(cap);
+  bm25Scores(terms, slotDocStats(table), lexicalRaw);
+  let maxLex = 0;
+  for (let i = 0; i < cap; i++) if (lexicalRaw[i]! > maxLex) maxLex = lexicalRaw[i]!;
+  let used = 0;
+  let topCosine = -1;
+  for (let i = 0; i < cap; i++) {
+    if (!table.isUsed(i)) continue;
+    used++;
+    let d = 0;
+    const off = i * dim;
+    for (let j = 0; j < dim; j++) d += q[j]! * keys[off + j]!;
+    cosine[i] = d;
+    if (d > topCosine) topCosine = d;
+    const s = table.isPinned(i) ? Math.max(table.strength[i]!, 1e-9) : Math.max(decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now), 1e-9);
+    strength[i] = s;
+    lexical[i] = maxLex > 0 ? lexicalRaw[i]! / maxLex : 0;
+    score[i] = p.beta * d + p.gamma * lexical[i]! + p.delta * Math.log(s);
+  }
+  const isUsed = (i: number): boolean => table.isUsed(i);
+  softmaxMasked(score, isUsed, p.temperature, weight);
+  let topWeight = 0;
+  let entropy = 0;
+  for (let i = 0; i < cap; i++) {
+    const w = weight[i]!;
+    if (w > topWeight) topWeight = w;
+    if (w > 0) entropy -= w * Math.log(w);
+  }
+  const relevant = (i: number): boolean => cosine[i]! >= p.minCosine || lexicalRaw[i]! >= p.minLexical;
+  const order: number[] = [];
+  for (let i = 0; i < cap; i++) if (table.isUsed(i) && relevant(i)) order.push(i);
+  order.sort((a, b) => weight[b]! - weight[a]! || cosine[b]! - cosine[a]!);
+  const selected: number[] = [];
+  let mass = 0;
+  for (const i of order) {
+    if (selected.length >= p.k) break;
+    if (selected.length > 0 && weight[i]! < p.minWeight) break;
+    selected.push(i);
+    mass += weight[i]!;
+    if (mass >= p.maxMass) break;
+  }
+  const best = selected[0];
+  const hit = best !== undefined && (cosine[best]! >= p.hitCosine || lexicalRaw[best]! >= p.minLexical);
+  return { cosine, lexical, lexicalRaw, strength, score, weight, selected: hit ? selected : [], used, topCosine, topWeight, entropy, hit };
+}
+
+/**
+ * Multi-hop query update (Sukhbaatar et al. 2015): q' = normalize(q + sum_i a_i v_i) over the
+ * selected slots, with v_i the value vectors.
+ */
+export function nextQuery(q: Float32Array, r: AttentionResult, valueVec: (slot: number) => Float32Array): Float32Array {
+  const out = Float32Array.from(q);
+  for (const i of r.selected) {
+    const v = valueVec(i);
+    const a = r.weight[i]!;
+    for (let j = 0; j < out.length; j++) out[j] = out[j]! + a * v[j]!;
+  }
+  let s = 0;
+  for (let j = 0; j < out.length; j++) s += out[j]! * out[j]!;
+  const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
+  for (let j = 0; j < out.length; j++) out[j] = out[j]! * inv;
+  return out;
+}

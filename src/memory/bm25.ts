@@ -1,0 +1,64 @@
+// Okapi BM25 (Robertson & Zaragoza 2009, "The Probabilistic Relevance Framework: BM25 and Beyond")
+// over the slots' text, so names and rare words count even when the embedder is weak. IDF is the
+// non-negative form ln(1 + (N - n + 0.5) / (n + 0.5)) used by Lucene, so a term in every slot
+// scores slightly above zero instead of below.
+
+/** Term statistics of one document. */
+export interface DocStats {
+  tf: Map<string, number>;
+  len: number;
+}
+
+export function docStats(tokens: readonly string[]): DocStats {
+  const tf = new Map<string, number>();
+  for (const t of tokens) tf.set(t, (tf.get(t) ?? 0) + 1);
+  return { tf, len: tokens.length };
+}
+
+export interface Bm25Params {
+  /** Term-frequency saturation. @default 1.2 */
+  k1: number;
+  /** Length normalisation. @default 0.75 */
+  b: number;
+}
+
+export const BM25_DEFAULTS: Bm25Params = { k1: 1.2, b: 0.75 };
+
+/**
+ * BM25 score of each document for a query. `docs[i]` may be null (a free slot): its score is 0 and
+ * it does not count toward N or the average length. Writes into `out` (length docs.length).
+ */
+export function bm25Scores(
+  queryTerms: readonly string[],
+  docs: ReadonlyArray<DocStats | null>,
+  out: Float64Array,
+  p: Bm25Params = BM25_DEFAULTS,
+): void {
+  out.fill(0);
+  let n = 0;
+  let total = 0;
+  for (const d of docs) {
+    if (d) {
+      n++;
+      total += d.len;
+    }
+  }
+  if (n === 0 || queryTerms.length === 0) return;
+  const avg = total / n || 1;
+  const seen = new Set<string>();
+  for (const term of queryTerms) {
+    if (seen.has(term)) continue;
+    seen.add(term);
+    let df = 0;
+    for (const d of docs) if (d && d.tf.has(term)) df++;
+    if (df === 0) continue;
+    const idf = Math.log(1 + (n - df + 0.5) / (df + 0.5));
+    for (let i = 0; i < docs.length; i++) {
+      const d = docs[i];
+      if (!d) continue;
+      const f = d.tf.get(term);
+      if (!f) continue;
+      out[i]! += (idf * (f * (p.k1 + 1))) / (f + p.k1 * (1 - p.b + (p.b * d.len) / avg));
+    }
+  }
+}

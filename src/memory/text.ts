@@ -1,0 +1,51 @@
+// Text helpers shared by the lexical scorer, the extractor and the built-in embedder: one tokenizer,
+// one stopword list and one fast string hash, so every part of tidemark sees the same words.
+
+/** Lower-cased word tokens: letters and digits (any script), apostrophes inside words dropped. */
+export function tokenize(text: string): string[] {
+  const out: string[] = [];
+  const re = /[\p{L}\p{N}]+(?:['’][\p{L}]+)*/gu;
+  for (const m of text.toLowerCase().matchAll(re)) {
+    let w = m[0];
+    // Possessive and contracted endings carry no topic: "bike's" -> "bike", "i'm" -> "i".
+    const q = w.search(/['’]/);
+    if (q > 0) w = w.slice(0, q);
+    out.push(w);
+  }
+  return out;
+}
+
+/**
+ * Function words that carry no topic. A short list on purpose (common practice for BM25 over short
+ * texts): "my" and "is" would otherwise make every first-person fact look alike.
+ */
+export const STOPWORDS: ReadonlySet<string> = new Set(
+  ('a an the and or but if then so of to in on at by for with from as is are was were be been being am ' +
+    'i me my mine we us our you your yours he him his she her it its they them their this that these those ' +
+    'do does did doing have has had having will would shall should can could may might must ' +
+    'what which who whom whose when where why how there here not no yes ok okay just also very really ' +
+    'about into over than too up down out off again please thanks thank hi hello hey oh well').split(' '),
+);
+
+/** Content words of a text: tokens minus stopwords. */
+export function contentWords(text: string): string[] {
+  return tokenize(text).filter((w) => !STOPWORDS.has(w));
+}
+
+/**
+ * 32-bit FNV-1a over UTF-16 code units (Fowler–Noll–Vo; the variant and constants of the FNV draft,
+ * draft-eastlake-fnv). Fast, no allocation, good spread for feature hashing.
+ */
+export function fnv1a(s: string, seed = 0x811c9dc5): number {
+  let h = seed >>> 0;
+  for (let i = 0; i < s.length; i++) {
+    h ^= s.charCodeAt(i);
+    h = Math.imul(h, 0x01000193);
+  }
+  return h >>> 0;
+}
+
+/** A 64-bit hex digest from two FNV-1a passes with different seeds: a cache key that holds no text. */
+export function textDigest(s: string): string {
+  return fnv1a(s).toString(16).padStart(8, '0') + fnv1a(s, 0x9747b28c).toString(16).padStart(8, '0');
+}

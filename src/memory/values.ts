@@ -1,0 +1,60 @@
+// Detection of dates, times and quantities in text: a gate feature, the anchor of update sentences
+// ("make it Friday"), and what the writer swaps when an update changes one value of a fact.
+
+/** Kinds of value expression the rules recognise. */
+export type ValueKind = 'date' | 'time' | 'quantity';
+
+export interface ValueExpr {
+  kind: ValueKind;
+  text: string;
+  index: number;
+}
+
+const WEEKDAY = '(?:mon|tues?|wed(?:nes)?|thu(?:rs?)?|fri|sat(?:ur)?|sun)(?:day)?';
+const MONTH = '(?:jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|july?|aug(?:ust)?|sep(?:t(?:ember)?)?|oct(?:ober)?|nov(?:ember)?|dec(?:ember)?)';
+const ORD = '\\d{1,2}(?:st|nd|rd|th)?';
+
+const PATTERNS: Array<{ kind: ValueKind; re: RegExp }> = [
+  { kind: 'date', re: new RegExp(`\\b(?:next|this|coming|last)?\\s*${WEEKDAY}\\b(?:,?\\s+(?:the\\s+)?${ORD}(?:\\s+of\\s+${MONTH})?)?`, 'i') },
+  { kind: 'date', re: new RegExp(`\\b(?:the\\s+)?${ORD}\\s+(?:of\\s+)?${MONTH}\\b|\\b${MONTH}\\s+(?:the\\s+)?${ORD}\\b`, 'i') },
+  { kind: 'date', re: /\b\d{4}-\d{2}-\d{2}\b|\b\d{1,2}\/\d{1,2}(?:\/\d{2,4})?\b/ },
+  { kind: 'date', re: /\b(?:tomorrow|day after tomorrow|tonight|next week|next month|the weekend|this weekend|later this week)\b/i },
+  { kind: 'date', re: /\b(?:on\s+)?the\s+\d{1,2}(?:st|nd|rd|th)\b/i },
+  { kind: 'time', re: /\b(?:at\s+)?\d{1,2}(?::\d{2})?\s*(?:am|pm|a\.m\.|p\.m\.)|\b\d{1,2}:\d{2}\b|\b(?:noon|midnight)\b/i },
+  {
+    kind: 'quantity',
+    re: /\b\d+(?:[.,]\d+)?\s*(?:%|percent|people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|minutes|kg|g|km|miles|litres|liters|ml|euros?|dollars?|pounds?|usd|eur|gbp|€|\$|£)?(?=\W|$)|\b(?:one|two|three|four|five|six|seven|eight|nine|ten|eleven|twelve)\s+(?:people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|adults|kids|children)\b/i,
+  },
+];
+
+/** The first date, time or quantity expression in `text`, or null. Dates win over times over numbers. */
+export function findValueExpr(text: string): ValueExpr | null {
+  for (const { kind, re } of PATTERNS) {
+    const m = re.exec(text);
+    if (m && m[0].trim().length > 0) {
+      const lead = m[0].length - m[0].trimStart().length;
+      return { kind, text: m[0].trim(), index: m.index + lead };
+    }
+  }
+  return null;
+}
+
+/** Every expression of one kind in `text` (for swapping an old value for a new one). */
+export function findAll(text: string, kind: ValueKind): ValueExpr[] {
+  const out: ValueExpr[] = [];
+  for (const p of PATTERNS) {
+    if (p.kind !== kind) continue;
+    const re = new RegExp(p.re.source, p.re.flags.includes('g') ? p.re.flags : p.re.flags + 'g');
+    for (const m of text.matchAll(re)) {
+      if (m[0].trim().length === 0) continue;
+      const lead = m[0].length - m[0].trimStart().length;
+      out.push({ kind, text: m[0].trim(), index: (m.index ?? 0) + lead });
+    }
+  }
+  return out.sort((a, b) => a.index - b.index);
+}
+
+/** True when text holds any date, time or quantity. */
+export function hasValueExpr(text: string): boolean {
+  return findValueExpr(text) !== null;
+}

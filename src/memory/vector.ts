@@ -1,0 +1,48 @@
+// Small vector helpers used on hot paths: plain loops over typed arrays, no allocation per element.
+
+/** Dot product of two equal-length vectors. */
+export function dot(a: ArrayLike<number>, b: ArrayLike<number>, bOffset = 0, n = a.length): number {
+  let s = 0;
+  for (let j = 0; j < n; j++) s += a[j]! * b[bOffset + j]!;
+  return s;
+}
+
+/** L2-normalises `v` in place; returns its original norm (0 leaves it untouched). */
+export function normalizeInPlace(v: Float32Array): number {
+  let s = 0;
+  for (let j = 0; j < v.length; j++) s += v[j]! * v[j]!;
+  const norm = Math.sqrt(s);
+  if (norm > 0) for (let j = 0; j < v.length; j++) v[j] = v[j]! / norm;
+  return norm;
+}
+
+/** Cosine of two vectors of any length (not assumed normalised). */
+export function cosine(a: ArrayLike<number>, b: ArrayLike<number>): number {
+  let ab = 0, aa = 0, bb = 0;
+  for (let j = 0; j < a.length; j++) {
+    ab += a[j]! * b[j]!;
+    aa += a[j]! * a[j]!;
+    bb += b[j]! * b[j]!;
+  }
+  return aa === 0 || bb === 0 ? 0 : ab / Math.sqrt(aa * bb);
+}
+
+/**
+ * Keeps the k best (index, score) pairs in two parallel arrays sorted best first. Insertion into a
+ * short sorted array beats a heap for the small k used here.
+ */
+export function pushTopK(idx: number[], score: number[], i: number, s: number, k: number): void {
+  if (score.length === k && s <= score[k - 1]!) return;
+  let p = score.length < k ? score.length : k - 1;
+  if (score.length < k) {
+    idx.push(i);
+    score.push(s);
+  }
+  while (p > 0 && score[p - 1]! < s) {
+    idx[p] = idx[p - 1]!;
+    score[p] = score[p - 1]!;
+    p--;
+  }
+  idx[p] = i;
+  score[p] = s;
+}

@@ -1,0 +1,300 @@
+// The write path: plans one turn's changes to a session's slots as a list of slot operations,
+// without touching the table. Content addressing (Graves et al. 2014, "Neural Turing Machines"):
+// w_i = softmax_i(beta * cos(k, K_i)); when the best match passes the overwrite threshold the slot is
+// overwritten erase-then-add style (its key moves toward the new key, its value is replaced and the
+// old value is archived as superseded, linked to its successor). Otherwise usage-based allocation
+// (Graves et al. 2016, "Hybrid computing using a neural network with dynamic external memory"): a
+// free slot, else the non-pinned slot with the lowest retention.
+
+import type { SlotOp } from '../store/store.js';
+import type { ArchiveItem, ArchiveReason, EvictReason, Role, SlotRecord, StoredEvent, WriteOutcome } from '../types.js';
+import { decayed, reinforce } from './decay.js';
+import type { Candidate } from './extract.js';
+import { gateFeatures, gateScore, type GateFeatures } from './gate.js';
+import type { WriteParams } from './params.js';
+import type { SlotTable } from './slots.js';
+import { findAll } from './values.js';
+
+/** A candidate with its embedded key and where it came from. */
+export interface KeyedCandidate {
+  candidate: Candidate;
+  /** Unit key vector of `candidate.key`. */
+  key: Float32Array;
+  turn: string;
+  role: Role;
+}
+
+export interface WritePlanInput {
+  table: SlotTable;
+  /** Session clock now. */
+  now: number;
+  nowMs: number;
+  params: WriteParams;
+  tenant: string;
+  session: string;
+  user?: string;
+  candidates: KeyedCandidate[];
+  /** Revision ids of slots the turn's read used; they are reinforced. */
+  reinforce: readonly string[];
+  /** Makes a fresh revision id. */
+  newId: () => string;
+}
+
+export interface CandidateOutcome {
+  index: number;
+  outcome: WriteOutcome;
+  slot: number;
+  gate: number;
+  features: GateFeatures;
+  /** Best key cosine against the slots at the time of the write (-1 when memory was empty). */
+  cosine: number;
+  /** For overwrites: the superseded revision id. */
+  supersededId?: string;
+  id?: string;
+}
+
+export interface Eviction {
+  slot: number;
+  record: SlotRecord;
+  reason: EvictReason;
+  archived: boolean;
+  strength: number;
+}
+
+export interface WritePlan {
+  ops: SlotOp[];
+  archive: ArchiveItem[];
+  events: StoredEvent[];
+  outcomes: CandidateOutcome[];
+  evictions: Eviction[];
+  reinforced: Array<{ slot: number; id: string; strength: number; halfLife: number }>;
+  /** Used slots after the plan is applied. */
+  slotsInUse: number;
+}
+
+const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
+
+/** Plans the changes of one turn. Pure: reads `table`, returns operations. */
+export function planWrite(input: WritePlanInput): WritePlan {
+  const { table, now, nowMs, params: p } = input;
+  const cap = table.capacity;
+  const dim = table.dim;
+  const pending = new Map<number, SlotRecord | null>();
+  const plan: WritePlan = { ops: [], archive: [], events: [], outcomes: [], evictions: [], reinforced: [], slotsInUse: 0 };
+
+  const used = (i: number): boolean => (pending.has(i) ? pending.get(i) !== null : table.isUsed(i));
+  const record = (i: number): SlotRecord | null => (pending.has(i) ? pending.get(i)! : table.get(i));
+  const pinned = (i: number): boolean => (pending.has(i) ? pending.get(i)?.pinned === true : table.isPinned(i));
+  const strengthNow = (i: number): number => {
+    const r = pending.get(i);
+    if (r) return r.pinned ? r.strength : decayed(r.strength, r.stamp, r.halfLife, now);
+    return table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now);
+  };
+  const cosAt = (i: number, k: Float32Array): number => {
+    const r = pending.get(i);
+    let d = 0;
+    if (r) {
+      for (let j = 0; j < dim; j++) d += k[j]! * r.key[j]!;
+    } else {
+      const off = i * dim;
+      const keys = table.keys;
+      for (let j = 0; j < dim; j++) d += k[j]! * keys[off + j]!;
+    }
+    return d;
+  };
+  const set = (i: number, rec: SlotRecord | null): void => {
+    pending.set(i, rec);
+  };
+  const toArchive = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): ArchiveItem => ({
+    id: rec.id,
+    tenant: input.tenant,
+    session: input.session,
+    ...(input.user ? { user: input.user } : {}),
+    key: rec.key,
+    keyText: rec.keyText,
+    value: rec.value,
+    provenance: rec.provenance.slice(),
+    reason,
+    strength,
+    halfLife: rec.halfLife,
+    clock: now,
+    createdMs: rec.createdMs,
+    archivedMs: nowMs,
+    ...(successor ? { successor } : {}),
+  });
+  const evict = (i: number, reason: EvictReason): void => {
+    const rec = record(i)!;
+    const s = strengthNow(i);
+    plan.archive.push(toArchive(rec, reason as ArchiveReason, s));
+    plan.evictions.push({ slot: i, record: rec, reason, archived: true, strength: s });
+    plan.events.push({ type: 'evict', slot: i, id: rec.id, clock: now, atMs: nowMs, reason });
+    set(i, null);
+  };
+
+  // 1. Forget: slots decayed below the floor, or past their maximum age, leave working memory.
+  for (let i = 0; i < cap; i++) {
+    if (!table.isUsed(i) || table.isPinned(i)) continue;
+    if (p.maxAgeMs > 0 && nowMs - table.createdMs[i]! > p.maxAgeMs) evict(i, 'expired');
+    else if (strengthNow(i) < p.strengthFloor) evict(i, 'decayed');
+  }
+
+  // 2. Reinforce what the turn's read used (spacing effect: stronger, longer half-life).
+  if (input.reinforce.length > 0) {
+    const wanted = new Set(input.reinforce);
+    for (let i = 0; i < cap; i++) {
+      if (!used(i)) continue;
+      const rec = record(i)!;
+      if (!wanted.has(rec.id)) continue;
+      const r = reinforce(strengthNow(i), rec.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
+      set(i, { ...rec, strength: r.strength, halfLife: r.halfLife, stamp: now, reads: rec.reads + 1 });
+      plan.reinforced.push({ slot: i, id: rec.id, strength: r.strength, halfLife: r.halfLife });
+      plan.events.push({ type: 'reinforce', slot: i, id: rec.id, clock: now, atMs: nowMs });
+    }
+  }
+
+  // 3. Write each candidate: gate, address, overwrite or allocate.
+  input.candidates.forEach((kc, index) => {
+    const c = kc.candidate;
+    let best = -1;
+    let bestCos = -1;
+    for (let i = 0; i < cap; i++) {
+      if (!used(i)) continue;
+      const d = cosAt(i, kc.key);
+      if (d > bestCos) {
+        bestCos = d;
+        best = i;
+      }
+    }
+    // An update names a new value but not its topic: aim it at the newest slot holding a value of
+    // the same kind, unless the key itself already addresses a slot.
+    let target = bestCos >= p.overwriteThreshold ? best : -1;
+    let value = c.value;
+    let provenanceTail: string[] = [];
+    if (c.updates && target < 0) {
+      let newest = -1;
+      let newestMs = -Infinity;
+      for (let i = 0; i < cap; i++) {
+        if (!used(i)) continue;
+        const r = record(i)!;
+        if (findAll(r.value, c.updates.kind).length === 0) continue;
+        const at = r.updatedMs + r.stamp * 1e-6;
+        if (at > newestMs) {
+          newestMs = at;
+          newest = i;
+        }
+      }
+      if (newest >= 0) target = newest;
+    }
+    if (c.updates && target >= 0) {
+      // Swap the old expression for the new one so the value reads as the current fact.
+      const old = record(target)!;
+      const exprs = findAll(old.value, c.updates.kind);
+      const last = exprs[exprs.length - 1];
+      if (last) {
+        value = old.value.slice(0, last.index) + c.updates.expr + old.value.slice(last.index + last.text.length);
+        provenanceTail = old.provenance;
+      }
+    }
+    const features = gateFeatures(c, kc.role, 1 - Math.max(0, bestCos));
+    const gate = gateScore(features, p.gateWeights);
+    const base = { index, gate, features, cosine: bestCos };
+    if (gate < p.gateThreshold && !c.pin) {
+      plan.outcomes.push({ ...base, outcome: 'gated_out', slot: -1 });
+      return;
+    }
+    if (target >= 0) {
+      const old = record(target)!;
+      if (normalizeText(old.value) === normalizeText(value)) {
+        // The same fact again: strengthen it and note the new source.
+        const r = reinforce(strengthNow(target), old.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
+        const provenance = [kc.turn, ...old.provenance.filter((t) => t !== kc.turn)];
+        set(target, { ...old, strength: Math.max(r.strength, gate), halfLife: r.halfLife, stamp: now, updatedMs: nowMs, provenance, pinned: old.pinned || c.pin === true });
+        plan.outcomes.push({ ...base, outcome: 'reinforced', slot: target, id: old.id });
+        plan.events.push({ type: 'reinforce', slot: target, id: old.id, clock: now, atMs: nowMs });
+        return;
+      }
+      const id = input.newId();
+      const blend = c.updates ? 0 : p.keyBlend;
+      const key = new Float32Array(dim);
+      let s = 0;
+      for (let j = 0; j < dim; j++) {
+        key[j] = (1 - blend) * old.key[j]! + blend * kc.key[j]!;
+        s += key[j]! * key[j]!;
+      }
+      const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
+      for (let j = 0; j < dim; j++) key[j] = key[j]! * inv;
+      const provenance = [kc.turn, ...provenanceTail.filter((t) => t !== kc.turn)];
+      plan.archive.push(toArchive(old, 'superseded', strengthNow(target), id));
+      const rec: SlotRecord = {
+        id,
+        key,
+        keyText: c.updates ? old.keyText : c.key,
+        value,
+        provenance,
+        strength: Math.max(gate, strengthNow(target)),
+        halfLife: old.halfLife,
+        stamp: now,
+        created: old.created,
+        createdMs: old.createdMs,
+        updatedMs: nowMs,
+        reads: old.reads,
+        pinned: old.pinned || c.pin === true,
+        previous: old.id,
+      };
+      set(target, rec);
+      plan.outcomes.push({ ...base, outcome: 'overwritten', slot: target, id, supersededId: old.id });
+      plan.events.push({ type: 'overwrite', slot: target, id, clock: now, atMs: nowMs });
+      return;
+    }
+    // Allocate: a free slot, else evict the weakest non-pinned slot.
+    let slot = -1;
+    for (let i = 0; i < cap; i++) {
+      if (!used(i)) {
+        slot = i;
+        break;
+      }
+    }
+    if (slot < 0) {
+      let weakest = -1;
+      let weakestS = Infinity;
+      for (let i = 0; i < cap; i++) {
+        if (pinned(i)) continue;
+        const s = strengthNow(i);
+        if (s < weakestS) {
+          weakestS = s;
+          weakest = i;
+        }
+      }
+      if (weakest < 0) {
+        // Every slot is pinned: nothing may be displaced.
+        plan.outcomes.push({ ...base, outcome: 'gated_out', slot: -1 });
+        return;
+      }
+      evict(weakest, 'capacity');
+      slot = weakest;
+    }
+    const id = input.newId();
+    set(slot, {
+      id,
+      key: Float32Array.from(kc.key),
+      keyText: c.key,
+      value,
+      provenance: [kc.turn],
+      strength: Math.min(1, Math.max(gate, 1e-6)),
+      halfLife: p.halfLife,
+      stamp: now,
+      created: now,
+      createdMs: nowMs,
+      updatedMs: nowMs,
+      reads: 0,
+      pinned: c.pin === true,
+    });
+    plan.outcomes.push({ ...base, outcome: 'allocated', slot, id });
+    plan.events.push({ type: 'allocate', slot, id, clock: now, atMs: nowMs });
+  });
+
+  for (const [index, slot] of pending) plan.ops.push({ index, slot });
+  plan.ops.sort((a, b) => a.index - b.index);
+  for (let i = 0; i < cap; i++) if (used(i)) plan.slotsInUse++;
+  return plan;
+}

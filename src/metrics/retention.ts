@@ -1,0 +1,310 @@
+// How long memories survive: slot lifetimes (in session turns/seconds and in wall-clock seconds),
+// right-censored for slots still alive, summarised by the Kaplan–Meier product-limit estimator,
+// plus the distribution of per-slot half-lives. Pure functions and a small event-fed tracker.
+
+import { ConfigError } from '../errors.js';
+import type { EvictReason } from '../types.js';
+import type { EvictEvent, WriteEvent } from '../middleware/events.js';
+import { subscribe, type TidemarkEventSource } from './source.js';
+
+/** One lifetime: how long a slot lived, and whether it ended (`event`) or is still running (censored). */
+export interface LifetimeObservation {
+  /** Lifetime in the unit being estimated (session clock units or seconds). Must be ≥ 0. */
+  time: number;
+  /** True when the slot left working memory; false when it was still alive (right-censored). */
+  event: boolean;
+}
+
+/** One step of a Kaplan–Meier curve, at a distinct time where at least one slot left memory. */
+export interface SurvivalStep {
+  time: number;
+  /** Slots whose lifetime is ≥ `time` (still observed just before it). */
+  atRisk: number;
+  /** Slots that left memory exactly at `time`. */
+  events: number;
+  /** Slots censored exactly at `time` (counted at risk here, gone after; the usual convention). */
+  censored: number;
+  /** Estimated probability that a slot lives beyond `time`. */
+  survival: number;
+  /** Greenwood's variance of `survival` (Greenwood 1926); NaN once survival reaches 0. */
+  variance: number;
+}
+
+/** A whole Kaplan–Meier estimate. */
+export interface SurvivalCurve {
+  /** Observations used. */
+  n: number;
+  events: number;
+  censored: number;
+  /** Steps in increasing time; the curve is 1 before the first step and constant between steps. */
+  steps: SurvivalStep[];
+  /** Smallest time at which survival ≤ 0.5, or null when the curve never gets there (the empirical memory half-life). */
+  median: number | null;
+}
+
+/**
+ * Kaplan–Meier product-limit estimator (Kaplan & Meier 1958, "Nonparametric estimation from incomplete
+ * observations"): S(t) = Π_{t_j ≤ t} (1 − d_j / n_j) over distinct event times t_j, with n_j the number at
+ * risk and d_j the events at t_j. Observations censored at t_j are counted at risk at t_j (censoring is
+ * taken to happen just after the events of the same time). Greenwood's formula gives the variance:
+ * Var S(t) = S(t)² Σ_{t_j ≤ t} d_j / (n_j (n_j − d_j)).
+ */
+export function kaplanMeier(observations: readonly LifetimeObservation[]): SurvivalCurve {
+  const sorted = observations
+    .filter((o) => Number.isFinite(o.time) && o.time >= 0)
+    .slice()
+    .sort((a, b) => a.time - b.time);
+  const n = sorted.length;
+  const steps: SurvivalStep[] = [];
+  let atRisk = n;
+  let survival = 1;
+  let greenwoodSum = 0;
+  let totalEvents = 0;
+  let median: number | null = null;
+  let i = 0;
+  while (i < n) {
+    const time = sorted[i]!.time;
+    let events = 0;
+    let censored = 0;
+    while (i < n && sorted[i]!.time === time) {
+      if (sorted[i]!.event) events += 1;
+      else censored += 1;
+      i += 1;
+    }
+    if (events > 0) {
+      survival *= 1 - events / atRisk;
+      greenwoodSum = atRisk > events ? greenwoodSum + events / (atRisk * (atRisk - events)) : Number.NaN;
+      steps.push({
+        time,
+        atRisk,
+        events,
+        censored,
+        survival,
+        variance: survival > 0 ? survival * survival * greenwoodSum : Number.NaN,
+      });
+      totalEvents += events;
+      if (median === null && survival <= 0.5) median = time;
+    }
+    atRisk -= events + censored;
+  }
+  return { n, events: totalEvents, censored: n - totalEvents, steps, median };
+}
+
+/** S(t) read off a curve (right-continuous step function). */
+export function survivalAt(curve: SurvivalCurve, time: number): number {
+  let s = 1;
+  for (const step of curve.steps) {
+    if (step.time > time) break;
+    s = step.survival;
+  }
+  return s;
+}
+
+/** Quantiles and a log₂-binned histogram of half-lives. */
+export interface HalfLifeDistribution {
+  n: number;
+  p10: number | null;
+  p50: number | null;
+  p90: number | null;
+  /** Bins [lo, hi) doubling in width: 1, 2, 4, 8, … (values below 1 go to the first bin). */
+  bins: Array<{ lo: number; hi: number; count: number }>;
+}
+
+/** Quantile by linear interpolation between order statistics (type 7 in Hyndman & Fan 1996). */
+export function quantile(sortedValues: readonly number[], q: number): number | null {
+  if (sortedValues.length === 0) return null;
+  const h = (sortedValues.length - 1) * q;
+  const lo = Math.floor(h);
+  const hi = Math.ceil(h);
+  return sortedValues[lo]! + (h - lo) * (sortedValues[hi]! - sortedValues[lo]!);
+}
+
+export function halfLifeDistribution(values: readonly number[]): HalfLifeDistribution {
+  const sorted = values.filter((v) => Number.isFinite(v) && v > 0).sort((a, b) => a - b);
+  const bins: HalfLifeDistribution['bins'] = [];
+  for (const v of sorted) {
+    const k = Math.max(0, Math.floor(Math.log2(v)));
+    while (bins.length <= k) {
+      const lo = 2 ** bins.length;
+      bins.push({ lo: bins.length === 0 ? 0 : lo, hi: lo * 2, count: 0 });
+    }
+    bins[k]!.count += 1;
+  }
+  return { n: sorted.length, p10: quantile(sorted, 0.1), p50: quantile(sorted, 0.5), p90: quantile(sorted, 0.9), bins };
+}
+
+export interface RetentionTrackerOptions {
+  /**
+   * Eviction reasons that count as a slot's lifetime ending. Others (by default `erased`: the user asked
+   * for deletion, the memory did not fade) are recorded as censored at the time they left.
+   * @default ['capacity', 'decayed', 'expired']
+   */
+  endReasons?: readonly EvictReason[];
+  /** Finished lifetimes kept (most recent first out); older ones are dropped. @default 10000 */
+  maxFinished?: number;
+  /** Live slots tracked; past this the oldest-started is forgotten. @default 100000 */
+  maxAlive?: number;
+}
+
+export const RETENTION_TRACKER_DEFAULTS: Required<RetentionTrackerOptions> = {
+  endReasons: ['capacity', 'decayed', 'expired'],
+  maxFinished: 10_000,
+  maxAlive: 100_000,
+};
+
+/** JSON shape served to the dashboard and returned by `retentionSnapshot()`. */
+export interface RetentionSnapshot {
+  atMs: number;
+  /** Lifetimes in session clock units (turns, or seconds with `decayUnit: 'seconds'`). */
+  clock: SurvivalCurve;
+  /** Lifetimes in wall-clock seconds. */
+  seconds: SurvivalCurve;
+  alive: number;
+  finished: number;
+  /** Finished lifetimes by eviction reason. */
+  byReason: Record<EvictReason, number>;
+  /** Half-lives of slots alive now, and of slots as they left memory. */
+  halfLife: { alive: HalfLifeDistribution; evicted: HalfLifeDistribution };
+}
+
+interface AliveSlot {
+  startClock: number;
+  startMs: number;
+  halfLife: number;
+}
+
+interface Finished {
+  clock: number;
+  seconds: number;
+  event: boolean;
+  halfLife: number;
+}
+
+/**
+ * Follows slot lifetimes from events: a `write` with outcome `allocated` starts one (keyed by session
+ * hash + slot index; an overwrite keeps the slot's lifetime, as `SlotRecord.created` does), an `evict`
+ * ends it with the lifetime the event carries. Slots still alive are censored at the session's latest
+ * seen clock and at `now`.
+ */
+export class RetentionTracker {
+  private readonly o: Required<RetentionTrackerOptions>;
+  private readonly ends: ReadonlySet<EvictReason>;
+  private readonly alive = new Map<string, AliveSlot>();
+  /** Latest clock seen per session, to censor live slots in clock units. */
+  private readonly clocks = new Map<string, number>();
+  private readonly finished: Finished[] = [];
+  private finishedHead = 0;
+  private readonly byReason: Record<EvictReason, number> = { capacity: 0, decayed: 0, expired: 0, erased: 0 };
+
+  constructor(options: RetentionTrackerOptions = {}) {
+    const o = { ...RETENTION_TRACKER_DEFAULTS, ...options };
+    for (const name of ['maxFinished', 'maxAlive'] as const) {
+      if (!Number.isInteger(o[name]) || o[name] < 1) {
+        throw new ConfigError(`retention: ${name} must be a positive integer, got ${String(o[name])}`, {
+          details: { option: name, value: o[name], expected: 'integer ≥ 1' },
+        });
+      }
+    }
+    if (!Array.isArray(o.endReasons)) {
+      throw new ConfigError(`retention: endReasons must be an array of eviction reasons, got ${typeof o.endReasons}`, {
+        details: { option: 'endReasons' },
+      });
+    }
+    this.o = o;
+    this.ends = new Set(o.endReasons);
+  }
+
+  /** Feed a `write` event. */
+  onWrite(e: WriteEvent): void {
+    this.seeClock(e.sessionHash, e.clock);
+    if (e.outcome !== 'allocated') {
+      const a = this.alive.get(`${e.sessionHash}#${e.slot}`);
+      if (a) a.halfLife = e.halfLife;
+      return;
+    }
+    const key = `${e.sessionHash}#${e.slot}`;
+    this.alive.delete(key);
+    this.alive.set(key, { startClock: e.clock, startMs: e.atMs, halfLife: e.halfLife });
+    if (this.alive.size > this.o.maxAlive) {
+      const oldest = this.alive.keys().next().value;
+      if (oldest !== undefined) this.alive.delete(oldest);
+    }
+  }
+
+  /** Feed an `evict` event. Lifetimes come from the event, so slots allocated before the tracker started count too. */
+  onEvict(e: EvictEvent): void {
+    const key = `${e.sessionHash}#${e.slot}`;
+    const a = this.alive.get(key);
+    this.alive.delete(key);
+    if (a) this.seeClock(e.sessionHash, a.startClock + e.lifetime);
+    this.byReason[e.reason] += 1;
+    const obs: Finished = {
+      clock: e.lifetime,
+      seconds: e.lifetimeMs / 1000,
+      event: this.ends.has(e.reason),
+      halfLife: e.halfLife,
+    };
+    if (this.finished.length < this.o.maxFinished) this.finished.push(obs);
+    else {
+      this.finished[this.finishedHead] = obs;
+      this.finishedHead = (this.finishedHead + 1) % this.o.maxFinished;
+    }
+  }
+
+  /** Subscribe to an event source; returns the function that unsubscribes. */
+  attach(source: TidemarkEventSource): () => void {
+    return subscribe(source, { write: (e) => this.onWrite(e), evict: (e) => this.onEvict(e) });
+  }
+
+  /** Observations in clock units and seconds, live slots censored at `nowMs`. */
+  observations(nowMs = Date.now()): { clock: LifetimeObservation[]; seconds: LifetimeObservation[] } {
+    const clock: LifetimeObservation[] = [];
+    const seconds: LifetimeObservation[] = [];
+    for (const f of this.finished) {
+      clock.push({ time: f.clock, event: f.event });
+      seconds.push({ time: f.seconds, event: f.event });
+    }
+    for (const [key, a] of this.alive) {
+      const sessionClock = this.clocks.get(key.slice(0, key.lastIndexOf('#'))) ?? a.startClock;
+      clock.push({ time: Math.max(0, sessionClock - a.startClock), event: false });
+      seconds.push({ time: Math.max(0, (nowMs - a.startMs) / 1000), event: false });
+    }
+    return { clock, seconds };
+  }
+
+  snapshot(nowMs = Date.now()): RetentionSnapshot {
+    const obs = this.observations(nowMs);
+    return {
+      atMs: nowMs,
+      clock: kaplanMeier(obs.clock),
+      seconds: kaplanMeier(obs.seconds),
+      alive: this.alive.size,
+      finished: this.finished.length,
+      byReason: { ...this.byReason },
+      halfLife: {
+        alive: halfLifeDistribution([...this.alive.values()].map((a) => a.halfLife)),
+        evicted: halfLifeDistribution(this.finished.map((f) => f.halfLife)),
+      },
+    };
+  }
+
+  private seeClock(sessionHash: string, clock: number): void {
+    const prev = this.clocks.get(sessionHash);
+    if (prev === undefined || clock > prev) {
+      this.clocks.delete(sessionHash);
+      this.clocks.set(sessionHash, clock);
+      if (this.clocks.size > this.o.maxAlive) {
+        const oldest = this.clocks.keys().next().value;
+        if (oldest !== undefined) this.clocks.delete(oldest);
+      }
+    }
+  }
+}
+
+/**
+ * Retention as JSON for `inspect()` and the dashboard: pass the tracker the instance feeds, or a list of
+ * observations to estimate directly.
+ */
+export function retentionSnapshot(source: RetentionTracker, nowMs = Date.now()): RetentionSnapshot {
+  return source.snapshot(nowMs);
+}

@@ -1,0 +1,132 @@
+// Typed lifecycle events of a tidemark instance (on eventemitter3). Payloads carry numbers, codes and
+// a keyed hash of the session id — never message text or raw ids — so they are safe to log and to
+// feed metrics. Emitting with no listener costs one check.
+
+import type { TidemarkError } from '../errors.js';
+import type { ArchiveReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
+
+/** Fields common to every per-session event. */
+export interface SessionEventBase {
+  /** Keyed hash of tenant + session id (see `Tidemark.hashSession`); stable within one instance secret. */
+  sessionHash: string;
+  tenant: string;
+  /** Wall-clock ms. */
+  atMs: number;
+}
+
+export interface ReadEvent extends SessionEventBase {
+  result: ReadResult;
+  /** Items returned (slots + archive). */
+  items: number;
+  slotItems: number;
+  archiveItems: number;
+  scanned: number;
+  slotsInUse: number;
+  capacity: number;
+  topWeight: number;
+  /** Entropy (nats) of the slot attention weights. */
+  entropy: number;
+  topCosine: number;
+  durationUs: number;
+  embedUs: number;
+}
+
+export interface WriteEvent extends SessionEventBase {
+  outcome: Exclude<WriteOutcome, 'gated_out'>;
+  slot: number;
+  /** Revision id now in the slot. */
+  id: string;
+  /** Session clock (turns or seconds) at the write. */
+  clock: number;
+  /** Gate score of the candidate (1 for reinforcements). */
+  gate: number;
+  strength: number;
+  halfLife: number;
+  slotsInUse: number;
+  capacity: number;
+}
+
+export interface OverwriteEvent extends SessionEventBase {
+  slot: number;
+  /** Revision id now in the slot. */
+  id: string;
+  /** Revision id moved to the archive as superseded. */
+  supersededId: string;
+  /** Cosine between the new key and the slot's key. */
+  cosine: number;
+}
+
+export interface EvictEvent extends SessionEventBase {
+  slot: number;
+  id: string;
+  reason: EvictReason;
+  /** Where the evicted value went. */
+  archived: boolean;
+  /** Lifetime in session clock units (turns or seconds) and in wall-clock ms. */
+  lifetime: number;
+  lifetimeMs: number;
+  halfLife: number;
+  strength: number;
+}
+
+export interface GateEvent extends SessionEventBase {
+  /** Gate score in [0, 1]. */
+  score: number;
+  threshold: number;
+  passed: boolean;
+  /** Feature values that produced the score (no text). */
+  features: Record<string, number>;
+}
+
+export interface CommitEvent extends SessionEventBase {
+  ops: number;
+  archived: number;
+  /** Conflicts retried before success. */
+  retries: number;
+  durationUs: number;
+  /** Write work (extract, gate, address) excluding store time. */
+  planUs: number;
+  embedUs: number;
+  slotsInUse: number;
+  capacity: number;
+  /** Slot lifetimes of live slots are not in here; see `inspect()` for censored observations. */
+  version: number;
+}
+
+export interface DegradedEvent extends SessionEventBase {
+  stage: 'read' | 'write';
+  code: string;
+}
+
+export interface ErrorEvent {
+  stage: 'read' | 'write' | 'handler' | 'outbox' | 'store';
+  error: TidemarkError;
+  sessionHash?: string;
+}
+
+export interface OutboxEvent {
+  /** Pending writes waiting for the store. */
+  depth: number;
+  /** `queued`: a failed write was queued; `drained`: one was committed; `overflow`: one was refused. */
+  change: 'queued' | 'drained' | 'overflow';
+  sessionHash?: string;
+}
+
+export interface ArchiveEvent extends SessionEventBase {
+  reason: ArchiveReason;
+  id: string;
+}
+
+/** Event name -> listener signature, for `tidemark.on(name, listener)`. */
+export interface TidemarkEvents {
+  read: (e: ReadEvent) => void;
+  write: (e: WriteEvent) => void;
+  overwrite: (e: OverwriteEvent) => void;
+  evict: (e: EvictEvent) => void;
+  gate: (e: GateEvent) => void;
+  commit: (e: CommitEvent) => void;
+  archive: (e: ArchiveEvent) => void;
+  degraded: (e: DegradedEvent) => void;
+  outbox: (e: OutboxEvent) => void;
+  error: (e: ErrorEvent) => void;
+}

@@ -1,0 +1,107 @@
+// Reply passthrough: forward each chunk the moment it arrives and keep a text copy for the memory
+// write, without buffering the reply. We collect inside the forwarding loop rather than with
+// ReadableStream.tee(), whose slow branch queues without limit (DESIGN.md section 8).
+
+/** How a reply ended. */
+export type ReplyEnd = 'done' | 'aborted' | 'error';
+
+/** What a wrapped handler may return. */
+export type Reply = string | AsyncIterable<string> | ReadableStream<string | Uint8Array>;
+
+export function isAsyncIterable(x: unknown): x is AsyncIterable<unknown> {
+  return typeof x === 'object' && x !== null && typeof (x as AsyncIterable<unknown>)[Symbol.asyncIterator] === 'function';
+}
+
+export function isReadableStream(x: unknown): x is ReadableStream<unknown> {
+  return typeof x === 'object' && x !== null && typeof (x as ReadableStream).getReader === 'function';
+}
+
+const chunkText = (decoder: TextDecoder, chunk: unknown): string =>
+  typeof chunk === 'string' ? chunk : chunk instanceof Uint8Array ? decoder.decode(chunk, { stream: true }) : String(chunk);
+
+/**
+ * Forwards an async iterable. `onEnd` runs exactly once, after the last chunk, on error, or when
+ * the consumer stops early or `signal` aborts (both count as `aborted`).
+ */
+export async function* passIterable<T>(src: AsyncIterable<T>, signal: AbortSignal | undefined, onEnd: (text: string, end: ReplyEnd) => void): AsyncGenerator<T, void, undefined> {
+  const decoder = new TextDecoder();
+  const it = src[Symbol.asyncIterator]();
+  let text = '';
+  let end: ReplyEnd = 'aborted';
+  try {
+    for (;;) {
+      if (signal?.aborted) break;
+      const r = await it.next();
+      if (r.done) {
+        end = 'done';
+        break;
+      }
+      text += chunkText(decoder, r.value);
+      yield r.value;
+    }
+  } catch (err) {
+    end = 'error';
+    throw err;
+  } finally {
+    if (end !== 'done') {
+      try {
+        await it.return?.();
+      } catch {
+        // The source's own cleanup failed; the reply has already ended either way.
+      }
+    }
+    onEnd(text, end);
+  }
+}
+
+/** Forwards a ReadableStream chunk by chunk (pull-driven, so backpressure reaches the source). */
+export function passReadable<T extends string | Uint8Array>(src: ReadableStream<T>, signal: AbortSignal | undefined, onEnd: (text: string, end: ReplyEnd) => void): ReadableStream<T> {
+  const decoder = new TextDecoder();
+  const reader = src.getReader();
+  let text = '';
+  let ended = false;
+  const finish = (end: ReplyEnd): void => {
+    if (ended) return;
+    ended = true;
+    onEnd(text, end);
+  };
+  let onAbort: (() => void) | undefined;
+  return new ReadableStream<T>({
+    start(controller) {
+      if (!signal) return;
+      onAbort = () => {
+        finish('aborted');
+        reader.cancel(signal.reason).catch(() => {});
+        try {
+          controller.close();
+        } catch {
+          // Already closed or errored.
+        }
+      };
+      if (signal.aborted) onAbort();
+      else signal.addEventListener('abort', onAbort, { once: true });
+    },
+    async pull(controller) {
+      try {
+        const r = await reader.read();
+        if (ended) return;
+        if (r.done) {
+          finish('done');
+          controller.close();
+        } else {
+          text += chunkText(decoder, r.value);
+          controller.enqueue(r.value);
+        }
+      } catch (err) {
+        finish('error');
+        controller.error(err);
+      } finally {
+        if (ended && onAbort) signal?.removeEventListener('abort', onAbort);
+      }
+    },
+    async cancel(reason) {
+      finish('aborted');
+      await reader.cancel(reason);
+    },
+  });
+}

@@ -1,0 +1,967 @@
+// createTidemark(): the middleware. One turn = read (embed the query, load the session, attend over
+// its slots, search the archive on a miss) -> the bot's handler with ctx.memory -> the reply passed
+// through untouched -> after the end, write (extract, gate, address, commit atomically). Memory
+// failures never break the reply: the handler runs degraded and failed writes wait in an outbox.
+
+import { createHmac, randomBytes, randomUUID } from 'node:crypto';
+import { EventEmitter } from 'eventemitter3';
+import { EmbeddingCache, embedCached } from '../embed/cache.js';
+import type { Embedder } from '../embed/embedder.js';
+import { HashingEmbedder } from '../embed/hashing.js';
+import {
+  ConfigError,
+  EmbedderError,
+  ErrorCodes,
+  InputError,
+  StoreError,
+  TidemarkError,
+  describeValue,
+  isTidemarkError,
+} from '../errors.js';
+import { attend, nextQuery, queryTerms, type AttentionResult } from '../memory/attention.js';
+import { bm25Scores, docStats } from '../memory/bm25.js';
+import { decayed } from '../memory/decay.js';
+import { RuleExtractor, type Extractor } from '../memory/extract.js';
+import { resolveMemoryParams, type MemoryParams, type MemoryParamsInput } from '../memory/params.js';
+import { PROMPT_DEFAULTS, renderPrompt, type PromptOptions } from '../memory/prompt.js';
+import { SlotTable } from '../memory/slots.js';
+import { STOPWORDS, tokenize } from '../memory/text.js';
+import { planWrite, type KeyedCandidate, type WritePlan } from '../memory/write.js';
+import { MemoryStore, scopeOf } from '../store/memory.js';
+import type { CommitRequest, EraseReport, SessionSnapshot, SlotOp, Store } from '../store/store.js';
+import type { ArchiveHit, ArchiveItem, MemoryContext, ReadTrace, RecallItem, SessionRef, SlotRecord, StoredEvent, TurnInput } from '../types.js';
+import type { TidemarkEvents } from './events.js';
+import { isAsyncIterable, isReadableStream, passIterable, passReadable, type Reply, type ReplyEnd } from './stream.js';
+import { checkId, validateTurn, type Turn } from './validate.js';
+
+export interface OutboxOptions {
+  /** Pending writes held at most; past it new writes are refused with an `outbox` overflow event. @default 10000 */
+  max?: number;
+  /** First retry delay in ms; doubles per failed attempt up to `maxRetryMs`. @default 250 */
+  retryMs?: number;
+  /** @default 10000 */
+  maxRetryMs?: number;
+}
+
+export interface TidemarkOptions extends MemoryParamsInput {
+  /** Where sessions live. @default new MemoryStore() */
+  store?: Store;
+  /** @default new HashingEmbedder({ dim: 384 }) */
+  embedder?: Embedder;
+  /** @default new RuleExtractor() */
+  extractor?: Extractor;
+  /** Tenant of turns that name none. @default 'default' */
+  tenant?: string;
+  /** Prompt block settings. */
+  prompt?: Partial<PromptOptions>;
+  /** Largest turn text in UTF-8 bytes. @default 32768 */
+  maxTextBytes?: number;
+  /** Cut oversized text instead of rejecting it. @default false */
+  truncate?: boolean;
+  /** Also extract candidates from the assistant's replies. @default false */
+  writeReplies?: boolean;
+  /** What an aborted reply writes: the user turn, nothing, or the user turn and the partial reply. @default 'user' */
+  onAbort?: 'user' | 'none' | 'all';
+  /** A read that takes longer (store, or waiting for the session's previous write) runs degraded. @default 1000 */
+  readTimeoutMs?: number;
+  /** Reload-and-redo attempts after a version conflict. @default 8 */
+  commitRetries?: number;
+  outbox?: OutboxOptions;
+  /** Embeddings cached (LRU entries). @default 10000 */
+  embedCacheSize?: number;
+  /** Key for hashing session ids in events and metrics; random per process when unset. */
+  secret?: string;
+}
+
+export const TIDEMARK_DEFAULTS: {
+  tenant: string;
+  maxTextBytes: number;
+  truncate: boolean;
+  writeReplies: boolean;
+  onAbort: 'user' | 'none' | 'all';
+  readTimeoutMs: number;
+  commitRetries: number;
+  outbox: Required<OutboxOptions>;
+  embedCacheSize: number;
+} = {
+  tenant: 'default',
+  maxTextBytes: 32 * 1024,
+  truncate: false,
+  writeReplies: false,
+  onAbort: 'user',
+  readTimeoutMs: 1000,
+  commitRetries: 8,
+  outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000 },
+  embedCacheSize: 10_000,
+};
+
+/** What a wrapped handler receives besides its input. */
+export interface WrapContext {
+  memory: MemoryContext;
+  signal?: AbortSignal;
+}
+
+/** The input of a wrapped handler: a turn plus anything the bot passes along. */
+export type WrapInput = TurnInput & Record<string, unknown>;
+
+export interface WriteOptions {
+  /** Revision ids of slots the turn's read used; they are reinforced. */
+  reinforce?: readonly string[];
+}
+
+/** What one write did. */
+export interface WriteReport {
+  allocated: number;
+  overwritten: number;
+  reinforced: number;
+  gatedOut: number;
+  evicted: number;
+  /** False when the store was unreachable and the write is waiting in the outbox. */
+  committed: boolean;
+  version: number;
+  /** Turn ids assigned, in input order. */
+  turns: string[];
+}
+
+/** A slot as `inspect()` shows it. */
+export interface SlotView {
+  index: number;
+  id: string;
+  key: string;
+  value: string;
+  provenance: string[];
+  /** Strength decayed to now. */
+  strength: number;
+  halfLife: number;
+  pinned: boolean;
+  reads: number;
+  /** Age in clock units. */
+  age: number;
+  createdMs: number;
+  updatedMs: number;
+}
+
+export interface SessionView {
+  tenant: string;
+  session: string;
+  sessionHash: string;
+  version: number;
+  clock: number;
+  turns: number;
+  capacity: number;
+  dim: number;
+  slots: SlotView[];
+  archive: Array<Omit<ArchiveItem, 'key'>>;
+  events: StoredEvent[];
+}
+
+interface OutboxEntry {
+  key: string;
+  ref: SessionRef;
+  turns: Turn[];
+  reinforce: string[];
+  attempts: number;
+}
+
+/** Microseconds since an origin from performance.now(). */
+const usSince = (t0: number): number => (performance.now() - t0) * 1000;
+
+export class Tidemark extends EventEmitter<TidemarkEvents> {
+  readonly store: Store;
+  readonly embedder: Embedder;
+  readonly extractor: Extractor;
+  readonly params: MemoryParams;
+  readonly tenant: string;
+  private readonly o: typeof TIDEMARK_DEFAULTS & { prompt: PromptOptions };
+  private readonly cache: EmbeddingCache;
+  private readonly secret: string;
+  private readonly hashes = new Map<string, string>();
+  /** Tail of each session's write chain: writes of one session apply in order. */
+  private readonly queues = new Map<string, Promise<void>>();
+  private readonly outbox: OutboxEntry[] = [];
+  private drainTimer: NodeJS.Timeout | undefined;
+  private drainDelay: number;
+  private draining: Promise<void> | undefined;
+  private closed = false;
+
+  constructor(options: TidemarkOptions = {}) {
+    super();
+    this.params = resolveMemoryParams(options);
+    const o = {
+      ...TIDEMARK_DEFAULTS,
+      ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize']),
+      outbox: { ...TIDEMARK_DEFAULTS.outbox, ...options.outbox },
+      prompt: { ...PROMPT_DEFAULTS, ...options.prompt },
+    };
+    checkId('tenant', o.tenant);
+    intOpt('maxTextBytes', o.maxTextBytes, 1, 16 * 1024 * 1024);
+    intOpt('readTimeoutMs', o.readTimeoutMs, 1, 600_000);
+    intOpt('commitRetries', o.commitRetries, 0, 1000);
+    intOpt('outbox.max', o.outbox.max, 0, 10_000_000);
+    intOpt('outbox.retryMs', o.outbox.retryMs, 1, 3_600_000);
+    intOpt('outbox.maxRetryMs', o.outbox.maxRetryMs, o.outbox.retryMs, 3_600_000);
+    intOpt('embedCacheSize', o.embedCacheSize, 0, 10_000_000);
+    intOpt('prompt.tokenBudget', o.prompt.tokenBudget, 0, 1_000_000);
+    if (!['user', 'none', 'all'].includes(o.onAbort)) {
+      throw new ConfigError(`option onAbort must be 'user', 'none' or 'all', got ${describeValue(o.onAbort)}`, { details: { option: 'onAbort' } });
+    }
+    this.o = o;
+    this.tenant = o.tenant;
+    this.store = options.store ?? new MemoryStore();
+    this.embedder = options.embedder ?? new HashingEmbedder({ dim: 384 });
+    if (!Number.isInteger(this.embedder.dim) || this.embedder.dim < 1) {
+      throw new ConfigError(`embedder ${this.embedder.id} has dim ${describeValue(this.embedder.dim)}; an embedder must know its dimension (call warmup() first)`);
+    }
+    this.extractor = options.extractor ?? new RuleExtractor();
+    this.cache = new EmbeddingCache(o.embedCacheSize);
+    this.secret = options.secret ?? randomBytes(16).toString('hex');
+    this.drainDelay = o.outbox.retryMs;
+  }
+
+  /** Writes waiting for the store. */
+  get outboxDepth(): number {
+    return this.outbox.length;
+  }
+
+  /** Keyed hash of a session id as it appears in events and metrics (12 hex chars). */
+  hashSession(tenant: string, session: string): string {
+    const k = `${tenant}\u0000${session}`;
+    let h = this.hashes.get(k);
+    if (h === undefined) {
+      h = createHmac('sha256', this.secret).update(k).digest('hex').slice(0, 12);
+      if (this.hashes.size >= 10_000) this.hashes.clear();
+      this.hashes.set(k, h);
+    }
+    return h;
+  }
+
+  // ---------------------------------------------------------------- read
+
+  /** Recalls what is relevant to `input.text` for its session. Store failures give `degraded: true`. */
+  async read(input: Pick<TurnInput, 'session' | 'text' | 'user' | 'tenant'> & { history?: boolean }): Promise<MemoryContext> {
+    const turn = this.validate({ ...input, role: 'user' });
+    return this.readTurn(turn, input.history === true);
+  }
+
+  private async readTurn(turn: Turn, history: boolean): Promise<MemoryContext> {
+    const t0 = performance.now();
+    const ref = refOf(turn);
+    const p = this.params.read;
+    const e0 = performance.now();
+    const [q] = await embedCached(this.embedder, this.cache, [turn.text]);
+    const embedUs = usSince(e0);
+    let snap: SessionSnapshot | null;
+    try {
+      snap = await this.loadForRead(ref, t0);
+    } catch (err) {
+      return this.degradedRead(turn, 'read', err, usSince(t0));
+    }
+    const table = snap?.table;
+    if (table && table.dim !== this.embedder.dim) throw this.dimError(ref, table.dim);
+    const now = this.clockFor(snap, turn.atMs, false);
+    const terms = queryTerms(turn.text);
+    let items: RecallItem[] = [];
+    let att: AttentionResult | undefined;
+    let hops = 0;
+    if (table && table.count() > 0) {
+      att = attend(table, now, q!, terms, p);
+      hops = 1;
+      for (let h = 1; h < p.hops && att.selected.length > 0; h++) {
+        const values = await embedCached(this.embedder, this.cache, att.selected.map((i) => table.value[i]!));
+        const byIdx = new Map(att.selected.map((i, n) => [i, values[n]!]));
+        const q2 = nextQuery(q!, att, (i) => byIdx.get(i)!);
+        const next = attend(table, now, q2, terms, p);
+        // Merge hops: average the weights of each slot over the hops it was selected in.
+        const merged = new Set([...att.selected, ...next.selected]);
+        for (const i of merged) next.weight[i] = (att.weight[i]! + next.weight[i]!) / 2;
+        next.selected = [...merged].sort((a, b) => next.weight[b]! - next.weight[a]!).slice(0, p.k);
+        next.hit = att.hit || next.hit;
+        att = next;
+        hops++;
+      }
+      items = att.selected.map((i) => slotItem(table, i, att!));
+    }
+    let archiveSearched = false;
+    let archiveCount = 0;
+    const slotHit = att?.hit === true;
+    if (p.archive === 'always' || (p.archive === 'miss' && !slotHit)) {
+      if (p.archiveK > 0 && (snap !== null || turn.user)) {
+        archiveSearched = true;
+        try {
+          const archived = await this.searchArchive(ref, q!, terms, table, now, history || p.history);
+          archiveCount = archived.filter((x) => x.source === 'archive').length;
+          items = mergeItems(items, archived, p.k + p.archiveK);
+        } catch (err) {
+          // The slots are still good; report the archive failure and carry on without it.
+          this.emitError('read', err, ref);
+        }
+      }
+    }
+    const result = slotHit ? 'hit' : archiveCount > 0 ? 'archive_hit' : 'miss';
+    const trace: ReadTrace = {
+      result,
+      scanned: table ? table.count() : 0,
+      topCosine: att ? att.topCosine : -1,
+      topWeight: att ? att.topWeight : 0,
+      entropy: att ? att.entropy : 0,
+      hops,
+      archiveSearched,
+      archiveHits: archiveCount,
+      items: items.map(({ source, slot, id, cosine, lexical, strength, weight, score, provenance }) => ({ source, ...(slot !== undefined ? { slot } : {}), id, cosine, lexical, strength, weight, score, provenance })),
+      durationUs: usSince(t0),
+    };
+    const ctx: MemoryContext = { items, prompt: renderPrompt(items, this.o.prompt), trace, degraded: false };
+    if (this.listenerCount('read') > 0) {
+      this.emit('read', {
+        ...this.base(ref),
+        result,
+        items: items.length,
+        slotItems: items.length - archiveCount,
+        archiveItems: archiveCount,
+        scanned: trace.scanned,
+        slotsInUse: trace.scanned,
+        capacity: table?.capacity ?? this.params.capacity,
+        topWeight: trace.topWeight,
+        entropy: trace.entropy,
+        topCosine: trace.topCosine,
+        durationUs: trace.durationUs,
+        embedUs,
+      });
+    }
+    return ctx;
+  }
+
+  /** Waits (within the read timeout) for the session's pending write, then loads it. */
+  private async loadForRead(ref: SessionRef, t0: number): Promise<SessionSnapshot | null> {
+    const budget = this.o.readTimeoutMs;
+    const pending = this.queues.get(keyOf(ref));
+    let timer: NodeJS.Timeout | undefined;
+    const timeout = new Promise<never>((_, reject) => {
+      timer = setTimeout(
+        () => reject(new StoreError(ErrorCodes.STORE_UNAVAILABLE, `store ${this.store.name} did not answer a read within ${budget} ms (readTimeoutMs)`)),
+        Math.max(1, budget - (performance.now() - t0)),
+      );
+    });
+    try {
+      if (pending) await Promise.race([pending, timeout]);
+      return await Promise.race([this.store.load(ref), timeout]);
+    } catch (err) {
+      throw isTidemarkError(err) ? err : new StoreError(ErrorCodes.STORE_UNAVAILABLE, `store ${this.store.name} failed a read: ${errMessage(err)}`, { cause: err });
+    } finally {
+      clearTimeout(timer);
+    }
+  }
+
+  private async searchArchive(ref: SessionRef, q: Float32Array, terms: string[], table: SlotTable | undefined, now: number, history: boolean): Promise<RecallItem[]> {
+    const p = this.params.read;
+    // Fetch more than needed so the lexical re-rank and the superseded filter have room.
+    const hits = await this.store.searchArchive(scopeOf(ref), q, p.archiveK * 4);
+    if (hits.length === 0) return [];
+    const stats = hits.map((h) => docStats(tokenize(`${h.item.keyText} ${h.item.value}`).filter((w) => !STOPWORDS.has(w))));
+    const raw = new Float64Array(hits.length);
+    bm25Scores(terms, stats, raw);
+    let maxLex = 0;
+    for (const v of raw) if (v > maxLex) maxLex = v;
+    const live = new Map<string, number>();
+    if (table) for (let i = 0; i < table.capacity; i++) if (table.isUsed(i)) live.set(table.ids[i]!, i);
+    const kept: Array<{ hit: ArchiveHit; lex: number; lexRaw: number; z: number }> = [];
+    hits.forEach((hit, n) => {
+      if (hit.cosine < p.archiveMinCosine && raw[n]! < p.minLexical) return;
+      const lex = maxLex > 0 ? raw[n]! / maxLex : 0;
+      const z = p.beta * hit.cosine + p.gamma * lex + p.delta * Math.log(Math.max(hit.item.strength, 1e-9));
+      kept.push({ hit, lex, lexRaw: raw[n]!, z });
+    });
+    if (kept.length === 0) return [];
+    const max = Math.max(...kept.map((k) => k.z));
+    const exps = kept.map((k) => Math.exp((k.z - max) / p.temperature));
+    const sum = exps.reduce((a, b) => a + b, 0);
+    const out: RecallItem[] = [];
+    const successors: RecallItem[] = [];
+    kept
+      .map((k, n) => ({ ...k, w: exps[n]! / sum }))
+      .sort((a, b) => b.w - a.w)
+      .forEach((k) => {
+        const it = k.hit.item;
+        const item: RecallItem = {
+          source: 'archive', id: it.id, key: it.keyText, value: it.value, provenance: it.provenance.slice(),
+          weight: k.w, score: k.z, cosine: k.hit.cosine, lexical: k.lex, strength: it.strength, reason: it.reason,
+          ...(it.successor ? { successor: it.successor } : {}),
+        };
+        // A superseded value never outranks its successor: when the successor is live, return it first.
+        if (!history && it.reason === 'superseded' && it.successor && table) {
+          const idx = live.get(it.successor);
+          if (idx !== undefined && !successors.some((s) => s.id === it.successor)) {
+            const s = decayed(table.strength[idx]!, table.stamp[idx]!, table.halfLife[idx]!, now);
+            successors.push({
+              source: 'slot', slot: idx, id: table.ids[idx]!, key: table.keyText[idx]!, value: table.value[idx]!,
+              provenance: table.provenance[idx]!.slice(), weight: k.w, score: k.z, cosine: k.hit.cosine, lexical: k.lex,
+              strength: table.isPinned(idx) ? table.strength[idx]! : s,
+            });
+          }
+        }
+        out.push(item);
+      });
+    if (history) return out.slice(0, p.archiveK);
+    // Successors first, then current (evicted) items, then superseded ones.
+    const current = out.filter((i) => i.reason !== 'superseded');
+    const superseded = out.filter((i) => i.reason === 'superseded');
+    return [...successors, ...current, ...superseded].slice(0, p.archiveK + successors.length);
+  }
+
+  private degradedRead(turn: Turn, stage: 'read', err: unknown, durationUs: number): MemoryContext {
+    const ref = refOf(turn);
+    const error = this.emitError(stage, err, ref);
+    this.emit('degraded', { ...this.base(ref), stage, code: error.code });
+    return {
+      items: [],
+      prompt: '',
+      degraded: true,
+      trace: { result: 'miss', scanned: 0, topCosine: -1, topWeight: 0, entropy: 0, hops: 0, archiveSearched: false, archiveHits: 0, items: [], durationUs },
+    };
+  }
+
+  // ---------------------------------------------------------------- write
+
+  /**
+   * Extracts, gates and writes one or more turns, in order per session. Resolves once committed,
+   * or once queued in the outbox when the store is unreachable (`committed: false`).
+   */
+  async write(turns: TurnInput | TurnInput[], options: WriteOptions = {}): Promise<WriteReport> {
+    const list = (Array.isArray(turns) ? turns : [turns]).map((t) => this.validate(t));
+    if (list.length === 0) throw new InputError(ErrorCodes.INPUT_FIELD, 'write needs at least one turn');
+    const first = list[0]!;
+    for (const t of list) {
+      if (t.session !== first.session || t.tenant !== first.tenant) {
+        throw new InputError(ErrorCodes.INPUT_FIELD, 'all turns of one write call must belong to one session; call write once per session', { details: { field: 'session' } });
+      }
+    }
+    return this.enqueue(refOf(first), list, [...(options.reinforce ?? [])]);
+  }
+
+  private enqueue(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+    const key = keyOf(ref);
+    const prev = this.queues.get(key) ?? Promise.resolve();
+    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce));
+    const tail = job.then(
+      () => undefined,
+      () => undefined,
+    );
+    this.queues.set(key, tail);
+    void tail.then(() => {
+      if (this.queues.get(key) === tail) this.queues.delete(key);
+    });
+    return job;
+  }
+
+  private async commitOrQueue(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+    const key = keyOf(ref);
+    // Keep a session's writes in order: once one waits in the outbox, later ones queue behind it.
+    if (this.outbox.some((e) => e.key === key)) return this.toOutbox(ref, turns, reinforce, 0);
+    try {
+      return await this.commitTurns(ref, turns, reinforce);
+    } catch (err) {
+      if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
+        this.emitError('write', err, ref);
+        this.emit('degraded', { ...this.base(ref), stage: 'write', code: err.code });
+        return this.toOutbox(ref, turns, reinforce, 1);
+      }
+      this.emitError('write', err, ref);
+      throw err;
+    }
+  }
+
+  private toOutbox(ref: SessionRef, turns: Turn[], reinforce: string[], attempts: number): WriteReport {
+    const report: WriteReport = { allocated: 0, overwritten: 0, reinforced: 0, gatedOut: 0, evicted: 0, committed: false, version: -1, turns: turns.map((t) => t.turn ?? '') };
+    if (this.outbox.length >= this.o.outbox.max) {
+      const error = new StoreError(ErrorCodes.STORE_OUTBOX_FULL, `outbox is full (${this.o.outbox.max} pending writes) while store ${this.store.name} is unreachable; this write was refused — raise outbox.max or restore the store`);
+      this.emit('outbox', { depth: this.outbox.length, change: 'overflow', sessionHash: this.hashSession(ref.tenant, ref.session) });
+      this.emitError('outbox', error, ref);
+      throw error;
+    }
+    this.outbox.push({ key: keyOf(ref), ref, turns, reinforce, attempts });
+    this.emit('outbox', { depth: this.outbox.length, change: 'queued', sessionHash: this.hashSession(ref.tenant, ref.session) });
+    this.scheduleDrain();
+    return report;
+  }
+
+  private scheduleDrain(): void {
+    if (this.drainTimer || this.closed || this.outbox.length === 0) return;
+    this.drainTimer = setTimeout(() => {
+      this.drainTimer = undefined;
+      void this.drain();
+    }, this.drainDelay);
+    this.drainTimer.unref?.();
+  }
+
+  /** Commits outbox entries in order; stops at the first store failure and backs off. */
+  private drain(): Promise<void> {
+    if (this.draining) return this.draining;
+    this.draining = (async () => {
+      try {
+        while (this.outbox.length > 0) {
+          const entry = this.outbox[0]!;
+          try {
+            await this.commitTurns(entry.ref, entry.turns, entry.reinforce);
+          } catch (err) {
+            if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
+              entry.attempts++;
+              this.drainDelay = Math.min(this.o.outbox.maxRetryMs, this.drainDelay * 2);
+              return;
+            }
+            // Not a connectivity problem: retrying cannot help. Report it; never drop silently.
+            this.emitError('outbox', err, entry.ref);
+          }
+          this.outbox.shift();
+          this.drainDelay = this.o.outbox.retryMs;
+          this.emit('outbox', { depth: this.outbox.length, change: 'drained', sessionHash: this.hashSession(entry.ref.tenant, entry.ref.session) });
+        }
+      } finally {
+        this.draining = undefined;
+        this.scheduleDrain();
+      }
+    })();
+    return this.draining;
+  }
+
+  /** Extract, embed, plan and commit with reload-and-redo on version conflicts. */
+  private async commitTurns(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+    const extracted: Array<{ turn: Turn; candidates: KeyedCandidate['candidate'][] }> = [];
+    for (const t of turns) {
+      const skip = t.role !== 'user' && !(t.role === 'assistant' && this.o.writeReplies);
+      extracted.push({ turn: t, candidates: skip ? [] : await this.extractor.extract(t.text, t.role) });
+    }
+    const keyTexts = extracted.flatMap((e) => e.candidates.map((c) => c.key));
+    const e0 = performance.now();
+    const keys = keyTexts.length > 0 ? await embedCached(this.embedder, this.cache, keyTexts) : [];
+    const embedUs = usSince(e0);
+    let planUs = 0;
+    for (let attempt = 0; attempt <= this.o.commitRetries; attempt++) {
+      const snap = await this.storeCall(() => this.store.load(ref), 'load');
+      if (snap && snap.table.dim !== this.embedder.dim) throw this.dimError(ref, snap.table.dim);
+      const p0 = performance.now();
+      let table = snap?.table ?? new SlotTable(this.params.capacity, this.embedder.dim);
+      const resize = table.capacity !== this.params.capacity ? resizeTable(table, this.params.capacity) : null;
+      if (resize) table = resize.table;
+      // Assign turn ids and advance the clock.
+      let turnCount = snap?.turns ?? 0;
+      let clock = snap?.clock ?? 0;
+      const ids: string[] = [];
+      const keyed: KeyedCandidate[] = [];
+      let k = 0;
+      for (const { turn, candidates } of extracted) {
+        turnCount++;
+        clock = this.params.decayUnit === 'seconds' ? Math.max(clock, turn.atMs / 1000) : clock + 1;
+        const id = turn.turn ?? `t${turnCount}`;
+        ids.push(id);
+        for (const c of candidates) keyed.push({ candidate: c, key: keys[k++]!, turn: id, role: turn.role });
+      }
+      k = 0;
+      const last = turns[turns.length - 1]!;
+      const plan = planWrite({
+        table,
+        now: clock,
+        nowMs: last.atMs,
+        params: this.params.write,
+        tenant: ref.tenant,
+        session: ref.session,
+        ...(ref.user ? { user: ref.user } : {}),
+        candidates: keyed,
+        reinforce,
+        newId: newRevisionId,
+      });
+      const ops = resize ? mergeOps(resize.ops, plan.ops) : plan.ops;
+      const archive = resize ? [...resize.archive(ref, clock), ...plan.archive] : plan.archive;
+      const req: CommitRequest = {
+        expectedVersion: snap?.version ?? 0,
+        clock,
+        turns: turnCount,
+        capacity: table.capacity,
+        dim: table.dim,
+        ops,
+        archive,
+        events: plan.events,
+      };
+      planUs += usSince(p0);
+      const c0 = performance.now();
+      const res = await this.storeCall(() => this.store.commit(ref, req), 'commit');
+      if (!res.ok) continue;
+      this.emitWrite(ref, plan, table.capacity, clock);
+      const report: WriteReport = {
+        allocated: 0, overwritten: 0, reinforced: plan.reinforced.length, gatedOut: 0, evicted: plan.evictions.length,
+        committed: true, version: res.version, turns: ids,
+      };
+      for (const o of plan.outcomes) {
+        if (o.outcome === 'allocated') report.allocated++;
+        else if (o.outcome === 'overwritten') report.overwritten++;
+        else if (o.outcome === 'reinforced') report.reinforced++;
+        else report.gatedOut++;
+      }
+      if (this.listenerCount('commit') > 0) {
+        this.emit('commit', {
+          ...this.base(ref), ops: ops.length, archived: archive.length, retries: attempt, durationUs: usSince(c0),
+          planUs, embedUs, slotsInUse: plan.slotsInUse, capacity: table.capacity, version: res.version,
+        });
+      }
+      return report;
+    }
+    throw new StoreError(ErrorCodes.STORE_CONFLICT, `session kept changing under ${this.o.commitRetries + 1} commit attempts; another writer is very busy on it — retry later or raise commitRetries`);
+  }
+
+  private emitWrite(ref: SessionRef, plan: WritePlan, capacity: number, clock: number): void {
+    const base = this.base(ref);
+    for (const ev of plan.evictions) {
+      this.emit('evict', {
+        ...base, slot: ev.slot, id: ev.record.id, reason: ev.reason, archived: ev.archived,
+        lifetime: clock - ev.record.created, lifetimeMs: base.atMs - ev.record.createdMs, halfLife: ev.record.halfLife, strength: ev.strength,
+      });
+      if (ev.archived) this.emit('archive', { ...base, reason: ev.reason as 'capacity', id: ev.record.id });
+    }
+    for (const r of plan.reinforced) {
+      this.emit('write', { ...base, outcome: 'reinforced', slot: r.slot, id: r.id, clock, gate: 1, strength: r.strength, halfLife: r.halfLife, slotsInUse: plan.slotsInUse, capacity });
+    }
+    for (const o of plan.outcomes) {
+      if (this.listenerCount('gate') > 0) {
+        this.emit('gate', { ...base, score: o.gate, threshold: this.params.write.gateThreshold, passed: o.outcome !== 'gated_out', features: { ...o.features } });
+      }
+      if (o.outcome === 'gated_out') continue;
+      const op = plan.ops.find((x) => x.index === o.slot)?.slot;
+      this.emit('write', {
+        ...base, outcome: o.outcome, slot: o.slot, id: o.id ?? '', clock, gate: o.gate,
+        strength: op?.strength ?? o.gate, halfLife: op?.halfLife ?? this.params.write.halfLife, slotsInUse: plan.slotsInUse, capacity,
+      });
+      if (o.outcome === 'overwritten' && o.supersededId) {
+        this.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
+        this.emit('archive', { ...base, reason: 'superseded', id: o.supersededId });
+      }
+    }
+  }
+
+  // ---------------------------------------------------------------- wrap
+
+  /**
+   * Wraps a message handler. The handler receives `ctx.memory`; its reply (a string, an async
+   * iterable of strings, or a ReadableStream) is returned chunk for chunk as it arrives, and the
+   * memory write runs after the reply ends. Bad input rejects with an InputError before the handler
+   * runs; any memory failure leaves the reply intact.
+   */
+  wrap<I extends WrapInput, R extends Reply>(handler: (input: I, ctx: WrapContext) => R | Promise<R>): (input: I, options?: { signal?: AbortSignal }) => Promise<R> {
+    return async (input: I, options: { signal?: AbortSignal } = {}): Promise<R> => {
+      const turn = this.validate(input);
+      const signal = options.signal ?? (input.signal instanceof AbortSignal ? input.signal : undefined);
+      let memory: MemoryContext;
+      try {
+        memory = await this.readTurn(turn, false);
+      } catch (err) {
+        memory = this.degradedRead(turn, 'read', err, 0);
+      }
+      const used = memory.items.filter((i) => i.source === 'slot').map((i) => i.id);
+      const ref = refOf(turn);
+      const after = (text: string, end: ReplyEnd): void => {
+        const turns = [turn];
+        const reply: Turn | null = text.trim().length > 0 ? { ...refOf(turn), role: 'assistant', text: text.slice(0, this.o.maxTextBytes), atMs: Date.now() } : null;
+        if (end === 'done' && reply) turns.push(reply);
+        if (end === 'aborted') {
+          if (this.o.onAbort === 'none') return;
+          if (this.o.onAbort === 'all' && reply) turns.push(reply);
+        }
+        this.enqueue(ref, turns, used).catch(() => {
+          // Already reported through the error event; a reply is never failed by its memory write.
+        });
+      };
+      let reply: R;
+      try {
+        reply = await handler(input, signal ? { memory, signal } : { memory });
+      } catch (err) {
+        after('', 'error');
+        throw err;
+      }
+      if (typeof reply === 'string') {
+        after(reply, signal?.aborted ? 'aborted' : 'done');
+        return reply;
+      }
+      if (isReadableStream(reply)) return passReadable(reply as ReadableStream<string | Uint8Array>, signal, after) as R;
+      if (isAsyncIterable(reply)) return passIterable(reply as AsyncIterable<string>, signal, after) as unknown as R;
+      after('', 'done');
+      return reply;
+    };
+  }
+
+  // ---------------------------------------------------------------- admin
+
+  /** Pins (or unpins) a slot: pinned slots never decay out and are never evicted. */
+  async pin(session: string, slot: number, pinned = true, tenant = this.tenant): Promise<void> {
+    const ref = { tenant: checkId('tenant', tenant), session: checkId('session', session) };
+    if (!Number.isInteger(slot) || slot < 0) {
+      throw new InputError(ErrorCodes.INPUT_FIELD, `slot must be a slot index >= 0, got ${describeValue(slot)}`, { details: { field: 'slot' } });
+    }
+    await this.mutate(ref, (snap) => {
+      const rec = snap.table.get(slot);
+      if (!rec) throw new InputError(ErrorCodes.INPUT_FIELD, `slot ${slot} of this session is empty`, { details: { field: 'slot' } });
+      return {
+        ops: [{ index: slot, slot: { ...rec, pinned } }],
+        events: [{ type: pinned ? 'pin' : 'unpin', slot, id: rec.id, clock: snap.clock, atMs: Date.now() }],
+      };
+    });
+  }
+
+  /**
+   * Erases a session, or a user with all their sessions: slots, archive items, events, pending
+   * outbox writes and cached embeddings. Nothing erased can come back through a read.
+   */
+  async erase(target: { session: string } | { user: string }, tenant = this.tenant): Promise<EraseReport> {
+    checkId('tenant', tenant);
+    const t: { tenant: string; user: string } | { tenant: string; session: string } =
+      'user' in target ? { tenant, user: checkId('user', target.user) } : { tenant, session: checkId('session', target.session) };
+    // Wait for writes in flight so none lands after the erase.
+    if ('session' in t) await this.queues.get(keyOf({ tenant, session: t.session }));
+    else await Promise.all(this.queues.values());
+    for (let i = this.outbox.length - 1; i >= 0; i--) {
+      const e = this.outbox[i]!;
+      if (e.ref.tenant !== tenant) continue;
+      if ('user' in t ? e.ref.user === t.user : e.ref.session === t.session) this.outbox.splice(i, 1);
+    }
+    // Cached vectors are keyed by digests, but they derive from the erased text: drop them all.
+    this.cache.clear();
+    const report = await this.storeCall(() => this.store.erase(t), 'erase');
+    return report;
+  }
+
+  /** A session's slots (strengths decayed to now), archive items and recent events. */
+  async inspect(session: string, tenant = this.tenant, options: { user?: string; archiveLimit?: number; eventLimit?: number } = {}): Promise<SessionView> {
+    const ref: SessionRef = { tenant: checkId('tenant', tenant), session: checkId('session', session), ...(options.user ? { user: checkId('user', options.user) } : {}) };
+    const snap = await this.storeCall(() => this.store.load(ref), 'load');
+    const now = this.clockFor(snap, Date.now(), false);
+    const slots: SlotView[] = [];
+    if (snap) {
+      const t = snap.table;
+      for (let i = 0; i < t.capacity; i++) {
+        if (!t.isUsed(i)) continue;
+        slots.push({
+          index: i, id: t.ids[i]!, key: t.keyText[i]!, value: t.value[i]!, provenance: t.provenance[i]!.slice(),
+          strength: t.isPinned(i) ? t.strength[i]! : decayed(t.strength[i]!, t.stamp[i]!, t.halfLife[i]!, now),
+          halfLife: t.halfLife[i]!, pinned: t.isPinned(i), reads: t.reads[i]!, age: now - t.created[i]!,
+          createdMs: t.createdMs[i]!, updatedMs: t.updatedMs[i]!,
+        });
+      }
+    }
+    const archive = (await this.storeCall(() => this.store.listArchive(scopeOf(ref), options.archiveLimit ?? 100), 'archive')).map(({ key: _key, ...rest }) => rest);
+    const events = await this.storeCall(() => this.store.readEvents(ref, options.eventLimit ?? 100), 'events');
+    return {
+      tenant: ref.tenant, session: ref.session, sessionHash: this.hashSession(ref.tenant, ref.session),
+      version: snap?.version ?? 0, clock: snap?.clock ?? 0, turns: snap?.turns ?? 0,
+      capacity: snap?.table.capacity ?? this.params.capacity, dim: snap?.table.dim ?? this.embedder.dim, slots, archive, events,
+    };
+  }
+
+  /**
+   * Re-embeds a session's slot keys with the current embedder, e.g. after switching models; the
+   * values, strengths and provenance are kept. Archive items keep their old vectors until evicted.
+   */
+  async migrate(session: string, tenant = this.tenant): Promise<{ slots: number }> {
+    const ref = { tenant: checkId('tenant', tenant), session: checkId('session', session) };
+    let n = 0;
+    await this.mutate(ref, async (snap) => {
+      const recs: Array<[number, SlotRecord]> = [];
+      for (let i = 0; i < snap.table.capacity; i++) {
+        const r = snap.table.get(i);
+        if (r) recs.push([i, r]);
+      }
+      const keys = recs.length ? await embedCached(this.embedder, this.cache, recs.map(([, r]) => r.keyText)) : [];
+      n = recs.length;
+      const ops: SlotOp[] = [];
+      for (let i = 0; i < snap.table.capacity; i++) ops.push({ index: i, slot: null });
+      recs.forEach(([i, r], m) => (ops[i] = { index: i, slot: { ...r, key: Float32Array.from(keys[m]!) } }));
+      return { ops, events: [], dim: this.embedder.dim };
+    }, true);
+    return { slots: n };
+  }
+
+  /** Waits for in-flight writes, then tries to drain the outbox until empty or `timeoutMs` passes. */
+  async flush(options: { timeoutMs?: number } = {}): Promise<{ outboxDepth: number }> {
+    const deadline = Date.now() + (options.timeoutMs ?? 10_000);
+    while (this.queues.size > 0 && Date.now() < deadline) await Promise.race([Promise.all(this.queues.values()), sleep(50)]);
+    while (this.outbox.length > 0 && Date.now() < deadline) {
+      if (this.drainTimer) {
+        clearTimeout(this.drainTimer);
+        this.drainTimer = undefined;
+      }
+      await this.drain();
+      if (this.outbox.length > 0) await sleep(Math.min(200, Math.max(1, deadline - Date.now())));
+    }
+    return { outboxDepth: this.outbox.length };
+  }
+
+  /** Flushes what it can, stops timers and closes the store. */
+  async close(options: { timeoutMs?: number } = {}): Promise<void> {
+    if (this.closed) return;
+    await this.flush({ timeoutMs: options.timeoutMs ?? 2000 });
+    this.closed = true;
+    if (this.drainTimer) clearTimeout(this.drainTimer);
+    this.drainTimer = undefined;
+    await this.store.close();
+    await this.embedder.close?.();
+    this.removeAllListeners();
+  }
+
+  // ---------------------------------------------------------------- helpers
+
+  private validate(input: unknown): Turn {
+    return validateTurn(input, { tenant: this.tenant, maxTextBytes: this.o.maxTextBytes, truncate: this.o.truncate });
+  }
+
+  private clockFor(snap: SessionSnapshot | null, atMs: number, _advance: boolean): number {
+    if (this.params.decayUnit === 'seconds') return Math.max(snap?.clock ?? 0, atMs / 1000);
+    return snap?.clock ?? 0;
+  }
+
+  private dimError(ref: SessionRef, stored: number): EmbedderError {
+    return new EmbedderError(
+      ErrorCodes.EMBED_DIM,
+      `session #${this.hashSession(ref.tenant, ref.session)} was stored with ${stored} dims, embedder ${this.embedder.id} gives ${this.embedder.dim}; use the same embedder or call migrate(session)`,
+      { details: { stored, embedder: this.embedder.dim } },
+    );
+  }
+
+  private async storeCall<T>(fn: () => Promise<T>, what: string): Promise<T> {
+    try {
+      return await fn();
+    } catch (err) {
+      if (isTidemarkError(err)) throw err;
+      throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `store ${this.store.name} failed (${what}): ${errMessage(err)}`, { cause: err });
+    }
+  }
+
+  /** Load, change and commit a session with conflict retries (admin operations). */
+  private async mutate(
+    ref: SessionRef,
+    change: (snap: SessionSnapshot) => { ops: SlotOp[]; events: StoredEvent[]; dim?: number } | Promise<{ ops: SlotOp[]; events: StoredEvent[]; dim?: number }>,
+    allowDimChange = false,
+  ): Promise<void> {
+    const key = keyOf(ref);
+    const prev = this.queues.get(key) ?? Promise.resolve();
+    const job = prev.then(async () => {
+      for (let attempt = 0; attempt <= this.o.commitRetries; attempt++) {
+        const snap = await this.storeCall(() => this.store.load(ref), 'load');
+        if (!snap) throw new InputError(ErrorCodes.INPUT_ID, 'no such session in this tenant', { details: { field: 'session' } });
+        if (!allowDimChange && snap.table.dim !== this.embedder.dim) throw this.dimError(ref, snap.table.dim);
+        const c = await change(snap);
+        const res = await this.storeCall(
+          () => this.store.commit(ref, {
+            expectedVersion: snap.version, clock: snap.clock, turns: snap.turns, capacity: snap.table.capacity,
+            dim: c.dim ?? snap.table.dim, ops: c.ops, archive: [], events: c.events,
+          }),
+          'commit',
+        );
+        if (res.ok) return;
+      }
+      throw new StoreError(ErrorCodes.STORE_CONFLICT, `session kept changing under ${this.o.commitRetries + 1} attempts`);
+    });
+    const tail = job.then(() => undefined, () => undefined);
+    this.queues.set(key, tail);
+    void tail.then(() => {
+      if (this.queues.get(key) === tail) this.queues.delete(key);
+    });
+    return job;
+  }
+
+  private base(ref: SessionRef): { sessionHash: string; tenant: string; atMs: number } {
+    return { sessionHash: this.hashSession(ref.tenant, ref.session), tenant: ref.tenant, atMs: Date.now() };
+  }
+
+  private emitError(stage: 'read' | 'write' | 'handler' | 'outbox' | 'store', err: unknown, ref?: SessionRef): TidemarkError {
+    const error = isTidemarkError(err)
+      ? (err as TidemarkError)
+      : new StoreError(ErrorCodes.STORE_UNAVAILABLE, errMessage(err), { cause: err });
+    if (this.listenerCount('error') > 0) {
+      this.emit('error', { stage, error, ...(ref ? { sessionHash: this.hashSession(ref.tenant, ref.session) } : {}) });
+    }
+    return error;
+  }
+}
+
+/** Creates a tidemark instance (see TidemarkOptions). */
+export function createTidemark(options: TidemarkOptions = {}): Tidemark {
+  return new Tidemark(options);
+}
+
+// ------------------------------------------------------------------ module helpers
+
+function pick<T extends object, K extends keyof T>(o: T, keys: K[]): Partial<Pick<T, K>> {
+  const out: Partial<Pick<T, K>> = {};
+  for (const k of keys) if (o[k] !== undefined) out[k] = o[k];
+  return out;
+}
+
+function intOpt(name: string, v: unknown, min: number, max: number): void {
+  if (typeof v !== 'number' || !Number.isInteger(v) || v < min || v > max) {
+    throw new ConfigError(`option ${name} must be an integer in [${min}, ${max}], got ${describeValue(v)}`, { details: { option: name, value: v } });
+  }
+}
+
+const refOf = (t: Turn): SessionRef => ({ tenant: t.tenant, session: t.session, ...(t.user ? { user: t.user } : {}) });
+const keyOf = (r: SessionRef): string => `${r.tenant}\u0000${r.session}`;
+const errMessage = (err: unknown): string => (err instanceof Error ? err.message : String(err));
+const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
+
+/** A fresh revision id: 16 random hex chars (collisions are not a practical concern at 64 bits). */
+function newRevisionId(): string {
+  return randomUUID().replace(/-/g, '').slice(0, 16);
+}
+
+function slotItem(table: SlotTable, i: number, a: AttentionResult): RecallItem {
+  return {
+    source: 'slot', slot: i, id: table.ids[i]!, key: table.keyText[i]!, value: table.value[i]!,
+    provenance: table.provenance[i]!.slice(), weight: a.weight[i]!, score: a.score[i]!, cosine: a.cosine[i]!,
+    lexical: a.lexical[i]!, strength: a.strength[i]!,
+  };
+}
+
+/** Slot items first (they won the softmax), then archive items not already present. */
+function mergeItems(slots: RecallItem[], archived: RecallItem[], max: number): RecallItem[] {
+  const seen = new Set(slots.map((i) => i.id));
+  const out = slots.slice();
+  for (const a of archived) {
+    if (seen.has(a.id)) continue;
+    seen.add(a.id);
+    out.push(a);
+  }
+  return out.slice(0, max);
+}
+
+/** Resizes a table to a new capacity: slots beyond it move to free slots or are evicted (capacity). */
+function resizeTable(table: SlotTable, capacity: number): { table: SlotTable; ops: SlotOp[]; archive: (ref: SessionRef, clock: number) => ArchiveItem[] } {
+  const next = table.clone(capacity);
+  const overflow: SlotRecord[] = [];
+  for (let i = capacity; i < table.capacity; i++) {
+    const r = table.get(i);
+    if (r) overflow.push(r);
+  }
+  // Keep the strongest of the overflow where room allows.
+  overflow.sort((a, b) => b.strength - a.strength);
+  const evicted: SlotRecord[] = [];
+  for (const r of overflow) {
+    const free = next.firstFree();
+    if (free >= 0) next.set(free, r);
+    else evicted.push(r);
+  }
+  const ops: SlotOp[] = [];
+  for (let i = 0; i < capacity; i++) ops.push({ index: i, slot: next.get(i) });
+  return {
+    table: next,
+    ops,
+    archive: (ref, clock) =>
+      evicted.map((r) => ({
+        id: r.id, tenant: ref.tenant, session: ref.session, ...(ref.user ? { user: ref.user } : {}), key: r.key, keyText: r.keyText,
+        value: r.value, provenance: r.provenance, reason: 'capacity' as const, strength: r.strength, halfLife: r.halfLife,
+        clock, createdMs: r.createdMs, archivedMs: Date.now(),
+      })),
+  };
+}
+
+/** Later ops win for the same index. */
+function mergeOps(first: SlotOp[], second: SlotOp[]): SlotOp[] {
+  const m = new Map<number, SlotOp>();
+  for (const op of first) m.set(op.index, op);
+  for (const op of second) m.set(op.index, op);
+  return [...m.values()].sort((a, b) => a.index - b.index);
+}

@@ -1,0 +1,99 @@
+// The Store extension point: where sessions' slots, archive items and event streams persist.
+// The core loads a versioned snapshot, plans a turn's changes as slot operations, and commits them
+// against the version it read; a store applies a commit atomically or refuses it as a conflict.
+
+import type { SlotTable } from '../memory/slots.js';
+import type {
+  ArchiveHit,
+  ArchiveItem,
+  ArchiveScope,
+  SessionRef,
+  SlotRecord,
+  StoredEvent,
+} from '../types.js';
+
+/** A session's state as loaded. */
+export interface SessionSnapshot {
+  /** Bumped by every successful commit; 0 means the session has never been committed. */
+  version: number;
+  /** Session clock (turns seen, or seconds) as of the last commit. */
+  clock: number;
+  /** Turns observed in this session so far (used to number generated turn ids). */
+  turns: number;
+  /**
+   * The slots. Callers must treat it as read-only: a store may hand out its own copy (the
+   * in-process store does) and a later commit may change it in place.
+   */
+  table: SlotTable;
+}
+
+/** Sets slot `index` to `slot`, or frees it when `slot` is null. */
+export interface SlotOp {
+  index: number;
+  slot: SlotRecord | null;
+}
+
+/** Everything one turn changes, applied all-or-nothing. */
+export interface CommitRequest {
+  /** The version the plan was made against; a store refuses the commit when its version differs. */
+  expectedVersion: number;
+  /** Session clock after this commit. */
+  clock: number;
+  /** Turns observed after this commit. */
+  turns: number;
+  /** Table shape; a store resizes its copy when these change (the ops free any slot beyond it). */
+  capacity: number;
+  dim: number;
+  ops: SlotOp[];
+  /** Items demoted in this commit (superseded or evicted values). */
+  archive: ArchiveItem[];
+  /** Appended to the session's capped event stream. */
+  events: StoredEvent[];
+}
+
+export type CommitResult = { ok: true; version: number } | { ok: false; conflict: true; version: number };
+
+/** What to erase: a whole session, or everything of one user (all their sessions and archive). */
+export type EraseTarget = { tenant: string; session: string } | { tenant: string; user: string };
+
+/** What an erase removed. */
+export interface EraseReport {
+  sessions: number;
+  slots: number;
+  archiveItems: number;
+  events: number;
+}
+
+/** Persistence for sessions. Every implementation passes `test/store/conformance.ts`. */
+export interface Store {
+  /** Short name for logs and metrics labels (`memory`, `redis`, `cluster`). */
+  readonly name: string;
+  /**
+   * Loads a session; resolves to null when it has never been committed. Resolves quickly or rejects
+   * with a `StoreError` (`TIDEMARK_E_STORE_UNAVAILABLE`, `TIDEMARK_E_STORE_CORRUPT`).
+   */
+  load(ref: SessionRef): Promise<SessionSnapshot | null>;
+  /**
+   * Applies a commit atomically if the stored version equals `expectedVersion`, bumping it by one;
+   * otherwise applies nothing and reports a conflict with the current version. Archive items in the
+   * commit are indexed for `searchArchive` in the scope of `ref` (user when `ref.user` is set).
+   */
+  commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult>;
+  /** Nearest archive items to a unit query vector in one scope, best first. */
+  searchArchive(scope: ArchiveScope, query: Float32Array, k: number): Promise<ArchiveHit[]>;
+  /** Archive items of a scope, newest first, up to `limit`. */
+  listArchive(scope: ArchiveScope, limit?: number): Promise<ArchiveItem[]>;
+  /** Deletes archive items by id from a scope; resolves to how many were removed. */
+  deleteArchive(scope: ArchiveScope, ids: readonly string[]): Promise<number>;
+  /** The session's event stream, oldest first, up to the last `limit`. */
+  readEvents(ref: SessionRef, limit?: number): Promise<StoredEvent[]>;
+  /**
+   * Removes every trace of a session or user: slots, archive items and their index entries, event
+   * stream entries, snapshots. Nothing erased may be returned by any later call.
+   */
+  erase(target: EraseTarget): Promise<EraseReport>;
+  /** Session ids of a tenant that currently hold state (for inspect and the dashboard). */
+  listSessions(tenant: string, limit?: number): Promise<string[]>;
+  /** Releases connections, timers and files. */
+  close(): Promise<void>;
+}

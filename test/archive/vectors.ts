@@ -1,0 +1,58 @@
+// Test helpers for the archive suites: seeded random unit vectors and recall@k against exact search.
+
+import type { ArchiveMatch } from '../../src/archive/archive.js';
+
+/** mulberry32, a small seeded 32-bit PRNG (common practice for reproducible test data). */
+export function prng(seed: number): () => number {
+  let a = seed >>> 0;
+  return () => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+/** `n` unit vectors uniform on the sphere: normalised standard Gaussians (Box–Muller). */
+export function unitVectors(n: number, dim: number, seed: number): Float32Array[] {
+  const rand = prng(seed);
+  const out: Float32Array[] = [];
+  for (let i = 0; i < n; i++) {
+    const v = new Float32Array(dim);
+    let s = 0;
+    for (let j = 0; j < dim; j++) {
+      const g = Math.sqrt(-2 * Math.log(1 - rand())) * Math.cos(2 * Math.PI * rand());
+      v[j] = g;
+      s += g * g;
+    }
+    const inv = 1 / Math.sqrt(s);
+    for (let j = 0; j < dim; j++) v[j] = v[j]! * inv;
+    out.push(v);
+  }
+  return out;
+}
+
+/**
+ * recall@k with ties: an approximate result counts when its cosine reaches the exact k-th best (within
+ * float32 rounding) — the distance-threshold definition ANN-Benchmarks uses (Aumüller et al. 2018, from
+ * memory) — so two items at the same distance ranked the other way round are not a miss.
+ */
+export function recallAtK(approx: ArchiveMatch[][], exact: ArchiveMatch[][], k: number): number {
+  let found = 0;
+  let total = 0;
+  for (let i = 0; i < exact.length; i++) {
+    const want = Math.min(k, exact[i]!.length);
+    if (want === 0) continue;
+    const kth = exact[i]![want - 1]!.cosine - 1e-5;
+    total += want;
+    found += Math.min(want, approx[i]!.slice(0, k).filter((m) => m.cosine >= kth).length);
+  }
+  return total === 0 ? 1 : found / total;
+}
+
+export function dot(a: Float32Array, b: Float32Array): number {
+  let s = 0;
+  for (let j = 0; j < a.length; j++) s += a[j]! * b[j]!;
+  return s;
+}

@@ -1,0 +1,17 @@
+// Types for parse-prometheus-text-format 1.1.1 (it ships none): the shape it returns, as checked by hand.
+declare module 'parse-prometheus-text-format' {
+  export interface ParsedSample {
+    value?: string;
+    labels?: Record<string, string>;
+    buckets?: Record<string, string>;
+    count?: string;
+    sum?: string;
+  }
+  export interface ParsedFamily {
+    name: string;
+    help: string;
+    type: 'COUNTER' | 'GAUGE' | 'HISTOGRAM' | 'SUMMARY' | 'UNTYPED';
+    metrics: ParsedSample[];
+  }
+  export default function parsePrometheusTextFormat(text: string): ParsedFamily[];
+}

@@ -1,0 +1,284 @@
+// The shared conformance suite every Store runs (in-process, Redis, Redis Cluster): call
+// `storeConformance(name, factory)` from a *.test.ts file. A store that cannot support a case must
+// pass `skip` with the case name and a reason; the reason is printed in the test name.
+
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { SlotTable } from '../../src/memory/slots.js';
+import type { CommitRequest, Store } from '../../src/store/store.js';
+import type { ArchiveItem, SessionRef, SlotRecord } from '../../src/types.js';
+
+export interface ConformanceOptions {
+  /** Allowed absolute error per key component after a round trip (int8 payloads quantise). */
+  keyTolerance?: number;
+  /** Case names to skip, each with its reason. */
+  skip?: Record<string, string>;
+  /** Tenant prefix so parallel suites on one server never collide. */
+  tenant?: string;
+}
+
+const DIM = 16;
+
+export function unit(seed: number, dim = DIM): Float32Array {
+  // A deterministic pseudo-random unit vector (mulberry32 PRNG, common practice for seeded tests).
+  let a = seed >>> 0;
+  const next = (): number => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296 - 0.5;
+  };
+  const v = new Float32Array(dim);
+  let s = 0;
+  for (let j = 0; j < dim; j++) {
+    v[j] = next();
+    s += v[j]! * v[j]!;
+  }
+  for (let j = 0; j < dim; j++) v[j] = v[j]! / Math.sqrt(s);
+  return v;
+}
+
+export function slot(n: number, over: Partial<SlotRecord> = {}): SlotRecord {
+  return {
+    id: `r${n}`,
+    key: unit(n),
+    keyText: `topic ${n}`,
+    value: `value ${n} — ünïcode ✓`,
+    provenance: [`t${n}`],
+    strength: 0.75,
+    halfLife: 200,
+    stamp: n,
+    created: n,
+    createdMs: 1_700_000_000_000 + n,
+    updatedMs: 1_700_000_000_000 + n,
+    reads: 0,
+    pinned: false,
+    ...over,
+  };
+}
+
+export function archived(n: number, ref: SessionRef, over: Partial<ArchiveItem> = {}): ArchiveItem {
+  return {
+    id: `a${n}`,
+    tenant: ref.tenant,
+    session: ref.session,
+    ...(ref.user ? { user: ref.user } : {}),
+    key: unit(1000 + n),
+    keyText: `old topic ${n}`,
+    value: `old value ${n}`,
+    provenance: [`t${n}`],
+    reason: 'superseded',
+    strength: 0.4,
+    halfLife: 200,
+    clock: n,
+    createdMs: 1_700_000_000_000,
+    archivedMs: 1_700_000_000_000 + n,
+    successor: `r${n}`,
+    ...over,
+  };
+}
+
+export function commitOf(over: Partial<CommitRequest>): CommitRequest {
+  return { expectedVersion: 0, clock: 1, turns: 1, capacity: 8, dim: DIM, ops: [], archive: [], events: [], ...over };
+}
+
+export function storeConformance(name: string, factory: () => Promise<Store>, options: ConformanceOptions = {}): void {
+  const tol = options.keyTolerance ?? 1e-6;
+  const skip = options.skip ?? {};
+  const tenantBase = options.tenant ?? `conf-${name}-${process.pid}-${Date.now().toString(36)}`;
+  let counter = 0;
+  const fresh = (user?: string): SessionRef => ({ tenant: tenantBase, session: `s${++counter}`, ...(user ? { user } : {}) });
+  const test = (caseName: string, fn: () => Promise<void>): void => {
+    if (skip[caseName]) it.skip(`${caseName} (skipped: ${skip[caseName]})`, fn);
+    else it(caseName, fn);
+  };
+  const expectSlot = (table: SlotTable, i: number, want: SlotRecord): void => {
+    const got = table.get(i);
+    expect(got, `slot ${i}`).not.toBeNull();
+    const { key, ...rest } = got!;
+    const { key: wantKey, ...wantRest } = want;
+    expect(rest).toEqual(wantRest);
+    for (let j = 0; j < wantKey.length; j++) expect(Math.abs(key[j]! - wantKey[j]!)).toBeLessThanOrEqual(tol);
+  };
+
+  describe(`Store conformance: ${name}`, () => {
+    let store: Store;
+    beforeAll(async () => {
+      store = await factory();
+    });
+    afterAll(async () => {
+      // Leave nothing behind on shared servers.
+      for (const s of await store.listSessions(tenantBase, 10_000)) await store.erase({ tenant: tenantBase, session: s });
+      for (const u of ['u1', 'u2', 'u3', 'u4']) await store.erase({ tenant: tenantBase, user: u });
+      await store.close();
+    });
+
+    test('load of an unknown session is null', async () => {
+      expect(await store.load(fresh())).toBeNull();
+    });
+
+    test('a first commit creates the session at version 1 with its slots', async () => {
+      const ref = fresh();
+      const res = await store.commit(ref, commitOf({ clock: 3, turns: 4, ops: [{ index: 0, slot: slot(1) }, { index: 5, slot: slot(2, { pinned: true, previous: 'r0' }) }] }));
+      expect(res).toEqual({ ok: true, version: 1 });
+      const snap = await store.load(ref);
+      expect(snap).not.toBeNull();
+      expect(snap!.version).toBe(1);
+      expect(snap!.clock).toBe(3);
+      expect(snap!.turns).toBe(4);
+      expect(snap!.table.capacity).toBe(8);
+      expect(snap!.table.dim).toBe(DIM);
+      expect(snap!.table.count()).toBe(2);
+      expectSlot(snap!.table, 0, slot(1));
+      expectSlot(snap!.table, 5, slot(2, { pinned: true, previous: 'r0' }));
+      expect(snap!.table.isUsed(1)).toBe(false);
+    });
+
+    test('a stale expected version is refused and changes nothing', async () => {
+      const ref = fresh();
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      const res = await store.commit(ref, commitOf({ expectedVersion: 0, clock: 9, ops: [{ index: 0, slot: slot(7) }] }));
+      expect(res).toEqual({ ok: false, conflict: true, version: 1 });
+      const snap = await store.load(ref);
+      expect(snap!.version).toBe(1);
+      expect(snap!.clock).toBe(1);
+      expectSlot(snap!.table, 0, slot(1));
+    });
+
+    test('ops overwrite and free slots; versions count commits', async () => {
+      const ref = fresh();
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 1, slot: slot(2) }] }));
+      const res = await store.commit(ref, commitOf({ expectedVersion: 1, clock: 2, turns: 2, ops: [{ index: 0, slot: slot(3) }, { index: 1, slot: null }] }));
+      expect(res).toEqual({ ok: true, version: 2 });
+      const snap = await store.load(ref);
+      expect(snap!.table.count()).toBe(1);
+      expectSlot(snap!.table, 0, slot(3));
+      expect(snap!.table.isUsed(1)).toBe(false);
+    });
+
+    test('concurrent commits against one version: exactly one wins', async () => {
+      const ref = fresh();
+      await store.commit(ref, commitOf({}));
+      const results = await Promise.all(
+        Array.from({ length: 6 }, (_, i) => store.commit(ref, commitOf({ expectedVersion: 1, clock: 10 + i, ops: [{ index: 0, slot: slot(20 + i) }] }))),
+      );
+      expect(results.filter((r) => r.ok)).toHaveLength(1);
+      expect((await store.load(ref))!.version).toBe(2);
+    });
+
+    test('a capacity change keeps the slots below the new capacity', async () => {
+      const ref = fresh();
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 6, slot: slot(2) }] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, capacity: 4, ops: [{ index: 6 - 6 + 1, slot: slot(2) }] }));
+      const snap = await store.load(ref);
+      expect(snap!.table.capacity).toBe(4);
+      expect(snap!.table.count()).toBe(2);
+      expectSlot(snap!.table, 1, slot(2));
+    });
+
+    test('archive items are searchable by nearest key, best first, in the session scope', async () => {
+      const ref = fresh();
+      const items = [1, 2, 3, 4].map((n) => archived(n, ref));
+      await store.commit(ref, commitOf({ archive: items }));
+      const hits = await store.searchArchive({ tenant: ref.tenant, session: ref.session }, unit(1002), 2);
+      expect(hits).toHaveLength(2);
+      expect(hits[0]!.item.id).toBe('a2');
+      expect(hits[0]!.cosine).toBeCloseTo(1, 2);
+      expect(hits[0]!.cosine).toBeGreaterThanOrEqual(hits[1]!.cosine);
+      expect(hits[0]!.item.value).toBe('old value 2');
+      expect(hits[0]!.item.successor).toBe('r2');
+      expect(hits[0]!.item.provenance).toEqual(['t2']);
+      // Another session of the tenant sees nothing of it.
+      expect(await store.searchArchive({ tenant: ref.tenant, session: 'other' }, unit(1002), 2)).toEqual([]);
+    });
+
+    test('listArchive is newest first; deleteArchive removes from search too', async () => {
+      const ref = fresh();
+      const scope = { tenant: ref.tenant, session: ref.session };
+      await store.commit(ref, commitOf({ archive: [1, 2, 3].map((n) => archived(n, ref)) }));
+      expect((await store.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a2', 'a1']);
+      expect(await store.deleteArchive(scope, ['a2', 'nope'])).toBe(1);
+      expect((await store.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a1']);
+      const hits = await store.searchArchive(scope, unit(1002), 3);
+      expect(hits.map((h) => h.item.id)).not.toContain('a2');
+    });
+
+    test('sessions of one user share a user-scope archive', async () => {
+      const a = fresh('u1');
+      const b = fresh('u1');
+      await store.commit(a, commitOf({ archive: [archived(1, a)] }));
+      await store.commit(b, commitOf({ archive: [archived(2, b)] }));
+      const hits = await store.searchArchive({ tenant: a.tenant, user: 'u1' }, unit(1001), 5);
+      expect(hits.map((h) => h.item.id).sort()).toEqual(['a1', 'a2']);
+      expect(hits.find((h) => h.item.id === 'a1')!.item.session).toBe(a.session);
+    });
+
+    test('events append in order and read back with a limit', async () => {
+      const ref = fresh();
+      const ev = (n: number) => ({ type: 'allocate' as const, slot: n, id: `r${n}`, clock: n, atMs: 1000 + n });
+      await store.commit(ref, commitOf({ events: [ev(1), ev(2)] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, events: [ev(3)] }));
+      expect((await store.readEvents(ref)).map((e) => e.slot)).toEqual([1, 2, 3]);
+      expect((await store.readEvents(ref, 2)).map((e) => e.slot)).toEqual([2, 3]);
+    });
+
+    test('erasing a session removes slots, archive items and events', async () => {
+      const ref = fresh();
+      const keep = fresh();
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(keep, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
+      const report = await store.erase({ tenant: ref.tenant, session: ref.session });
+      expect(report).toMatchObject({ sessions: 1, slots: 1, archiveItems: 1, events: 1 });
+      expect(await store.load(ref)).toBeNull();
+      expect(await store.searchArchive({ tenant: ref.tenant, session: ref.session }, unit(1001), 5)).toEqual([]);
+      expect(await store.listArchive({ tenant: ref.tenant, session: ref.session })).toEqual([]);
+      expect(await store.readEvents(ref)).toEqual([]);
+      expect(await store.listSessions(ref.tenant, 10_000)).not.toContain(ref.session);
+      expect((await store.load(keep))!.table.count()).toBe(1);
+    });
+
+    test('erasing a session also removes what it put in its user archive', async () => {
+      const a = fresh('u2');
+      const b = fresh('u2');
+      await store.commit(a, commitOf({ archive: [archived(1, a)] }));
+      await store.commit(b, commitOf({ archive: [archived(2, b)] }));
+      await store.erase({ tenant: a.tenant, session: a.session });
+      const hits = await store.searchArchive({ tenant: a.tenant, user: 'u2' }, unit(1001), 5);
+      expect(hits.map((h) => h.item.id)).toEqual(['a2']);
+    });
+
+    test('erasing a user removes all of their sessions and archive', async () => {
+      const a = fresh('u3');
+      const b = fresh('u3');
+      const other = fresh('u4');
+      for (const r of [a, b, other]) await store.commit(r, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, r, { id: `a-${r.session}` })] }));
+      const report = await store.erase({ tenant: a.tenant, user: 'u3' });
+      expect(report.sessions).toBe(2);
+      expect(report.archiveItems).toBe(2);
+      expect(await store.load(a)).toBeNull();
+      expect(await store.load(b)).toBeNull();
+      expect(await store.searchArchive({ tenant: a.tenant, user: 'u3' }, unit(1001), 5)).toEqual([]);
+      expect(await store.load(other)).not.toBeNull();
+      expect(await store.searchArchive({ tenant: a.tenant, user: 'u4' }, unit(1001), 5)).toHaveLength(1);
+    });
+
+    test('tenants are isolated: same session id, separate state', async () => {
+      const s = `iso${++counter}`;
+      const t1 = { tenant: `${tenantBase}-x`, session: s };
+      const t2 = { tenant: `${tenantBase}-y`, session: s };
+      await store.commit(t1, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, t1)] }));
+      expect(await store.load(t2)).toBeNull();
+      expect(await store.searchArchive({ tenant: t2.tenant, session: s }, unit(1001), 5)).toEqual([]);
+      expect(await store.listSessions(t2.tenant)).toEqual([]);
+      await store.erase({ tenant: t2.tenant, session: s });
+      expect(await store.load(t1)).not.toBeNull();
+      await store.erase({ tenant: t1.tenant, session: s });
+    });
+
+    test('listSessions lists sessions with state', async () => {
+      const ref = fresh();
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      expect(await store.listSessions(ref.tenant, 10_000)).toContain(ref.session);
+    });
+  });
+}

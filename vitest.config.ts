@@ -1,0 +1,11 @@
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+  test: {
+    include: ['test/**/*.test.ts'],
+    testTimeout: 30_000,
+    hookTimeout: 60_000,
+    // Redis and Cluster suites share servers; files run in parallel but each uses its own key prefix.
+    pool: 'forks',
+  },
+});
