@@ -78,7 +78,7 @@ case "${1:-}" in
       mkdir -p "$dir/$p"
       redis-server --port "$p" --bind 127.0.0.1 --cluster-enabled yes --cluster-config-file "$dir/$p/nodes.conf" \
         --cluster-node-timeout 5000 --dir "$dir/$p" --save '' --appendonly no \
-        --daemonize yes --pidfile "$dir/$p/redis.pid" --logfile "$dir/$p/redis.log"
+        --daemonize yes --pidfile "$dir/$p/redis.pid" --logfile "$dir/$p/redis.log" 9>&-
     done
     for p in "${ports[@]}"; do
       for _ in $(seq 1 100); do redis-cli -p "$p" ping >/dev/null 2>&1 && break; sleep 0.05; done

@@ -38,6 +38,13 @@ export type { GateFeatures, GateWeights } from './memory/gate.js';
 export { PROMPT_DEFAULTS, approxTokens } from './memory/prompt.js';
 export type { PromptOptions, TokenCounter } from './memory/prompt.js';
 
+export { prometheusMetrics, PROMETHEUS_METRICS_DEFAULTS, DURATION_BUCKETS_SECONDS } from './metrics/prometheus.js';
+export type { PrometheusMetrics, PrometheusMetricsOptions } from './metrics/prometheus.js';
+export { RetentionTracker, RETENTION_TRACKER_DEFAULTS, kaplanMeier, survivalAt, halfLifeDistribution, retentionSnapshot } from './metrics/retention.js';
+export type { RetentionSnapshot, SurvivalCurve, SurvivalStep, LifetimeObservation, HalfLifeDistribution } from './metrics/retention.js';
+export { DashboardCollector, COLLECTOR_DEFAULTS } from './metrics/collector.js';
+export type { DashboardSnapshot, CollectorOptions } from './metrics/collector.js';
+
 export {
   TidemarkError,
   InputError,

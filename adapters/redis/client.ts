@@ -63,8 +63,15 @@ export function isCluster(client: RedisClient): client is Cluster {
  * Waits for the first connection of a client (bounded by `timeoutMs`). Once a client has been ready,
  * later calls never wait: during an outage they fail at once and ioredis reconnects in the background.
  */
+const wasReady = new WeakSet<RedisClient>();
+
 export async function ensureReady(client: RedisClient, timeoutMs: number): Promise<void> {
-  if (client.status === 'ready') return;
+  if (client.status === 'ready') {
+    wasReady.add(client);
+    return;
+  }
+  // An outage after the first connection: fail now (ioredis keeps reconnecting in the background).
+  if (wasReady.has(client)) throw unavailable('connect', new Error(`connection is ${client.status}`));
   if (client.status === 'wait') {
     client.connect().catch(() => undefined);
   }
@@ -79,7 +86,10 @@ export async function ensureReady(client: RedisClient, timeoutMs: number): Promi
       if (err) reject(unavailable('connect', err));
       else resolve();
     };
-    const onReady = (): void => done();
+    const onReady = (): void => {
+      wasReady.add(client);
+      done();
+    };
     const onEnd = (): void => done(new Error('connection ended'));
     const timer = setTimeout(() => done(new Error(`not ready after ${timeoutMs} ms (status ${client.status})`)), timeoutMs);
     client.once('ready', onReady);

@@ -29,7 +29,7 @@ export function escapeGlob(s: string): string {
 
 /** The keys of one session, in the order the Lua scripts expect them. */
 export interface SessionKeys {
-  /** Hash: v (version), ep (epoch), c (clock), n (turns), cap, dim, u (user), as/au (archive tokens), rc (recent commit ids). */
+  /** Hash: v (version), ep (epoch), c (clock), n (turns), cap, dim, u (user), as/au (archive epochs), rc (recent commit ids). */
   meta: string;
   /** Hash: slot index -> slot payload. */
   slots: string;
@@ -39,6 +39,9 @@ export interface SessionKeys {
   arch: string;
   /** Hash: item id -> archive payload, items this session put in its user's scope. */
   uarch: string;
+  /** Lists of the item ids appended to arch / uarch, in order (readers fetch only the new tail). */
+  alog: string;
+  ualog: string;
   /** All of the above, for EXPIRE/DEL/SCAN checks. */
   all: string[];
 }
@@ -53,8 +56,8 @@ export class KeySpace {
 
   session(tenant: string, session: string): SessionKeys {
     const b = this.sessionBase(tenant, session);
-    const k = { meta: `${b}:meta`, slots: `${b}:slots`, events: `${b}:events`, arch: `${b}:arch`, uarch: `${b}:uarch` };
-    return { ...k, all: [k.meta, k.slots, k.events, k.arch, k.uarch] };
+    const k = { meta: `${b}:meta`, slots: `${b}:slots`, events: `${b}:events`, arch: `${b}:arch`, uarch: `${b}:uarch`, alog: `${b}:alog`, ualog: `${b}:ualog` };
+    return { ...k, all: [k.meta, k.slots, k.events, k.arch, k.uarch, k.alog, k.ualog] };
   }
 
   /** Set of the session ids a user has written to. Suffix `:sessions` never ends a session key. */

@@ -31,29 +31,29 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 /**
  * Commit one turn in one round trip: check the version, apply slot ops, store archive items, append
  * events (capped), bump the version, refresh the idle TTL.
- * KEYS: meta, slots, events, arch, uarch.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog.
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
- *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 new archive token,
+ *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 reserved (''),
  *       12 #ops, 13 #archive items, 14 #events, then #ops x (index, payload or '' to free),
  *       #archive x (id, payload), #events x json.
- * Reply: {1, version, epoch} applied | {2, version, epoch} this commit id was already applied |
+ * The commit id is remembered for the session's last 16 commits (meta field `rc`).
+ * Reply: {1, version, epoch} applied | {2, version, epoch} this commit id was already applied at `version` |
  *        {0, version, epoch} version mismatch.
  */
-export const COMMIT = script('commit', 5, `
+export const COMMIT = script('commit', 7, `
 local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
 local v = tonumber(m[1] or '0')
 local rc = m[5] or ''
-if v ~= tonumber(ARGV[1]) then
-  -- A resend of a commit that already landed (reply lost in a disconnect) is recognised by its id.
-  local done = string.match(' ' .. rc, ' ' .. ARGV[2] .. '=(%d+)')
-  if done then return {2, tonumber(done), m[2] or ''} end
-  return {0, v, m[2] or ''}
-end
+-- A commit id already applied (its reply lost in a disconnect, then sent again — even re-planned on
+-- top of its own result) is reported as applied and not applied a second time.
+local _, hit = string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true)
+if hit then return {2, tonumber(string.match(' ' .. rc, '^%d+', hit + 1)), m[2] or ''} end
+if v ~= tonumber(ARGV[1]) then return {0, v, m[2] or ''} end
 local ep = m[2]
 if not m[1] then
   -- A new session (or one erased or expired) starts from nothing, whatever a partial state left behind.
   ep = ARGV[3]
-  redis.call('DEL', KEYS[2], KEYS[3], KEYS[4], KEYS[5])
+  redis.call('DEL', KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7])
 end
 local cap = tonumber(ARGV[6])
 if m[1] then
@@ -71,19 +71,26 @@ for i = 1, nops do
   a = a + 2
 end
 local fields = {'v', v + 1, 'ep', ep, 'c', ARGV[4], 'n', ARGV[5], 'cap', ARGV[6], 'dim', ARGV[7]}
+if not m[1] then
+  -- Archive epochs start fresh with the session, so no cached copy of an erased one can match.
+  fields[#fields + 1] = 'as'
+  fields[#fields + 1] = ep
+  fields[#fields + 1] = 'au'
+  fields[#fields + 1] = ep
+end
 if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
   fields[#fields + 1] = ARGV[8]
 end
 if narch > 0 then
-  local h, tf = KEYS[4], 'as'
-  if ARGV[8] ~= '' then h, tf = KEYS[5], 'au' end
+  -- Items go to the hash; their ids are appended to the log so readers fetch only what is new.
+  local h, log = KEYS[4], KEYS[6]
+  if ARGV[8] ~= '' then h, log = KEYS[5], KEYS[7] end
   for i = 1, narch do
     redis.call('HSET', h, ARGV[a], ARGV[a + 1])
+    redis.call('RPUSH', log, ARGV[a])
     a = a + 2
   end
-  fields[#fields + 1] = tf
-  fields[#fields + 1] = ARGV[11]
 end
 local maxe = tonumber(ARGV[10])
 for i = 1, nev do
@@ -92,7 +99,7 @@ for i = 1, nev do
 end
 local keep, n = {ARGV[2] .. '=' .. (v + 1)}, 1
 for tok in string.gmatch(rc, '%S+') do
-  if n >= 8 then break end
+  if n >= 16 then break end
   n = n + 1
   keep[n] = tok
 end
@@ -100,45 +107,65 @@ fields[#fields + 1] = 'rc'
 fields[#fields + 1] = table.concat(keep, ' ')
 redis.call('HSET', KEYS[1], unpack(fields))
 local ttl = tonumber(ARGV[9])
-for i = 1, 5 do
+for i = 1, 7 do
   if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
 end
 return {1, v + 1, ep}
 `);
 
 /**
- * Fetch one archive hash of a session when its token moved.
- * KEYS: meta, hash (arch or uarch). ARGV: token field ('as' | 'au'), cached token or ''.
- * Reply: nil (no session) | {token} (unchanged) | {token, {id, payload, ...}}.
+ * Fetch what is new in one archive hash of a session.
+ * KEYS: meta, hash (arch | uarch), log (alog | ualog). ARGV: epoch field ('as' | 'au'), '=' .. cached
+ * epoch or '' (nothing cached), cached log length.
+ * Reply: nil (no session) | {epoch, n} (unchanged) | {epoch, n, 'd', {id, payload, ...}} (items appended
+ * since the cached length) | {epoch, n, 'f', {id, payload, ...}} (everything: first fetch or epoch moved).
  */
-export const ARCHIVE_FETCH = script('archive_fetch', 2, `
+export const ARCHIVE_FETCH = script('archive_fetch', 3, `
 if redis.call('EXISTS', KEYS[1]) == 0 then return false end
-local t = redis.call('HGET', KEYS[1], ARGV[1]) or ''
-if ARGV[2] ~= '' and ARGV[2] == ('=' .. t) then return {t} end
-return {t, redis.call('HGETALL', KEYS[2])}
+local ep = redis.call('HGET', KEYS[1], ARGV[1]) or ''
+local n = redis.call('LLEN', KEYS[3])
+local from = tonumber(ARGV[3])
+if ARGV[2] ~= '' and ARGV[2] == ('=' .. ep) and n >= from and n - from <= 1000 then
+  if n == from then return {ep, n} end
+  local ids = redis.call('LRANGE', KEYS[3], from, n - 1)
+  local vals = redis.call('HMGET', KEYS[2], unpack(ids))
+  local out = {}
+  for i = 1, #ids do
+    if vals[i] then
+      out[#out + 1] = ids[i]
+      out[#out + 1] = vals[i]
+    end
+  end
+  return {ep, n, 'd', out}
+end
+return {ep, n, 'f', redis.call('HGETALL', KEYS[2])}
 `);
 
 /**
- * Delete archive items of one session hash by id.
- * KEYS: meta, hash. ARGV: token field, new token, ids... Reply: number removed.
+ * Delete archive items of one session hash by id; moves the epoch so cached copies refetch in full.
+ * KEYS: meta, hash, log. ARGV: epoch field, new epoch, ids... Reply: number removed.
  */
-export const ARCHIVE_DELETE = script('archive_delete', 2, `
+export const ARCHIVE_DELETE = script('archive_delete', 3, `
 local n = 0
-for i = 3, #ARGV do n = n + redis.call('HDEL', KEYS[2], ARGV[i]) end
+for i = 3, #ARGV do
+  local d = redis.call('HDEL', KEYS[2], ARGV[i])
+  if d > 0 then redis.call('LREM', KEYS[3], 0, ARGV[i]) end
+  n = n + d
+end
 if n > 0 and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], ARGV[1], ARGV[2]) end
 return n
 `);
 
 /**
  * Erase one session: count, then delete every key.
- * KEYS: meta, slots, events, arch, uarch. Reply: {existed, slots, archive items, events, user or ''}.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog. Reply: {existed, slots, archive items, events, user or ''}.
  */
-export const ERASE = script('erase', 5, `
+export const ERASE = script('erase', 7, `
 local existed = redis.call('EXISTS', KEYS[1])
 local user = redis.call('HGET', KEYS[1], 'u') or ''
 local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
-redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5])
+redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7])
 return {existed, slots, items, events, user}
 `);

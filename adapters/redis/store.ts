@@ -73,7 +73,10 @@ interface CachedSession {
 }
 
 interface ScopeSession {
-  token: string;
+  /** Archive epoch of the session (moves on delete and on re-creation). */
+  epoch: string;
+  /** Length of the session's archive log already applied. */
+  len: number;
   ids: string[];
 }
 
@@ -278,7 +281,8 @@ export class RedisStore implements Store {
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
-          return runScript(c, ARCHIVE_DELETE, [k.meta, 'user' in scope ? k.uarch : k.arch], [field, token(), ...ids]);
+          const user = 'user' in scope;
+          return runScript(c, ARCHIVE_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [field, token(), ...ids]);
         }),
       );
       return counts.reduce<number>((sum, n) => sum + Number(n), 0);
@@ -390,12 +394,18 @@ export class RedisStore implements Store {
     if (!Number.isInteger(req.capacity) || req.capacity < 1 || !Number.isInteger(req.dim) || req.dim < 1) {
       throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `commit with capacity ${req.capacity} and dim ${req.dim}; both must be integers >= 1`);
     }
-    let id = this.commitIds.get(req);
+    // The commit id makes a resend harmless. The version check alone already stops a second apply of
+    // the *same* request; the id also stops a re-planned retry of a write whose first commit landed
+    // but whose reply was lost (ioredis reports "Connection is closed" or a timeout, the core queues
+    // it in the outbox, reloads and plans again on top of its own result). The core passes one
+    // `commitId` per write for that; without one, each request object gets its own id.
+    const given = (req as { commitId?: unknown }).commitId;
+    let id = typeof given === 'string' && /^[^\s=]{1,128}$/.test(given) ? given : this.commitIds.get(req);
     if (!id) this.commitIds.set(req, (id = token()));
     const kf = this.o.keyFormat;
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
-      this.o.idleTtlSeconds, this.o.maxEvents, token(), req.ops.length, req.archive.length, req.events.length,
+      this.o.idleTtlSeconds, this.o.maxEvents, '', req.ops.length, req.archive.length, req.events.length,
     ];
     const keys: (Float32Array | null)[] = [];
     for (const op of req.ops) {
@@ -449,9 +459,10 @@ export class RedisStore implements Store {
   }
 
   /**
-   * Brings the scope's cached items and index up to date. Every call asks Redis for each session's
-   * archive token (one round trip; a user scope adds one SMEMBERS first) and fetches only the sessions
-   * whose token moved. So a search sees every item committed before the search started.
+   * Brings the scope's cached items and index up to date. Every call asks Redis, for each session of
+   * the scope, for the items appended since this process last looked (one round trip; a user scope
+   * adds one SMEMBERS first); a delete moves the session's archive epoch and forces a full fetch.
+   * So a search sees every item committed before the search started, and costs O(new items).
    */
   private refreshScope(scope: ArchiveScope): Promise<ScopeCache> {
     const key = scopeKeyOf(scope);
@@ -483,7 +494,8 @@ export class RedisStore implements Store {
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
           const cached = sc.sessions.get(s);
-          return runScript(c, ARCHIVE_FETCH, [k.meta, user !== undefined ? k.uarch : k.arch], [user !== undefined ? 'au' : 'as', cached ? `=${cached.token}` : '']);
+          const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
+          return runScript(c, ARCHIVE_FETCH, keys, [user !== undefined ? 'au' : 'as', cached ? `=${cached.epoch}` : '', cached ? cached.len : 0]);
         }),
       );
     } catch (err) {
@@ -497,10 +509,17 @@ export class RedisStore implements Store {
         this.dropScopeSession(sc, s);
         return;
       }
-      if (r.length === 1) return; // unchanged
-      this.dropScopeSession(sc, s);
-      const ids: string[] = [];
-      const flat = r[1] as Buffer[];
+      const epoch = str(r[0]);
+      const len = num(r[1], 'archive log length', true);
+      if (r.length === 2) {
+        const cached = sc.sessions.get(s);
+        if (cached) cached.len = len;
+        return; // unchanged
+      }
+      const delta = str(r[2]) === 'd' && sc.sessions.has(s);
+      const ids = delta ? sc.sessions.get(s)!.ids : [];
+      if (!delta) this.dropScopeSession(sc, s);
+      const flat = r[3] as Buffer[];
       for (let j = 0; j + 1 < flat.length; j += 2) {
         const item = decodeArchive(flat[j + 1]!, 'archive item payload');
         if (user !== undefined && item.user !== user) continue;
@@ -508,7 +527,7 @@ export class RedisStore implements Store {
         if (sc.index && sc.index.dim === item.key.length) sc.index.add(item.id, item.key);
         ids.push(item.id);
       }
-      sc.sessions.set(s, { token: str(r[0]), ids });
+      sc.sessions.set(s, { epoch, len, ids });
     });
     return sc;
   }

@@ -2,7 +2,7 @@
 // archives, where it is both exact and faster than building a graph index.
 
 import type { Archive, ArchiveMatch } from './archive.js';
-import { pushTopK } from '../memory/vector.js';
+import { dot, pushTopK } from '../memory/vector.js';
 
 export class ExactArchive implements Archive {
   readonly dim: number;
@@ -64,10 +64,7 @@ export class ExactArchive implements Archive {
     const bestIdx: number[] = [];
     const bestScore: number[] = [];
     for (let r = 0; r < n; r++) {
-      let dot = 0;
-      const off = r * dim;
-      for (let j = 0; j < dim; j++) dot += query[j]! * v[off + j]!;
-      pushTopK(bestIdx, bestScore, r, dot, k);
+      pushTopK(bestIdx, bestScore, r, dot(query, v, r * dim, dim), k);
     }
     return bestIdx.map((r, i) => ({ id: this.idsByRow[r]!, cosine: bestScore[i]! }));
   }

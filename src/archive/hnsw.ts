@@ -180,18 +180,19 @@ export class HnswArchive implements Archive {
 
   add(id: string, vector: Float32Array): void {
     if (vector.length !== this.dim) throw new RangeError(`vector has ${vector.length} dims, archive holds ${this.dim}`);
-    let label = this.labelById.get(id);
-    if (label === undefined) {
-      label = this.used;
-      // hnswlib throws when adding past maxElements, so grow first.
-      if (label >= this.index.getMaxElements()) this.grow(Math.max(1, this.index.getMaxElements() * 2));
+    const existing = this.labelById.get(id);
+    const label = existing ?? this.used;
+    // hnswlib throws when adding past maxElements, so grow first.
+    if (label >= this.index.getMaxElements()) this.grow(this.index.getMaxElements() * 2);
+    // The native call goes first so a failure leaves the maps as they were. An existing label is
+    // updated in place by hnswlib (its links are repaired).
+    this.index.addPoint(Array.from(vector), label);
+    this.vectors.set(vector, label * this.dim);
+    if (existing === undefined) {
       this.used++;
       this.idByLabel[label] = id;
       this.labelById.set(id, label);
     }
-    // An existing label is updated in place by hnswlib (its links are repaired).
-    this.vectors.set(vector, label * this.dim);
-    this.index.addPoint(Array.from(vector), label);
   }
 
   remove(id: string): boolean {

@@ -10,6 +10,7 @@ import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { STOPWORDS, tokenize } from './text.js';
+import { dot } from './vector.js';
 
 /** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
 export interface AttentionResult {
@@ -106,9 +107,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   for (let i = 0; i < cap; i++) {
     if (!table.isUsed(i)) continue;
     used++;
-    let d = 0;
-    const off = i * dim;
-    for (let j = 0; j < dim; j++) d += q[j]! * keys[off + j]!;
+    const d = dot(q, keys, i * dim, dim);
     cosine[i] = d;
     if (d > topCosine) topCosine = d;
     const s = table.isPinned(i) ? Math.max(table.strength[i]!, 1e-9) : Math.max(decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now), 1e-9);

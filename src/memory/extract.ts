@@ -59,6 +59,12 @@ interface Rule {
 // Order matters: the first rule that matches a sentence wins.
 const RULES: Rule[] = [
   {
+    // Before 'name': "call me on 0161 ..." gives a number, not a name.
+    name: 'contact',
+    re: /\b(?:reach|call|text|ring|phone|contact)\s+me\s+(?:on|at)\s+(\+?\d[\d\s-]{4,}\d)/iu,
+    build: (m) => ({ key: 'my phone number (mobile)', value: m[1]! }),
+  },
+  {
     name: 'name',
     re: /\b(?:my name is|call me|i'?m called|i am called|you can call me|name'?s)\s+([\p{L}][\p{L}'’-]*(?:\s+[\p{L}][\p{L}'’-]*)?)/iu,
     // A second word is part of the name only when capitalised ("Dana Whitfield", not "Dana and").
@@ -70,12 +76,12 @@ const RULES: Rule[] = [
   {
     name: 'my-x-is-y',
     re: /\bmy\s+((?:[\p{L}\p{N}'’-]+\s+){0,4}?[\p{L}\p{N}'’-]+)\s+(?:is|are|was|were|'s|will be|has been)\s+(?:now\s+|actually\s+)?(.+)/iu,
-    build: (m) => ({ key: `my ${m[1]!.toLowerCase()}`, value: m[2]! }),
+    build: (m) => ({ key: canonicalTopic(m[1]!), value: m[2]! }),
   },
   {
     name: 'live-in',
-    re: /\bi(?:'ve| have)?\s*(?:live|am living|'m living|moved|just moved|relocated)\s+(?:in|to|at|near)\s+(.+)/iu,
-    build: (m) => ({ key: 'where I live (my home town)', value: m[1]! }),
+    re: /\b(?:i|we)(?:'ve| have)?\s*(?:live|am living|'m living|are living|'re living|moved|just moved|relocated)\s+(?:house\s+)?(?:in|to|at|near)\s+(.+)/iu,
+    build: (m) => ({ key: ADDRESS_KEY, value: m[1]! }),
   },
   {
     name: 'work-at',
@@ -108,8 +114,13 @@ const RULES: Rule[] = [
   },
   {
     name: 'have',
-    re: /\bi\s+(?:have|own|ride|drive|use|got)\s+(?:a|an|the|two|three|\d+)\s+(.+)/iu,
-    build: (m) => ({ key: `my ${lastNoun(m[1]!)}`, value: m[1]! }),
+    re: /\bi(?:'ve)?\s+(have|own|ride|drive|use|got)\s+(?:a|an|the|two|three|\d+)\s+(.+)/iu,
+    // The verb stays in the key ("what I ride: my roamer") so a question about riding finds it.
+    build: (m) => {
+      const verb = m[1]!.toLowerCase();
+      const noun = lastNoun(m[2]!);
+      return { key: verb === 'have' || verb === 'got' || verb === 'own' ? `my ${noun}` : `what I ${verb}: my ${noun}`, value: m[2]! };
+    },
   },
   {
     name: 'booking',
@@ -118,10 +129,31 @@ const RULES: Rule[] = [
   },
 ];
 
+/** Key of every statement of where the user lives, so "I moved to ..." overwrites "my address is ...". */
+const ADDRESS_KEY = 'my home address (where I live)';
+
+/**
+ * Common personal-data topics said in several ways share one key, so an update in other words still
+ * addresses the same slot ("my mobile is ..." after "my phone number is ..."); passing modifiers
+ * ("new", "current") are dropped for the same reason. Common practice for form-like chat slots.
+ */
+const TOPIC_ALIASES: Array<[RegExp, string]> = [
+  [/^(?:home\s+|postal\s+|street\s+)?address$|^home$/, ADDRESS_KEY],
+  [/^(?:phone|mobile|cell|telephone|contact)(?:\s+(?:phone|number|no))*$|^number$/, 'my phone number (mobile)'],
+  [/^(?:e-?mail)(?:\s+address)?$/, 'my email address'],
+  [/^(?:birthday|date of birth|birth date)$/, 'my birthday (date of birth)'],
+];
+
+function canonicalTopic(raw: string): string {
+  const x = raw.toLowerCase().replace(/^(?:new|current|updated|latest|actual|usual|correct)\s+/, '').trim();
+  for (const [re, key] of TOPIC_ALIASES) if (re.test(x)) return key;
+  return `my ${x}`;
+}
+
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
   // "a green Brompton with a basket" -> "Brompton": stop at the first preposition.
-  const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named)$/i.test(w));
+  const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
   return (head[head.length - 1] ?? phrase).toLowerCase();
 }

@@ -27,14 +27,38 @@ const PATTERNS: Array<{ kind: ValueKind; re: RegExp }> = [
   },
 ];
 
+/**
+ * A bare number that is part of a name rather than an amount: a house number before a capitalised
+ * street name ("98 Fennel Street"), or a long digit run (phone, order or account numbers). Treating
+ * those as quantities made "make it 12" rewrite addresses and phone numbers.
+ */
+function isIdentifierNumber(text: string, index: number, match: string): boolean {
+  if (!/^\d+$/.test(match)) return false;
+  if (match.length >= 6) return true;
+  const after = text.slice(index + match.length);
+  if (/^\s+\p{Lu}/u.test(after)) return true;
+  // Part of a longer digit group ("0161 496 0000") or a code ("B12").
+  const before = text.slice(Math.max(0, index - 2), index);
+  return /\d\s$|\p{L}$/u.test(before) || /^\s\d/.test(after);
+}
+
+function matchAt(text: string, kind: ValueKind, re: RegExp): ValueExpr | null {
+  const g = new RegExp(re.source, re.flags.includes('g') ? re.flags : re.flags + 'g');
+  for (const m of text.matchAll(g)) {
+    if (m[0].trim().length === 0) continue;
+    const lead = m[0].length - m[0].trimStart().length;
+    const expr = { kind, text: m[0].trim(), index: (m.index ?? 0) + lead };
+    if (kind === 'quantity' && isIdentifierNumber(text, expr.index, expr.text)) continue;
+    return expr;
+  }
+  return null;
+}
+
 /** The first date, time or quantity expression in `text`, or null. Dates win over times over numbers. */
 export function findValueExpr(text: string): ValueExpr | null {
   for (const { kind, re } of PATTERNS) {
-    const m = re.exec(text);
-    if (m && m[0].trim().length > 0) {
-      const lead = m[0].length - m[0].trimStart().length;
-      return { kind, text: m[0].trim(), index: m.index + lead };
-    }
+    const m = matchAt(text, kind, re);
+    if (m) return m;
   }
   return null;
 }
@@ -48,7 +72,9 @@ export function findAll(text: string, kind: ValueKind): ValueExpr[] {
     for (const m of text.matchAll(re)) {
       if (m[0].trim().length === 0) continue;
       const lead = m[0].length - m[0].trimStart().length;
-      out.push({ kind, text: m[0].trim(), index: (m.index ?? 0) + lead });
+      const expr = { kind, text: m[0].trim(), index: (m.index ?? 0) + lead };
+      if (kind === 'quantity' && isIdentifierNumber(text, expr.index, expr.text)) continue;
+      out.push(expr);
     }
   }
   return out.sort((a, b) => a.index - b.index);

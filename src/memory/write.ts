@@ -14,12 +14,19 @@ import { gateFeatures, gateScore, type GateFeatures } from './gate.js';
 import type { WriteParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { findAll } from './values.js';
+import { dot } from './vector.js';
 
 /** A candidate with its embedded key and where it came from. */
 export interface KeyedCandidate {
   candidate: Candidate;
-  /** Unit key vector of `candidate.key`. */
+  /** Unit key vector of `candidate.key`, used for addressing. */
   key: Float32Array;
+  /**
+   * Unit vector stored as the slot's key; defaults to `key`. The middleware passes
+   * normalize(key + mix * value) so reads see the value's words while addressing still works on
+   * the topic: a same-topic candidate has cosine 1/sqrt(1 + mix^2) with it (0.89 at mix 0.5).
+   */
+  stored?: Float32Array;
   turn: string;
   role: Role;
 }
@@ -92,15 +99,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
   };
   const cosAt = (i: number, k: Float32Array): number => {
     const r = pending.get(i);
-    let d = 0;
-    if (r) {
-      for (let j = 0; j < dim; j++) d += k[j]! * r.key[j]!;
-    } else {
-      const off = i * dim;
-      const keys = table.keys;
-      for (let j = 0; j < dim; j++) d += k[j]! * keys[off + j]!;
-    }
-    return d;
+    return r ? dot(k, r.key, 0, dim) : dot(k, table.keys, i * dim, dim);
   };
   const set = (i: number, rec: SlotRecord | null): void => {
     pending.set(i, rec);
@@ -215,10 +214,11 @@ export function planWrite(input: WritePlanInput): WritePlan {
       }
       const id = input.newId();
       const blend = c.updates ? 0 : p.keyBlend;
+      const incoming = kc.stored ?? kc.key;
       const key = new Float32Array(dim);
       let s = 0;
       for (let j = 0; j < dim; j++) {
-        key[j] = (1 - blend) * old.key[j]! + blend * kc.key[j]!;
+        key[j] = (1 - blend) * old.key[j]! + blend * incoming[j]!;
         s += key[j]! * key[j]!;
       }
       const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
@@ -276,7 +276,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
     const id = input.newId();
     set(slot, {
       id,
-      key: Float32Array.from(kc.key),
+      key: Float32Array.from(kc.stored ?? kc.key),
       keyText: c.key,
       value,
       provenance: [kc.turn],

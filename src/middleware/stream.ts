@@ -16,6 +16,8 @@ export function isReadableStream(x: unknown): x is ReadableStream<unknown> {
   return typeof x === 'object' && x !== null && typeof (x as ReadableStream).getReader === 'function';
 }
 
+const ABORTED: unique symbol = Symbol('aborted');
+
 const chunkText = (decoder: TextDecoder, chunk: unknown): string =>
   typeof chunk === 'string' ? chunk : chunk instanceof Uint8Array ? decoder.decode(chunk, { stream: true }) : String(chunk);
 
@@ -28,10 +30,24 @@ export async function* passIterable<T>(src: AsyncIterable<T>, signal: AbortSigna
   const it = src[Symbol.asyncIterator]();
   let text = '';
   let end: ReplyEnd = 'aborted';
+  // Race each pull against the signal, so an abort while the source is stalled (a model still
+  // thinking) ends the reply at once instead of at the source's next chunk.
+  let onAbort: (() => void) | undefined;
+  const aborted = signal
+    ? new Promise<typeof ABORTED>((resolve) => {
+        onAbort = () => resolve(ABORTED);
+        if (signal.aborted) onAbort();
+        else signal.addEventListener('abort', onAbort, { once: true });
+      })
+    : undefined;
+  let pending = false;
   try {
     for (;;) {
       if (signal?.aborted) break;
-      const r = await it.next();
+      pending = true;
+      const r = aborted ? await Promise.race([it.next(), aborted]) : await it.next();
+      if (r === ABORTED) break;
+      pending = false;
       if (r.done) {
         end = 'done';
         break;
@@ -43,12 +59,15 @@ export async function* passIterable<T>(src: AsyncIterable<T>, signal: AbortSigna
     end = 'error';
     throw err;
   } finally {
+    if (onAbort) signal?.removeEventListener('abort', onAbort);
     if (end !== 'done') {
-      try {
-        await it.return?.();
-      } catch {
-        // The source's own cleanup failed; the reply has already ended either way.
-      }
+      // An async generator queues return() behind a pull still in flight: do not wait for it then.
+      const closing = Promise.resolve()
+        .then(() => it.return?.())
+        .catch(() => {
+          // The source's own cleanup failed; the reply has already ended either way.
+        });
+      if (!pending) await closing;
     }
     onEnd(text, end);
   }

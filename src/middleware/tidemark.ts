@@ -30,6 +30,7 @@ import { planWrite, type KeyedCandidate, type WritePlan } from '../memory/write.
 import { MemoryStore, scopeOf } from '../store/memory.js';
 import type { CommitRequest, EraseReport, SessionSnapshot, SlotOp, Store } from '../store/store.js';
 import type { ArchiveHit, ArchiveItem, MemoryContext, ReadTrace, RecallItem, SessionRef, SlotRecord, StoredEvent, TurnInput } from '../types.js';
+import { RetentionTracker, retentionSnapshot, type RetentionSnapshot } from '../metrics/retention.js';
 import type { TidemarkEvents } from './events.js';
 import { isAsyncIterable, isReadableStream, passIterable, passReadable, type Reply, type ReplyEnd } from './stream.js';
 import { checkId, validateTurn, type Turn } from './validate.js';
@@ -69,6 +70,14 @@ export interface TidemarkOptions extends MemoryParamsInput {
   outbox?: OutboxOptions;
   /** Embeddings cached (LRU entries). @default 10000 */
   embedCacheSize?: number;
+  /** In wrap(), slots recalled with at least this attention weight count as used and are reinforced. @default 0.1 */
+  reinforceMinWeight?: number;
+  /**
+   * How much of the value's embedding goes into a slot's stored vector: normalize(key + mix * value).
+   * 0 stores the topic alone; 0.5 lets a read match a value's meaning ("degreaser") while a
+   * same-topic write still addresses the slot (cosine 0.89 > the 0.8 overwrite threshold). @default 0.5
+   */
+  valueMix?: number;
   /** Key for hashing session ids in events and metrics; random per process when unset. */
   secret?: string;
 }
@@ -83,6 +92,8 @@ export const TIDEMARK_DEFAULTS: {
   commitRetries: number;
   outbox: Required<OutboxOptions>;
   embedCacheSize: number;
+  reinforceMinWeight: number;
+  valueMix: number;
 } = {
   tenant: 'default',
   maxTextBytes: 32 * 1024,
@@ -93,6 +104,8 @@ export const TIDEMARK_DEFAULTS: {
   commitRetries: 8,
   outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000 },
   embedCacheSize: 10_000,
+  reinforceMinWeight: 0.1,
+  valueMix: 0.5,
 };
 
 /** What a wrapped handler receives besides its input. */
@@ -183,13 +196,15 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   private drainDelay: number;
   private draining: Promise<void> | undefined;
   private closed = false;
+  /** Slot lifetimes followed from this instance's events (Kaplan–Meier in `retention()`). */
+  readonly retentionTracker = new RetentionTracker();
 
   constructor(options: TidemarkOptions = {}) {
     super();
     this.params = resolveMemoryParams(options);
     const o = {
       ...TIDEMARK_DEFAULTS,
-      ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize']),
+      ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize', 'reinforceMinWeight', 'valueMix']),
       outbox: { ...TIDEMARK_DEFAULTS.outbox, ...options.outbox },
       prompt: { ...PROMPT_DEFAULTS, ...options.prompt },
     };
@@ -202,6 +217,12 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     intOpt('outbox.maxRetryMs', o.outbox.maxRetryMs, o.outbox.retryMs, 3_600_000);
     intOpt('embedCacheSize', o.embedCacheSize, 0, 10_000_000);
     intOpt('prompt.tokenBudget', o.prompt.tokenBudget, 0, 1_000_000);
+    if (typeof o.valueMix !== 'number' || !(o.valueMix >= 0 && o.valueMix <= 1)) {
+      throw new ConfigError(`option valueMix must be a number in [0, 1], got ${describeValue(o.valueMix)}`, { details: { option: 'valueMix' } });
+    }
+    if (typeof o.reinforceMinWeight !== 'number' || !(o.reinforceMinWeight >= 0 && o.reinforceMinWeight <= 1)) {
+      throw new ConfigError(`option reinforceMinWeight must be a number in [0, 1], got ${describeValue(o.reinforceMinWeight)}`, { details: { option: 'reinforceMinWeight' } });
+    }
     if (!['user', 'none', 'all'].includes(o.onAbort)) {
       throw new ConfigError(`option onAbort must be 'user', 'none' or 'all', got ${describeValue(o.onAbort)}`, { details: { option: 'onAbort' } });
     }
@@ -216,6 +237,15 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     this.cache = new EmbeddingCache(o.embedCacheSize);
     this.secret = options.secret ?? randomBytes(16).toString('hex');
     this.drainDelay = o.outbox.retryMs;
+    this.retentionTracker.attach(this);
+  }
+
+  /**
+   * How long slots survive in working memory: Kaplan–Meier estimates over the lifetimes seen by this
+   * instance (in clock units and in seconds; live slots censored), and the half-life distribution.
+   */
+  retention(nowMs = Date.now()): RetentionSnapshot {
+    return retentionSnapshot(this.retentionTracker, nowMs);
   }
 
   /** Writes waiting for the store. */
@@ -291,6 +321,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
           const archived = await this.searchArchive(ref, q!, terms, table, now, history || p.history);
           archiveCount = archived.filter((x) => x.source === 'archive').length;
           items = mergeItems(items, archived, p.k + p.archiveK);
+          if (archiveCount > 0) reweight(items, p.temperature);
         } catch (err) {
           // The slots are still good; report the archive failure and carry on without it.
           this.emitError('read', err, ref);
@@ -368,7 +399,9 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     hits.forEach((hit, n) => {
       if (hit.cosine < p.archiveMinCosine && raw[n]! < p.minLexical) return;
       const lex = maxLex > 0 ? raw[n]! / maxLex : 0;
-      const z = p.beta * hit.cosine + p.gamma * lex + p.delta * Math.log(Math.max(hit.item.strength, 1e-9));
+      // A superseded value scores as if its cosine were half a unit lower, unless history is asked for.
+      const penalty = !history && hit.item.reason === 'superseded' ? p.beta * 0.5 : 0;
+      const z = p.beta * hit.cosine + p.gamma * lex + p.delta * Math.log(Math.max(hit.item.strength, 1e-9)) - penalty;
       kept.push({ hit, lex, lexRaw: raw[n]!, z });
     });
     if (kept.length === 0) return [];
@@ -530,9 +563,13 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       const skip = t.role !== 'user' && !(t.role === 'assistant' && this.o.writeReplies);
       extracted.push({ turn: t, candidates: skip ? [] : await this.extractor.extract(t.text, t.role) });
     }
-    const keyTexts = extracted.flatMap((e) => e.candidates.map((c) => c.key));
+    const all = extracted.flatMap((e) => e.candidates);
     const e0 = performance.now();
-    const keys = keyTexts.length > 0 ? await embedCached(this.embedder, this.cache, keyTexts) : [];
+    // Keys address slots; values are mixed into the stored vector so reads see them too.
+    const mix = this.o.valueMix;
+    const vecs = all.length > 0 ? await embedCached(this.embedder, this.cache, mix > 0 ? all.flatMap((c) => [c.key, c.value]) : all.map((c) => c.key)) : [];
+    const keys = mix > 0 ? all.map((_, n) => vecs[2 * n]!) : vecs;
+    const stored = mix > 0 ? all.map((c, n) => (c.value === c.key ? vecs[2 * n]! : mixVectors(vecs[2 * n]!, vecs[2 * n + 1]!, mix))) : keys;
     const embedUs = usSince(e0);
     let planUs = 0;
     for (let attempt = 0; attempt <= this.o.commitRetries; attempt++) {
@@ -553,9 +590,11 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         clock = this.params.decayUnit === 'seconds' ? Math.max(clock, turn.atMs / 1000) : clock + 1;
         const id = turn.turn ?? `t${turnCount}`;
         ids.push(id);
-        for (const c of candidates) keyed.push({ candidate: c, key: keys[k++]!, turn: id, role: turn.role });
+        for (const c of candidates) {
+          keyed.push({ candidate: c, key: keys[k]!, stored: stored[k]!, turn: id, role: turn.role });
+          k++;
+        }
       }
-      k = 0;
       const last = turns[turns.length - 1]!;
       const plan = planWrite({
         table,
@@ -654,7 +693,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       } catch (err) {
         memory = this.degradedRead(turn, 'read', err, 0);
       }
-      const used = memory.items.filter((i) => i.source === 'slot').map((i) => i.id);
+      // Reinforce only what carried real weight in the read; a tail item that scraped in is not "used".
+      const used = memory.items.filter((i) => i.source === 'slot' && i.weight >= this.o.reinforceMinWeight).map((i) => i.id);
       const ref = refOf(turn);
       const after = (text: string, end: ReplyEnd): void => {
         const turns = [turn];
@@ -722,8 +762,30 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     }
     // Cached vectors are keyed by digests, but they derive from the erased text: drop them all.
     this.cache.clear();
+    if ('session' in t) await this.announceErased({ tenant, session: t.session });
     const report = await this.storeCall(() => this.store.erase(t), 'erase');
     return report;
+  }
+
+  /** Emits `evict` (reason `erased`, not archived) for each slot of a session about to be erased. */
+  private async announceErased(ref: SessionRef): Promise<void> {
+    if (this.listenerCount('evict') === 0) return;
+    let snap: SessionSnapshot | null = null;
+    try {
+      snap = await this.store.load(ref);
+    } catch {
+      return; // The erase itself reports store failures.
+    }
+    if (!snap) return;
+    const base = this.base(ref);
+    const t = snap.table;
+    for (let i = 0; i < t.capacity; i++) {
+      if (!t.isUsed(i)) continue;
+      this.emit('evict', {
+        ...base, slot: i, id: t.ids[i]!, reason: 'erased', archived: false, lifetime: snap.clock - t.created[i]!,
+        lifetimeMs: base.atMs - t.createdMs[i]!, halfLife: t.halfLife[i]!, strength: t.strength[i]!,
+      });
+    }
   }
 
   /** A session's slots (strengths decayed to now), archive items and recent events. */
@@ -914,6 +976,32 @@ function slotItem(table: SlotTable, i: number, a: AttentionResult): RecallItem {
     provenance: table.provenance[i]!.slice(), weight: a.weight[i]!, score: a.score[i]!, cosine: a.cosine[i]!,
     lexical: a.lexical[i]!, strength: a.strength[i]!,
   };
+}
+
+/**
+ * One softmax over the merged slot and archive items, so their weights compare on one scale. The
+ * order is kept: it already puts live successors above what they superseded.
+ */
+function reweight(items: RecallItem[], tau: number): void {
+  let max = -Infinity;
+  for (const i of items) if (i.score > max) max = i.score;
+  let sum = 0;
+  const e = items.map((i) => Math.exp((i.score - max) / tau));
+  for (const v of e) sum += v;
+  items.forEach((i, n) => (i.weight = e[n]! / sum));
+}
+
+/** normalize(a + mix * b) as a new vector. */
+function mixVectors(a: Float32Array, b: Float32Array, mix: number): Float32Array {
+  const out = new Float32Array(a.length);
+  let s = 0;
+  for (let j = 0; j < a.length; j++) {
+    out[j] = a[j]! + mix * b[j]!;
+    s += out[j]! * out[j]!;
+  }
+  const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
+  for (let j = 0; j < a.length; j++) out[j] = out[j]! * inv;
+  return out;
 }
 
 /** Slot items first (they won the softmax), then archive items not already present. */

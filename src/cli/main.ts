@@ -1,0 +1,99 @@
+#!/usr/bin/env node
+// The tidemark command: demo, serve, replay, sweep, inspect. Each verb lives in its own module and is
+// loaded only when called, so `tidemark demo` never loads the HTTP or Redis adapters.
+
+import { Command, InvalidArgumentError } from 'commander';
+import { existsSync, readFileSync } from 'node:fs';
+import { isTidemarkError } from '../errors.js';
+
+/** Our package.json, found by walking up from this file (it runs from src/ and from dist/src/). */
+function packageVersion(): string {
+  let dir = new URL('.', import.meta.url);
+  for (let i = 0; i < 5; i++) {
+    const candidate = new URL('package.json', dir);
+    if (existsSync(candidate)) {
+      const pkg = JSON.parse(readFileSync(candidate, 'utf8')) as { name?: string; version?: string };
+      if (pkg.name === 'tidemark') return pkg.version ?? '0.0.0';
+    }
+    dir = new URL('..', dir);
+  }
+  return '0.0.0';
+}
+
+const int = (name: string) => (v: string): number => {
+  const n = Number(v);
+  if (!Number.isInteger(n) || n < 0) throw new InvalidArgumentError(`${name} must be a whole number, got ${v}`);
+  return n;
+};
+const collect = (v: string, prev: string[]): string[] => [...prev, v];
+
+const program = new Command()
+  .name('tidemark')
+  .description('Working memory for chatbots: try it, serve it, and measure it on your own transcripts.')
+  .version(packageVersion());
+
+program
+  .command('demo', { isDefault: true })
+  .description('run the bike workshop booking conversation and show what memory does on each turn')
+  .option('--capacity <n>', 'memory slots for the demo session', int('--capacity'), 6)
+  .action(async (o: { capacity: number }) => {
+    const { runDemo } = await import('./demo.js');
+    const r = await runDemo({ capacity: o.capacity });
+    if (!r.friday) process.exitCode = 1;
+  });
+
+program
+  .command('serve')
+  .description('serve the demo bot over HTTP: POST /chat (SSE), /metrics, /dashboard')
+  .option('--port <n>', 'port to listen on', int('--port'), 8787)
+  .option('--host <host>', 'address to bind (127.0.0.1 unless a token is set)')
+  .option('--redis <url>', 'keep memory in Redis at this URL instead of in-process')
+  .option('--token <token>', 'bearer token for the admin endpoints and dashboard (also TIDEMARK_TOKEN)')
+  .action(async (o: { port: number; host?: string; redis?: string; token?: string }) => {
+    const { serve } = await import('./serve.js');
+    const token = o.token ?? process.env.TIDEMARK_TOKEN;
+    const s = await serve({ port: o.port, ...(o.host ? { host: o.host } : {}), ...(o.redis ? { redis: o.redis } : {}), ...(token ? { token } : {}) });
+    process.stdout.write(`tidemark serving on ${s.url}  (chat: POST ${s.url}/chat, dashboard: ${s.url}/dashboard, metrics: ${s.url}/metrics)\n`);
+    const stop = (): void => void s.close().then(() => process.exit(0));
+    process.once('SIGINT', stop);
+    process.once('SIGTERM', stop);
+  });
+
+program
+  .command('replay')
+  .description('replay a JSON Lines transcript through tidemark, ask probes, and report recall beside baselines')
+  .argument('<transcript>', 'transcript file, JSON Lines')
+  .option('--probes <file>', 'probes file, JSON Lines')
+  .option('--k <n>', 'items per probe read', int('--k'), 5)
+  .option('--config <file>', 'JSON file of createTidemark options')
+  .option('--baseline <spec>', 'baseline to run beside: window:N or flat (repeatable)', collect, [])
+  .option('--strict', 'stop at the first malformed line instead of skipping it')
+  .option('--json', 'print one JSON object on stdout')
+  .action(async (transcript: string, o: Record<string, unknown>) => {
+    const { replayCli } = await import('./replay.js');
+    await replayCli(transcript, o);
+  });
+
+program
+  .command('sweep')
+  .description('try a grid of settings on a transcript + probes and print the recall/cost frontier')
+  .argument('<transcript>', 'transcript file, JSON Lines')
+  .requiredOption('--probes <file>', 'probes file, JSON Lines')
+  .option('--k <n>', 'items per probe read', int('--k'), 5)
+  .option('--grid <file>', 'JSON file with the grid to try')
+  .option('--config <file>', 'JSON file of base createTidemark options')
+  .option('--out <file>', 'write the frontier plot (.svg or .html)')
+  .option('--json', 'print one JSON object on stdout')
+  .action(async (transcript: string, o: Record<string, unknown>) => {
+    const { sweepCli } = await import('./sweep.js');
+    await sweepCli(transcript, o);
+  });
+
+try {
+  await program.parseAsync(process.argv);
+} catch (err) {
+  if (isTidemarkError(err)) {
+    process.stderr.write(`tidemark: ${err.code}: ${err.message}\n`);
+    process.exitCode = 2;
+  } else throw err;
+}

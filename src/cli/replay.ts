@@ -1,0 +1,454 @@
+// `tidemark replay`: feeds a transcript turn by turn through tidemark the way wrap() does (read before
+// each user turn, write with the used slots reinforced), asks the probes, and reports recall beside
+// baselines that see the same turns. runReplay() is the pure-ish core for tests and benches;
+// replayCli() reads the files and prints a table or one JSON object.
+
+import type { Embedder } from '../embed/embedder.js';
+import { HashingEmbedder } from '../embed/hashing.js';
+import { ConfigError, describeValue, isTidemarkError } from '../errors.js';
+import { createTidemark, type TidemarkOptions } from '../middleware/tidemark.js';
+import type { EvictReason, ReadResult, RecallItem, Role } from '../types.js';
+import { TurnBaseline, baselineName, parseBaseline, type BaselineSpec } from './baselines.js';
+import { parseProbes, parseTranscript, readText, ReplayFormatError, type FormatIssue, type Probe, type TranscriptTurn } from './jsonl.js';
+import { progressBar } from './progress.js';
+
+export interface ReplayOptions {
+  turns: readonly TranscriptTurn[];
+  probes?: readonly Probe[];
+  /** Source turns kept per probe (the recall cut). Also raises read.k to at least k. @default read.k of the config, else 5 */
+  k?: number;
+  /** createTidemark options (capacity, read, write, decayUnit, ...). `store` and `embedder` may be objects. */
+  config?: TidemarkOptions;
+  /** Baselines to run beside tidemark, e.g. `['window:20', 'flat']`. @default [] */
+  baselines?: ReadonlyArray<string | BaselineSpec>;
+  /** Stop at the first probe whose `after` names a turn not in the transcript. @default false */
+  strict?: boolean;
+  /** Issues found while parsing, carried into the result. */
+  issues?: readonly FormatIssue[];
+  /** Called every few turns with (turns done, total). */
+  onProgress?: (done: number, total: number) => void;
+}
+
+/** Recall figures of one system (tidemark or a baseline). */
+export interface RecallFigures {
+  recall_at_k: number;
+  recall_at_1: number;
+  /** Per probe kind (the id prefix before ':', e.g. `fact`, `latest`). */
+  by_kind: Record<string, { probes: number; recall_at_1: number; recall_at_k: number }>;
+}
+
+export interface BaselineSummary extends RecallFigures {
+  read_us: { p50: number; p99: number };
+  /** Turns held at the end, over all sessions. */
+  items_kept: number;
+}
+
+export interface ReplaySummary extends RecallFigures {
+  turns: number;
+  sessions: number;
+  probes: number;
+  k: number;
+  capacity: number;
+  /** Reads before user turns, by result. */
+  reads: Record<ReadResult, number>;
+  /** Probe reads, by result. */
+  probe_reads: Record<ReadResult, number>;
+  writes: { allocated: number; overwritten: number; reinforced: number; gated_out: number };
+  evictions: Record<EvictReason, number>;
+  /** Slots in use at the end, over all sessions. */
+  slots_in_use: number;
+  /** Archive items at the end, over all sessions. */
+  archive_items: number;
+  /** Read latency (µs, embedding included) over turn and probe reads. */
+  read_us: { p50: number; p99: number };
+  /** Turns replayed per second of tidemark time (reads + writes; baselines excluded). */
+  turns_per_s: number;
+  /** Lines skipped (format issues, or turns tidemark refused). */
+  skipped: number;
+}
+
+export interface ProbeResult {
+  id: string;
+  session: string;
+  retrieved: string[];
+  recall: number;
+  /** Per baseline: its retrieved turns and recall. */
+  baselines?: Record<string, { retrieved: string[]; recall: number }>;
+}
+
+export interface ReplayResult {
+  summary: ReplaySummary;
+  baselines: Record<string, BaselineSummary>;
+  probes: ProbeResult[];
+  issues: FormatIssue[];
+}
+
+/** Nearest-rank percentile of sorted values (0 for none). */
+export function percentile(sorted: readonly number[], q: number): number {
+  if (sorted.length === 0) return 0;
+  const rank = Math.max(1, Math.ceil(q * sorted.length));
+  return sorted[Math.min(sorted.length, rank) - 1]!;
+}
+
+/**
+ * Distinct source turns of items in rank order, cut at k. An item with several sources spends
+ * several places, so a merged slot cannot win by carrying more provenance (DESIGN.md section 6).
+ */
+export function retrievedTurns(items: ReadonlyArray<Pick<RecallItem, 'provenance'>>, k: number): string[] {
+  const out: string[] = [];
+  const seen = new Set<string>();
+  for (const it of items) {
+    for (const t of it.provenance) {
+      if (out.length >= k) return out;
+      if (seen.has(t)) continue;
+      seen.add(t);
+      out.push(t);
+    }
+  }
+  return out;
+}
+
+/** |expected ∩ retrieved| / |expected|. */
+export function recallOf(expected: readonly string[], retrieved: readonly string[]): number {
+  if (expected.length === 0) return 0;
+  const got = new Set(retrieved);
+  let n = 0;
+  for (const e of expected) if (got.has(e)) n++;
+  return n / expected.length;
+}
+
+/** The kind of a probe: its id's prefix before ':' (none when the id has no colon). */
+export const probeKind = (id: string): string | null => {
+  const i = id.indexOf(':');
+  return i > 0 ? id.slice(0, i) : null;
+};
+
+const round = (x: number, d = 4): number => Math.round(x * 10 ** d) / 10 ** d;
+const mean = (xs: readonly number[]): number => (xs.length === 0 ? 0 : xs.reduce((a, b) => a + b, 0) / xs.length);
+
+function figures(probes: readonly Probe[], retrieved: readonly string[][]): RecallFigures {
+  const atK = probes.map((p, i) => recallOf(p.expect, retrieved[i]!));
+  const at1 = probes.map((p, i) => recallOf(p.expect, retrieved[i]!.slice(0, 1)));
+  const by: RecallFigures['by_kind'] = {};
+  const groups = new Map<string, number[]>();
+  probes.forEach((p, i) => {
+    const kind = probeKind(p.id);
+    if (kind === null) return;
+    let g = groups.get(kind);
+    if (!g) groups.set(kind, (g = []));
+    g.push(i);
+  });
+  for (const [kind, idx] of [...groups].sort((a, b) => a[0].localeCompare(b[0]))) {
+    by[kind] = { probes: idx.length, recall_at_1: round(mean(idx.map((i) => at1[i]!))), recall_at_k: round(mean(idx.map((i) => atK[i]!))) };
+  }
+  return { recall_at_k: round(mean(atK)), recall_at_1: round(mean(at1)), by_kind: by };
+}
+
+/** Replays turns through a fresh tidemark instance and asks the probes. */
+export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
+  const config: TidemarkOptions = { ...(opts.config ?? {}) };
+  const configK = config.read?.k;
+  const k = opts.k ?? configK ?? 5;
+  if (!Number.isInteger(k) || k < 1 || k > 1000) {
+    throw new ConfigError(`option k must be an integer in [1, 1000], got ${describeValue(k)}`, { details: { option: 'k', value: k } });
+  }
+  // The read must return at least k items for a cut at k to mean anything.
+  if ((configK ?? 0) < k) config.read = { ...config.read, k };
+  const embedder: Embedder = config.embedder ?? new HashingEmbedder({ dim: 384 });
+  config.embedder = embedder;
+  const tm = createTidemark(config);
+  const issues: FormatIssue[] = [...(opts.issues ?? [])];
+  const roles: Role[] = config.writeReplies ? ['user', 'assistant'] : ['user'];
+  const specs = (opts.baselines ?? []).map((b) => (typeof b === 'string' ? parseBaseline(b) : b));
+  const baselines = specs.map((s) => new TurnBaseline(s, { embedder, beta: tm.params.read.beta, gamma: tm.params.read.gamma, roles }));
+  const names = new Set<string>();
+  for (const b of baselines) {
+    if (names.has(b.name)) throw new ConfigError(`baseline ${b.name} is given twice`, { details: { option: 'baseline' } });
+    names.add(b.name);
+  }
+
+  // Probes asked right after a turn, keyed by session + turn id; the rest at the end.
+  const turnKeys = new Set(opts.turns.map((t) => `${t.session}\u0000${t.turn}`));
+  const afterTurn = new Map<string, Probe[]>();
+  const atEnd: Probe[] = [];
+  for (const p of opts.probes ?? []) {
+    if (p.after === undefined) {
+      atEnd.push(p);
+      continue;
+    }
+    const key = `${p.session}\u0000${p.after}`;
+    if (!turnKeys.has(key)) {
+      const issue = { file: 'probes', line: p.line, message: `field "after" names turn ${describeValue(p.after)}, which is not in this session's transcript; probe skipped` };
+      if (opts.strict) throw new ReplayFormatError(issue);
+      issues.push(issue);
+      continue;
+    }
+    let list = afterTurn.get(key);
+    if (!list) afterTurn.set(key, (list = []));
+    list.push(p);
+  }
+
+  const reads: Record<ReadResult, number> = { hit: 0, archive_hit: 0, miss: 0 };
+  const probeReads: Record<ReadResult, number> = { hit: 0, archive_hit: 0, miss: 0 };
+  const writes = { allocated: 0, overwritten: 0, reinforced: 0, gated_out: 0 };
+  const evictions: Record<EvictReason, number> = { capacity: 0, decayed: 0, expired: 0, erased: 0 };
+  tm.on('evict', (e) => {
+    evictions[e.reason]++;
+  });
+  const readUs: number[] = [];
+  const baseUs = baselines.map(() => [] as number[]);
+  const asked: Probe[] = [];
+  const results: ProbeResult[] = [];
+  const baseRetrieved = baselines.map(() => [] as string[][]);
+  const sessions = new Set<string>();
+  let tmMs = 0;
+  let replayed = 0;
+  let skipped = issues.length;
+
+  const ask = async (p: Probe): Promise<void> => {
+    const ctx = await tm.read({ session: p.session, text: p.query });
+    probeReads[ctx.trace.result]++;
+    readUs.push(ctx.trace.durationUs);
+    const retrieved = retrievedTurns(ctx.items, k);
+    const r: ProbeResult = { id: p.id, session: p.session, retrieved, recall: round(recallOf(p.expect, retrieved)) };
+    if (baselines.length > 0) {
+      r.baselines = {};
+      const qv = (await embedder.embed([p.query]))[0]!;
+      for (let b = 0; b < baselines.length; b++) {
+        const q = await baselines[b]!.query(p.session, p.query, k, qv);
+        baseUs[b]!.push(q.us);
+        baseRetrieved[b]!.push(q.retrieved);
+        r.baselines[baselines[b]!.name] = { retrieved: q.retrieved, recall: round(recallOf(p.expect, q.retrieved)) };
+      }
+    }
+    asked.push(p);
+    results.push(r);
+  };
+
+  try {
+    /** Reads (for a user turn) and writes one batch; false when tidemark refused its input. */
+    const replayBatch = async (batch: TranscriptTurn[]): Promise<boolean> => {
+      const t = batch[0]!;
+      const t0 = performance.now();
+      try {
+        let used: string[] = [];
+        if (t.role === 'user') {
+          const ctx = await tm.read({ session: t.session, text: t.text });
+          reads[ctx.trace.result]++;
+          readUs.push(ctx.trace.durationUs);
+          used = ctx.items.filter((i) => i.source === 'slot').map((i) => i.id);
+        }
+        const report = await tm.write(
+          batch.map((b) => ({ session: b.session, turn: b.turn, role: b.role, text: b.text, ...(b.at ? { at: b.at } : {}), ...(b.speaker ? { speaker: b.speaker } : {}) })),
+          { reinforce: used },
+        );
+        writes.allocated += report.allocated;
+        writes.overwritten += report.overwritten;
+        writes.reinforced += report.reinforced;
+        writes.gated_out += report.gatedOut;
+        return true;
+      } catch (err) {
+        // A turn tidemark refuses (too long, bad id) is reported like a malformed line.
+        if (!isTidemarkError(err) || !(err as { code: string }).code.startsWith('TIDEMARK_E_INPUT')) throw err;
+        if (batch.length === 1) {
+          const issue = { file: 'transcript', line: t.line, message: (err as Error).message };
+          if (opts.strict) throw new ReplayFormatError(issue);
+          issues.push(issue);
+          skipped++;
+        }
+        return false;
+      } finally {
+        tmMs += performance.now() - t0;
+      }
+    };
+    const afterWrite = async (t: TranscriptTurn): Promise<void> => {
+      sessions.add(t.session);
+      replayed++;
+      if (baselines.length > 0) {
+        const v = roles.includes(t.role) ? (await embedder.embed([t.text]))[0]! : undefined;
+        for (const b of baselines) await b.add(t, v);
+      }
+      const due = dueAfter(t);
+      if (due) for (const p of due) await ask(p);
+    };
+    const dueAfter = (t: TranscriptTurn): Probe[] | undefined => afterTurn.get(`${t.session}\u0000${t.turn}`);
+
+    const total = opts.turns.length;
+    const list = opts.turns;
+    for (let n = 0; n < list.length; n++) {
+      const t = list[n]!;
+      // Like wrap(): a user turn and the reply that follows it are written together, after the read.
+      // They are split when a probe is due between them, or when tidemark refuses one of them.
+      const next = list[n + 1];
+      const pair = t.role === 'user' && next !== undefined && next.role === 'assistant' && next.session === t.session && !dueAfter(t) ? next : undefined;
+      if (pair) {
+        n++;
+        if (await replayBatch([t, pair])) {
+          await afterWrite(t);
+          await afterWrite(pair);
+        } else {
+          if (await replayBatch([t])) await afterWrite(t);
+          if (await replayBatch([pair])) await afterWrite(pair);
+        }
+      } else if (await replayBatch([t])) await afterWrite(t);
+      if (opts.onProgress && n % 200 < 2) opts.onProgress(n + 1, total);
+    }
+    for (const p of atEnd) await ask(p);
+    opts.onProgress?.(total, total);
+
+    let slotsInUse = 0;
+    let archiveItems = 0;
+    for (const s of sessions) {
+      const view = await tm.inspect(s, tm.tenant, { archiveLimit: 1_000_000, eventLimit: 0 });
+      slotsInUse += view.slots.length;
+      archiveItems += view.archive.length;
+    }
+    readUs.sort((a, b) => a - b);
+    const tmFig = figures(asked, results.map((r) => r.retrieved));
+    const summary: ReplaySummary = {
+      turns: replayed,
+      sessions: sessions.size,
+      probes: asked.length,
+      k,
+      capacity: tm.params.capacity,
+      ...tmFig,
+      reads,
+      probe_reads: probeReads,
+      writes,
+      evictions,
+      slots_in_use: slotsInUse,
+      archive_items: archiveItems,
+      read_us: { p50: round(percentile(readUs, 0.5), 1), p99: round(percentile(readUs, 0.99), 1) },
+      turns_per_s: Math.round(replayed / Math.max(1e-9, tmMs / 1000)),
+      skipped,
+    };
+    const baseOut: Record<string, BaselineSummary> = {};
+    baselines.forEach((b, i) => {
+      const us = baseUs[i]!.sort((x, y) => x - y);
+      baseOut[b.name] = {
+        ...figures(asked, baseRetrieved[i]!),
+        read_us: { p50: round(percentile(us, 0.5), 1), p99: round(percentile(us, 0.99), 1) },
+        items_kept: b.itemsKept(),
+      };
+    });
+    return { summary, baselines: baseOut, probes: results, issues };
+  } finally {
+    await tm.close();
+  }
+}
+
+// ------------------------------------------------------------------ CLI
+
+export interface ReplayCliOptions {
+  probes?: string;
+  k?: number | string;
+  config?: string;
+  json?: boolean;
+  /** Repeatable: `window:N` or `flat`. */
+  baseline?: string[] | string;
+  strict?: boolean;
+}
+
+export interface CliIo {
+  stdout: (text: string) => void;
+  stderr: NodeJS.WriteStream | { write: (s: string) => unknown; isTTY?: boolean };
+}
+
+export const defaultIo = (): CliIo => ({ stdout: (s) => process.stdout.write(s), stderr: process.stderr });
+
+/** Reads a JSON config file of createTidemark options. */
+export async function loadConfig(path: string | undefined): Promise<TidemarkOptions> {
+  if (!path) return {};
+  const text = await readText(path, 'config');
+  let v: unknown;
+  try {
+    v = JSON.parse(text);
+  } catch (err) {
+    throw new ConfigError(`config file ${path} is not valid JSON: ${(err as Error).message}`, { details: { option: 'config' } });
+  }
+  if (typeof v !== 'object' || v === null || Array.isArray(v)) {
+    throw new ConfigError(`config file ${path} must hold a JSON object of createTidemark options, got ${describeValue(v)}`, { details: { option: 'config' } });
+  }
+  return v as TidemarkOptions;
+}
+
+/** Parses the transcript and probe files named on the command line. */
+export async function loadReplayFiles(transcriptPath: string, probesPath: string | undefined, strict: boolean): Promise<{ turns: TranscriptTurn[]; probes: Probe[]; issues: FormatIssue[] }> {
+  const t = parseTranscript(await readText(transcriptPath, 'transcript'), { strict, file: transcriptPath });
+  const p = probesPath ? parseProbes(await readText(probesPath, 'probes'), { strict, file: probesPath }) : { items: [], issues: [] };
+  return { turns: t.items, probes: p.items, issues: [...t.issues, ...p.issues] };
+}
+
+export function parseK(v: number | string | undefined): number | undefined {
+  if (v === undefined) return undefined;
+  const n = typeof v === 'number' ? v : Number(v);
+  if (!Number.isInteger(n) || n < 1 || n > 1000) throw new ConfigError(`--k must be an integer in [1, 1000], got ${describeValue(v)}`, { details: { option: 'k', value: v } });
+  return n;
+}
+
+const fmt = (x: number, d = 3): string => x.toFixed(d);
+const int = (x: number): string => Math.round(x).toLocaleString('en-US');
+
+/** The readable table: tidemark beside the baselines, then tidemark's counters. */
+export function formatReplayTable(r: ReplayResult): string {
+  const s = r.summary;
+  const kinds = Object.keys(s.by_kind);
+  const head = ['', `recall@${s.k}`, 'recall@1', ...kinds.flatMap((k) => [`${k}@1`, `${k}@${s.k}`]), 'read p50 µs', 'read p99 µs', 'items kept'];
+  const row = (name: string, f: RecallFigures, us: { p50: number; p99: number }, kept: number): string[] => [
+    name,
+    fmt(f.recall_at_k),
+    fmt(f.recall_at_1),
+    ...kinds.flatMap((k) => [fmt(f.by_kind[k]?.recall_at_1 ?? 0), fmt(f.by_kind[k]?.recall_at_k ?? 0)]),
+    us.p50.toFixed(1),
+    us.p99.toFixed(1),
+    int(kept),
+  ];
+  const rows = [head, row('tidemark', s, s.read_us, s.slots_in_use), ...Object.entries(r.baselines).map(([n, b]) => row(n, b, b.read_us, b.items_kept))];
+  const widths = head.map((_, c) => Math.max(...rows.map((x) => x[c]!.length)));
+  const lines = rows.map((x) => x.map((cell, c) => (c === 0 ? cell.padEnd(widths[c]!) : cell.padStart(widths[c]!))).join('  '));
+  const out = [
+    `replay: ${int(s.turns)} turns, ${s.sessions} sessions, ${s.probes} probes, k = ${s.k}, capacity ${s.capacity}${s.skipped ? `, ${s.skipped} lines skipped` : ''}`,
+    '',
+    ...lines,
+    '',
+    `reads      hit ${int(s.reads.hit)}, archive hit ${int(s.reads.archive_hit)}, miss ${int(s.reads.miss)} (probe reads: ${s.probe_reads.hit}/${s.probe_reads.archive_hit}/${s.probe_reads.miss})`,
+    `writes     allocated ${int(s.writes.allocated)}, overwritten ${int(s.writes.overwritten)}, reinforced ${int(s.writes.reinforced)}, gated out ${int(s.writes.gated_out)}`,
+    `evictions  capacity ${int(s.evictions.capacity)}, decayed ${int(s.evictions.decayed)}, expired ${int(s.evictions.expired)}`,
+    `memory     ${int(s.slots_in_use)} slots in use (${fmt(s.slots_in_use / Math.max(1, s.sessions), 1)} per session of ${s.capacity}), ${int(s.archive_items)} archive items`,
+    `speed      ${int(s.turns_per_s)} turns/s`,
+  ];
+  for (const i of r.issues.slice(0, 20)) out.push(`skipped    ${i.file} line ${i.line}: ${i.message}`);
+  if (r.issues.length > 20) out.push(`skipped    ... and ${r.issues.length - 20} more`);
+  return out.join('\n') + '\n';
+}
+
+/** `tidemark replay TRANSCRIPT [--probes FILE] [--k N] [--config FILE] [--json] [--baseline SPEC]... [--strict]`. Returns the exit code. */
+export async function replayCli(transcriptPath: string, cli: ReplayCliOptions, io: CliIo = defaultIo()): Promise<number> {
+  try {
+    const strict = cli.strict === true;
+    const k = parseK(cli.k);
+    const config = await loadConfig(cli.config);
+    const files = await loadReplayFiles(transcriptPath, cli.probes, strict);
+    const bar = cli.json ? null : progressBar(files.turns.length, 'replay', io.stderr as NodeJS.WriteStream);
+    const result = await runReplay({
+      turns: files.turns,
+      probes: files.probes,
+      ...(k !== undefined ? { k } : {}),
+      config,
+      baselines: cli.baseline === undefined ? [] : Array.isArray(cli.baseline) ? cli.baseline : [cli.baseline],
+      strict,
+      issues: files.issues,
+      ...(bar ? { onProgress: (d: number) => bar.tick(d) } : {}),
+    });
+    bar?.done();
+    if (cli.json) io.stdout(JSON.stringify(result) + '\n');
+    else io.stdout(formatReplayTable(result));
+    for (const i of result.issues) if (cli.json) io.stderr.write(`${i.file} line ${i.line}: ${i.message}\n`);
+    return 0;
+  } catch (err) {
+    io.stderr.write(`tidemark replay: ${isTidemarkError(err) ? `${(err as { code: string }).code}: ` : ''}${(err as Error).message}\n`);
+    return isTidemarkError(err) ? 2 : 1;
+  }
+}
+
+export { baselineName };

@@ -1,0 +1,83 @@
+// The Redis store on a real local Redis Cluster of 3 masters, started by scripts/redis-cluster.sh
+// (and stopped again when this file started it): the shared conformance suite, Redis's own
+// CLUSTER KEYSLOT for every key of a session, sessions spread over all masters, erasure proven by SCAN.
+
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Cluster } from 'ioredis';
+import { redisStore } from '../../../adapters/redis/index.js';
+import { archived, commitOf, slot, storeConformance, unit } from '../../store/conformance.js';
+import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
+
+// The cluster needs redis-server and redis-cli; the same probe as the single-node suite decides
+// (fail under CI, skip with the reason elsewhere).
+const down = await probeRedis();
+
+describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})` : ''}`, () => {
+  let ports: number[] = [];
+  let started = false;
+  let admin: Cluster;
+  const prefix = uniquePrefix('cluster');
+  const clients: Cluster[] = [];
+
+  beforeAll(async () => {
+    ({ ports, started } = startCluster());
+    admin = newCluster(ports);
+    await new Promise<void>((resolve, reject) => {
+      admin.once('ready', resolve);
+      admin.once('error', reject);
+    });
+  });
+  afterAll(async () => {
+    if (admin) {
+      await deletePrefix(admin, prefix);
+      admin.disconnect();
+    }
+    for (const c of clients) c.disconnect();
+    if (started) stopCluster();
+  });
+
+  storeConformance('cluster', async () => {
+    const c = newCluster(ports);
+    clients.push(c);
+    return redisStore({ redis: c, prefix: `${prefix}conf:` });
+  }, { keyTolerance: 1e-2 });
+
+  it('every key of a session hashes to one slot (CLUSTER KEYSLOT), and sessions spread over the masters', async () => {
+    const store = redisStore({ redis: admin, prefix });
+    const slotsSeen = new Set<number>();
+    for (let n = 0; n < 24; n++) {
+      const ref = { tenant: 'acme', session: `ks-${n}`, user: 'u-ks' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      const k = store.sessionKeys('acme', ref.session);
+      const slots = new Set<number>();
+      for (const key of k.all) slots.add(Number(await admin.cluster('KEYSLOT', key)));
+      expect(slots.size, ref.session).toBe(1);
+      slotsSeen.add([...slots][0]!);
+    }
+    // Which master owns each slot, from the cluster itself.
+    const owners = new Set<string>();
+    const ranges = await admin.cluster('SLOTS');
+    for (const s of slotsSeen) {
+      const r = ranges.find(([lo, hi]) => s >= lo && s <= hi)!;
+      owners.add(`${r[2][0]}:${r[2][1]}`);
+    }
+    expect(owners.size).toBe(3);
+    expect((await store.listSessions('acme', 10_000)).sort()).toEqual(Array.from({ length: 24 }, (_, n) => `ks-${n}`).sort());
+    // The user's archive gathers items from sessions on all three masters.
+    expect(await store.searchArchive({ tenant: 'acme', user: 'u-ks' }, unit(1001), 100)).toHaveLength(1);
+    expect((await store.listArchive({ tenant: 'acme', user: 'u-ks' }, 100)).length).toBe(1); // same id a1 in each session
+    const report = await store.erase({ tenant: 'acme', user: 'u-ks' });
+    expect(report).toEqual({ sessions: 24, slots: 24, archiveItems: 24, events: 24 });
+    expect(await scanKeys(admin, `${prefix}*`)).toEqual([]);
+  });
+
+  it('erasing a session leaves no key of it on any master', async () => {
+    const store = redisStore({ redis: admin, prefix });
+    const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
+    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+    expect((await scanKeys(admin, `${prefix}*`)).length).toBe(6); // meta, slots, events, uarch, ualog + the user's set
+    await store.erase({ tenant: 'acme', session: 'bye' });
+    // The session's keys are gone; the user's set no longer names it (it is empty, so Redis dropped it).
+    expect(await scanKeys(admin, `${prefix}*`)).toEqual([]);
+  });
+});

@@ -1,0 +1,156 @@
+// Shared pieces of the Redis integration suites: reaching the real server (fail under CI, skip with a
+// reason elsewhere), unique key prefixes, cleanup by SCAN, throwaway redis-server processes and the
+// local Cluster started by scripts/redis-cluster.sh.
+
+import { execFileSync, spawn, type ChildProcess } from 'node:child_process';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { createServer } from 'node:net';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { Cluster, Redis } from 'ioredis';
+import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS } from '../../../adapters/redis/index.js';
+
+export const repoRoot = resolve(fileURLToPath(new URL('../../..', import.meta.url)));
+export const REDIS_URL = process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
+const inCI = process.env.CI === 'true';
+
+/** A key prefix no other run or engineer uses. */
+export function uniquePrefix(tag: string): string {
+  return `tidemark-test:${tag}-${process.pid}-${Date.now().toString(36)}:`;
+}
+
+/** Null when Redis answers PING at `url`, else why not. Under CI an unreachable Redis throws (the suite fails). */
+export async function probeRedis(url = REDIS_URL): Promise<string | null> {
+  const c = new Redis(url, { ...REDIS_CLIENT_OPTIONS, lazyConnect: true, retryStrategy: () => null });
+  c.on('error', () => undefined);
+  try {
+    await c.connect();
+    await c.ping();
+    return null;
+  } catch (err) {
+    const reason = `Redis at ${url} unreachable (${(err as Error).message}); start one with: redis-server --port 6379 --save '' --appendonly no`;
+    if (inCI) throw new Error(`CI=true and ${reason}`);
+    return reason;
+  } finally {
+    c.disconnect();
+  }
+}
+
+export function newClient(url = REDIS_URL): Redis {
+  const c = new Redis(url, { ...REDIS_CLIENT_OPTIONS });
+  c.on('error', () => undefined);
+  return c;
+}
+
+/** Every key under `pattern` on a single node or on each master of a cluster. */
+export async function scanKeys(client: Redis | Cluster, pattern: string): Promise<string[]> {
+  const nodes = client instanceof Cluster ? client.nodes('master') : [client];
+  const out: string[] = [];
+  for (const node of nodes) {
+    let cursor = '0';
+    do {
+      const [next, keys] = await node.scan(cursor, 'MATCH', pattern, 'COUNT', 1000);
+      cursor = next;
+      out.push(...keys);
+    } while (cursor !== '0');
+  }
+  return out;
+}
+
+/** Deletes every key of a test prefix (one DEL per key: on a cluster they live on different slots). */
+export async function deletePrefix(client: Redis | Cluster, prefix: string): Promise<number> {
+  const keys = await scanKeys(client, `${prefix.replace(/[*?[\]\\]/g, '\\$&')}*`);
+  for (const k of keys) await client.del(k);
+  return keys.length;
+}
+
+/** A TCP port nothing listens on right now (the OS picks it). */
+export async function freePort(): Promise<number> {
+  return new Promise((res, rej) => {
+    const srv = createServer();
+    srv.once('error', rej);
+    srv.listen(0, '127.0.0.1', () => {
+      const { port } = srv.address() as { port: number };
+      srv.close(() => res(port));
+    });
+  });
+}
+
+/**
+ * A redis-server of our own on `port`, with an append-only file fsynced on every write
+ * (`appendfsync always`), so a SIGKILL loses no acknowledged write.
+ */
+export class ThrowawayRedis {
+  readonly dir = mkdtempSync(join(tmpdir(), 'tidemark-redis-'));
+  private proc: ChildProcess | undefined;
+  constructor(readonly port: number) {}
+
+  get url(): string {
+    return `redis://127.0.0.1:${this.port}`;
+  }
+
+  async start(): Promise<void> {
+    this.proc = spawn('redis-server', [
+      '--port', String(this.port), '--bind', '127.0.0.1', '--dir', this.dir, '--save', '',
+      '--appendonly', 'yes', '--appendfsync', 'always',
+    ], { stdio: 'ignore' });
+    const probe = new Redis(this.url, { lazyConnect: true, retryStrategy: () => null, enableOfflineQueue: false });
+    probe.on('error', () => undefined);
+    for (let i = 0; i < 100; i++) {
+      try {
+        await probe.connect();
+        await probe.ping();
+        probe.disconnect();
+        return;
+      } catch {
+        await new Promise((r) => setTimeout(r, 50));
+      }
+    }
+    probe.disconnect();
+    throw new Error(`redis-server on port ${this.port} did not start`);
+  }
+
+  /** SIGKILL: no shutdown, no final save — what a crashed host looks like to clients. */
+  async kill(): Promise<void> {
+    const p = this.proc;
+    if (!p || p.exitCode !== null) return;
+    const exited = new Promise((r) => p.once('exit', r));
+    p.kill('SIGKILL');
+    await exited;
+  }
+
+  async stop(): Promise<void> {
+    await this.kill();
+    rmSync(this.dir, { recursive: true, force: true });
+  }
+}
+
+const clusterScript = join(repoRoot, 'scripts', 'redis-cluster.sh');
+
+/**
+ * Starts the local 3-master cluster with scripts/redis-cluster.sh unless it already runs; returns its
+ * ports and whether this call started it (then the caller stops it when done).
+ */
+export function startCluster(): { ports: number[]; started: boolean } {
+  let wasRunning = true;
+  try {
+    execFileSync('bash', [clusterScript, 'status'], { stdio: ['ignore', 'pipe', 'ignore'] });
+  } catch {
+    wasRunning = false;
+  }
+  const out = execFileSync('bash', [clusterScript, 'start'], { encoding: 'utf8', stdio: ['ignore', 'pipe', 'pipe'], timeout: 60_000 });
+  const ports = out.trim().split(/\s+/).map(Number);
+  if (ports.length !== 3 || ports.some((p) => !Number.isInteger(p))) throw new Error(`redis-cluster.sh start printed ${JSON.stringify(out)}`);
+  return { ports, started: !wasRunning };
+}
+
+export function stopCluster(): void {
+  execFileSync('bash', [clusterScript, 'stop'], { stdio: 'ignore', timeout: 60_000 });
+}
+
+export function newCluster(ports: number[]): Cluster {
+  const c = new Cluster(ports.map((port) => ({ host: '127.0.0.1', port })), { ...REDIS_CLUSTER_OPTIONS });
+  c.on('error', () => undefined);
+  return c;
+}

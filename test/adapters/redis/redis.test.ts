@@ -1,0 +1,307 @@
+// The Redis store against the real redis-server (REDIS_URL, default 127.0.0.1:6379): the shared
+// conformance suite in both key formats, payload checks, round trips per call (counted with MONITOR),
+// tenant isolation, TTLs, erasure proven by SCAN, replayed commits, and a SIGKILLed server.
+
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Redis } from 'ioredis';
+import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { archived, commitOf, slot, storeConformance, unit } from '../../store/conformance.js';
+import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
+
+const down = await probeRedis();
+const prefixes: string[] = [];
+const prefixFor = (tag: string): string => {
+  const p = uniquePrefix(tag);
+  prefixes.push(p);
+  return p;
+};
+
+// Outside CI, with no Redis reachable, the suites are skipped; the reason is in the suite name.
+describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`, () => {
+  let admin: Redis;
+  beforeAll(() => {
+    admin = newClient();
+  });
+  afterAll(async () => {
+    for (const p of prefixes) await deletePrefix(admin, p);
+    admin.disconnect();
+  });
+
+  storeConformance('redis-int8', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('int8') }), { keyTolerance: 1e-2 });
+  storeConformance('redis-float32', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
+  storeConformance('redis-nocache', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
+
+  describe('payloads', () => {
+    let store: RedisStore;
+    let prefix: string;
+    beforeAll(() => {
+      prefix = prefixFor('payload');
+      store = redisStore({ redis: newClient(), prefix });
+    });
+    afterAll(async () => {
+      (await store.redis()).disconnect();
+      await store.close();
+    });
+
+    it('int8 keys keep every component within 0.005 and come back unit length', async () => {
+      const ref = { tenant: 't', session: 'int8' };
+      const key = unit(42, 384);
+      await store.commit(ref, commitOf({ dim: 384, ops: [{ index: 0, slot: slot(1, { key }) }] }));
+      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      const got = (await fresh.load(ref))!.table.get(0)!.key;
+      let maxErr = 0;
+      let norm = 0;
+      for (let j = 0; j < 384; j++) {
+        maxErr = Math.max(maxErr, Math.abs(got[j]! - key[j]!));
+        norm += got[j]! * got[j]!;
+      }
+      expect(maxErr).toBeLessThan(0.005);
+      expect(Math.sqrt(norm)).toBeCloseTo(1, 6);
+    });
+
+    it('a tampered slot payload is reported as corrupt, never decoded', async () => {
+      const ref = { tenant: 't', session: 'tamper' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      const k = store.sessionKeys('t', 'tamper');
+      const raw = (await admin.hgetBuffer(k.slots, '0'))!;
+      raw[raw.length - 1] ^= 0x01; // one bit of the key
+      await admin.hset(k.slots, '0', raw);
+      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'checksum mismatch' } });
+      // An unknown format version byte is refused too.
+      raw[raw.length - 1] ^= 0x01;
+      raw[0] = 9;
+      await admin.hset(k.slots, '0', raw);
+      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'format version 9, expected 1' } });
+      // A garbage version in the meta hash as well.
+      await admin.hset(k.meta, 'v', 'banana');
+      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
+    });
+
+    it('a tampered archive payload is reported as corrupt by search', async () => {
+      const ref = { tenant: 't', session: 'tamper-arch' };
+      await store.commit(ref, commitOf({ archive: [archived(1, ref)] }));
+      const k = store.sessionKeys('t', 'tamper-arch');
+      const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
+      await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
+      await admin.hset(k.meta, 'as', 'moved'); // as a real writer would, so the cached copy is refreshed
+      await expect(store.searchArchive({ tenant: 't', session: 'tamper-arch' }, unit(1001), 1)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
+    });
+  });
+
+  describe('round trips, caching, isolation', () => {
+    let prefix: string;
+    let client: Redis;
+    let monitor: Redis;
+    let seen: { args: string[]; source: string }[] = [];
+    beforeAll(async () => {
+      prefix = prefixFor('rt');
+      client = newClient();
+      monitor = await newClient().monitor();
+      monitor.on('monitor', (_time: string, args: string[], source: string) => {
+        // Commands run inside our Lua scripts show as "lua" sources; only client calls count as round trips.
+        if (!source.includes('lua') && args.some((a) => a.includes(prefix))) seen.push({ args, source });
+      });
+    });
+    afterAll(async () => {
+      monitor.disconnect();
+      client.disconnect();
+    });
+    // MONITOR lines arrive asynchronously; a PING through the monitored server orders them.
+    const settle = async (): Promise<{ args: string[] }[]> => {
+      await client.ping();
+      await new Promise((r) => setTimeout(r, 50));
+      const out = seen;
+      seen = [];
+      return out;
+    };
+
+    it('a commit is one EVALSHA and a read one EVALSHA', async () => {
+      const store = redisStore({ redis: client, prefix });
+      const ref = { tenant: 'acme', session: 'rt1' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      await settle();
+      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
+      let cmds = await settle();
+      expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
+      const cold = redisStore({ redis: client, prefix });
+      expect((await cold.load(ref))!.table.count()).toBe(2);
+      cmds = await settle();
+      expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
+      // A session search is one round trip too.
+      expect(await store.searchArchive({ tenant: 'acme', session: 'rt1' }, unit(1001), 1)).toHaveLength(1);
+      expect((await settle()).map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
+    });
+
+    it('an unchanged session is served from the cache; another writer or an erase is seen at once', async () => {
+      const a = redisStore({ redis: client, prefix });
+      const b = redisStore({ redis: client, prefix });
+      const ref = { tenant: 'acme', session: 'cache1' };
+      await a.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      const s1 = await a.load(ref);
+      const s2 = await a.load(ref);
+      expect(s2!.table).toBe(s1!.table); // same decoded table: only the version crossed the wire
+      await b.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 0, slot: slot(5) }] }));
+      expect((await a.load(ref))!.table.get(0)!.id).toBe('r5');
+      // Erase and rewrite up to the same version from elsewhere: the epoch differs, so no stale copy.
+      await b.erase(ref);
+      await b.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(9) }] }));
+      await b.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(10) }] }));
+      const after = await a.load(ref);
+      expect(after!.version).toBe(2);
+      expect(after!.table.get(0)!.id).toBe('r9');
+    });
+
+    it('a re-sent commit is recognised and applied once', async () => {
+      const store = redisStore({ redis: client, prefix });
+      const ref = { tenant: 'acme', session: 'resend' };
+      const req = commitOf({ ops: [{ index: 0, slot: slot(1) }], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] });
+      expect(await store.commit(ref, req)).toEqual({ ok: true, version: 1 });
+      // The same request again, as after a reply lost in a disconnect: no second apply.
+      expect(await store.commit(ref, req)).toEqual({ ok: true, version: 1 });
+      expect(await store.readEvents(ref)).toHaveLength(1);
+      // A different request planned against the old version is a conflict.
+      expect(await store.commit(ref, commitOf({ ops: [] }))).toEqual({ ok: false, conflict: true, version: 1 });
+      // A write re-planned on top of its own landed commit (reply lost, outbox retry) carries the same
+      // commitId: reported as applied at version 2, not applied again.
+      const ev = { type: 'allocate' as const, slot: 1, id: 'r2', clock: 2, atMs: 2 };
+      const first = { ...commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], events: [ev] }), commitId: 'write-7f3a' };
+      expect(await store.commit(ref, first)).toEqual({ ok: true, version: 2 });
+      const replanned = { ...commitOf({ expectedVersion: 2, ops: [{ index: 2, slot: slot(3) }], events: [ev] }), commitId: 'write-7f3a' };
+      expect(await store.commit(ref, replanned)).toEqual({ ok: true, version: 2 });
+      const snap = await redisStore({ redis: client, prefix, cacheSessions: 0 }).load(ref);
+      expect(snap!.version).toBe(2);
+      expect(snap!.table.isUsed(2)).toBe(false);
+      expect(await store.readEvents(ref)).toHaveLength(2);
+    });
+
+    it('no call for one tenant names a key of another tenant', async () => {
+      const store = redisStore({ redis: client, prefix });
+      const other = { tenant: 'beta', session: 'shared-id', user: 'u1' };
+      await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, other)] }));
+      await settle();
+      const ref = { tenant: 'alpha', session: 'shared-id', user: 'u1' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(2) }], archive: [archived(2, ref)], events: [{ type: 'allocate', slot: 0, id: 'r2', clock: 1, atMs: 1 }] }));
+      await store.load(ref);
+      await store.searchArchive({ tenant: 'alpha', user: 'u1' }, unit(1001), 5);
+      await store.searchArchive({ tenant: 'alpha', session: 'shared-id' }, unit(1001), 5);
+      await store.listArchive({ tenant: 'alpha', user: 'u1' });
+      await store.deleteArchive({ tenant: 'alpha', user: 'u1' }, ['a1', 'a2']);
+      await store.readEvents(ref);
+      expect(await store.listSessions('alpha')).toEqual(['shared-id']);
+      await store.erase({ tenant: 'alpha', user: 'u1' });
+      await store.erase({ tenant: 'alpha', session: 'shared-id' });
+      const cmds = await settle();
+      expect(cmds.length).toBeGreaterThanOrEqual(10);
+      for (const c of cmds) {
+        for (const arg of c.args.filter((a) => a.includes(prefix))) {
+          expect(arg.startsWith(`${prefix}{alpha:`), `${c.args[0]} ${arg}`).toBe(true);
+        }
+      }
+      // And beta's state is untouched.
+      expect((await store.load(other))!.table.count()).toBe(1);
+      expect(await store.searchArchive({ tenant: 'beta', user: 'u1' }, unit(1001), 5)).toHaveLength(1);
+    });
+
+    it('tenant and session ids cannot collide through ":" or braces', async () => {
+      const store = redisStore({ redis: client, prefix });
+      await store.commit({ tenant: 'a:b', session: 'c' }, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      expect(await store.load({ tenant: 'a', session: 'b:c' })).toBeNull();
+      await store.commit({ tenant: 'x', session: 'we{ir}d%' }, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
+      expect(await store.listSessions('x')).toEqual(['we{ir}d%']);
+      expect(await store.listSessions('a')).toEqual([]);
+      expect(await store.listSessions('a:b')).toEqual(['c']);
+    });
+
+    it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
+      const store = redisStore({ redis: client, prefix, idleTtlSeconds: 120 });
+      const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      const k = store.sessionKeys('acme', 'ttl');
+      for (const key of [k.meta, k.slots, k.events, k.uarch, k.ualog]) {
+        const ttl = await client.ttl(key);
+        expect(ttl, key).toBeGreaterThan(110);
+        expect(ttl, key).toBeLessThanOrEqual(120);
+      }
+      const forever = redisStore({ redis: client, prefix, idleTtlSeconds: 0 });
+      await forever.commit(ref, commitOf({ expectedVersion: 1 }));
+      expect(await client.ttl(k.meta)).toBe(-1);
+      await forever.erase({ tenant: 'acme', user: 'u-ttl' });
+    });
+
+    it('erasure leaves no key of the session or of the user (SCAN proves it)', async () => {
+      const store = redisStore({ redis: client, prefix });
+      const a = { tenant: 'acme', session: 'gone-1', user: 'u-gone' };
+      const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
+      const c = { tenant: 'acme', session: 'gone-3' };
+      for (const ref of [a, b, c]) {
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      }
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(5 * 3); // meta, slots, events, (u)arch, (u)alog
+      expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
+      expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, archiveItems: 2, events: 2 });
+      expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, archiveItems: 1, events: 1 });
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toEqual([]);
+      expect(await scanKeys(client, `${prefix}{acme:u:u-gone}*`)).toEqual([]);
+      // A store that had them cached returns nothing either.
+      expect(await store.load(a)).toBeNull();
+      expect(await store.searchArchive({ tenant: 'acme', user: 'u-gone' }, unit(1001), 5)).toEqual([]);
+    });
+  });
+
+  describe('options', () => {
+    it('rejects bad options naming the option, the value and what was expected', () => {
+      expect(() => redisStore({ prefix: 'a{b' })).toThrow(/prefix must be a string without \{ or \}, got "a\{b"/);
+      expect(() => redisStore({ idleTtlSeconds: -1 })).toThrow(/idleTtlSeconds must be an integer >= 0 \(0 = no TTL\), got -1/);
+      expect(() => redisStore({ keyFormat: 'int4' as never })).toThrow(/keyFormat must be 'int8' or 'float32', got "int4"/);
+      expect(() => redisStore({ maxEvents: 1.5 })).toThrow(/maxEvents must be an integer >= 0, got 1.5/);
+      expect(() => redisStore({ redis: 'http://x' })).toThrow(/redis must be an ioredis Redis\/Cluster instance or a redis:\/\/ URL/);
+      expect(() => redisStore({ redis: 'http://x' })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_CONFIG' }));
+    });
+  });
+
+  describe('outages', () => {
+    it('fails fast with STORE_UNAVAILABLE when nothing listens', async () => {
+      const port = await freePort();
+      const store = redisStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 500 });
+      const t0 = performance.now();
+      const err = await store.load({ tenant: 't', session: 's' }).catch((e: unknown) => e);
+      expect(err).toMatchObject({ code: 'TIDEMARK_E_STORE_UNAVAILABLE' });
+      expect((err as Error).cause).toBeDefined();
+      expect(performance.now() - t0).toBeLessThan(1500);
+      await store.close();
+    });
+
+    it('a SIGKILLed server: calls fail fast while it is down, then the store reconnects and nothing acknowledged is lost', async () => {
+      const server = new ThrowawayRedis(await freePort());
+      await server.start();
+      const store = redisStore({ redis: server.url, prefix: 'tidemark:' });
+      try {
+        const acked: number[] = [];
+        for (let n = 1; n <= 20; n++) {
+          const r = await store.commit({ tenant: 't', session: `s${n}` }, commitOf({ ops: [{ index: 0, slot: slot(n) }] }));
+          if (r.ok) acked.push(n);
+        }
+        await server.kill();
+        const t0 = performance.now();
+        await expect(store.commit({ tenant: 't', session: 's99' }, commitOf({}))).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_UNAVAILABLE' });
+        await expect(store.load({ tenant: 't', session: 's1' })).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_UNAVAILABLE' });
+        expect(performance.now() - t0).toBeLessThan(1000);
+        await server.start();
+        let back = false;
+        for (let i = 0; i < 60 && !back; i++) {
+          back = await store.load({ tenant: 't', session: 's1' }).then(() => true, () => false);
+          if (!back) await new Promise((r) => setTimeout(r, 100));
+        }
+        expect(back).toBe(true);
+        const fresh = redisStore({ redis: server.url, prefix: 'tidemark:', cacheSessions: 0 });
+        for (const n of acked) expect((await fresh.load({ tenant: 't', session: `s${n}` }))!.table.get(0)!.id).toBe(`r${n}`);
+        expect(acked).toHaveLength(20);
+        await fresh.close();
+      } finally {
+        await store.close();
+        await server.stop();
+      }
+    });
+  });
+});

@@ -1,0 +1,35 @@
+// A bot process for the multi-process proof: writes its share of facts to the shared sessions through
+// createTidemark({ store: redisStore(...) }).write(), after a start signal in Redis so that all
+// processes write at the same time. Prints one JSON line: writes done and conflicts retried.
+// Run: node --import tsx writer-child.ts URL PREFIX PROC SESSIONS FACTS
+
+import { Redis } from 'ioredis';
+import { redisStore } from '../../../adapters/redis/index.js';
+import { createTidemark } from '../../../src/index.js';
+import { factText } from './facts.js';
+
+const [url, prefix, procArg, sessionsArg, factsArg] = process.argv.slice(2) as [string, string, string, string, string];
+const proc = Number(procArg);
+const sessions = Number(sessionsArg);
+const facts = Number(factsArg);
+
+const signal = new Redis(url);
+const tm = createTidemark({ store: redisStore({ redis: url, prefix }), tenant: 'bikes' });
+let retries = 0;
+tm.on('commit', (e) => (retries += e.retries));
+process.stdout.write('ready\n');
+while ((await signal.get(`${prefix}go`)) === null) await new Promise((r) => setTimeout(r, 5));
+let writes = 0;
+// Every session at once, each session's facts in order: the processes collide on every session.
+await Promise.all(
+  Array.from({ length: sessions }, async (_, s) => {
+    for (let f = 0; f < facts; f++) {
+      const r = await tm.write({ session: `shop-${s}`, text: factText(proc, f), turn: `p${proc}-f${f}` });
+      if (!r.committed) throw new Error('write not committed');
+      writes++;
+    }
+  }),
+);
+await tm.close();
+signal.disconnect();
+process.stdout.write(`${JSON.stringify({ writes, retries })}\n`);

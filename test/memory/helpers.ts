@@ -1,0 +1,59 @@
+// Test helpers for the memory math: slot records and tables built from hand-made vectors.
+
+import { SlotTable } from '../../src/memory/slots.js';
+import { READ_DEFAULTS, WRITE_DEFAULTS, type ReadParams, type WriteParams } from '../../src/memory/params.js';
+import type { SlotRecord } from '../../src/types.js';
+
+/** A unit vector from components (normalised here, so [3, 4] gives [0.6, 0.8]). */
+export function vec(...xs: number[]): Float32Array {
+  const v = Float32Array.from(xs);
+  const n = Math.hypot(...xs);
+  for (let j = 0; j < v.length; j++) v[j] = v[j]! / n;
+  return v;
+}
+
+/** The j-th basis vector of a dimension. */
+export function basis(dim: number, j: number): Float32Array {
+  const v = new Float32Array(dim);
+  v[j] = 1;
+  return v;
+}
+
+export function rec(id: string, key: Float32Array, over: Partial<SlotRecord> = {}): SlotRecord {
+  return {
+    id,
+    key,
+    keyText: `key ${id}`,
+    value: `value ${id}`,
+    provenance: [`t-${id}`],
+    strength: 1,
+    halfLife: 10,
+    stamp: 0,
+    created: 0,
+    createdMs: 0,
+    updatedMs: 0,
+    reads: 0,
+    pinned: false,
+    ...over,
+  };
+}
+
+/** A table with `records[i]` in slot i (null leaves slot i free). */
+export function table(capacity: number, dim: number, records: Array<SlotRecord | null>): SlotTable {
+  const t = new SlotTable(capacity, dim);
+  records.forEach((r, i) => {
+    if (r) t.set(i, r);
+  });
+  return t;
+}
+
+export const readParams = (over: Partial<ReadParams> = {}): ReadParams => ({ ...READ_DEFAULTS, ...over });
+export const writeParams = (over: Partial<WriteParams> = {}): WriteParams => ({ ...WRITE_DEFAULTS, ...over });
+
+/** Plain softmax of z / tau, written the textbook way (no masking, no typed arrays). */
+export function softmaxRef(z: number[], tau = 1): number[] {
+  const m = Math.max(...z);
+  const e = z.map((x) => Math.exp((x - m) / tau));
+  const s = e.reduce((a, b) => a + b, 0);
+  return e.map((x) => x / s);
+}

@@ -1,0 +1,225 @@
+// The write planner: allocation, overwrite (archived as superseded, linked to its successor, key
+// blended), reinforcement of a repeated fact, eviction by capacity / decay / age, all-pinned tables,
+// update candidates that retarget the newest dated slot, and the gate threshold. Gate values are made
+// exact by passing explicit weights (all features weighted 0, so the gate is sigma(bias)).
+
+import { describe, expect, it } from 'vitest';
+import type { Candidate } from '../../src/memory/extract.js';
+import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
+import type { SlotTable } from '../../src/memory/slots.js';
+import { planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
+import { basis, rec, table, vec, writeParams } from './helpers.js';
+
+const flat = (bias: number): GateWeights => {
+  const w = { ...DEFAULT_GATE_WEIGHTS };
+  for (const k of Object.keys(w) as Array<keyof GateWeights>) w[k] = 0;
+  w.bias = bias;
+  return w;
+};
+const sigma = (x: number): number => 1 / (1 + Math.exp(-x));
+const GATE = sigma(2); // 0.8807970779778823
+
+function cand(key: Float32Array, over: Partial<Candidate> = {}, turn = 't9'): KeyedCandidate {
+  return { candidate: { key: 'my topic', value: 'a value', text: 'my topic is a value', pattern: 'my-x-is-y', ...over }, key, turn, role: 'user' };
+}
+
+function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePlanInput> = {}, params = {}) {
+  let n = 0;
+  return planWrite({
+    table: t,
+    now: 0,
+    nowMs: 1000,
+    params: writeParams({ gateWeights: flat(2), gateThreshold: 0.5, ...params }),
+    tenant: 'shop',
+    session: 's1',
+    candidates,
+    reinforce: [],
+    newId: () => `new${++n}`,
+    ...over,
+  });
+}
+
+describe('planWrite: allocation', () => {
+  it('puts a new fact into the first free slot with the gate as its strength', () => {
+    const t = table(3, 3, [rec('a', basis(3, 0))]);
+    const p = plan(t, [cand(basis(3, 1), { key: 'my bike', value: 'a green Brompton' })], { now: 4, nowMs: 5000 });
+    expect(p.outcomes).toEqual([expect.objectContaining({ index: 0, outcome: 'allocated', slot: 1, id: 'new1', cosine: 0 })]);
+    expect(p.outcomes[0]!.gate).toBeCloseTo(GATE, 15);
+    expect(p.ops).toHaveLength(1);
+    const op = p.ops[0]!;
+    expect(op.index).toBe(1);
+    expect(op.slot).toMatchObject({
+      id: 'new1', keyText: 'my bike', value: 'a green Brompton', provenance: ['t9'], halfLife: 200, stamp: 4, created: 4, createdMs: 5000, updatedMs: 5000, reads: 0, pinned: false,
+    });
+    expect(op.slot!.strength).toBeCloseTo(GATE, 15);
+    expect([...op.slot!.key]).toEqual([0, 1, 0]);
+    expect(p.events).toEqual([{ type: 'allocate', slot: 1, id: 'new1', clock: 4, atMs: 5000 }]);
+    expect(p.archive).toEqual([]);
+    expect(p.slotsInUse).toBe(2);
+    expect(t.isUsed(1)).toBe(false); // the plan does not touch the table
+  });
+
+  it('reports cosine -1 against an empty memory', () => {
+    const p = plan(table(2, 3, []), [cand(basis(3, 0))]);
+    expect(p.outcomes[0]!.cosine).toBe(-1);
+    expect(p.outcomes[0]!.features.novelty).toBe(1);
+  });
+});
+
+describe('planWrite: overwrite', () => {
+  const oldKey = basis(3, 0);
+  const newKey = vec(1, 0.2, 0); // cosine 1/sqrt(1.04) = 0.98 with the old key: above 0.8
+  const make = () => table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Brompton', strength: 0.4, provenance: ['t1'], createdMs: 10, created: 1 })]);
+
+  it('replaces the value, archives the old one as superseded with successor = new id, and blends the key', () => {
+    const p = plan(make(), [cand(newKey, { key: 'my bike now', value: 'a red Moulton' })], { now: 7, nowMs: 3000 });
+    const o = p.outcomes[0]!;
+    expect(o).toMatchObject({ outcome: 'overwritten', slot: 0, id: 'new1', supersededId: 'old' });
+    expect(o.cosine).toBeCloseTo(1 / Math.sqrt(1.04), 6);
+    expect(p.archive).toHaveLength(1);
+    expect(p.archive[0]).toMatchObject({ id: 'old', reason: 'superseded', successor: 'new1', value: 'a green Brompton', keyText: 'my bike', provenance: ['t1'], tenant: 'shop', session: 's1', clock: 7, archivedMs: 3000, createdMs: 10 });
+    expect(p.archive[0]!.strength).toBeCloseTo(0.4 * 2 ** (-7 / 10), 12);
+    const slot = p.ops[0]!.slot!;
+    expect(slot).toMatchObject({ id: 'new1', previous: 'old', keyText: 'my bike now', value: 'a red Moulton', provenance: ['t9'], created: 1, createdMs: 10, updatedMs: 3000, stamp: 7 });
+    expect(slot.strength).toBeCloseTo(GATE, 15); // max(gate, decayed old strength)
+    // keyBlend 0.5: normalize(0.5 * old + 0.5 * new)
+    const mid = [0.5 + 0.5 * newKey[0]!, 0.5 * newKey[1]!, 0];
+    const n = Math.hypot(...mid);
+    expect(slot.key[0]).toBeCloseTo(mid[0]! / n, 6);
+    expect(slot.key[1]).toBeCloseTo(mid[1]! / n, 6);
+    expect(p.events).toEqual([{ type: 'overwrite', slot: 0, id: 'new1', clock: 7, atMs: 3000 }]);
+  });
+
+  it('keyBlend 0 keeps the old key and keyBlend 1 takes the new one', () => {
+    const keep = plan(make(), [cand(newKey, { value: 'a red Moulton' })], {}, { keyBlend: 0 }).ops[0]!.slot!.key;
+    expect([...keep]).toEqual([1, 0, 0]);
+    const take = plan(make(), [cand(newKey, { value: 'a red Moulton' })], {}, { keyBlend: 1 }).ops[0]!.slot!.key;
+    for (let j = 0; j < 3; j++) expect(take[j]).toBeCloseTo(newKey[j]!, 6);
+  });
+
+  it('allocates instead when the best match is under the overwrite threshold', () => {
+    const p = plan(make(), [cand(vec(1, 1, 0), { value: 'a red Moulton' })], {}, { overwriteThreshold: 0.8 }); // cosine 0.707
+    expect(p.outcomes[0]!.outcome).toBe('allocated');
+    expect(p.outcomes[0]!.slot).toBe(1);
+    expect(p.archive).toEqual([]);
+  });
+
+  it('reinforces instead when the value is the same fact again (case and punctuation aside)', () => {
+    const p = plan(make(), [cand(newKey, { value: 'A green Brompton!' }, 't5')], { now: 10 });
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'reinforced', slot: 0, id: 'old' });
+    const s = p.ops[0]!.slot!;
+    expect(s.id).toBe('old');
+    expect(s.value).toBe('a green Brompton');
+    expect(s.provenance).toEqual(['t5', 't1']);
+    // reinforce(0.4 * 2^-1 = 0.2) = 0.2 + 0.8 * 0.3 = 0.44, below the gate, so the gate wins
+    expect(s.strength).toBeCloseTo(GATE, 15);
+    expect(s.halfLife).toBe(15); // 10 * 1.5
+    expect(s.stamp).toBe(10);
+    expect(p.archive).toEqual([]);
+  });
+});
+
+describe('planWrite: eviction', () => {
+  it('evicts the weakest non-pinned slot with reason capacity and archives it', () => {
+    const t = table(3, 3, [
+      rec('pinnedWeak', basis(3, 0), { strength: 0.1, pinned: true }),
+      rec('mid', basis(3, 1), { strength: 0.5 }),
+      rec('weak', basis(3, 2), { strength: 0.3 }),
+    ]);
+    const p = plan(t, [cand(vec(1, 1, 1))], {}, { overwriteThreshold: 0.9 });
+    expect(p.evictions).toEqual([expect.objectContaining({ slot: 2, reason: 'capacity', archived: true, strength: 0.3 })]);
+    expect(p.archive).toEqual([expect.objectContaining({ id: 'weak', reason: 'capacity', strength: 0.3 })]);
+    expect(p.archive[0]!.successor).toBeUndefined();
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 2, id: 'new1' });
+    expect(p.events.map((e) => [e.type, e.slot, e.reason])).toEqual([['evict', 2, 'capacity'], ['allocate', 2, undefined]]);
+    expect(p.slotsInUse).toBe(3);
+  });
+
+  it('evicts slots decayed under the strength floor as decayed, but never a pinned one', () => {
+    const t = table(3, 3, [
+      rec('faded', basis(3, 0), { strength: 0.03, halfLife: 10 }),
+      rec('pinned', basis(3, 1), { strength: 0.01, halfLife: 10, pinned: true }),
+      rec('fresh', basis(3, 2), { strength: 0.9, halfLife: 10 }),
+    ]);
+    const p = plan(t, [], { now: 10 }); // faded: 0.03 -> 0.015 < 0.02
+    expect(p.evictions).toEqual([expect.objectContaining({ slot: 0, reason: 'decayed', archived: true })]);
+    expect(p.evictions[0]!.strength).toBeCloseTo(0.015, 12);
+    expect(p.archive).toEqual([expect.objectContaining({ id: 'faded', reason: 'decayed', clock: 10 })]);
+    expect(p.ops).toEqual([{ index: 0, slot: null }]);
+    expect(p.slotsInUse).toBe(2);
+  });
+
+  it('evicts slots older than maxAgeMs as expired', () => {
+    const t = table(2, 3, [rec('old', basis(3, 0), { createdMs: 0 }), rec('young', basis(3, 1), { createdMs: 1500 })]);
+    const p = plan(t, [], { nowMs: 2000 }, { maxAgeMs: 1000 });
+    expect(p.evictions.map((e) => [e.record.id, e.reason])).toEqual([['old', 'expired']]);
+    expect(p.archive[0]).toMatchObject({ id: 'old', reason: 'expired' });
+    expect(plan(t, [], { nowMs: 2000 }, { maxAgeMs: 0 }).evictions).toEqual([]); // 0 never expires
+  });
+
+  it('drops the candidate when every slot is pinned', () => {
+    const t = table(2, 3, [rec('p1', basis(3, 0), { pinned: true }), rec('p2', basis(3, 1), { pinned: true })]);
+    const p = plan(t, [cand(basis(3, 2))]);
+    expect(p.outcomes).toEqual([expect.objectContaining({ outcome: 'gated_out', slot: -1 })]);
+    expect(p.ops).toEqual([]);
+    expect(p.archive).toEqual([]);
+    expect(p.evictions).toEqual([]);
+  });
+});
+
+describe('planWrite: updates', () => {
+  it('retargets the newest slot holding a date and swaps the date expression', () => {
+    const t = table(4, 3, [
+      rec('booking', basis(3, 0), { keyText: 'my booking', value: 'book a service for Tuesday', updatedMs: 100, provenance: ['t2'] }),
+      rec('name', basis(3, 1), { keyText: 'my name', value: 'Dana', updatedMs: 200 }),
+      rec('dinner', basis(3, 2), { keyText: 'dinner', value: 'dinner on Monday', updatedMs: 50 }),
+    ]);
+    const sentence = 'Actually, can we move it to Friday instead?';
+    const c = cand(vec(1, 1, 1), { key: ', can we move it to instead?', value: sentence, text: sentence, pattern: 'update', updates: { kind: 'date', expr: 'Friday' } }, 't4');
+    const p = plan(t, [c], { now: 4 });
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'overwritten', slot: 0, supersededId: 'booking' });
+    const s = p.ops[0]!.slot!;
+    expect(s.value).toBe('book a service for Friday');
+    expect(s.keyText).toBe('my booking');
+    expect([...s.key]).toEqual([1, 0, 0]); // an update does not move the key
+    expect(s.provenance).toEqual(['t4', 't2']);
+    expect(p.archive).toEqual([expect.objectContaining({ id: 'booking', value: 'book a service for Tuesday', reason: 'superseded', successor: s.id })]);
+  });
+
+  it('with no dated slot, allocates the update sentence as a new fact', () => {
+    const t = table(2, 3, [rec('name', basis(3, 1), { value: 'Dana' })]);
+    const c = cand(basis(3, 0), { value: 'move it to Friday', updates: { kind: 'date', expr: 'Friday' } });
+    expect(plan(t, [c]).outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 1 });
+  });
+});
+
+describe('planWrite: gate and reinforcement of what was read', () => {
+  it('drops a candidate under the threshold, unless it asks to be pinned', () => {
+    const t = table(2, 3, []);
+    const low = plan(t, [cand(basis(3, 0))], {}, { gateWeights: flat(-3) });
+    expect(low.outcomes[0]).toMatchObject({ outcome: 'gated_out', slot: -1 });
+    expect(low.outcomes[0]!.gate).toBeCloseTo(sigma(-3), 15);
+    expect(low.ops).toEqual([]);
+    const pinned = plan(t, [cand(basis(3, 0), { pin: true })], {}, { gateWeights: flat(-3) });
+    expect(pinned.outcomes[0]!.outcome).toBe('allocated');
+    expect(pinned.ops[0]!.slot).toMatchObject({ pinned: true });
+    expect(pinned.ops[0]!.slot!.strength).toBeCloseTo(sigma(-3), 15);
+  });
+
+  it('reinforces the slots a read used: s + (1 - s) * gain at the decayed strength, half-life * growth', () => {
+    const t = table(2, 3, [rec('a', basis(3, 0), { strength: 0.8, halfLife: 10, reads: 2 }), rec('b', basis(3, 1))]);
+    const p = plan(t, [], { now: 10, reinforce: ['a', 'missing'] });
+    expect(p.reinforced).toHaveLength(1);
+    expect(p.reinforced[0]!.strength).toBeCloseTo(0.4 + 0.6 * 0.3, 12);
+    expect(p.reinforced[0]!.halfLife).toBe(15);
+    expect(p.ops[0]!.slot).toMatchObject({ id: 'a', reads: 3, stamp: 10, halfLife: 15 });
+  });
+
+  it('sees its own earlier candidates: a fact written twice in one plan is allocated once, then reinforced', () => {
+    const t = table(2, 3, []);
+    const p = plan(t, [cand(basis(3, 0), { value: 'Dana' }, 't1'), cand(basis(3, 0), { value: 'Dana' }, 't2')]);
+    expect(p.outcomes.map((o) => o.outcome)).toEqual(['allocated', 'reinforced']);
+    expect(p.ops).toHaveLength(1);
+    expect(p.ops[0]!.slot!.provenance).toEqual(['t2', 't1']);
+  });
+});

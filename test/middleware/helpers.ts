@@ -1,0 +1,98 @@
+// Test doubles for the middleware suites: a Store wrapper that delays or fails on demand (around a
+// real MemoryStore, so the data path is the real one), and reply helpers.
+
+import type { Store } from '../../src/store/store.js';
+import { MemoryStore } from '../../src/store/memory.js';
+
+export const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
+
+/** A MemoryStore behind switches: delays for load/commit, failures for load/commit, and timings. */
+export class ControlledStore implements Store {
+  readonly name = 'controlled';
+  readonly inner: MemoryStore;
+  loadDelayMs = 0;
+  commitDelayMs = 0;
+  failLoad = false;
+  failCommit = false;
+  loads = 0;
+  commits = 0;
+  /** performance.now() when each successful commit finished. */
+  readonly commitDone: number[] = [];
+
+  constructor(inner = new MemoryStore()) {
+    this.inner = inner;
+  }
+
+  async load(...a: Parameters<Store['load']>): ReturnType<Store['load']> {
+    this.loads++;
+    if (this.loadDelayMs > 0) await sleep(this.loadDelayMs);
+    if (this.failLoad) throw new Error('connection refused (test)');
+    return this.inner.load(...a);
+  }
+
+  async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
+    this.commits++;
+    if (this.commitDelayMs > 0) await sleep(this.commitDelayMs);
+    if (this.failCommit) throw new Error('connection reset (test)');
+    const r = await this.inner.commit(...a);
+    this.commitDone.push(performance.now());
+    return r;
+  }
+
+  searchArchive(...a: Parameters<Store['searchArchive']>): ReturnType<Store['searchArchive']> {
+    return this.inner.searchArchive(...a);
+  }
+  listArchive(...a: Parameters<Store['listArchive']>): ReturnType<Store['listArchive']> {
+    return this.inner.listArchive(...a);
+  }
+  deleteArchive(...a: Parameters<Store['deleteArchive']>): ReturnType<Store['deleteArchive']> {
+    return this.inner.deleteArchive(...a);
+  }
+  readEvents(...a: Parameters<Store['readEvents']>): ReturnType<Store['readEvents']> {
+    return this.inner.readEvents(...a);
+  }
+  erase(...a: Parameters<Store['erase']>): ReturnType<Store['erase']> {
+    return this.inner.erase(...a);
+  }
+  listSessions(...a: Parameters<Store['listSessions']>): ReturnType<Store['listSessions']> {
+    return this.inner.listSessions(...a);
+  }
+  close(): Promise<void> {
+    return this.inner.close();
+  }
+}
+
+/** An async iterable that yields `chunks`, waiting `gapMs` before each one. */
+export async function* slowChunks<T>(chunks: readonly T[], gapMs: number): AsyncGenerator<T> {
+  for (const c of chunks) {
+    if (gapMs > 0) await sleep(gapMs);
+    yield c;
+  }
+}
+
+/** A ReadableStream of `chunks`, one per pull, waiting `gapMs` before each. */
+export function streamOf<T>(chunks: readonly T[], gapMs = 0): ReadableStream<T> {
+  let i = 0;
+  return new ReadableStream<T>({
+    async pull(controller) {
+      if (gapMs > 0) await sleep(gapMs);
+      if (i < chunks.length) controller.enqueue(chunks[i++]!);
+      else controller.close();
+    },
+  });
+}
+
+export async function collect<T>(src: AsyncIterable<T> | ReadableStream<T>): Promise<T[]> {
+  const out: T[] = [];
+  if (src instanceof ReadableStream) {
+    const reader = src.getReader();
+    for (;;) {
+      const r = await reader.read();
+      if (r.done) break;
+      out.push(r.value);
+    }
+    return out;
+  }
+  for await (const c of src) out.push(c);
+  return out;
+}
