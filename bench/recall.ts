@@ -32,7 +32,7 @@ export default async function main(argv: string[]): Promise<void> {
     capacity,
     turns: result.summary.turns,
     probes: result.summary.probes,
-    tidemark: { ...line('tidemark', result.summary), recall_at_k: result.summary.recall_at_k, read_us_p50: result.summary.read_us.p50, read_us_p99: result.summary.read_us.p99, slots_in_use: result.summary.slots_in_use, turns_per_s: result.summary.turns_per_s, writes: result.summary.writes, evictions: result.summary.evictions, reads: result.summary.reads },
+    tidemark: { ...line('tidemark', result.summary), recall_at_k: result.summary.recall_at_k, read_us_p50: result.summary.read_us.p50, read_us_p99: result.summary.read_us.p99, slots_in_use: result.summary.slots_in_use, turns_per_s: result.summary.turns_per_s, turns_per_cpu_s: result.summary.turns_per_cpu_s, writes: result.summary.writes, evictions: result.summary.evictions, reads: result.summary.reads },
     baselines: Object.fromEntries(Object.entries(result.baselines).map(([n, b]) => [n, { ...line(n, b), recall_at_k: b.recall_at_k, read_us_p50: b.read_us.p50, items_kept: b.items_kept }])),
     targets: { fact_at_5: 0.9, latest_at_1: 0.9, turns_per_s: 5000 },
   };

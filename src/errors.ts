@@ -92,5 +92,6 @@ export function describeValue(value: unknown): string {
   if (typeof value === 'string') return value.length > 40 ? `a string of ${value.length} chars` : JSON.stringify(value);
   if (typeof value === 'number' || typeof value === 'boolean') return String(value);
   if (Array.isArray(value)) return `an array of ${value.length}`;
-  return `a ${typeof value}`;
+  const t = typeof value;
+  return `${/^[aeiou]/.test(t) ? 'an' : 'a'} ${t}`;
 }

@@ -83,7 +83,7 @@ interface FactType {
   make(r: Rand): Vals;
   state: string[];
   /** Update templates and how the new values are drawn. */
-  update?: { make(r: Rand, old: Vals): Vals; say: string[] };
+  update?: { make(r: Rand, old: Vals): Vals; say: string[]; /** Forms that name the topic, used when the update comes long after. */ sayLong?: string[] };
   /** Probe questions (third person, as a bot developer writes them). */
   ask: string[];
   /** What the user may ask later about it (a question; the read reinforces the slot). */
@@ -101,7 +101,7 @@ const NAME: FactType = {
   name: 'name',
   make: (r) => ({ first: pick(r, FIRST), last: pick(r, LAST) }),
   state: ['Hi, my name is {first} {last}.', 'You can call me {first}.', "I'm called {first} {last}, by the way.", 'Hello there, my name is {first}.'],
-  ask: ["What is the customer's name?", 'What name did they give?', 'What should we call the customer?'],
+  ask: ["What is the customer's name?", 'What name did they give?', "What is the customer's first name?"],
 };
 
 const ADDRESS: FactType = {
@@ -111,6 +111,7 @@ const ADDRESS: FactType = {
   update: {
     make: (r, old) => ({ n: String(2 + Math.floor(r() * 180)), street: other(r, STREETS, old.street!), town: other(r, TOWNS, old.town!) }),
     say: ['I just moved to {n} {street}, {town}.', 'My new address is {n} {street}, {town}.', "We've moved house, my address is now {n} {street} in {town}."],
+    sayLong: ['I just moved to {n} {street}, {town}.', 'My new address is {n} {street}, {town}.', "We've moved house, my address is now {n} {street} in {town}."],
   },
   ask: ["What is the customer's home address?", 'Which street and town does the customer live in?', 'What address should we use for them?'],
   remind: ['Do you still have my address on file?'],
@@ -123,6 +124,7 @@ const BOOKING = (what: string, noun: string): FactType => ({
   update: {
     make: (r, old) => ({ day: other(r, DAYS, old.day!), time: old.time! }),
     say: ['Actually, make it {day}.', 'Can we move it to {day} instead?', 'Change that to {day}, please.', 'Sorry, something came up, could we do {day} instead?'],
+    sayLong: [`Can we move the ${noun} to {day} instead?`, `Something came up, I need to reschedule the ${noun} for {day}.`, `Actually, could the ${noun} be on {day}?`],
   },
   ask: [`When is the ${noun}?`, `Which day is the ${noun} booked for?`, `What day did they pick for the ${noun}?`],
   remind: [`Remind me, when is my ${noun}?`, `What day was my ${noun} again?`],
@@ -158,7 +160,7 @@ const PLANT: FactType = {
   name: 'plant',
   make: (r) => ({ plant: pick(r, PLANTS), room: pick(r, ['living room', 'bedroom', 'kitchen', 'hallway']) }),
   state: ['I have a {plant} in the {room}.', 'My {plant} in the {room} is looking sad.', 'I bought a {plant} for the {room} last month.'],
-  ask: ['Which houseplant does the customer have?', 'What plant is in their {room}?'],
+  ask: ['Which plant is in their {room}?', 'What plant do they keep in the {room}?'],
   remind: ['Any new tips for my plant?'],
 };
 
@@ -166,7 +168,7 @@ const PET: FactType = {
   name: 'pet',
   make: (r) => ({ pet: pick(r, PETS), kind: pick(r, ['cat', 'dog', 'rabbit']) }),
   state: ['My {kind} is called {pet}.', 'Our {kind} {pet} chews on everything.', 'I have a {kind} named {pet}.'],
-  ask: ["What is the customer's pet called?", 'What is the name of their {kind}?'],
+  ask: ["What is the name of the customer's {kind}?", 'What is their {kind} called?'],
 };
 
 const ALLERGY: FactType = {
@@ -190,6 +192,7 @@ const LEVEL: FactType = {
   update: {
     make: (r, old) => ({ level: other(r, LEVELS, old.level!) }),
     say: ['Update: my level is now {level}.', 'I passed the test, so my level is {level} now.'],
+    sayLong: ['Update: my level is now {level}.', 'I passed the test, so my level is {level} now.'],
   },
   ask: ["What is the student's level?", 'Which level is the student at?'],
 };
@@ -201,6 +204,7 @@ const EXAM: FactType = {
   update: {
     make: (r, old) => ({ date: `the ${pick(r, ORDINAL)} of ${other(r, MONTHS, old.date!.split(' of ')[1]!)}` }),
     say: ['The exam got moved to {date}.', 'Actually, my exam is now on {date}.'],
+    sayLong: ['The exam got moved to {date}.', 'Actually, my exam is now on {date}.'],
   },
   ask: ["When is the student's exam?", 'What date is the exam?'],
   remind: ['How many weeks do I have until my exam?'],
@@ -210,7 +214,7 @@ const HOMETOWN: FactType = {
   name: 'hometown',
   make: (r) => ({ town: pick(r, TOWNS) }),
   state: ["I'm originally from {town}.", 'I grew up in {town}.', "I'm from {town}."],
-  ask: ['Where is the student from?', 'Which town did they grow up in?'],
+  ask: ['Which town is the student from?', 'Which town did they grow up in?'],
 };
 
 // ------------------------------------------------------------------ domains
@@ -276,7 +280,7 @@ function chatterVals(r: Rand): Vals {
 
 interface Plan {
   at: number;
-  kind: 'state' | 'update' | 'remind';
+  kind: 'state' | 'update' | 'update-long' | 'remind';
   fact: number;
 }
 
@@ -306,7 +310,13 @@ export function generateScenario(options: ScenarioOptions = {}): Scenario {
     facts.forEach((f, i) => {
       const at = i === 0 ? slot(0, 3) : slot(1, Math.floor(pairs * 0.6));
       plans.push({ at, kind: 'state', fact: i });
-      if (f.type.update && r() < 0.6) plans.push({ at: slot(at + 10, Math.min(pairs - 2, at + 10 + Math.floor(pairs * 0.3))), kind: 'update', fact: i });
+      // A short update ("make it 5 instead") comes within a few turns of what it changes; one long
+      // after names its topic ("can we move the delivery to Friday?"), as people do.
+      if (f.type.update && r() < 0.6) {
+        const long = f.type.update.sayLong !== undefined && r() < 0.6;
+        const lo = long ? at + 20 : at + 1;
+        plans.push({ at: slot(lo, Math.min(pairs - 2, long ? lo + Math.floor(pairs * 0.3) : at + 6)), kind: long ? 'update-long' : 'update', fact: i });
+      }
       if (f.type.remind && r() < 0.5) plans.push({ at: slot(at + 5, pairs - 1), kind: 'remind', fact: i });
     });
     plans.sort((a, b) => a.at - b.at);
@@ -330,9 +340,9 @@ export function generateScenario(options: ScenarioOptions = {}): Scenario {
           text = fill(pick(r, f.type.state), f.vals);
           f.stated = uid;
           f.latest = uid;
-        } else if (p.kind === 'update' && f.stated) {
+        } else if ((p.kind === 'update' || p.kind === 'update-long') && f.stated) {
           f.vals = { ...f.vals, ...f.type.update!.make(r, f.vals) };
-          text = fill(pick(r, f.type.update!.say), f.vals);
+          text = fill(pick(r, p.kind === 'update-long' ? f.type.update!.sayLong! : f.type.update!.say), f.vals);
           f.latest = uid;
           f.updated = true;
         } else if (p.kind === 'remind' && f.stated) {

@@ -11,7 +11,7 @@ export interface AdaptiveArchiveOptions extends HnswArchiveOptions {
   /**
    * Switch from the exact scan to HNSW once the archive holds more than this many entries; `Infinity`
    * never switches, 0 starts on HNSW with the first entry. Measured on this project's 2-core machine at
-   * dim 384 (uniform random vectors, default ef): the exact scan costs 1–2 µs a row (0.11 ms at 64 rows,
+   * dim 384 (uniform random vectors, ef 64): the exact scan costs 1–2 µs a row (0.11 ms at 64 rows,
    * 0.50 ms at 256, 2.1 ms at 1024); an HNSW search about 0.08 ms fixed (copying the query into the
    * addon, building the result) plus a slow rise (0.11 ms at 64, 0.15 ms at 256, 0.25 ms at 1024). They
    * tie near 64–128 entries; at 256 HNSW is 3× faster with recall@10 still 1.0. The switch builds the

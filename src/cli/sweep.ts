@@ -27,7 +27,7 @@ export const DEFAULT_GRID: SweepGrid = {
     'write.gateThreshold': [0.5, 0.7],
     'write.overwriteThreshold': [0.7, 0.9],
     'read.hitCosine': [0.2, 0.4],
-    'write.halfLife': [200, 1600],
+    'write.halfLife': [100, 800],
     'read.gamma': [2, 8],
     'read.temperature': [0.5, 2],
   },

@@ -45,7 +45,10 @@ export function splitSentences(text: string): string[] {
     .filter((s) => s.length > 0);
 }
 
-const UPDATE_CUE = /\b(actually|instead|rather|change (?:it|that|the \w+) to|make (?:it|that)|move (?:it|that|the \w+)(?: to)?|switch (?:it|that) to|reschedule|no wait|correction|scratch that)\b/i;
+const UPDATE_CUE = /\b(actually|instead|rather|moved to|changed to|pushed back to|rescheduled (?:it |that )?(?:to|for)|change (?:it|that|the \w+) to|make (?:it|that)|move (?:it|that|the \w+)(?: to)?|switch (?:it|that) to|reschedule|no wait|correction|scratch that)\b/i;
+/** Words that mark a sentence as correcting an earlier choice. */
+const CORRECTION = /^(?:(?:no|nope|sorry|oops|wait)\b[\s,!.]*)+|\b(?:instead|on second thought|changed my mind|not right|rather)\b/i;
+const CORRECTION_ALL = new RegExp(CORRECTION.source, 'gi');
 const REMEMBER = /^(?:please\s+|can you\s+|could you\s+)?(?:remember|note|don'?t forget|keep in mind|make a note)\s+(?:that\s+)?(.+)$/i;
 
 const trimValue = (v: string): string => v.trim().replace(/^(?:a|an|the)\s+(?=\S)/i, (m) => m).replace(/[\s,;:.!?]+$/, '');
@@ -76,7 +79,8 @@ const RULES: Rule[] = [
   {
     name: 'my-x-is-y',
     re: /\bmy\s+((?:[\p{L}\p{N}'’-]+\s+){0,4}?[\p{L}\p{N}'’-]+)\s+(?:is|are|was|were|'s|will be|has been)\s+(?:now\s+|actually\s+)?(.+)/iu,
-    build: (m) => ({ key: canonicalTopic(m[1]!), value: m[2]! }),
+    // A topic is a noun phrase: "my office plant died while I was away" has no "my X is Y" in it.
+    build: (m) => (CLAUSE_WORD.test(m[1]!) ? null : { key: canonicalTopic(m[1]!), value: m[2]! }),
   },
   {
     name: 'live-in',
@@ -89,14 +93,26 @@ const RULES: Rule[] = [
     build: (m) => ({ key: 'where I work', value: m[1]! }),
   },
   {
+    // "The exam got moved to May 3": an update that names its topic, so it addresses that slot.
+    name: 'moved-to',
+    re: /\b(?:my|the|our)\s+((?:[\p{L}'’-]+\s+){0,3}?[\p{L}'’-]+)\s+(?:got|was|has been|is|'s been|has)\s+(?:moved|changed|pushed back|brought forward|rescheduled|postponed)\s+(?:to|until|till|for)\s+(.+)/iu,
+    build: (m) => ({ key: canonicalTopic(m[1]!), value: m[2]! }),
+  },
+  {
     name: 'from',
-    re: /\bi(?:'m| am)\s+(?:originally\s+)?from\s+(.+)/iu,
-    build: (m) => ({ key: 'where I am from', value: m[1]! }),
+    re: /\bi(?:'m| am)\s+(?:originally\s+)?from\s+(.+)|\bi\s+grew up in\s+(.+)/iu,
+    // "from" is a stopword: the key carries content words a question about it will use.
+    build: (m) => ({ key: 'my hometown (the town I am from, where I grew up)', value: (m[1] ?? m[2])! }),
+  },
+  {
+    name: 'learning',
+    re: /\bi(?:'m| am)\s+(?:learning|studying)\s+(.+)|\bmy target language is\s+(.+)|\bi want to (?:learn|get better at|improve my)\s+(.+)/iu,
+    build: (m) => ({ key: 'what I am learning (language or subject I study)', value: (m[1] ?? m[2] ?? m[3])! }),
   },
   {
     name: 'allergy',
-    re: /\bi(?:'m| am)\s+(?:very\s+|quite\s+|a bit\s+)?allergic to\s+(.+)/iu,
-    build: (m) => ({ key: 'what I am allergic to (my allergy)', value: m[1]! }),
+    re: /\bi(?:'m| am)\s+(?:very\s+|quite\s+|a bit\s+|severely\s+)?(?:allergic|intolerant)\s+to\s+(.+)|\bi\s+(?:react badly|have a reaction|have an allergy)\s+to\s+(.+)|\bmy allerg(?:y|ies) (?:is|are)\s+(.+)/iu,
+    build: (m) => ({ key: 'what I am allergic to (my allergy)', value: (m[1] ?? m[2] ?? m[3])! }),
   },
   {
     name: 'diet',
@@ -114,20 +130,23 @@ const RULES: Rule[] = [
   },
   {
     name: 'have',
-    re: /\bi(?:'ve)?\s+(have|own|ride|drive|use|got)\s+(?:a|an|the|two|three|\d+)\s+(.+)/iu,
+    re: /\bi(?:'ve)?\s+(have|own|ride|drive|use|got|bought|keep)\s+(?:a|an|the|two|three|\d+)\s+(.+)/iu,
     // The verb stays in the key ("what I ride: my roamer") so a question about riding finds it.
     build: (m) => {
       const verb = m[1]!.toLowerCase();
       const noun = lastNoun(m[2]!);
-      return { key: verb === 'have' || verb === 'got' || verb === 'own' ? `my ${noun}` : `what I ${verb}: my ${noun}`, value: m[2]! };
+      return { key: verb === 'have' || verb === 'got' || verb === 'own' || verb === 'bought' ? `my ${noun}` : `what I ${verb}: my ${noun}`, value: m[2]! };
     },
   },
   {
     name: 'booking',
-    re: /\b(?:book|booked|booking|schedule|scheduled|reserve|reserved|reservation|appointment)\b/i,
-    build: () => ({ key: 'my booking', value: '' }),
+    re: /\b(?:book|booked|booking|schedule|scheduled|reschedule|reserve|reserved|reservation|appointment|delivery|lessons?|class|visit|pickup|collection)\b/i,
+    build: (m) => ({ key: bookingKey(m.input ?? ''), value: '' }),
   },
 ];
+
+/** Words that mark a clause, not a noun phrase (pronouns, conjunctions). */
+const CLAUSE_WORD = /\b(?:i|we|you|he|she|they|while|when|because|if|that|who|which)\b/i;
 
 /** Key of every statement of where the user lives, so "I moved to ..." overwrites "my address is ...". */
 const ADDRESS_KEY = 'my home address (where I live)';
@@ -150,12 +169,32 @@ function canonicalTopic(raw: string): string {
   return `my ${x}`;
 }
 
+/** "lessons" -> "lesson", so a booking key is the same in the singular and the plural. */
+const singular = (w: string): string => (w.length > 4 && /[^s]s$/.test(w) ? w.slice(0, -1) : w);
+
+/**
+ * One key per booked thing ("my booking (service)", "my booking (exam)"): several bookings of one
+ * session no longer overwrite each other, and "can we move the delivery to Friday" finds the delivery.
+ * The thing is the first word after the verb ("book a service for ...") or the head of the subject
+ * ("the oral exam is scheduled for ...").
+ */
+function bookingKey(sentence: string): string {
+  const subject = /\b(?:the|my|our)\s+((?:[\p{L}]+\s+){0,2}?[\p{L}]+)\s+(?:is|was|got|has been)\s+(?:booked|scheduled|reserved|moved|rescheduled)\b/iu.exec(sentence);
+  if (subject) return `my booking (${singular(subject[1]!.split(/\s+/).pop()!.toLowerCase())})`;
+  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change)\s+(?:in\s+)?(?:(?:a|an|the|my|our|another)\s+)?([\p{L}]+)/iu.exec(sentence);
+  if (object && !/^(?:it|that|this|them|for|on|at|in|to|me|us)$/i.test(object[1]!)) return `my booking (${singular(object[1]!.toLowerCase())})`;
+  const noun = /\b(appointment|delivery|lessons?|class|visit|pickup|collection|reservation|session)\b/i.exec(sentence);
+  return noun ? `my booking (${singular(noun[1]!.toLowerCase())})` : 'my booking';
+}
+
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
   // "a green Brompton with a basket" -> "Brompton": stop at the first preposition.
   const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
-  return (head[head.length - 1] ?? phrase).toLowerCase();
+  // A model number is not the noun: "a Kona Sprint 2" -> "sprint".
+  const wordy = head.filter((w) => /\p{L}/u.test(w));
+  return (wordy[wordy.length - 1] ?? head[head.length - 1] ?? phrase).toLowerCase();
 }
 
 /** Removes a value expression and update cues from a sentence, leaving its topic. */
@@ -185,14 +224,32 @@ export class RuleExtractor implements Extractor {
     return out;
   }
 
+  /** The key a topic-naming rule gives a sentence (the booking rule included), or null. */
+  private namedTopic(sentence: string): { key: string; value: string; rule: string } | null {
+    for (const rule of RULES) {
+      if (rule.name === 'name' || rule.name === 'prefer' || rule.name === 'have') continue;
+      const m = sentence.match(rule.re);
+      if (!m) continue;
+      const kv = rule.build(m);
+      if (!kv) continue;
+      return { key: kv.key, value: kv.value.length > 0 ? trimValue(kv.value) : sentence, rule: rule.name };
+    }
+    return null;
+  }
+
   private fromSentence(sentence: string, _role: Role): Candidate {
     const expr = findValueExpr(sentence);
     const isQuestion = /\?\s*$/.test(sentence);
     // An update names a new value but not its topic: "can we move it to Friday instead?"
     if (expr && UPDATE_CUE.test(sentence)) {
+      // When the update names its topic ("can we move the booking to Friday", "my exam is now on
+      // May 3"), that topic is the key, so it addresses the slot holding it rather than whatever
+      // slot last held a date.
+      const named = this.namedTopic(sentence);
+      if (named) return { key: named.key, value: named.value, text: sentence, pattern: `update-${named.rule}`, updates: { kind: expr.kind, expr: expr.text } };
       return { key: topicOf(sentence, expr.text), value: sentence, text: sentence, pattern: 'update', updates: { kind: expr.kind, expr: expr.text } };
     }
-    if (!isQuestion || /\b(?:book|reserve|schedule)\b/i.test(sentence)) {
+    if (!isQuestion || /\b(?:book|reserve|schedule|deliver|delivery)\b/i.test(sentence)) {
       for (const rule of RULES) {
         const m = sentence.match(rule.re);
         if (!m) continue;
@@ -207,6 +264,11 @@ export class RuleExtractor implements Extractor {
         if (value.length === 0) continue;
         return { key: kv.key, value, text: sentence, pattern: rule.name };
       }
+    }
+    if (CORRECTION.test(sentence) && !isQuestion) {
+      // "No, play it on the patio speaker instead": a correction states the user's choice even
+      // without a date or number in it.
+      return { key: topicOf(sentence.replace(CORRECTION_ALL, ' '), expr?.text), value: sentence, text: sentence, pattern: 'correction' };
     }
     if (expr) {
       // A dated or counted statement: its topic is what remains without the date or number.

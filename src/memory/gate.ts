@@ -58,6 +58,12 @@ export const DEFAULT_GATE_WEIGHTS: GateWeights = {
 const SMALL_TALK = /^(?:hi|hello|hey|thanks|thank you|cheers|ok|okay|cool|great|nice|bye|goodbye|good (?:morning|afternoon|evening|night)|lol|haha|sure|yes|no|yep|nope)\b[\s!.,]*(?:there|so much|a lot|again|then|you)?[\s!.,]*$/i;
 const QUESTION_START = /^(?:who|what|when|where|why|how|which|do|does|did|is|are|can|could|would|will|should|shall|may)\b/i;
 const FIRST_PERSON = /\b(?:i|i'm|i've|i'd|i'll|my|me|mine|we|our|us)\b/i;
+/**
+ * A polite request ("could you book a table at Ming's?", "can we do Friday?", "please play it in the
+ * kitchen") states what the user wants; in a task bot that is the fact to keep. It is not an
+ * information-seeking question, which a wh-word or "do/does/is/are" start marks.
+ */
+const REQUEST = /^(?:(?:hi|hey|hello|ok|okay|yes|no|sure|great|sorry|actually|then|and|so|well|nope|oops)\b[\s,!.]*)*(?:(?:can|could|would|will)\s+(?:you|we|i)\b|please\b|i(?:'d| would) like\b|let'?s\b)/i;
 
 /** Computes gate features for a candidate. `novelty` comes from addressing (1 − best key cosine). */
 export function gateFeatures(c: Candidate, role: Role, novelty: number): GateFeatures {
@@ -65,7 +71,7 @@ export function gateFeatures(c: Candidate, role: Role, novelty: number): GateFea
   const words = tokenize(text);
   const content = words.filter((w) => !STOPWORDS.has(w)).length;
   const trimmed = text.trim();
-  const isQuestion = /\?\s*$/.test(trimmed) || (QUESTION_START.test(trimmed) && !c.remember && c.pattern === 'sentence');
+  const isQuestion = !REQUEST.test(trimmed) && (/\?\s*$/.test(trimmed) || (QUESTION_START.test(trimmed) && !c.remember && c.pattern === 'sentence'));
   // Proper nouns: a capitalised word after the first word, excluding the pronoun "I".
   const tokens = trimmed.split(/\s+/);
   let proper = 0;
@@ -81,7 +87,8 @@ export function gateFeatures(c: Candidate, role: Role, novelty: number): GateFea
     properNoun: proper,
     question: isQuestion ? 1 : 0,
     userRole: role === 'user' ? 1 : 0,
-    firstPerson: FIRST_PERSON.test(text) ? 1 : 0,
+    // A request is the user speaking of what they want, as much as "I want ..." is.
+    firstPerson: FIRST_PERSON.test(text) || REQUEST.test(trimmed) ? 1 : 0,
     length: Math.min(1, Math.log1p(content) / Math.log1p(20)),
     update: c.updates ? 1 : 0,
     smallTalk: SMALL_TALK.test(trimmed) ? 1 : 0,

@@ -21,7 +21,10 @@ export interface ReadParams {
   maxMass: number;
   /** A slot is relevant when its cosine reaches this... @default 0.2 */
   minCosine: number;
-  /** ...or its raw BM25 score reaches this. @default 1 */
+  /**
+   * ...or its raw BM25 score reaches this. @default 0.25 — raw BM25 shrinks with the number of slots
+   * (IDF of a term in 2 of 3 slots is 0.47), so 1 ignored single-word matches in small sessions.
+   */
   minLexical: number;
   /** A read is a hit when its best relevant slot has cosine >= hitCosine or BM25 >= minLexical. @default 0.3 */
   hitCosine: number;
@@ -80,7 +83,7 @@ export const READ_DEFAULTS: ReadParams = {
   minWeight: 0.02,
   maxMass: 0.99,
   minCosine: 0.2,
-  minLexical: 1,
+  minLexical: 0.25,
   hitCosine: 0.3,
   hops: 1,
   archive: 'miss',

@@ -26,7 +26,7 @@ import { resolveMemoryParams, type MemoryParams, type MemoryParamsInput } from '
 import { PROMPT_DEFAULTS, renderPrompt, type PromptOptions } from '../memory/prompt.js';
 import { SlotTable } from '../memory/slots.js';
 import { STOPWORDS, tokenize } from '../memory/text.js';
-import { planWrite, type KeyedCandidate, type WritePlan } from '../memory/write.js';
+import { planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
 import { MemoryStore, scopeOf } from '../store/memory.js';
 import type { CommitRequest, EraseReport, SessionSnapshot, SlotOp, Store } from '../store/store.js';
 import type { ArchiveHit, ArchiveItem, MemoryContext, ReadTrace, RecallItem, SessionRef, SlotRecord, StoredEvent, TurnInput } from '../types.js';
@@ -170,6 +170,8 @@ export interface SessionView {
 
 interface OutboxEntry {
   key: string;
+  /** Same id on every retry, so a commit applied before its reply was lost is not applied twice. */
+  commitId: string;
   ref: SessionRef;
   turns: Turn[];
   reinforce: string[];
@@ -268,7 +270,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   // ---------------------------------------------------------------- read
 
   /** Recalls what is relevant to `input.text` for its session. Store failures give `degraded: true`. */
-  async read(input: Pick<TurnInput, 'session' | 'text' | 'user' | 'tenant'> & { history?: boolean }): Promise<MemoryContext> {
+  async read(input: Pick<TurnInput, 'session' | 'text' | 'user' | 'tenant' | 'at'> & { history?: boolean }): Promise<MemoryContext> {
     const turn = this.validate({ ...input, role: 'user' });
     return this.readTurn(turn, input.history === true);
   }
@@ -374,7 +376,9 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       );
     });
     try {
-      if (pending) await Promise.race([pending, timeout]);
+      // Wait for the session's previous write for at most half the budget; past that, read the last
+      // committed state rather than nothing (the pending write is still serialised behind us).
+      if (pending) await Promise.race([pending, sleep(budget / 2)]);
       return await Promise.race([this.store.load(ref), timeout]);
     } catch (err) {
       throw isTidemarkError(err) ? err : new StoreError(ErrorCodes.STORE_UNAVAILABLE, `store ${this.store.name} failed a read: ${errMessage(err)}`, { cause: err });
@@ -474,7 +478,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   private enqueue(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
     const key = keyOf(ref);
     const prev = this.queues.get(key) ?? Promise.resolve();
-    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce));
+    const commitId = randomUUID();
+    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce, commitId));
     const tail = job.then(
       () => undefined,
       () => undefined,
@@ -486,24 +491,24 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     return job;
   }
 
-  private async commitOrQueue(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+  private async commitOrQueue(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string): Promise<WriteReport> {
     const key = keyOf(ref);
     // Keep a session's writes in order: once one waits in the outbox, later ones queue behind it.
-    if (this.outbox.some((e) => e.key === key)) return this.toOutbox(ref, turns, reinforce, 0);
+    if (this.outbox.some((e) => e.key === key)) return this.toOutbox(ref, turns, reinforce, 0, commitId);
     try {
-      return await this.commitTurns(ref, turns, reinforce);
+      return await this.commitTurns(ref, turns, reinforce, commitId);
     } catch (err) {
       if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
         this.emitError('write', err, ref);
         this.emit('degraded', { ...this.base(ref), stage: 'write', code: err.code });
-        return this.toOutbox(ref, turns, reinforce, 1);
+        return this.toOutbox(ref, turns, reinforce, 1, commitId);
       }
       this.emitError('write', err, ref);
       throw err;
     }
   }
 
-  private toOutbox(ref: SessionRef, turns: Turn[], reinforce: string[], attempts: number): WriteReport {
+  private toOutbox(ref: SessionRef, turns: Turn[], reinforce: string[], attempts: number, commitId: string): WriteReport {
     const report: WriteReport = { allocated: 0, overwritten: 0, reinforced: 0, gatedOut: 0, evicted: 0, committed: false, version: -1, turns: turns.map((t) => t.turn ?? '') };
     if (this.outbox.length >= this.o.outbox.max) {
       const error = new StoreError(ErrorCodes.STORE_OUTBOX_FULL, `outbox is full (${this.o.outbox.max} pending writes) while store ${this.store.name} is unreachable; this write was refused — raise outbox.max or restore the store`);
@@ -511,7 +516,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       this.emitError('outbox', error, ref);
       throw error;
     }
-    this.outbox.push({ key: keyOf(ref), ref, turns, reinforce, attempts });
+    this.outbox.push({ key: keyOf(ref), commitId, ref, turns, reinforce, attempts });
     this.emit('outbox', { depth: this.outbox.length, change: 'queued', sessionHash: this.hashSession(ref.tenant, ref.session) });
     this.scheduleDrain();
     return report;
@@ -534,7 +539,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         while (this.outbox.length > 0) {
           const entry = this.outbox[0]!;
           try {
-            await this.commitTurns(entry.ref, entry.turns, entry.reinforce);
+            await this.commitTurns(entry.ref, entry.turns, entry.reinforce, entry.commitId);
           } catch (err) {
             if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
               entry.attempts++;
@@ -557,7 +562,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   }
 
   /** Extract, embed, plan and commit with reload-and-redo on version conflicts. */
-  private async commitTurns(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+  private async commitTurns(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string = randomUUID()): Promise<WriteReport> {
     const extracted: Array<{ turn: Turn; candidates: KeyedCandidate['candidate'][] }> = [];
     for (const t of turns) {
       const skip = t.role !== 'user' && !(t.role === 'assistant' && this.o.writeReplies);
@@ -577,7 +582,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       if (snap && snap.table.dim !== this.embedder.dim) throw this.dimError(ref, snap.table.dim);
       const p0 = performance.now();
       let table = snap?.table ?? new SlotTable(this.params.capacity, this.embedder.dim);
-      const resize = table.capacity !== this.params.capacity ? resizeTable(table, this.params.capacity) : null;
+      const resize = table.capacity !== this.params.capacity ? resizeTable(table, this.params.capacity, snap?.clock ?? 0) : null;
       if (resize) table = resize.table;
       // Assign turn ids and advance the clock.
       let turnCount = snap?.turns ?? 0;
@@ -608,6 +613,11 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         reinforce,
         newId: newRevisionId,
       });
+      if (resize && resize.evictions.length > 0) {
+        // Report the resize's evictions like any other: in the plan (events, metrics, WriteReport) and the event stream.
+        plan.evictions.unshift(...resize.evictions);
+        plan.events.unshift(...resize.evictions.map((e) => ({ type: 'evict' as const, slot: e.slot, id: e.record.id, clock, atMs: last.atMs, reason: e.reason })));
+      }
       const ops = resize ? mergeOps(resize.ops, plan.ops) : plan.ops;
       const archive = resize ? [...resize.archive(ref, clock), ...plan.archive] : plan.archive;
       const req: CommitRequest = {
@@ -619,6 +629,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         ops,
         archive,
         events: plan.events,
+        commitId,
       };
       planUs += usSince(p0);
       const c0 = performance.now();
@@ -828,11 +839,17 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         const r = snap.table.get(i);
         if (r) recs.push([i, r]);
       }
-      const keys = recs.length ? await embedCached(this.embedder, this.cache, recs.map(([, r]) => r.keyText)) : [];
+      // The same stored vector a fresh write makes: normalize(key + valueMix * value).
+      const mix = this.o.valueMix;
+      const vecs = recs.length ? await embedCached(this.embedder, this.cache, recs.flatMap(([, r]) => [r.keyText, r.value])) : [];
       n = recs.length;
       const ops: SlotOp[] = [];
       for (let i = 0; i < snap.table.capacity; i++) ops.push({ index: i, slot: null });
-      recs.forEach(([i, r], m) => (ops[i] = { index: i, slot: { ...r, key: Float32Array.from(keys[m]!) } }));
+      recs.forEach(([i, r], m) => {
+        const k = vecs[2 * m]!;
+        const key = mix > 0 && r.value !== r.keyText ? mixVectors(k, vecs[2 * m + 1]!, mix) : Float32Array.from(k);
+        ops[i] = { index: i, slot: { ...r, key } };
+      });
       return { ops, events: [], dim: this.embedder.dim };
     }, true);
     return { slots: n };
@@ -963,7 +980,7 @@ function intOpt(name: string, v: unknown, min: number, max: number): void {
 const refOf = (t: Turn): SessionRef => ({ tenant: t.tenant, session: t.session, ...(t.user ? { user: t.user } : {}) });
 const keyOf = (r: SessionRef): string => `${r.tenant}\u0000${r.session}`;
 const errMessage = (err: unknown): string => (err instanceof Error ? err.message : String(err));
-const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
+const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms).unref?.());
 
 /** A fresh revision id: 16 random hex chars (collisions are not a practical concern at 64 bits). */
 function newRevisionId(): string {
@@ -1016,31 +1033,36 @@ function mergeItems(slots: RecallItem[], archived: RecallItem[], max: number): R
   return out.slice(0, max);
 }
 
-/** Resizes a table to a new capacity: slots beyond it move to free slots or are evicted (capacity). */
-function resizeTable(table: SlotTable, capacity: number): { table: SlotTable; ops: SlotOp[]; archive: (ref: SessionRef, clock: number) => ArchiveItem[] } {
-  const next = table.clone(capacity);
-  const overflow: SlotRecord[] = [];
-  for (let i = capacity; i < table.capacity; i++) {
+/**
+ * Resizes a table to a new capacity. Survivors are chosen as eviction would choose them: pinned
+ * slots first, then by strength decayed to `now`; a survivor keeps its index when it fits, else
+ * moves to a free slot. The rest are evicted (capacity) and archived.
+ */
+function resizeTable(table: SlotTable, capacity: number, now: number): { table: SlotTable; ops: SlotOp[]; evictions: Eviction[]; archive: (ref: SessionRef, clock: number) => ArchiveItem[] } {
+  const live: Array<{ i: number; r: SlotRecord; s: number }> = [];
+  for (let i = 0; i < table.capacity; i++) {
     const r = table.get(i);
-    if (r) overflow.push(r);
+    if (r) live.push({ i, r, s: r.pinned ? r.strength : decayed(r.strength, r.stamp, r.halfLife, now) });
   }
-  // Keep the strongest of the overflow where room allows.
-  overflow.sort((a, b) => b.strength - a.strength);
-  const evicted: SlotRecord[] = [];
-  for (const r of overflow) {
-    const free = next.firstFree();
-    if (free >= 0) next.set(free, r);
-    else evicted.push(r);
+  live.sort((a, b) => Number(b.r.pinned) - Number(a.r.pinned) || b.s - a.s);
+  const next = new SlotTable(capacity, table.dim);
+  const moved: SlotRecord[] = [];
+  for (const x of live.slice(0, capacity)) {
+    if (x.i < capacity) next.set(x.i, x.r);
+    else moved.push(x.r);
   }
+  for (const r of moved) next.set(next.firstFree(), r);
+  const evictions: Eviction[] = live.slice(capacity).map((x) => ({ slot: x.i, record: x.r, reason: 'capacity', archived: true, strength: x.s }));
   const ops: SlotOp[] = [];
   for (let i = 0; i < capacity; i++) ops.push({ index: i, slot: next.get(i) });
   return {
     table: next,
     ops,
+    evictions,
     archive: (ref, clock) =>
-      evicted.map((r) => ({
+      evictions.map(({ record: r, strength }) => ({
         id: r.id, tenant: ref.tenant, session: ref.session, ...(ref.user ? { user: ref.user } : {}), key: r.key, keyText: r.keyText,
-        value: r.value, provenance: r.provenance, reason: 'capacity' as const, strength: r.strength, halfLife: r.halfLife,
+        value: r.value, provenance: r.provenance, reason: 'capacity' as const, strength, halfLife: r.halfLife,
         clock, createdMs: r.createdMs, archivedMs: Date.now(),
       })),
   };

@@ -34,6 +34,8 @@ interface SessionEntry {
   table: SlotTable;
   events: StoredEvent[];
   user?: string;
+  /** Ids of the last commits applied, to recognise a resend. */
+  commitIds?: string[];
 }
 
 interface ArchiveEntry {
@@ -89,6 +91,7 @@ export class MemoryStore implements Store {
     const key = sessionKey(ref.tenant, ref.session);
     let e = this.sessions.get(key);
     const current = e?.version ?? 0;
+    if (req.commitId && e?.commitIds?.includes(req.commitId)) return { ok: true, version: current };
     if (current !== req.expectedVersion) return { ok: false, conflict: true, version: current };
     if (!e) {
       e = { version: 0, clock: 0, turns: 0, table: new SlotTable(req.capacity, req.dim), events: [] };
@@ -124,6 +127,10 @@ export class MemoryStore implements Store {
     e.clock = req.clock;
     e.turns = req.turns;
     e.version = current + 1;
+    if (req.commitId) {
+      (e.commitIds ??= []).push(req.commitId);
+      if (e.commitIds.length > 16) e.commitIds.shift();
+    }
     this.dirty = true;
     return { ok: true, version: e.version };
   }

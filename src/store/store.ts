@@ -49,6 +49,13 @@ export interface CommitRequest {
   archive: ArchiveItem[];
   /** Appended to the session's capped event stream. */
   events: StoredEvent[];
+  /**
+   * Stable id of the write this commit carries: the same across conflict re-plans and outbox retries
+   * of one write. A store that already applied a commit with this id (among the session's recent
+   * commits) reports it applied instead of applying it again, so a commit whose reply was lost is
+   * never applied twice. Up to 128 chars, no spaces.
+   */
+  commitId?: string;
 }
 
 export type CommitResult = { ok: true; version: number } | { ok: false; conflict: true; version: number };

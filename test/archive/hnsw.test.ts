@@ -138,6 +138,6 @@ describe('HnswArchive', () => {
       expect((err as Error).message).toMatch(msg);
     }
     expect(() => new HnswArchive(DIM).add('a', new Float32Array(DIM + 1))).toThrow(RangeError);
-    expect(HNSW_ARCHIVE_DEFAULTS).toEqual({ M: 16, efConstruction: 100, ef: 64, initialCapacity: 1024, rebuildDeletedShare: 0.25, randomSeed: 100 });
+    expect(HNSW_ARCHIVE_DEFAULTS).toEqual({ M: 16, efConstruction: 64, ef: 48, initialCapacity: 1024, rebuildDeletedShare: 0.25, randomSeed: 100 });
   });
 });

@@ -66,6 +66,22 @@ describe('planWrite: allocation', () => {
   });
 });
 
+describe('planWrite: stored vector', () => {
+  it('addresses with the key but stores the `stored` vector when given', () => {
+    const t = table(2, 3, [rec('a', basis(3, 0))]);
+    const kc = { ...cand(vec(1, 0.2, 0), { value: 'a red Moulton' }), stored: basis(3, 2) };
+    // Addressing uses key (cosine 0.98 with slot 0): an overwrite, whose key blends toward `stored`.
+    const over = plan(t, [kc]);
+    expect(over.outcomes[0]!.outcome).toBe('overwritten');
+    const k = over.ops[0]!.slot!.key;
+    expect(k[0]).toBeCloseTo(Math.SQRT1_2, 6);
+    expect(k[2]).toBeCloseTo(Math.SQRT1_2, 6);
+    // A new slot stores `stored` itself.
+    const fresh = plan(table(2, 3, []), [kc]);
+    expect([...fresh.ops[0]!.slot!.key]).toEqual([0, 0, 1]);
+  });
+});
+
 describe('planWrite: overwrite', () => {
   const oldKey = basis(3, 0);
   const newKey = vec(1, 0.2, 0); // cosine 1/sqrt(1.04) = 0.98 with the old key: above 0.8

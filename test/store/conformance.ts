@@ -156,6 +156,19 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expect(snap!.table.isUsed(1)).toBe(false);
     });
 
+    test('a commit resent with the same commitId is not applied twice', async () => {
+      const ref = fresh();
+      const first = await store.commit(ref, commitOf({ commitId: 'c-1', ops: [{ index: 0, slot: slot(1) }], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      expect(first).toEqual({ ok: true, version: 1 });
+      // The reply was lost; the writer re-plans on what it last saw (version 0) and resends.
+      const again = await store.commit(ref, commitOf({ commitId: 'c-1', ops: [{ index: 1, slot: slot(1) }], events: [{ type: 'allocate', slot: 1, id: 'r1', clock: 1, atMs: 1 }] }));
+      expect(again.ok).toBe(true);
+      const snap = await store.load(ref);
+      expect(snap!.version).toBe(1);
+      expect(snap!.table.count()).toBe(1);
+      expect(await store.readEvents(ref)).toHaveLength(1);
+    });
+
     test('concurrent commits against one version: exactly one wins', async () => {
       const ref = fresh();
       await store.commit(ref, commitOf({}));

@@ -152,6 +152,23 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(after!.table.get(0)!.id).toBe('r9');
     });
 
+    it('archive searches pick up items appended by another process, and its deletes', async () => {
+      const a = redisStore({ redis: client, prefix });
+      const b = redisStore({ redis: client, prefix });
+      const ref = { tenant: 'acme', session: 'arch-delta' };
+      const scope = { tenant: 'acme', session: 'arch-delta' };
+      await b.commit(ref, commitOf({ archive: [archived(1, ref), archived(2, ref)] }));
+      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a2', 'a1']);
+      await b.commit(ref, commitOf({ expectedVersion: 1, archive: [archived(3, ref)] }));
+      const hits = await a.searchArchive(scope, unit(1003), 1);
+      expect(hits[0]!.item.id).toBe('a3');
+      expect(hits[0]!.cosine).toBeCloseTo(1, 2);
+      await b.deleteArchive(scope, ['a1']);
+      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a2']);
+      await b.commit(ref, commitOf({ expectedVersion: 2, archive: [archived(4, ref)] }));
+      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a4', 'a3', 'a2']);
+    });
+
     it('a re-sent commit is recognised and applied once', async () => {
       const store = redisStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'resend' };
