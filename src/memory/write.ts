@@ -92,6 +92,13 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const used = (i: number): boolean => (pending.has(i) ? pending.get(i) !== null : table.isUsed(i));
   const record = (i: number): SlotRecord | null => (pending.has(i) ? pending.get(i)! : table.get(i));
   const pinned = (i: number): boolean => (pending.has(i) ? pending.get(i)?.pinned === true : table.isPinned(i));
+  // Field reads without materialising a record (table.get copies the key vector).
+  const idAt = (i: number): string => pending.get(i)?.id ?? table.ids[i]!;
+  const valueAt = (i: number): string => pending.get(i)?.value ?? table.value[i]!;
+  const recencyAt = (i: number): number => {
+    const r = pending.get(i);
+    return r ? r.updatedMs + r.stamp * 1e-6 : table.updatedMs[i]! + table.stamp[i]! * 1e-6;
+  };
   const strengthNow = (i: number): number => {
     const r = pending.get(i);
     if (r) return r.pinned ? r.strength : decayed(r.strength, r.stamp, r.halfLife, now);
@@ -141,9 +148,8 @@ export function planWrite(input: WritePlanInput): WritePlan {
   if (input.reinforce.length > 0) {
     const wanted = new Set(input.reinforce);
     for (let i = 0; i < cap; i++) {
-      if (!used(i)) continue;
+      if (!used(i) || !wanted.has(idAt(i))) continue;
       const rec = record(i)!;
-      if (!wanted.has(rec.id)) continue;
       const r = reinforce(strengthNow(i), rec.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
       set(i, { ...rec, strength: r.strength, halfLife: r.halfLife, stamp: now, reads: rec.reads + 1 });
       plan.reinforced.push({ slot: i, id: rec.id, strength: r.strength, halfLife: r.halfLife });
@@ -174,9 +180,8 @@ export function planWrite(input: WritePlanInput): WritePlan {
       let newestMs = -Infinity;
       for (let i = 0; i < cap; i++) {
         if (!used(i)) continue;
-        const r = record(i)!;
-        if (findAll(r.value, c.updates.kind).length === 0) continue;
-        const at = r.updatedMs + r.stamp * 1e-6;
+        if (findAll(valueAt(i), c.updates.kind).length === 0) continue;
+        const at = recencyAt(i);
         if (at > newestMs) {
           newestMs = at;
           newest = i;

@@ -658,30 +658,43 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   }
 
   private emitWrite(ref: SessionRef, plan: WritePlan, capacity: number, clock: number): void {
+    const wantEvict = this.listenerCount('evict') > 0;
+    const wantArchive = this.listenerCount('archive') > 0;
+    const wantWrite = this.listenerCount('write') > 0;
+    const wantGate = this.listenerCount('gate') > 0;
+    const wantOverwrite = this.listenerCount('overwrite') > 0;
+    if (!wantEvict && !wantArchive && !wantWrite && !wantGate && !wantOverwrite) return;
     const base = this.base(ref);
     for (const ev of plan.evictions) {
-      this.emit('evict', {
-        ...base, slot: ev.slot, id: ev.record.id, reason: ev.reason, archived: ev.archived,
-        lifetime: clock - ev.record.created, lifetimeMs: base.atMs - ev.record.createdMs, halfLife: ev.record.halfLife, strength: ev.strength,
-      });
-      if (ev.archived) this.emit('archive', { ...base, reason: ev.reason as 'capacity', id: ev.record.id });
+      if (wantEvict) {
+        this.emit('evict', {
+          ...base, slot: ev.slot, id: ev.record.id, reason: ev.reason, archived: ev.archived,
+          lifetime: clock - ev.record.created, lifetimeMs: base.atMs - ev.record.createdMs, halfLife: ev.record.halfLife, strength: ev.strength,
+        });
+      }
+      if (ev.archived && wantArchive) this.emit('archive', { ...base, reason: ev.reason as 'capacity', id: ev.record.id });
     }
-    for (const r of plan.reinforced) {
-      this.emit('write', { ...base, outcome: 'reinforced', slot: r.slot, id: r.id, clock, gate: 1, strength: r.strength, halfLife: r.halfLife, slotsInUse: plan.slotsInUse, capacity });
+    if (wantWrite) {
+      for (const r of plan.reinforced) {
+        this.emit('write', { ...base, outcome: 'reinforced', slot: r.slot, id: r.id, clock, gate: 1, strength: r.strength, halfLife: r.halfLife, slotsInUse: plan.slotsInUse, capacity });
+      }
     }
     for (const o of plan.outcomes) {
-      if (this.listenerCount('gate') > 0) {
+      if (wantGate) {
         this.emit('gate', { ...base, score: o.gate, threshold: this.params.write.gateThreshold, passed: o.outcome !== 'gated_out', features: { ...o.features } });
       }
       if (o.outcome === 'gated_out') continue;
-      const op = plan.ops.find((x) => x.index === o.slot)?.slot;
-      this.emit('write', {
-        ...base, outcome: o.outcome, slot: o.slot, id: o.id ?? '', clock, gate: o.gate,
-        strength: op?.strength ?? o.gate, halfLife: op?.halfLife ?? this.params.write.halfLife, slotsInUse: plan.slotsInUse, capacity,
-      });
+      if (wantWrite) {
+        let op: SlotRecord | null | undefined;
+        for (const x of plan.ops) if (x.index === o.slot) op = x.slot;
+        this.emit('write', {
+          ...base, outcome: o.outcome, slot: o.slot, id: o.id ?? '', clock, gate: o.gate,
+          strength: op?.strength ?? o.gate, halfLife: op?.halfLife ?? this.params.write.halfLife, slotsInUse: plan.slotsInUse, capacity,
+        });
+      }
       if (o.outcome === 'overwritten' && o.supersededId) {
-        this.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
-        this.emit('archive', { ...base, reason: 'superseded', id: o.supersededId });
+        if (wantOverwrite) this.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
+        if (wantArchive) this.emit('archive', { ...base, reason: 'superseded', id: o.supersededId });
       }
     }
   }
