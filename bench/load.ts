@@ -82,7 +82,10 @@ export interface Script {
 /** `count` scripts of `turns` exchanges each, cycling over generated scenario sessions. */
 export function scripts(count: number, turns: number, seed = 7): Script[] {
   const pool = Math.min(count, 64);
-  const sc = generateScenario({ seed, sessions: pool, minTurns: 2 * turns, maxTurns: 2 * turns + 1 });
+  // The generator plans each session's facts over its length, so it needs a few hundred turns to
+  // place them; shorter scripts use the first `turns` exchanges (turns past the script wrap around).
+  const len = Math.max(2 * turns, 300);
+  const sc = generateScenario({ seed, sessions: pool, minTurns: len, maxTurns: len + 1 });
   const by = new Map<string, Script>();
   for (const t of sc.turns) {
     let s = by.get(t.session);
@@ -94,7 +97,7 @@ export function scripts(count: number, turns: number, seed = 7): Script[] {
 }
 
 /** A reply streamed word by word, without delays: the benchmark times memory, not a model. */
-async function* words(text: string): AsyncGenerator<string> {
+export async function* words(text: string): AsyncGenerator<string> {
   for (const w of text.split(/(?<= )/)) yield w;
 }
 

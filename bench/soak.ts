@@ -5,7 +5,17 @@
 // (committed, or queued in the outbox) is checked afterwards in the store.
 
 import { spawn, type ChildProcess } from 'node:child_process';
+import { mkdtempSync, rmSync } from 'node:fs';
 import { createServer, connect } from 'node:net';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { progressBar } from '../src/cli/progress.js';
+import { ErrorCodes } from '../src/errors.js';
+import { createTidemark, type WrapInput } from '../src/middleware/tidemark.js';
+import { asciiTable, barChart, writeResult } from './lib/results.js';
+import { prng } from './lib/scenario.js';
+import { loadAverage, scripts, words } from './load.js';
+import { machine, parseArgs, round } from './lib/stats.js';
 
 // ------------------------------------------------------------------ a throwaway redis-server
 
@@ -60,12 +70,18 @@ export async function waitForPong(port: number, timeoutMs = 5000): Promise<void>
   }
 }
 
-/** Starts `redis-server` on a free loopback port (or `port`), with no RDB/AOF, as a child process. */
-export async function throwawayRedis(port?: number): Promise<ThrowawayRedis> {
-  const p = port ?? (await freePort());
+/**
+ * Starts `redis-server` on a free loopback port (or `port`) as a child process: without persistence,
+ * or with an append-only file fsynced on every write in `aofDir` (a restart then reloads it).
+ */
+export async function throwawayRedis(options: ThrowawayOptions = {}): Promise<ThrowawayRedis> {
+  const p = options.port ?? (await freePort());
+  const persist = options.aofDir
+    ? ['--dir', options.aofDir, '--appendonly', 'yes', '--appendfsync', 'always']
+    : ['--appendonly', 'no'];
   let child: ChildProcess | undefined;
   const start = async (): Promise<void> => {
-    child = spawn('redis-server', ['--port', String(p), '--bind', '127.0.0.1', '--save', '', '--appendonly', 'no', '--protected-mode', 'yes', '--loglevel', 'warning'], {
+    child = spawn('redis-server', ['--port', String(p), '--bind', '127.0.0.1', '--save', '', ...persist, '--protected-mode', 'yes', '--loglevel', 'warning'], {
       stdio: 'ignore',
     });
     const c = child;
@@ -96,6 +112,235 @@ export async function throwawayRedis(port?: number): Promise<ThrowawayRedis> {
   };
 }
 
-export default async function main(_argv: string[]): Promise<void> {
-  throw new Error('soak: not written yet');
+export type ThrowawayOptions = { port?: number; aofDir?: string };
+
+// ------------------------------------------------------------------ the soak
+
+interface SoakFigures {
+  seconds: number;
+  sessions: number;
+  concurrency: number;
+  turns: number;
+  reads: number;
+  batch_writes: number;
+  acknowledged_writes: number;
+  committed_directly: number;
+  queued_in_outbox: number;
+  refused_outbox_full: number;
+  errors: number;
+  errors_by_stage: Record<string, number>;
+  degraded_reads: number;
+  outbox_peak: number;
+  outbox_after_flush: number;
+  lost_writes: number;
+  duplicated_writes: number;
+  restart_at_s: number;
+  down_ms: number;
+  turns_per_s: number;
+}
+
+type Ack = 'commit' | 'queued' | 'refused' | 'error';
+
+export default async function main(argv: string[]): Promise<void> {
+  const args = parseArgs(argv);
+  const int = (name: string, def: number, min: number, max: number): number => {
+    const raw = args.values.get(name);
+    const v = raw === undefined ? def : Number(raw);
+    if (!Number.isInteger(v) || v < min || v > max) throw new RangeError(`--${name} must be an integer in [${min}, ${max}], got ${raw}`);
+    return v;
+  };
+  const seconds = int('seconds', 20, 4, 600);
+  const sessions = int('sessions', 300, 1, 100_000);
+  const concurrency = Math.min(sessions, int('concurrency', 32, 1, 4096));
+  const downMs = int('down-ms', 2000, 0, 60_000);
+  const json = args.flags.has('json');
+
+  // Durability is the server's job: with an append-only file fsynced on every write, a SIGKILL loses
+  // nothing Redis acknowledged, so any write missing afterwards was lost by the client side.
+  const aofDir = mkdtempSync(join(tmpdir(), 'tidemark-soak-'));
+  const redis = await throwawayRedis({ aofDir });
+  const { RedisStore } = await import('../adapters/redis/index.js');
+  const prefix = 'tidemark-soak:';
+  const store = new RedisStore({ redis: redis.url, prefix });
+  const tm = createTidemark({ store, tenant: 'soak', secret: 'soak-bench', outbox: { max: 100_000, retryMs: 100, maxRetryMs: 1000 } });
+  const names = Array.from({ length: sessions }, (_, i) => `soak-${i}`);
+  const hashes = new Map(names.map((s) => [tm.hashSession('soak', s), s]));
+  const convo = scripts(sessions, 50, 31);
+
+  // Acknowledgement bookkeeping, per session (see the module comment of load.ts for why the hash
+  // identifies the turn): a commit event while the session has entries in the outbox is a drain of an
+  // older write, not this turn's.
+  const pending = new Map<string, (a: Ack) => void>();
+  const outstanding = new Map<string, number>();
+  const acked = new Map<string, number>();
+  const errorsByStage: Record<string, number> = {};
+  let errors = 0;
+  let degraded = 0;
+  let outboxPeak = 0;
+  let droppedFromOutbox = 0;
+  const settle = (hash: string | undefined, a: Ack): void => {
+    const f = hash === undefined ? undefined : pending.get(hash);
+    if (f) {
+      pending.delete(hash!);
+      f(a);
+    }
+  };
+  tm.on('commit', (e) => {
+    if ((outstanding.get(e.sessionHash) ?? 0) === 0) settle(e.sessionHash, 'commit');
+  });
+  tm.on('outbox', (e) => {
+    outboxPeak = Math.max(outboxPeak, e.depth);
+    if (!e.sessionHash) return;
+    if (e.change === 'queued') {
+      outstanding.set(e.sessionHash, (outstanding.get(e.sessionHash) ?? 0) + 1);
+      settle(e.sessionHash, 'queued');
+    } else if (e.change === 'drained') {
+      outstanding.set(e.sessionHash, (outstanding.get(e.sessionHash) ?? 1) - 1);
+    } else settle(e.sessionHash, 'refused');
+  });
+  tm.on('error', (e) => {
+    errors++;
+    errorsByStage[e.stage] = (errorsByStage[e.stage] ?? 0) + 1;
+    // Connectivity failures of a write are followed by `queued`; anything else rejected the write.
+    if (e.stage === 'write' && e.error.code !== ErrorCodes.STORE_UNAVAILABLE) settle(e.sessionHash, 'error');
+    // A drained entry that failed for another reason than connectivity was dropped (and reported).
+    if (e.stage === 'outbox' && e.error.code !== ErrorCodes.STORE_OUTBOX_FULL) droppedFromOutbox++;
+  });
+  tm.on('degraded', (e) => {
+    if (e.stage === 'read') degraded++;
+  });
+  const wrapped = tm.wrap((input: WrapInput) => words(input.reply as string));
+
+  const counts = { turns: 0, reads: 0, batches: 0, direct: 0, queued: 0, refused: 0 };
+  /** Messages (user + assistant turns) each session's acknowledged writes carry. */
+  const ack = (session: string, a: Ack, messages: number): void => {
+    if (a === 'commit' || a === 'queued') {
+      acked.set(session, (acked.get(session) ?? 0) + messages);
+      if (a === 'commit') counts.direct++;
+      else counts.queued++;
+    } else if (a === 'refused') counts.refused++;
+  };
+
+  const r = prng(99);
+  const t0 = performance.now();
+  const end = t0 + seconds * 1000;
+  const restartAt = seconds / 2;
+  let restarted = false;
+  const restart = (async () => {
+    await new Promise((res) => setTimeout(res, restartAt * 1000));
+    await redis.kill();
+    await new Promise((res) => setTimeout(res, downMs));
+    await redis.restart();
+    restarted = true;
+  })();
+  const bar = process.stderr.isTTY && !json ? progressBar(seconds * 10, 'soak', process.stderr, 1) : { tick: () => undefined, done: () => undefined };
+  const ticker = setInterval(() => bar.tick(Math.min(seconds * 10, Math.round((performance.now() - t0) / 100))), 100);
+  ticker.unref();
+  await Promise.all(
+    Array.from({ length: concurrency }, async (_, w) => {
+      let round = 0;
+      while (performance.now() < end) {
+        for (let i = w; i < sessions && performance.now() < end; i += concurrency) {
+          const session = names[i]!;
+          const hash = tm.hashSession('soak', session);
+          const sc = convo[i]!;
+          const text = sc.user[round % sc.user.length]!;
+          const reply = sc.reply[round % sc.reply.length]!;
+          const x = r();
+          if (x < 0.2) {
+            // A plain read (a bot that looks something up without answering).
+            await tm.read({ session, text });
+            counts.reads++;
+            continue;
+          }
+          const done = new Promise<Ack>((res) => pending.set(hash, res));
+          try {
+            if (x < 0.25) {
+              // A batch import of one exchange through write().
+              await tm.write([{ session, text }, { session, text: reply, role: 'assistant' }]);
+              counts.batches++;
+            } else {
+              const stream = await wrapped({ session, text, reply });
+              for await (const _c of stream) {
+                // consumed
+              }
+              counts.turns++;
+            }
+          } catch {
+            // Refused (outbox full) or rejected: reported through the events above.
+          }
+          // Bounded: a write that produced none of the events above within 30 s counts as an error.
+          const a = await Promise.race([done, new Promise<Ack>((res) => setTimeout(() => res('error'), 30_000).unref())]);
+          pending.delete(hash);
+          ack(session, a, 2);
+        }
+        round++;
+      }
+    }),
+  );
+  clearInterval(ticker);
+  bar.done();
+  const elapsed = (performance.now() - t0) / 1000;
+  await restart;
+  // Let the outbox drain against the restarted server.
+  const flushed = await tm.flush({ timeoutMs: 30_000 });
+  await tm.close();
+
+  // Verify with a fresh client and no caches: each session must hold exactly the messages acknowledged.
+  const check = new RedisStore({ redis: redis.url, prefix, cacheSessions: 0 });
+  let lost = droppedFromOutbox * 2;
+  let duplicated = 0;
+  for (const s of names) {
+    const snap = await check.load({ tenant: 'soak', session: s });
+    const stored = snap?.turns ?? 0;
+    const expected = acked.get(s) ?? 0;
+    if (stored < expected) lost += expected - stored;
+    if (stored > expected) duplicated += stored - expected;
+  }
+  await check.close();
+  await redis.stop();
+  rmSync(aofDir, { recursive: true, force: true });
+
+  const f: SoakFigures = {
+    seconds: round(elapsed, 1),
+    sessions,
+    concurrency,
+    turns: counts.turns,
+    reads: counts.reads,
+    batch_writes: counts.batches,
+    acknowledged_writes: counts.direct + counts.queued,
+    committed_directly: counts.direct,
+    queued_in_outbox: counts.queued,
+    refused_outbox_full: counts.refused,
+    errors,
+    errors_by_stage: errorsByStage,
+    degraded_reads: degraded,
+    outbox_peak: outboxPeak,
+    outbox_after_flush: flushed.outboxDepth,
+    lost_writes: lost,
+    duplicated_writes: duplicated,
+    restart_at_s: restartAt,
+    down_ms: downMs,
+    turns_per_s: Math.round((counts.turns + counts.batches) / elapsed),
+  };
+  console.log(`soak: ${f.seconds} s of mixed load on a throwaway redis-server (SIGKILL at ${restartAt} s, restarted after ${downMs} ms${restarted ? '' : ' — restart did not happen'}), ${sessions} sessions, concurrency ${concurrency}`);
+  console.log(asciiTable(['figure', 'value'], [
+    ['streamed turns / plain reads / batch writes', `${f.turns} / ${f.reads} / ${f.batch_writes}`],
+    ['writes acknowledged (committed + queued)', `${f.acknowledged_writes} (${f.committed_directly} + ${f.queued_in_outbox})`],
+    ['refused (outbox full)', f.refused_outbox_full],
+    ['errors (by stage)', `${f.errors} ${JSON.stringify(f.errors_by_stage)}`],
+    ['degraded reads', f.degraded_reads],
+    ['outbox peak / after flush', `${f.outbox_peak} / ${f.outbox_after_flush}`],
+    ['lost writes (messages; must be 0)', f.lost_writes],
+    ['duplicated writes (messages)', f.duplicated_writes],
+  ]));
+  const svg = barChart({
+    title: `soak: ${f.seconds} s, Redis SIGKILL + restart at ${restartAt} s`, yLabel: 'count (log scale)', logY: true,
+    groups: ['acknowledged', 'queued', 'degraded reads', 'outbox peak', 'lost'],
+    series: [{ name: 'soak', values: [f.acknowledged_writes, f.queued_in_outbox, f.degraded_reads, f.outbox_peak, f.lost_writes] }],
+  });
+  const out = { ...f, load: loadAverage(), machine: machine() };
+  const paths = writeResult('soak', out, svg, ['soak', ...argv]);
+  console.log(`wrote ${paths.json} and ${paths.svg}`);
+  if (json) console.log(JSON.stringify(out));
 }

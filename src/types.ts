@@ -60,7 +60,7 @@ export interface SlotRecord {
   keyText: string;
   /** What a read recalls, e.g. "a green Brompton". */
   value: string;
-  /** Turn ids the value came from, oldest first. */
+  /** Turn ids the value came from, newest first (an update's own turn leads). */
   provenance: string[];
   /** Strength in (0, 1] as of `stamp`; decays from there with `halfLife`. */
   strength: number;

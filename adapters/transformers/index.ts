@@ -166,8 +166,11 @@ function serialised<T>(task: () => Promise<T>): Promise<T> {
 /** True when `name` itself is missing, not a package it imports (sharp, onnxruntime-node): their paths contain `name` too. */
 function isModuleNotFound(err: unknown, name: string): boolean {
   const e = err as { code?: unknown; message?: unknown };
+  const message = String(e?.message);
+  // Vite (and so vitest) replaces an optional peer dependency that is not installed with a stub that
+  // throws this message instead of a module-not-found error (seen with vite 8).
+  if (message.startsWith(`Could not resolve "${name}"`)) return true;
   if (e?.code !== 'ERR_MODULE_NOT_FOUND' && e?.code !== 'MODULE_NOT_FOUND') return false;
-  const message = String(e.message);
   return message.startsWith(`Cannot find package '${name}'`) || message.startsWith(`Cannot find module '${name}'`);
 }
 

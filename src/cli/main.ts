@@ -71,7 +71,7 @@ program
   .option('--json', 'print one JSON object on stdout')
   .action(async (transcript: string, o: Record<string, unknown>) => {
     const { replayCli } = await import('./replay.js');
-    await replayCli(transcript, o);
+    process.exitCode = await replayCli(transcript, o);
   });
 
 program
@@ -83,10 +83,11 @@ program
   .option('--grid <file>', 'JSON file with the grid to try')
   .option('--config <file>', 'JSON file of base createTidemark options')
   .option('--out <file>', 'write the frontier plot (.svg or .html)')
+  .option('--strict', 'stop at the first malformed line instead of skipping it')
   .option('--json', 'print one JSON object on stdout')
   .action(async (transcript: string, o: Record<string, unknown>) => {
     const { sweepCli } = await import('./sweep.js');
-    await sweepCli(transcript, o);
+    process.exitCode = await sweepCli(transcript, o);
   });
 
 try {

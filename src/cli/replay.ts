@@ -240,7 +240,7 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
           const ctx = await tm.read({ session: t.session, text: t.text });
           reads[ctx.trace.result]++;
           readUs.push(ctx.trace.durationUs);
-          used = ctx.items.filter((i) => i.source === 'slot').map((i) => i.id);
+          used = tm.usedBy(ctx);
         }
         const report = await tm.write(
           batch.map((b) => ({ session: b.session, turn: b.turn, role: b.role, text: b.text, ...(b.at ? { at: b.at } : {}), ...(b.speaker ? { speaker: b.speaker } : {}) })),

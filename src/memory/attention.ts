@@ -139,7 +139,9 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   }
   const best = selected[0];
   const hit = best !== undefined && (cosine[best]! >= p.hitCosine || lexicalRaw[best]! >= p.minLexical);
-  return { cosine, lexical, lexicalRaw, strength, score, weight, selected: hit ? selected : [], used, topCosine, topWeight, entropy, hit };
+  // On a miss the relevant items are still returned (the caller also searches the archive): a weak
+  // match is better context than none, and the trace says it was a miss.
+  return { cosine, lexical, lexicalRaw, strength, score, weight, selected, used, topCosine, topWeight, entropy, hit };
 }
 
 /**

@@ -4,6 +4,7 @@
 // Anything else falls back to key = value = the sentence. Bots can plug in their own Extractor.
 
 import type { Role } from '../types.js';
+import { contentWords } from './text.js';
 import { findValueExpr, type ValueKind } from './values.js';
 
 /** One thing a turn might be worth remembering. */
@@ -22,7 +23,7 @@ export interface Candidate {
    * Set when the sentence changes an earlier value of this kind without naming the topic ("make it
    * Friday instead"): the writer resolves the key to the newest slot holding a value of that kind.
    */
-  updates?: { kind: ValueKind; expr: string };
+  updates?: { kind: ValueKind; expr: string } | { kind: 'latest' };
   /** Ask the writer to pin the slot. */
   pin?: boolean;
 }
@@ -46,6 +47,8 @@ export function splitSentences(text: string): string[] {
 }
 
 const UPDATE_CUE = /\b(actually|instead|rather|moved to|changed to|pushed back to|rescheduled (?:it |that )?(?:to|for)|change (?:it|that|the \w+) to|make (?:it|that)|move (?:it|that|the \w+)(?: to)?|switch (?:it|that) to|reschedule|no wait|correction|scratch that)\b/i;
+/** Closings that start like a correction ("No, that is all") but change nothing. */
+const CLOSING = /\b(?:that'?s|that is|that will be|that would be) (?:all|it|everything)\b|\bnothing else\b|\bno,? thanks?\b|\bno thank you\b|\ball i need/i;
 /** Words that mark a sentence as correcting an earlier choice. */
 const CORRECTION = /^(?:(?:no|nope|sorry|oops|wait)\b[\s,!.]*)+|\b(?:instead|on second thought|changed my mind|not right|rather)\b/i;
 const CORRECTION_ALL = new RegExp(CORRECTION.source, 'gi');
@@ -265,10 +268,12 @@ export class RuleExtractor implements Extractor {
         return { key: kv.key, value, text: sentence, pattern: rule.name };
       }
     }
-    if (CORRECTION.test(sentence) && !isQuestion) {
+    if (CORRECTION.test(sentence) && !isQuestion && !CLOSING.test(sentence)) {
       // "No, play it on the patio speaker instead": a correction states the user's choice even
-      // without a date or number in it.
-      return { key: topicOf(sentence.replace(CORRECTION_ALL, ' '), expr?.text), value: sentence, text: sentence, pattern: 'correction' };
+      // without a date or number in it, and replaces what it corrects — the slot its topic
+      // addresses, else the choice made just before (`updates: latest`).
+      const topic = topicOf(sentence.replace(CORRECTION_ALL, ' '), expr?.text);
+      if (contentWords(topic).length >= 2) return { key: topic, value: sentence, text: sentence, pattern: 'correction', updates: { kind: 'latest' } };
     }
     if (expr) {
       // A dated or counted statement: its topic is what remains without the date or number.

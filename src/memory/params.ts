@@ -19,7 +19,11 @@ export interface ReadParams {
   minWeight: number;
   /** Stop adding items once their cumulative weight reaches this mass. @default 0.99 */
   maxMass: number;
-  /** A slot is relevant when its cosine reaches this... @default 0.2 */
+  /**
+   * A slot is relevant when its cosine reaches this... The default, -1, lets every slot compete: a
+   * read returns the top-k of working memory by attention, and `trace.result` says whether any of it
+   * matched well (a hit). Raise it to return only close matches. @default -1
+   */
   minCosine: number;
   /**
    * ...or its raw BM25 score reaches this. @default 0.25 — raw BM25 shrinks with the number of slots
@@ -82,7 +86,7 @@ export const READ_DEFAULTS: ReadParams = {
   k: 5,
   minWeight: 0.02,
   maxMass: 0.99,
-  minCosine: 0.2,
+  minCosine: -1,
   minLexical: 0.25,
   hitCosine: 0.3,
   hops: 1,

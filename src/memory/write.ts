@@ -79,6 +79,9 @@ export interface WritePlan {
   slotsInUse: number;
 }
 
+/** How far back (clock units) a bare correction may reach for the slot it corrects. */
+const CORRECTION_WINDOW = 8;
+
 const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
 /** Plans the changes of one turn. Pure: reads `table`, returns operations. */
@@ -175,7 +178,28 @@ export function planWrite(input: WritePlanInput): WritePlan {
     let target = bestCos >= p.overwriteThreshold ? best : -1;
     let value = c.value;
     let provenanceTail: string[] = [];
-    if (c.updates && target < 0) {
+    if (c.updates?.kind === 'latest' && target < 0) {
+      // A correction without a recognisable value ("no, the patio speaker instead") replaces the
+      // slot its topic half-matches, else the one written most recently, if that was within the last
+      // few turns (a correction refers to what was just said; common practice in dialogue state tracking).
+      if (bestCos >= p.overwriteThreshold / 2) target = best;
+      else {
+        let newest = -1;
+        let newestAt = -Infinity;
+        for (let i = 0; i < cap; i++) {
+          if (!used(i) || pinned(i)) continue;
+          const at = recencyAt(i);
+          if (at > newestAt) {
+            newestAt = at;
+            newest = i;
+          }
+        }
+        const stampOf = (i: number): number => pending.get(i)?.stamp ?? table.stamp[i]!;
+        if (newest >= 0 && now - stampOf(newest) <= CORRECTION_WINDOW) target = newest;
+      }
+      if (target >= 0) provenanceTail = record(target)!.provenance;
+    }
+    if (c.updates && c.updates.kind !== 'latest' && target < 0) {
       let newest = -1;
       let newestMs = -Infinity;
       for (let i = 0; i < cap; i++) {
@@ -189,7 +213,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       }
       if (newest >= 0) target = newest;
     }
-    if (c.updates && target >= 0) {
+    if (c.updates && c.updates.kind !== 'latest' && target >= 0) {
       // Swap the old expression for the new one so the value reads as the current fact.
       const old = record(target)!;
       const exprs = findAll(old.value, c.updates.kind);

@@ -65,7 +65,7 @@ export interface TidemarkOptions extends MemoryParamsInput {
   onAbort?: 'user' | 'none' | 'all';
   /** A read that takes longer (store, or waiting for the session's previous write) runs degraded. @default 1000 */
   readTimeoutMs?: number;
-  /** Reload-and-redo attempts after a version conflict. @default 8 */
+  /** Reload-and-redo attempts after a version conflict (with randomised backoff). @default 16 */
   commitRetries?: number;
   outbox?: OutboxOptions;
   /** Embeddings cached (LRU entries). @default 10000 */
@@ -101,7 +101,7 @@ export const TIDEMARK_DEFAULTS: {
   writeReplies: false,
   onAbort: 'user',
   readTimeoutMs: 1000,
-  commitRetries: 8,
+  commitRetries: 16,
   outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000 },
   embedCacheSize: 10_000,
   reinforceMinWeight: 0.1,
@@ -248,6 +248,16 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
    */
   retention(nowMs = Date.now()): RetentionSnapshot {
     return retentionSnapshot(this.retentionTracker, nowMs);
+  }
+
+  /**
+   * Revision ids of the slots a read counts as used, for `write(..., { reinforce })`: on a hit, the
+   * slot items that carried at least `reinforceMinWeight` of the attention. A miss reinforces nothing
+   * (its items matched weakly), nor does a tail item that scraped in. wrap() does this itself.
+   */
+  usedBy(memory: MemoryContext): string[] {
+    if (memory.trace.result !== 'hit') return [];
+    return memory.items.filter((i) => i.source === 'slot' && i.weight >= this.o.reinforceMinWeight).map((i) => i.id);
   }
 
   /** Writes waiting for the store. */
@@ -634,7 +644,12 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       planUs += usSince(p0);
       const c0 = performance.now();
       const res = await this.storeCall(() => this.store.commit(ref, req), 'commit');
-      if (!res.ok) continue;
+      if (!res.ok) {
+        // Another writer won. Back off a random, growing moment (capped) so contending writers of one
+        // session stop colliding in lockstep (randomised exponential backoff, common practice).
+        await sleep(Math.random() * Math.min(50, 2 ** attempt));
+        continue;
+      }
       this.emitWrite(ref, plan, table.capacity, clock);
       const report: WriteReport = {
         allocated: 0, overwritten: 0, reinforced: plan.reinforced.length, gatedOut: 0, evicted: plan.evictions.length,
@@ -717,8 +732,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       } catch (err) {
         memory = this.degradedRead(turn, 'read', err, 0);
       }
-      // Reinforce only what carried real weight in the read; a tail item that scraped in is not "used".
-      const used = memory.items.filter((i) => i.source === 'slot' && i.weight >= this.o.reinforceMinWeight).map((i) => i.id);
+      const used = this.usedBy(memory);
       const ref = refOf(turn);
       const after = (text: string, end: ReplyEnd): void => {
         const turns = [turn];
@@ -945,6 +959,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
           'commit',
         );
         if (res.ok) return;
+        await sleep(Math.random() * Math.min(50, 2 ** attempt));
       }
       throw new StoreError(ErrorCodes.STORE_CONFLICT, `session kept changing under ${this.o.commitRetries + 1} attempts`);
     });

