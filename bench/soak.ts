@@ -1,4 +1,4 @@
-// `npm run bench -- soak [--seconds S] [--sessions N] [--concurrency C] [--json]`: bounded mixed load
+// `npm run bench -- soak [--seconds S] [--rate OPS] [--sessions N] [--concurrency C] [--json]`: bounded mixed load
 // (turns, plain reads, erasures) on a throwaway redis-server that this benchmark starts on a free
 // port and SIGKILLs and restarts on the same port half-way through. It reports errors, degraded
 // reads, the outbox peak and lost writes, which must be 0: every write the core acknowledged
@@ -11,7 +11,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { progressBar } from '../src/cli/progress.js';
 import { ErrorCodes } from '../src/errors.js';
-import { createTidemark, type WrapInput } from '../src/middleware/tidemark.js';
+import { createTidemark, TIDEMARK_DEFAULTS, type WrapInput } from '../src/middleware/tidemark.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
 import { prng } from './lib/scenario.js';
 import { loadAverage, scripts, words } from './load.js';
@@ -136,6 +136,8 @@ interface SoakFigures {
   duplicated_writes: number;
   restart_at_s: number;
   down_ms: number;
+  offered_ops_per_s: number;
+  outbox_max: number;
   turns_per_s: number;
 }
 
@@ -153,6 +155,11 @@ export default async function main(argv: string[]): Promise<void> {
   const sessions = int('sessions', 300, 1, 100_000);
   const concurrency = Math.min(sessions, int('concurrency', 32, 1, 4096));
   const downMs = int('down-ms', 2000, 0, 60_000);
+  // Open-loop pacing: users do not type faster while memory is degraded, so operations start on a
+  // fixed schedule (a closed loop would multiply the offered load during the outage, when degraded
+  // turns are instant, and measure that instead).
+  const rate = int('rate', 400, 1, 1_000_000);
+  const outboxMax = int('outbox-max', TIDEMARK_DEFAULTS.outbox.max, 0, 10_000_000);
   const json = args.flags.has('json');
 
   // Durability is the server's job: with an append-only file fsynced on every write, a SIGKILL loses
@@ -162,7 +169,7 @@ export default async function main(argv: string[]): Promise<void> {
   const { RedisStore } = await import('../adapters/redis/index.js');
   const prefix = 'tidemark-soak:';
   const store = new RedisStore({ redis: redis.url, prefix });
-  const tm = createTidemark({ store, tenant: 'soak', secret: 'soak-bench', outbox: { max: 100_000, retryMs: 100, maxRetryMs: 1000 } });
+  const tm = createTidemark({ store, tenant: 'soak', secret: 'soak-bench', outbox: { max: outboxMax } });
   const names = Array.from({ length: sessions }, (_, i) => `soak-${i}`);
   const hashes = new Map(names.map((s) => [tm.hashSession('soak', s), s]));
   const convo = scripts(sessions, 50, 31);
@@ -239,8 +246,14 @@ export default async function main(argv: string[]): Promise<void> {
   await Promise.all(
     Array.from({ length: concurrency }, async (_, w) => {
       let round = 0;
+      let op = 0;
+      const periodMs = (1000 * concurrency) / rate;
       while (performance.now() < end) {
         for (let i = w; i < sessions && performance.now() < end; i += concurrency) {
+          const due = t0 + (w / concurrency + op++) * periodMs;
+          const wait = due - performance.now();
+          if (wait > 0) await new Promise((res) => setTimeout(res, wait));
+          if (performance.now() >= end) break;
           const session = names[i]!;
           const hash = tm.hashSession('soak', session);
           const sc = convo[i]!;
@@ -321,9 +334,12 @@ export default async function main(argv: string[]): Promise<void> {
     duplicated_writes: duplicated,
     restart_at_s: restartAt,
     down_ms: downMs,
+    offered_ops_per_s: rate,
+    outbox_max: outboxMax,
     turns_per_s: Math.round((counts.turns + counts.batches) / elapsed),
   };
-  console.log(`soak: ${f.seconds} s of mixed load on a throwaway redis-server (SIGKILL at ${restartAt} s, restarted after ${downMs} ms${restarted ? '' : ' — restart did not happen'}), ${sessions} sessions, concurrency ${concurrency}`);
+  console.log(`soak: ${f.seconds} s of mixed load (${rate} ops/s offered: 75% streamed turns, 20% plain reads, 5% batch writes) on a throwaway redis-server`);
+  console.log(`(AOF fsync always; SIGKILL at ${restartAt} s, restarted after ${downMs} ms${restarted ? '' : ' — the restart did not happen'}), ${sessions} sessions, ${concurrency} users in flight, outbox max ${outboxMax}`);
   console.log(asciiTable(['figure', 'value'], [
     ['streamed turns / plain reads / batch writes', `${f.turns} / ${f.reads} / ${f.batch_writes}`],
     ['writes acknowledged (committed + queued)', `${f.acknowledged_writes} (${f.committed_directly} + ${f.queued_in_outbox})`],

@@ -27,6 +27,8 @@ export { MemoryStore, memoryStore, MEMORY_STORE_DEFAULTS } from './store/memory.
 export type { MemoryStoreOptions } from './store/memory.js';
 
 export type { Archive, ArchiveMatch } from './archive/archive.js';
+export { createArchive, ARCHIVE_DEFAULTS } from './archive/index.js';
+export type { ArchiveOptions } from './archive/index.js';
 
 export type { Extractor, Candidate } from './memory/extract.js';
 export { RuleExtractor } from './memory/extract.js';

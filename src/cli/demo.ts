@@ -55,7 +55,7 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
 
   let recalled = '';
   const chat = tm.wrap((input, ctx) => {
-    recalled = describeRecall(ctx.memory.items);
+    recalled = `[${ctx.memory.trace.result.replace('_', ' ')}] ${describeRecall(ctx.memory.items)}`;
     return demoHandler(input, ctx);
   });
   say(bold('tidemark demo — Spoke & Sprocket Cycles booking assistant'));

@@ -1024,8 +1024,8 @@ function slotItem(table: SlotTable, i: number, a: AttentionResult): RecallItem {
 }
 
 /**
- * One softmax over the merged slot and archive items, so their weights compare on one scale. The
- * order is kept: it already puts live successors above what they superseded.
+ * One softmax over the merged slot and archive items, so their weights compare on one scale, then
+ * rank by weight — except that a superseded value never stands above its successor.
  */
 function reweight(items: RecallItem[], tau: number): void {
   let max = -Infinity;
@@ -1034,6 +1034,18 @@ function reweight(items: RecallItem[], tau: number): void {
   const e = items.map((i) => Math.exp((i.score - max) / tau));
   for (const v of e) sum += v;
   items.forEach((i, n) => (i.weight = e[n]! / sum));
+  items.sort((a, b) => b.weight - a.weight);
+  for (let n = 0; n < items.length; n++) {
+    const it = items[n]!;
+    if (it.reason !== 'superseded' || !it.successor) continue;
+    const s = items.findIndex((x) => x.id === it.successor);
+    if (s > n) {
+      // Move the superseded item to just after its successor.
+      items.splice(n, 1);
+      items.splice(s, 0, it);
+      n--;
+    }
+  }
 }
 
 /** normalize(a + mix * b) as a new vector. */
