@@ -224,13 +224,13 @@ export async function openBackend(kind: StoreKind, redisUrl: string): Promise<Ba
     },
     async bytesOf(store, sessions) {
       const rs = store as RedisStore;
-      let total = 0;
-      await Promise.all(
-        sessions.map(async (s) => {
+      const each = await Promise.all(
+        sessions.map((s) => {
           const keys = rs.sessionKeys(TENANT, s).all;
-          total += Number(await c.eval(MEMORY_OF_KEYS, keys.length, ...keys));
+          return c.eval(MEMORY_OF_KEYS, keys.length, ...keys);
         }),
       );
+      const total = each.reduce<number>((a, v) => a + Number(v), 0);
       return { bytes: Math.round(total / Math.max(1, sessions.length)), method: `MEMORY USAGE summed over each session's keys, mean of ${sessions.length} sessions` };
     },
     cleanup: (prefix) => (prefix ? deletePrefix(c, prefix) : Promise.resolve(0)),
@@ -392,6 +392,8 @@ interface IdleFigures {
   memory_usage_total_mb: number;
   used_memory_delta_mb: number;
   used_memory_delta_bytes_per_session: number;
+  /** MEMORY USAGE per session by key (meta, slots, events, arch, alog), mean over the sample. */
+  bytes_by_key: Record<string, number>;
   keys_deleted: number;
   used_memory_after_delete_delta_mb: number;
 }
@@ -467,6 +469,11 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const after = await usedMemory(client);
   const sample = Array.from({ length: Math.min(1000, count) }, (_, n) => `idle-${Math.floor((n * count) / Math.min(1000, count))}`);
   const bytes = await backend.bytesOf(store, sample);
+  const byKey: Record<string, number> = {};
+  for (const part of ['meta', 'slots', 'events', 'arch', 'alog'] as const) {
+    const each = await Promise.all(sample.map((s) => client.call('MEMORY', 'USAGE', (store as RedisStore).sessionKeys(TENANT, s)[part], 'SAMPLES', '0')));
+    byKey[part] = Math.round(each.reduce<number>((a, v) => a + Number(v ?? 0), 0) / sample.length);
+  }
   await store.close();
   const deleted = await backend.cleanup(prefix);
   const afterDelete = await usedMemory(client);
@@ -479,6 +486,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
     sessions_per_s: Math.round(count / seconds),
     memory_usage_bytes_per_session: bytes.bytes,
     memory_usage_total_mb: round((bytes.bytes * count) / 2 ** 20, 1),
+    bytes_by_key: byKey,
     used_memory_delta_mb: round((after - before) / 2 ** 20, 1),
     used_memory_delta_bytes_per_session: Math.round((after - before) / count),
     keys_deleted: deleted,
@@ -518,6 +526,7 @@ export default async function main(argv: string[]): Promise<void> {
         ['sessions/s (pipelined commits)', f.sessions_per_s],
         ['MEMORY USAGE per session (B)', f.memory_usage_bytes_per_session],
         ['MEMORY USAGE x sessions (MB)', f.memory_usage_total_mb],
+        ['  of which per key (B)', Object.entries(f.bytes_by_key).map(([k, v]) => `${k} ${v}`).join(', ')],
         ['INFO used_memory delta (MB)', f.used_memory_delta_mb],
         ['used_memory delta per session (B)', f.used_memory_delta_bytes_per_session],
         ['keys deleted afterwards', f.keys_deleted],

@@ -10,7 +10,7 @@ import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { STOPWORDS, tokenize } from './text.js';
-import { dot } from './vector.js';
+import { dot, pushTopK } from './vector.js';
 
 /** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
 export interface AttentionResult {
@@ -124,10 +124,13 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
     if (w > topWeight) topWeight = w;
     if (w > 0) entropy -= w * Math.log(w);
   }
-  const relevant = (i: number): boolean => cosine[i]! >= p.minCosine || lexicalRaw[i]! >= p.minLexical;
+  // Keep the k best relevant slots by weight (ties by cosine) without sorting all of them.
   const order: number[] = [];
-  for (let i = 0; i < cap; i++) if (table.isUsed(i) && relevant(i)) order.push(i);
-  order.sort((a, b) => weight[b]! - weight[a]! || cosine[b]! - cosine[a]!);
+  const orderKey: number[] = [];
+  for (let i = 0; i < cap; i++) {
+    if (!table.isUsed(i) || (cosine[i]! < p.minCosine && lexicalRaw[i]! < p.minLexical)) continue;
+    pushTopK(order, orderKey, i, weight[i]! + cosine[i]! * 1e-12, p.k);
+  }
   const selected: number[] = [];
   let mass = 0;
   for (const i of order) {
