@@ -6,21 +6,11 @@
 import type { ArchiveMatch } from '../src/archive/archive.js';
 import { ExactArchive } from '../src/archive/exact.js';
 import { HNSW_ARCHIVE_DEFAULTS, HnswArchive } from '../src/archive/hnsw.js';
+import { rng as prng } from './lib/stats.js';
 
 const DIM = 384;
 const K = 10;
 
-/** mulberry32: a small seeded 32-bit PRNG (common practice for reproducible benchmarks). */
-function prng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** `n` random unit vectors, uniform on the sphere (normalised Gaussians, Box–Muller), in one buffer. */
 function unitVectors(n: number, dim: number, seed: number): Float32Array {

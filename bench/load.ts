@@ -471,7 +471,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const bytes = await backend.bytesOf(store, sample);
   const byKey: Record<string, number> = {};
   for (const part of ['meta', 'slots', 'events', 'arch', 'alog'] as const) {
-    const each = await Promise.all(sample.map((s) => client.call('MEMORY', 'USAGE', (store as RedisStore).sessionKeys(TENANT, s)[part], 'SAMPLES', '0')));
+    const each = await Promise.all(sample.map((s) => client.eval(MEMORY_OF_KEYS, 1, (store as RedisStore).sessionKeys(TENANT, s)[part])));
     byKey[part] = Math.round(each.reduce<number>((a, v) => a + Number(v ?? 0), 0) / sample.length);
   }
   await store.close();

@@ -4,17 +4,9 @@
 // value after an update; only the updating turn is expected). Deterministic for a given seed.
 // `npm run bench -- scenario --out DIR [--seed N] [--sessions N]` writes transcript.jsonl + probes.jsonl.
 
-/** mulberry32: a small seeded 32-bit PRNG (common practice for reproducible benchmarks). */
-export function prng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+import { rng } from './stats.js';
+/** mulberry32, seeded (see bench/lib/stats.ts). */
+export const prng = rng;
 
 export interface ScenarioOptions {
   /** @default 7 */

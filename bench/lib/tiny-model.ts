@@ -6,6 +6,7 @@ import { mkdir, writeFile } from 'node:fs/promises';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import type { onnx as OnnxTypes } from 'onnx-proto';
+import { rng as mulberry32 } from './stats.js';
 
 const { onnx } = onnxProto;
 
@@ -46,17 +47,6 @@ const WORDS = [
 const CHARS = 'abcdefghijklmnopqrstuvwxyz0123456789'.split('');
 const PUNCT = ['.', ',', '?', '!', "'", '-', ':', ';'];
 
-/** mulberry32, a small seeded PRNG (common practice for reproducible test data). */
-function mulberry32(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function buildVocab(): Map<string, number> {
   const tokens = [...SPECIALS, ...WORDS, ...CHARS, ...CHARS.map((c) => '##' + c), ...PUNCT];

@@ -1,18 +1,10 @@
 // Test helpers for the archive suites: seeded random unit vectors and recall@k against exact search.
 
 import type { ArchiveMatch } from '../../src/archive/archive.js';
+import { rng } from '../../bench/lib/stats.js';
+/** mulberry32, seeded (see bench/lib/stats.ts). */
+export const prng = rng;
 
-/** mulberry32, a small seeded 32-bit PRNG (common practice for reproducible test data). */
-export function prng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** `n` unit vectors uniform on the sphere: normalised standard Gaussians (Box–Muller). */
 export function unitVectors(n: number, dim: number, seed: number): Float32Array[] {
