@@ -43,6 +43,8 @@ export interface WritePlanInput {
   candidates: KeyedCandidate[];
   /** Revision ids of slots the turn's read used; they are reinforced. */
   reinforce: readonly string[];
+  /** Archive items the turn's read used: they are promoted back into working memory. */
+  promote?: readonly ArchiveItem[];
   /** Makes a fresh revision id. */
   newId: () => string;
 }
@@ -75,6 +77,8 @@ export interface WritePlan {
   outcomes: CandidateOutcome[];
   evictions: Eviction[];
   reinforced: Array<{ slot: number; id: string; strength: number; halfLife: number }>;
+  /** Archive items moved back into slots (the caller deletes them from the archive after the commit). */
+  promoted: Array<{ slot: number; id: string }>;
   /** Used slots after the plan is applied. */
   slotsInUse: number;
 }
@@ -90,7 +94,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const cap = table.capacity;
   const dim = table.dim;
   const pending = new Map<number, SlotRecord | null>();
-  const plan: WritePlan = { ops: [], archive: [], events: [], outcomes: [], evictions: [], reinforced: [], slotsInUse: 0 };
+  const plan: WritePlan = { ops: [], archive: [], events: [], outcomes: [], evictions: [], reinforced: [], promoted: [], slotsInUse: 0 };
 
   const used = (i: number): boolean => (pending.has(i) ? pending.get(i) !== null : table.isUsed(i));
   const record = (i: number): SlotRecord | null => (pending.has(i) ? pending.get(i)! : table.get(i));
@@ -158,6 +162,40 @@ export function planWrite(input: WritePlanInput): WritePlan {
       plan.reinforced.push({ slot: i, id: rec.id, strength: r.strength, halfLife: r.halfLife });
       plan.events.push({ type: 'reinforce', slot: i, id: rec.id, clock: now, atMs: nowMs });
     }
+  }
+
+  // Allocation: a free slot, else evict the weakest non-pinned slot; -1 when every slot is pinned.
+  const allocate = (): number => {
+    for (let i = 0; i < cap; i++) if (!used(i)) return i;
+    let weakest = -1;
+    let weakestS = Infinity;
+    for (let i = 0; i < cap; i++) {
+      if (pinned(i)) continue;
+      const s = strengthNow(i);
+      if (s < weakestS) {
+        weakestS = s;
+        weakest = i;
+      }
+    }
+    if (weakest >= 0) evict(weakest, 'capacity');
+    return weakest;
+  };
+
+  // 2b. Promote archive items the read used back into working memory, reinforced as a use.
+  for (const item of input.promote ?? []) {
+    let live = false;
+    for (let i = 0; i < cap && !live; i++) live = used(i) && idAt(i) === item.id;
+    if (live || item.key.length !== dim) continue;
+    const slot = allocate();
+    if (slot < 0) break;
+    const r = reinforce(item.strength, item.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
+    set(slot, {
+      id: item.id, key: item.key, keyText: item.keyText, value: item.value, provenance: item.provenance.slice(),
+      strength: Math.max(r.strength, p.strengthFloor * 2), halfLife: r.halfLife, stamp: now, created: now,
+      createdMs: item.createdMs, updatedMs: nowMs, reads: 1, pinned: false,
+    });
+    plan.promoted.push({ slot, id: item.id });
+    plan.events.push({ type: 'allocate', slot, id: item.id, clock: now, atMs: nowMs });
   }
 
   // 3. Write each candidate: gate, address, overwrite or allocate.
@@ -275,32 +313,11 @@ export function planWrite(input: WritePlanInput): WritePlan {
       plan.events.push({ type: 'overwrite', slot: target, id, clock: now, atMs: nowMs });
       return;
     }
-    // Allocate: a free slot, else evict the weakest non-pinned slot.
-    let slot = -1;
-    for (let i = 0; i < cap; i++) {
-      if (!used(i)) {
-        slot = i;
-        break;
-      }
-    }
+    const slot = allocate();
     if (slot < 0) {
-      let weakest = -1;
-      let weakestS = Infinity;
-      for (let i = 0; i < cap; i++) {
-        if (pinned(i)) continue;
-        const s = strengthNow(i);
-        if (s < weakestS) {
-          weakestS = s;
-          weakest = i;
-        }
-      }
-      if (weakest < 0) {
-        // Every slot is pinned: nothing may be displaced.
-        plan.outcomes.push({ ...base, outcome: 'gated_out', slot: -1 });
-        return;
-      }
-      evict(weakest, 'capacity');
-      slot = weakest;
+      // Every slot is pinned: nothing may be displaced.
+      plan.outcomes.push({ ...base, outcome: 'gated_out', slot: -1 });
+      return;
     }
     const id = input.newId();
     set(slot, {

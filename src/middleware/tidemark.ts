@@ -70,6 +70,11 @@ export interface TidemarkOptions extends MemoryParamsInput {
   outbox?: OutboxOptions;
   /** Embeddings cached (LRU entries). @default 10000 */
   embedCacheSize?: number;
+  /**
+   * Move archive items a read used (an archive hit with at least `reinforceMinWeight`) back into a
+   * slot at the next write, and out of the archive. @default true
+   */
+  promote?: boolean;
   /** In wrap(), slots recalled with at least this attention weight count as used and are reinforced. @default 0.1 */
   reinforceMinWeight?: number;
   /**
@@ -94,6 +99,7 @@ export const TIDEMARK_DEFAULTS: {
   embedCacheSize: number;
   reinforceMinWeight: number;
   valueMix: number;
+  promote: boolean;
 } = {
   tenant: 'default',
   maxTextBytes: 32 * 1024,
@@ -106,6 +112,7 @@ export const TIDEMARK_DEFAULTS: {
   embedCacheSize: 10_000,
   reinforceMinWeight: 0.1,
   valueMix: 0.5,
+  promote: true,
 };
 
 /** What a wrapped handler receives besides its input. */
@@ -120,6 +127,8 @@ export type WrapInput = TurnInput & Record<string, unknown>;
 export interface WriteOptions {
   /** Revision ids of slots the turn's read used; they are reinforced. */
   reinforce?: readonly string[];
+  /** Ids of archive items the turn's read returned and used; they move back into slots. */
+  promote?: readonly string[];
 }
 
 /** What one write did. */
@@ -194,6 +203,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   /** Tail of each session's write chain: writes of one session apply in order. */
   private readonly queues = new Map<string, Promise<void>>();
   private readonly outbox: OutboxEntry[] = [];
+  /** Archive items recently returned by reads, per session, so a write can promote them (bounded). */
+  private readonly recentArchive = new Map<string, Map<string, ArchiveItem>>();
   private drainTimer: NodeJS.Timeout | undefined;
   private drainDelay: number;
   private draining: Promise<void> | undefined;
@@ -206,7 +217,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     this.params = resolveMemoryParams(options);
     const o = {
       ...TIDEMARK_DEFAULTS,
-      ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize', 'reinforceMinWeight', 'valueMix']),
+      ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize', 'reinforceMinWeight', 'valueMix', 'promote']),
       outbox: { ...TIDEMARK_DEFAULTS.outbox, ...options.outbox },
       prompt: { ...PROMPT_DEFAULTS, ...options.prompt },
     };
@@ -258,6 +269,15 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   usedBy(memory: MemoryContext): string[] {
     if (memory.trace.result !== 'hit') return [];
     return memory.items.filter((i) => i.source === 'slot' && i.weight >= this.o.reinforceMinWeight).map((i) => i.id);
+  }
+
+  /**
+   * Ids of archive items a read counts as used, for `write(..., { promote })`: on an archive hit, the
+   * current (not superseded) archive items with at least `reinforceMinWeight`. wrap() does this itself.
+   */
+  promotedBy(memory: MemoryContext): string[] {
+    if (!this.o.promote || memory.trace.result !== 'archive_hit') return [];
+    return memory.items.filter((i) => i.source === 'archive' && i.reason !== 'superseded' && i.weight >= this.o.reinforceMinWeight).map((i) => i.id);
   }
 
   /** Writes waiting for the store. */
@@ -429,6 +449,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       .sort((a, b) => b.w - a.w)
       .forEach((k) => {
         const it = k.hit.item;
+        this.rememberArchiveHit(ref, it);
         const item: RecallItem = {
           source: 'archive', id: it.id, key: it.keyText, value: it.value, provenance: it.provenance.slice(),
           weight: k.w, score: k.z, cosine: k.hit.cosine, lexical: k.lex, strength: it.strength, reason: it.reason,
@@ -482,14 +503,18 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         throw new InputError(ErrorCodes.INPUT_FIELD, 'all turns of one write call must belong to one session; call write once per session', { details: { field: 'session' } });
       }
     }
-    return this.enqueue(refOf(first), list, [...(options.reinforce ?? [])]);
+    return this.enqueue(refOf(first), list, [...(options.reinforce ?? [])], [...(options.promote ?? [])]);
   }
 
-  private enqueue(ref: SessionRef, turns: Turn[], reinforce: string[]): Promise<WriteReport> {
+  private enqueue(ref: SessionRef, turns: Turn[], reinforce: string[], promote: string[] = []): Promise<WriteReport> {
     const key = keyOf(ref);
     const prev = this.queues.get(key) ?? Promise.resolve();
     const commitId = randomUUID();
-    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce, commitId));
+    // Resolve promoted ids to the archive items the read saw; conflict re-plans reuse them, a write
+    // that goes to the outbox commits without promoting (promotion is an optimisation, not a fact).
+    const recent = this.recentArchive.get(key);
+    const items = promote.map((id) => recent?.get(id)).filter((x): x is ArchiveItem => x !== undefined);
+    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce, commitId, items));
     const tail = job.then(
       () => undefined,
       () => undefined,
@@ -501,12 +526,12 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     return job;
   }
 
-  private async commitOrQueue(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string): Promise<WriteReport> {
+  private async commitOrQueue(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string, promote: ArchiveItem[] = []): Promise<WriteReport> {
     const key = keyOf(ref);
     // Keep a session's writes in order: once one waits in the outbox, later ones queue behind it.
     if (this.outbox.some((e) => e.key === key)) return this.toOutbox(ref, turns, reinforce, 0, commitId);
     try {
-      return await this.commitTurns(ref, turns, reinforce, commitId);
+      return await this.commitTurns(ref, turns, reinforce, commitId, promote);
     } catch (err) {
       if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
         this.emitError('write', err, ref);
@@ -572,7 +597,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   }
 
   /** Extract, embed, plan and commit with reload-and-redo on version conflicts. */
-  private async commitTurns(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string = randomUUID()): Promise<WriteReport> {
+  private async commitTurns(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string = randomUUID(), promote: readonly ArchiveItem[] = []): Promise<WriteReport> {
     const extracted: Array<{ turn: Turn; candidates: KeyedCandidate['candidate'][] }> = [];
     for (const t of turns) {
       const skip = t.role !== 'user' && !(t.role === 'assistant' && this.o.writeReplies);
@@ -621,6 +646,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         ...(ref.user ? { user: ref.user } : {}),
         candidates: keyed,
         reinforce,
+        promote,
         newId: newRevisionId,
       });
       if (resize && resize.evictions.length > 0) {
@@ -651,6 +677,13 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         continue;
       }
       this.emitWrite(ref, plan, table.capacity, clock);
+      if (plan.promoted.length > 0) {
+        // Out of the archive now that it is back in a slot; a failure leaves a duplicate that reads
+        // de-duplicate by id, so it is reported but not fatal.
+        const ids = plan.promoted.map((x) => x.id);
+        this.store.deleteArchive(scopeOf(ref), ids).catch((err) => this.emitError('store', err, ref));
+        this.recentArchive.get(keyOf(ref))?.clear();
+      }
       const report: WriteReport = {
         allocated: 0, overwritten: 0, reinforced: plan.reinforced.length, gatedOut: 0, evicted: plan.evictions.length,
         committed: true, version: res.version, turns: ids,
@@ -733,6 +766,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         memory = this.degradedRead(turn, 'read', err, 0);
       }
       const used = this.usedBy(memory);
+      const promote = this.promotedBy(memory);
       const ref = refOf(turn);
       const after = (text: string, end: ReplyEnd): void => {
         const turns = [turn];
@@ -742,7 +776,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
           if (this.o.onAbort === 'none') return;
           if (this.o.onAbort === 'all' && reply) turns.push(reply);
         }
-        this.enqueue(ref, turns, used).catch(() => {
+        this.enqueue(ref, turns, used, promote).catch(() => {
           // Already reported through the error event; a reply is never failed by its memory write.
         });
       };
@@ -798,11 +832,25 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       if (e.ref.tenant !== tenant) continue;
       if ('user' in t ? e.ref.user === t.user : e.ref.session === t.session) this.outbox.splice(i, 1);
     }
-    // Cached vectors are keyed by digests, but they derive from the erased text: drop them all.
+    // Cached vectors are keyed by digests, but they derive from the erased text: drop them all, and
+    // the archive items remembered for promotion.
     this.cache.clear();
+    this.recentArchive.clear();
     if ('session' in t) await this.announceErased({ tenant, session: t.session });
     const report = await this.storeCall(() => this.store.erase(t), 'erase');
     return report;
+  }
+
+  private rememberArchiveHit(ref: SessionRef, item: ArchiveItem): void {
+    if (!this.o.promote) return;
+    const key = keyOf(ref);
+    let m = this.recentArchive.get(key);
+    if (!m) {
+      if (this.recentArchive.size >= 1000) this.recentArchive.delete(this.recentArchive.keys().next().value as string);
+      this.recentArchive.set(key, (m = new Map()));
+    }
+    m.set(item.id, item);
+    if (m.size > 32) m.delete(m.keys().next().value as string);
   }
 
   /** Emits `evict` (reason `erased`, not archived) for each slot of a session about to be erased. */
