@@ -184,7 +184,8 @@ const singular = (w: string): string => (w.length > 4 && /[^s]s$/.test(w) ? w.sl
 function bookingKey(sentence: string): string {
   const subject = /\b(?:the|my|our)\s+((?:[\p{L}]+\s+){0,2}?[\p{L}]+)\s+(?:is|was|got|has been)\s+(?:booked|scheduled|reserved|moved|rescheduled)\b/iu.exec(sentence);
   if (subject) return `my booking (${singular(subject[1]!.split(/\s+/).pop()!.toLowerCase())})`;
-  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change)\s+(?:in\s+)?(?:(?:a|an|the|my|our|another)\s+)?([\p{L}]+)/iu.exec(sentence);
+  // Skip a few common adjectives so "book a full service" is keyed by "service", not "full".
+  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change)\s+(?:in\s+)?(?:(?:a|an|the|my|our|another)\s+)?(?:(?:full|quick|basic|new|short|long|small|big|first|second|annual|regular|private|group)\s+)?([\p{L}]+)/iu.exec(sentence);
   if (object && !/^(?:it|that|this|them|for|on|at|in|to|me|us)$/i.test(object[1]!)) return `my booking (${singular(object[1]!.toLowerCase())})`;
   const noun = /\b(appointment|delivery|lessons?|class|visit|pickup|collection|reservation|session)\b/i.exec(sentence);
   return noun ? `my booking (${singular(noun[1]!.toLowerCase())})` : 'my booking';
