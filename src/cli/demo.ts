@@ -59,7 +59,7 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
     return demoHandler(input, ctx);
   });
   say(bold('tidemark demo — Spoke & Sprocket Cycles booking assistant'));
-  say(dim(`one customer over a week; ${options.capacity ?? 6} memory slots; built-in offline embedder`));
+  say(dim(`one customer over a week; ${options.capacity ?? 6} memory slots; embedder ${tm.embedder.id}`));
   let n = 0;
   for (const turn of DEMO_CONVERSATION) {
     n++;

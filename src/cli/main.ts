@@ -36,9 +36,17 @@ program
   .command('demo', { isDefault: true })
   .description('run the bike workshop booking conversation and show what memory does on each turn')
   .option('--capacity <n>', 'memory slots for the demo session', int('--capacity'), 6)
-  .action(async (o: { capacity: number }) => {
+  .option('--model <path>', 'embed with a transformer model from this local folder (needs @xenova/transformers)')
+  .action(async (o: { capacity: number; model?: string }) => {
     const { runDemo } = await import('./demo.js');
-    const r = await runDemo({ capacity: o.capacity });
+    let embedder;
+    if (o.model) {
+      // Loaded only when asked for: the core never imports the transformers adapter.
+      const { transformersEmbedder } = await import('../../adapters/transformers/index.js');
+      embedder = transformersEmbedder({ model: o.model });
+      await embedder.warmup();
+    }
+    const r = await runDemo({ capacity: o.capacity, ...(embedder ? { tidemark: { embedder } } : {}) });
     if (!r.friday) process.exitCode = 1;
   });
 
