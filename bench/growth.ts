@@ -49,13 +49,20 @@ interface Point {
   baseline_us: number;
   tidemark_p95_us: number;
   baseline_p95_us: number;
+  /** tidemark's read alone (median µs); the rest of the turn is the write. */
+  tidemark_read_us: number;
+  /** Share of tidemark's reads that also searched the archive (a slot miss). */
+  archive_searched: number;
   slots_in_use: number;
   archive_items: number;
   baseline_items: number;
 }
 
-async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<void> {
+/** One exchange through tidemark; returns the read's share (µs) and whether it searched the archive. */
+async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<{ readUs: number; archive: boolean }> {
+  const t0 = performance.now();
   const ctx = await tm.read({ session: SESSION, text: x.user });
+  const readUs = (performance.now() - t0) * 1000;
   await tm.write(
     [
       { session: SESSION, text: x.user, turn: `u${n}` },
@@ -63,6 +70,7 @@ async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<void>
     ],
     { reinforce: ctx.items.filter((i) => i.source === 'slot').map((i) => i.id) },
   );
+  return { readUs, archive: ctx.trace.archiveSearched };
 }
 
 async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n: number, x: Exchange): Promise<void> {
@@ -104,15 +112,20 @@ async function measure(lengths: readonly number[], window: number, seed: number)
     const archive = (await store.listArchive(scopeOf({ tenant: tm.tenant, session: SESSION }), 10_000_000)).length;
     const kept = base.itemsKept() - warm.length;
     const tUs = new Float64Array(window);
+    const rUs = new Float64Array(window);
     const bUs = new Float64Array(window);
+    let searched = 0;
     for (let w = 0; w < window; w++, n++) {
       const x = convo[n]!;
       // Alternate which goes first, so neither always runs on a warmer cache.
       const order = w % 2 === 0;
       for (const which of order ? ['t', 'b'] : ['b', 't']) {
         const t0 = performance.now();
-        if (which === 't') await tidemarkTurn(tm, n, x);
-        else await baselineTurn(base, emb, n, x);
+        if (which === 't') {
+          const r = await tidemarkTurn(tm, n, x);
+          rUs[w] = r.readUs;
+          if (r.archive) searched++;
+        } else await baselineTurn(base, emb, n, x);
         (which === 't' ? tUs : bUs)[w] = (performance.now() - t0) * 1000;
       }
     }
@@ -122,6 +135,8 @@ async function measure(lengths: readonly number[], window: number, seed: number)
       baseline_us: round(percentile(bUs, 50), 1),
       tidemark_p95_us: round(percentile(tUs, 95), 1),
       baseline_p95_us: round(percentile(bUs, 95), 1),
+      tidemark_read_us: round(percentile(rUs, 50), 1),
+      archive_searched: round(searched / window, 2),
       slots_in_use: snap?.table.count() ?? 0,
       archive_items: archive,
       baseline_items: kept,
@@ -152,8 +167,11 @@ export default async function main(argv: string[]): Promise<void> {
   const p = runs[0]!;
   console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
   console.log(asciiTable(
-    ['history (exchanges)', 'tidemark µs', 'p95', 'flat baseline µs', 'p95', 'slots', 'archive', 'baseline turns'],
-    lengths.map((l, i) => [l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, baseline[i]!, med((x) => x.baseline_p95_us)[i]!, p[i]!.slots_in_use, p[i]!.archive_items, p[i]!.baseline_items]),
+    ['history (exchanges)', 'tidemark µs', 'p95', 'of which read', 'flat baseline µs', 'p95', 'slots', 'archive', 'archive searched', 'baseline turns'],
+    lengths.map((l, i) => [
+      l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, med((x) => x.tidemark_read_us)[i]!, baseline[i]!, med((x) => x.baseline_p95_us)[i]!,
+      p[i]!.slots_in_use, p[i]!.archive_items, `${Math.round(100 * med((x) => x.archive_searched)[i]!)}%`, p[i]!.baseline_items,
+    ]),
   ));
   console.log(`ratio ${lengths[last]} / ${lengths[0]}: tidemark ${ratio} (target <= 1.5), flat baseline ${baselineRatio}`);
   const svg = lineChart({

@@ -255,7 +255,7 @@ export default async function main(argv: string[]): Promise<void> {
     ],
   });
   const out = { connections, seconds, sessions, off, on, added_latency_ms: added, throughput_ratio: round(on.requests_per_s / off.requests_per_s, 3), runs, load: loadAverage(), machine: machine() };
-  const paths = writeResult('http', out, svg, ['http', ...argv]);
+  const paths = writeResult(`http-c${connections}`, out, svg, ['http', ...argv]);
   console.log(`wrote ${paths.json} and ${paths.svg}`);
   if (args.flags.has('json')) console.log(JSON.stringify(out));
 }

@@ -1,5 +1,6 @@
 // `npm run bench -- load --store memory|redis|cluster --sessions N --turns M --concurrency C [--json]`:
 // simulated users on many sessions, each turn read -> streamed reply -> write, through `tm.wrap()`.
+// `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).
 // `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun).
 // Figures: turns/s, read/write/turn p50/p95/p99 (HDR-style histograms), errors, RSS, bytes per session.
 //
@@ -171,7 +172,23 @@ function tableBytes(t: SlotTable): number {
   return b;
 }
 
-export async function openBackend(kind: StoreKind, redisUrl: string): Promise<Backend> {
+/**
+ * ioredis 5.11 with `enableAutoPipelining` throws (TypeError in Command, uncaught) on
+ * `callBuffer('evalsha', [args])`, which the store's runScript uses; `evalshaBuffer(...args)` works.
+ * For the what-if run only, this client sends the store's script calls through the typed methods.
+ */
+function routeScriptsForAutoPipelining(client: RedisClient): void {
+  const c = client as unknown as Record<string, (...a: unknown[]) => Promise<unknown>>;
+  const orig = c.callBuffer!.bind(client);
+  c.callBuffer = (cmd: unknown, args: unknown) => {
+    if (Array.isArray(args) && cmd === 'evalsha') return c.evalshaBuffer!.call(client, ...args);
+    if (Array.isArray(args) && cmd === 'eval') return c.evalBuffer!.call(client, ...args);
+    return orig(cmd, args);
+  };
+}
+
+/** `autoPipeline` turns on ioredis `enableAutoPipelining` (commands of one tick share one socket write). */
+export async function openBackend(kind: StoreKind, redisUrl: string, autoPipeline = false): Promise<Backend> {
   if (kind === 'memory') {
     return {
       kind,
@@ -200,7 +217,7 @@ export async function openBackend(kind: StoreKind, redisUrl: string): Promise<Ba
   let stopCluster = false;
   const clusterScript = new URL('../scripts/redis-cluster.sh', import.meta.url).pathname;
   if (kind === 'redis') {
-    client = new Redis(redisUrl, { ...REDIS_CLIENT_OPTIONS });
+    client = new Redis(redisUrl, { ...REDIS_CLIENT_OPTIONS, enableAutoPipelining: autoPipeline });
   } else {
     let ports: string;
     try {
@@ -210,9 +227,10 @@ export async function openBackend(kind: StoreKind, redisUrl: string): Promise<Ba
       stopCluster = true;
     }
     const seeds = ports.trim().split(/\s+/).filter(Boolean).map((p) => ({ host: '127.0.0.1', port: Number(p) }));
-    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS });
+    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, enableAutoPipelining: autoPipeline });
   }
   client.on('error', () => undefined);
+  if (autoPipeline) routeScriptsForAutoPipelining(client);
   await waitReady(client);
   const c = client;
   return {
@@ -516,7 +534,8 @@ export default async function main(argv: string[]): Promise<void> {
   const redisUrl = args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
   const capacity = num('capacity', 64);
   const progress = process.stderr.isTTY === true && !json;
-  const backend = await openBackend(kind, redisUrl);
+  const autoPipeline = args.flags.has('auto-pipeline');
+  const backend = await openBackend(kind, redisUrl, autoPipeline);
   try {
     if (args.values.has('idle')) {
       const f = await idleRun(backend, num('idle', 100_000), num('idle-turns', 10), capacity, progress);
@@ -579,8 +598,8 @@ export default async function main(argv: string[]): Promise<void> {
       groups: ['read', 'write', 'turn'],
       series: (['p50', 'p95', 'p99'] as const).map((p) => ({ name: p, values: [f.read_us[p], f.write_us[p], f.turn_us[p]] })),
     });
-    const out = { ...f, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99 })), load: loadAverage(), machine: machine() };
-    const paths = writeResult(`load-${kind}`, out, svg, ['load', ...argv]);
+    const out = { ...f, auto_pipeline: autoPipeline, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99 })), load: loadAverage(), machine: machine() };
+    const paths = writeResult(`load-${kind}${autoPipeline ? '-autopipeline' : ''}`, out, svg, ['load', ...argv]);
     console.log(`wrote ${paths.json} and ${paths.svg}`);
     if (json) console.log(JSON.stringify(out));
   } finally {

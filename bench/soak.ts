@@ -12,7 +12,7 @@ import { join } from 'node:path';
 import { progressBar } from '../src/cli/progress.js';
 import { ErrorCodes } from '../src/errors.js';
 import { createTidemark, TIDEMARK_DEFAULTS, type WrapInput } from '../src/middleware/tidemark.js';
-import { asciiTable, barChart, writeResult } from './lib/results.js';
+import { asciiTable, lineChart, writeResult } from './lib/results.js';
 import { prng } from './lib/scenario.js';
 import { loadAverage, scripts, words } from './load.js';
 import { machine, parseArgs, round } from './lib/stats.js';
@@ -240,6 +240,17 @@ export default async function main(argv: string[]): Promise<void> {
     await redis.restart();
     restarted = true;
   })();
+  // A timeline every 250 ms: outbox depth, and writes acknowledged / reads degraded per second.
+  const timeline: Array<{ t: number; outbox: number; acked_per_s: number; degraded_per_s: number }> = [];
+  let lastAcked = 0;
+  let lastDegraded = 0;
+  const sampler = setInterval(() => {
+    const ackedNow = counts.direct + counts.queued;
+    timeline.push({ t: round((performance.now() - t0) / 1000, 2), outbox: tm.outboxDepth, acked_per_s: (ackedNow - lastAcked) * 4, degraded_per_s: (degraded - lastDegraded) * 4 });
+    lastAcked = ackedNow;
+    lastDegraded = degraded;
+  }, 250);
+  sampler.unref();
   const bar = process.stderr.isTTY && !json ? progressBar(seconds * 10, 'soak', process.stderr, 1) : { tick: () => undefined, done: () => undefined };
   const ticker = setInterval(() => bar.tick(Math.min(seconds * 10, Math.round((performance.now() - t0) / 100))), 100);
   ticker.unref();
@@ -292,6 +303,7 @@ export default async function main(argv: string[]): Promise<void> {
     }),
   );
   clearInterval(ticker);
+  clearInterval(sampler);
   bar.done();
   const elapsed = (performance.now() - t0) / 1000;
   await restart;
@@ -350,12 +362,15 @@ export default async function main(argv: string[]): Promise<void> {
     ['lost writes (messages; must be 0)', f.lost_writes],
     ['duplicated writes (messages)', f.duplicated_writes],
   ]));
-  const svg = barChart({
-    title: `soak: ${f.seconds} s, Redis SIGKILL + restart at ${restartAt} s`, yLabel: 'count (log scale)', logY: true,
-    groups: ['acknowledged', 'queued', 'degraded reads', 'outbox peak', 'lost'],
-    series: [{ name: 'soak', values: [f.acknowledged_writes, f.queued_in_outbox, f.degraded_reads, f.outbox_peak, f.lost_writes] }],
+  const svg = lineChart({
+    title: `soak: Redis SIGKILL at ${restartAt} s, back after ${downMs} ms; lost writes ${f.lost_writes}`, xLabel: 'seconds', yLabel: 'count', markers: false,
+    series: [
+      { name: 'outbox depth', x: timeline.map((p) => p.t), y: timeline.map((p) => p.outbox) },
+      { name: 'acked writes/s', x: timeline.map((p) => p.t), y: timeline.map((p) => p.acked_per_s) },
+      { name: 'degraded reads/s', x: timeline.map((p) => p.t), y: timeline.map((p) => p.degraded_per_s) },
+    ],
   });
-  const out = { ...f, load: loadAverage(), machine: machine() };
+  const out = { ...f, timeline: timeline.filter((_, i) => i % 2 === 0), load: loadAverage(), machine: machine() };
   const paths = writeResult('soak', out, svg, ['soak', ...argv]);
   console.log(`wrote ${paths.json} and ${paths.svg}`);
   if (json) console.log(JSON.stringify(out));

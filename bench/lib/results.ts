@@ -79,8 +79,8 @@ export interface LineSeries {
   y: readonly number[];
 }
 
-/** A line plot with markers; log scales on request (both axes positive then). */
-export function lineChart(o: { title: string; xLabel: string; yLabel: string; series: readonly LineSeries[]; logX?: boolean; logY?: boolean }): string {
+/** A line plot, with markers unless `markers: false`; log scales on request (both axes positive then). */
+export function lineChart(o: { title: string; xLabel: string; yLabel: string; series: readonly LineSeries[]; logX?: boolean; logY?: boolean; markers?: boolean }): string {
   const xs = o.series.flatMap((s) => s.x);
   const ys = o.series.flatMap((s) => s.y).filter(Number.isFinite);
   const tx = o.logX ? Math.log10 : (v: number) => v;
@@ -105,7 +105,7 @@ export function lineChart(o: { title: string; xLabel: string; yLabel: string; se
     const c = COLOURS[i % COLOURS.length]!;
     const pts = s.x.map((x, n) => [px(x), py(s.y[n]!)] as const).filter(([, y]) => Number.isFinite(y));
     parts.push(`<polyline fill="none" stroke="${c}" stroke-width="2" points="${pts.map(([x, y]) => `${x.toFixed(1)},${y.toFixed(1)}`).join(' ')}"/>`);
-    for (const [x, y] of pts) parts.push(`<circle cx="${x.toFixed(1)}" cy="${y.toFixed(1)}" r="3.5" fill="${c}"/>`);
+    if (o.markers !== false) for (const [x, y] of pts) parts.push(`<circle cx="${x.toFixed(1)}" cy="${y.toFixed(1)}" r="3.5" fill="${c}"/>`);
   });
   parts.push(legend(o.series.map((s) => s.name)));
   return frame(o.title, parts.join('\n'));
