@@ -42,6 +42,8 @@ export interface OutboxOptions {
   retryMs?: number;
   /** @default 10000 */
   maxRetryMs?: number;
+  /** Sessions drained at once after an outage (each session's writes stay in order). @default 16 */
+  concurrency?: number;
 }
 
 export interface TidemarkOptions extends MemoryParamsInput {
@@ -108,7 +110,7 @@ export const TIDEMARK_DEFAULTS: {
   onAbort: 'user',
   readTimeoutMs: 1000,
   commitRetries: 16,
-  outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000 },
+  outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000, concurrency: 16 },
   embedCacheSize: 10_000,
   reinforceMinWeight: 0.1,
   valueMix: 0.5,
@@ -228,6 +230,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     intOpt('outbox.max', o.outbox.max, 0, 10_000_000);
     intOpt('outbox.retryMs', o.outbox.retryMs, 1, 3_600_000);
     intOpt('outbox.maxRetryMs', o.outbox.maxRetryMs, o.outbox.retryMs, 3_600_000);
+    intOpt('outbox.concurrency', o.outbox.concurrency, 1, 1024);
     intOpt('embedCacheSize', o.embedCacheSize, 0, 10_000_000);
     intOpt('prompt.tokenBudget', o.prompt.tokenBudget, 0, 1_000_000);
     if (typeof o.valueMix !== 'number' || !(o.valueMix >= 0 && o.valueMix <= 1)) {
@@ -422,7 +425,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     // Fetch more than needed so the lexical re-rank and the superseded filter have room.
     const hits = await this.store.searchArchive(scopeOf(ref), q, p.archiveK * 4);
     if (hits.length === 0) return [];
-    const stats = hits.map((h) => docStats(tokenize(`${h.item.keyText} ${h.item.value}`).filter((w) => !STOPWORDS.has(w))));
+    const stats = hits.map((h) => archiveDocStats(h.item));
     const raw = new Float64Array(hits.length);
     bm25Scores(terms, stats, raw);
     let maxLex = 0;
@@ -566,28 +569,43 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     this.drainTimer.unref?.();
   }
 
-  /** Commits outbox entries in order; stops at the first store failure and backs off. */
+  /**
+   * Commits outbox entries: in order within a session, several sessions at a time (up to
+   * `outbox.concurrency`), so a backlog after an outage drains in seconds rather than one round trip
+   * at a time. Stops at the first store failure and backs off.
+   */
   private drain(): Promise<void> {
     if (this.draining) return this.draining;
     this.draining = (async () => {
-      try {
-        while (this.outbox.length > 0) {
-          const entry = this.outbox[0]!;
+      let failed = false;
+      const busy = new Set<string>();
+      const worker = async (): Promise<void> => {
+        while (!failed) {
+          // The first entry of a session that is not in flight is that session's oldest.
+          const entry = this.outbox.find((e) => !busy.has(e.key));
+          if (!entry) return;
+          busy.add(entry.key);
           try {
             await this.commitTurns(entry.ref, entry.turns, entry.reinforce, entry.commitId);
           } catch (err) {
             if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
               entry.attempts++;
-              this.drainDelay = Math.min(this.o.outbox.maxRetryMs, this.drainDelay * 2);
+              failed = true;
+              busy.delete(entry.key);
               return;
             }
             // Not a connectivity problem: retrying cannot help. Report it; never drop silently.
             this.emitError('outbox', err, entry.ref);
           }
-          this.outbox.shift();
-          this.drainDelay = this.o.outbox.retryMs;
+          const at = this.outbox.indexOf(entry);
+          if (at >= 0) this.outbox.splice(at, 1);
+          busy.delete(entry.key);
           this.emit('outbox', { depth: this.outbox.length, change: 'drained', sessionHash: this.hashSession(entry.ref.tenant, entry.ref.session) });
         }
+      };
+      try {
+        await Promise.all(Array.from({ length: this.o.outbox.concurrency }, worker));
+        this.drainDelay = failed ? Math.min(this.o.outbox.maxRetryMs, this.drainDelay * 2) : this.o.outbox.retryMs;
       } finally {
         this.draining = undefined;
         this.scheduleDrain();
@@ -1094,6 +1112,15 @@ function reweight(items: RecallItem[], tau: number): void {
       n--;
     }
   }
+}
+
+// BM25 statistics of archive items, computed once per item object (stores hand out the same objects
+// between changes); held weakly, so an erased item takes its tokens with it.
+const archiveStats = new WeakMap<ArchiveItem, ReturnType<typeof docStats>>();
+function archiveDocStats(item: ArchiveItem): ReturnType<typeof docStats> {
+  let st = archiveStats.get(item);
+  if (!st) archiveStats.set(item, (st = docStats(tokenize(`${item.keyText} ${item.value}`).filter((w) => !STOPWORDS.has(w)))));
+  return st;
 }
 
 /** normalize(a + mix * b) as a new vector. */
