@@ -14,7 +14,7 @@ import { machine, parseArgs, percentile, rng, round } from './lib/stats.js';
 
 const DIM = 384;
 const NAMES = ['Dana', 'Ravi', 'Mei', 'Tomasz', 'Aoife', 'Kwame', 'Lucia', 'Jonas', 'Priya', 'Omar'];
-const THINGS = ['bike', 'fern', 'monstera', 'lesson', 'booking', 'order', 'chain', 'saddle', 'pot', 'course', 'tyre', 'cactus'];
+const THINGS = ['bike', 'fern', 'monstera', 'lesson', 'booking', 'order', 'chain', 'saddle', 'pot', 'class', 'tyre', 'cactus'];
 const DAYS = ['Monday', 'Tuesday', 'Wednesday', 'Thursday', 'Friday', 'Saturday'];
 
 /** Invented turns in the bike workshop / plant nursery / language tutor scenarios. */

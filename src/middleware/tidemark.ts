@@ -323,7 +323,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     }
     const table = snap?.table;
     if (table && table.dim !== this.embedder.dim) throw this.dimError(ref, table.dim);
-    const now = this.clockFor(snap, turn.atMs, false);
+    const now = this.clockFor(snap, turn.atMs);
     const terms = queryTerms(turn.text);
     let items: RecallItem[] = [];
     let att: AttentionResult | undefined;
@@ -896,7 +896,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   async inspect(session: string, tenant = this.tenant, options: { user?: string; archiveLimit?: number; eventLimit?: number } = {}): Promise<SessionView> {
     const ref: SessionRef = { tenant: checkId('tenant', tenant), session: checkId('session', session), ...(options.user ? { user: checkId('user', options.user) } : {}) };
     const snap = await this.storeCall(() => this.store.load(ref), 'load');
-    const now = this.clockFor(snap, Date.now(), false);
+    const now = this.clockFor(snap, Date.now());
     const slots: SlotView[] = [];
     if (snap) {
       const t = snap.table;
@@ -981,7 +981,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     return validateTurn(input, { tenant: this.tenant, maxTextBytes: this.o.maxTextBytes, truncate: this.o.truncate });
   }
 
-  private clockFor(snap: SessionSnapshot | null, atMs: number, _advance: boolean): number {
+  private clockFor(snap: SessionSnapshot | null, atMs: number): number {
     if (this.params.decayUnit === 'seconds') return Math.max(snap?.clock ?? 0, atMs / 1000);
     return snap?.clock ?? 0;
   }
