@@ -205,6 +205,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   /** Tail of each session's write chain: writes of one session apply in order. */
   private readonly queues = new Map<string, Promise<void>>();
   private readonly outbox: OutboxEntry[] = [];
+  /** The snapshot each session's last read loaded, for its write to plan on (bounded, used once). */
+  private readonly lastRead = new Map<string, SessionSnapshot>();
   /** Archive items recently returned by reads, per session, so a write can promote them (bounded). */
   private readonly recentArchive = new Map<string, Map<string, ArchiveItem>>();
   private drainTimer: NodeJS.Timeout | undefined;
@@ -321,6 +323,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     } catch (err) {
       return this.degradedRead(turn, 'read', err, usSince(t0));
     }
+    if (snap) this.rememberSnapshot(ref, snap);
     const table = snap?.table;
     if (table && table.dim !== this.embedder.dim) throw this.dimError(ref, table.dim);
     const now = this.clockFor(snap, turn.atMs);
@@ -631,7 +634,10 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     const embedUs = usSince(e0);
     let planUs = 0;
     for (let attempt = 0; attempt <= this.o.commitRetries; attempt++) {
-      const snap = await this.storeCall(() => this.store.load(ref), 'load');
+      // First attempt: plan on the snapshot this turn's read just loaded, saving a round trip; the
+      // commit's version check makes a stale one harmless (a conflict reloads and plans again).
+      const cached = attempt === 0 ? this.takeSnapshot(ref) : undefined;
+      const snap = cached ?? (await this.storeCall(() => this.store.load(ref), 'load'));
       if (snap && snap.table.dim !== this.embedder.dim) throw this.dimError(ref, snap.table.dim);
       const p0 = performance.now();
       let table = snap?.table ?? new SlotTable(this.params.capacity, this.embedder.dim);
@@ -854,9 +860,25 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     // the archive items remembered for promotion.
     this.cache.clear();
     this.recentArchive.clear();
+    this.lastRead.clear();
     if ('session' in t) await this.announceErased({ tenant, session: t.session });
     const report = await this.storeCall(() => this.store.erase(t), 'erase');
     return report;
+  }
+
+  private rememberSnapshot(ref: SessionRef, snap: SessionSnapshot): void {
+    const key = keyOf(ref);
+    this.lastRead.delete(key);
+    if (this.lastRead.size >= 10_000) this.lastRead.delete(this.lastRead.keys().next().value as string);
+    this.lastRead.set(key, snap);
+  }
+
+  /** The snapshot the session's last read loaded, once (undefined when none). */
+  private takeSnapshot(ref: SessionRef): SessionSnapshot | undefined {
+    const key = keyOf(ref);
+    const snap = this.lastRead.get(key);
+    if (snap) this.lastRead.delete(key);
+    return snap;
   }
 
   private rememberArchiveHit(ref: SessionRef, item: ArchiveItem): void {
