@@ -7,7 +7,7 @@ import type { Embedder } from '../embed/embedder.js';
 import { ConfigError, describeValue } from '../errors.js';
 import { queryTerms } from '../memory/attention.js';
 import { bm25Scores, docStats, type DocStats } from '../memory/bm25.js';
-import { STOPWORDS, tokenize } from '../memory/text.js';
+import { contentWords } from '../memory/text.js';
 import type { Role } from '../types.js';
 
 export type BaselineSpec = { kind: 'window'; size: number } | { kind: 'flat' };
@@ -68,7 +68,7 @@ export class TurnBaseline {
     const v = vec ?? (await this.o.embedder.embed([turn.text]))[0]!;
     let docs = this.sessions.get(turn.session);
     if (!docs) this.sessions.set(turn.session, (docs = []));
-    docs.push({ turn: turn.turn, vec: v, stats: docStats(tokenize(turn.text).filter((w) => !STOPWORDS.has(w))) });
+    docs.push({ turn: turn.turn, vec: v, stats: docStats(contentWords(turn.text)) });
     if (docs.length > this.limit) docs.shift();
   }
 

@@ -9,7 +9,7 @@ import { bm25Scores, docStats, type DocStats } from './bm25.js';
 import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
-import { STOPWORDS, tokenize } from './text.js';
+import { STOPWORDS, contentWords, tokenize } from './text.js';
 import { dot, pushTopK } from './vector.js';
 
 /** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
@@ -39,6 +39,11 @@ export function queryTerms(text: string): string[] {
   return content.length > 0 ? content : words;
 }
 
+/** BM25 statistics of a slot's (or archive item's) text: the content words of its key and value. */
+export function textStats(keyText: string, value: string): DocStats {
+  return docStats(contentWords(`${keyText} ${value}`));
+}
+
 interface LexEntry {
   ids: string[];
   stats: Array<DocStats | null>;
@@ -63,7 +68,7 @@ export function slotDocStats(table: SlotTable): Array<DocStats | null> {
     }
     if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
       e.ids[i] = table.ids[i]!;
-      e.stats[i] = docStats(tokenize(`${table.keyText[i]} ${table.value[i]}`).filter((w) => !STOPWORDS.has(w)));
+      e.stats[i] = textStats(table.keyText[i]!, table.value[i]!);
     }
   }
   return e.stats;

@@ -88,6 +88,35 @@ const CORRECTION_WINDOW = 8;
 
 const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
+/** A slot record as the archive item it becomes when it leaves working memory. */
+export function archiveItemOf(
+  rec: SlotRecord,
+  where: { tenant: string; session: string; user?: string },
+  reason: ArchiveReason,
+  strength: number,
+  clock: number,
+  archivedMs: number,
+  successor?: string,
+): ArchiveItem {
+  return {
+    id: rec.id,
+    tenant: where.tenant,
+    session: where.session,
+    ...(where.user ? { user: where.user } : {}),
+    key: rec.key,
+    keyText: rec.keyText,
+    value: rec.value,
+    provenance: rec.provenance.slice(),
+    reason,
+    strength,
+    halfLife: rec.halfLife,
+    clock,
+    createdMs: rec.createdMs,
+    archivedMs,
+    ...(successor ? { successor } : {}),
+  };
+}
+
 /** Plans the changes of one turn. Pure: reads `table`, returns operations. */
 export function planWrite(input: WritePlanInput): WritePlan {
   const { table, now, nowMs, params: p } = input;
@@ -118,23 +147,9 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const set = (i: number, rec: SlotRecord | null): void => {
     pending.set(i, rec);
   };
-  const toArchive = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): ArchiveItem => ({
-    id: rec.id,
-    tenant: input.tenant,
-    session: input.session,
-    ...(input.user ? { user: input.user } : {}),
-    key: rec.key,
-    keyText: rec.keyText,
-    value: rec.value,
-    provenance: rec.provenance.slice(),
-    reason,
-    strength,
-    halfLife: rec.halfLife,
-    clock: now,
-    createdMs: rec.createdMs,
-    archivedMs: nowMs,
-    ...(successor ? { successor } : {}),
-  });
+  const where = { tenant: input.tenant, session: input.session, ...(input.user ? { user: input.user } : {}) };
+  const toArchive = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): ArchiveItem =>
+    archiveItemOf(rec, where, reason, strength, now, nowMs, successor);
   const evict = (i: number, reason: EvictReason): void => {
     const rec = record(i)!;
     const s = strengthNow(i);

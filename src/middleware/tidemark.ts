@@ -18,15 +18,14 @@ import {
   describeValue,
   isTidemarkError,
 } from '../errors.js';
-import { attend, nextQuery, queryTerms, type AttentionResult } from '../memory/attention.js';
+import { attend, nextQuery, queryTerms, textStats, type AttentionResult } from '../memory/attention.js';
 import { bm25Scores, docStats } from '../memory/bm25.js';
 import { decayed } from '../memory/decay.js';
 import { RuleExtractor, type Extractor } from '../memory/extract.js';
 import { resolveMemoryParams, type MemoryParams, type MemoryParamsInput } from '../memory/params.js';
 import { PROMPT_DEFAULTS, renderPrompt, type PromptOptions } from '../memory/prompt.js';
 import { SlotTable } from '../memory/slots.js';
-import { STOPWORDS, tokenize } from '../memory/text.js';
-import { planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
+import { archiveItemOf, planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
 import { MemoryStore, scopeOf } from '../store/memory.js';
 import type { CommitRequest, EraseReport, SessionSnapshot, SlotOp, Store } from '../store/store.js';
 import type { ArchiveHit, ArchiveItem, MemoryContext, ReadTrace, RecallItem, SessionRef, SlotRecord, StoredEvent, TurnInput } from '../types.js';
@@ -514,13 +513,17 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
 
   private enqueue(ref: SessionRef, turns: Turn[], reinforce: string[], promote: string[] = []): Promise<WriteReport> {
     const key = keyOf(ref);
-    const prev = this.queues.get(key) ?? Promise.resolve();
     const commitId = randomUUID();
     // Resolve promoted ids to the archive items the read saw; conflict re-plans reuse them, a write
     // that goes to the outbox commits without promoting (promotion is an optimisation, not a fact).
     const recent = this.recentArchive.get(key);
     const items = promote.map((id) => recent?.get(id)).filter((x): x is ArchiveItem => x !== undefined);
-    const job = prev.then(() => this.commitOrQueue(ref, turns, reinforce, commitId, items));
+    return this.chain(key, () => this.commitOrQueue(ref, turns, reinforce, commitId, items));
+  }
+
+  /** Runs `fn` after the session's previous write settles; writes of one session apply in order. */
+  private chain<T>(key: string, fn: () => Promise<T>): Promise<T> {
+    const job = (this.queues.get(key) ?? Promise.resolve()).then(fn);
     const tail = job.then(
       () => undefined,
       () => undefined,
@@ -1031,9 +1034,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     change: (snap: SessionSnapshot) => { ops: SlotOp[]; events: StoredEvent[]; dim?: number } | Promise<{ ops: SlotOp[]; events: StoredEvent[]; dim?: number }>,
     allowDimChange = false,
   ): Promise<void> {
-    const key = keyOf(ref);
-    const prev = this.queues.get(key) ?? Promise.resolve();
-    const job = prev.then(async () => {
+    return this.chain(keyOf(ref), async () => {
       for (let attempt = 0; attempt <= this.o.commitRetries; attempt++) {
         const snap = await this.storeCall(() => this.store.load(ref), 'load');
         if (!snap) throw new InputError(ErrorCodes.INPUT_ID, 'no such session in this tenant', { details: { field: 'session' } });
@@ -1051,12 +1052,6 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       }
       throw new StoreError(ErrorCodes.STORE_CONFLICT, `session kept changing under ${this.o.commitRetries + 1} attempts`);
     });
-    const tail = job.then(() => undefined, () => undefined);
-    this.queues.set(key, tail);
-    void tail.then(() => {
-      if (this.queues.get(key) === tail) this.queues.delete(key);
-    });
-    return job;
   }
 
   private base(ref: SessionRef): { sessionHash: string; tenant: string; atMs: number } {
@@ -1141,7 +1136,7 @@ function reweight(items: RecallItem[], tau: number): void {
 const archiveStats = new WeakMap<ArchiveItem, ReturnType<typeof docStats>>();
 function archiveDocStats(item: ArchiveItem): ReturnType<typeof docStats> {
   let st = archiveStats.get(item);
-  if (!st) archiveStats.set(item, (st = docStats(tokenize(`${item.keyText} ${item.value}`).filter((w) => !STOPWORDS.has(w)))));
+  if (!st) archiveStats.set(item, (st = textStats(item.keyText, item.value)));
   return st;
 }
 
@@ -1196,12 +1191,7 @@ function resizeTable(table: SlotTable, capacity: number, now: number): { table: 
     table: next,
     ops,
     evictions,
-    archive: (ref, clock) =>
-      evictions.map(({ record: r, strength }) => ({
-        id: r.id, tenant: ref.tenant, session: ref.session, ...(ref.user ? { user: ref.user } : {}), key: r.key, keyText: r.keyText,
-        value: r.value, provenance: r.provenance, reason: 'capacity' as const, strength, halfLife: r.halfLife,
-        clock, createdMs: r.createdMs, archivedMs: Date.now(),
-      })),
+    archive: (ref, clock) => evictions.map(({ record: r, strength }) => archiveItemOf(r, ref, 'capacity', strength, clock, Date.now())),
   };
 }
 

@@ -1,6 +1,5 @@
 // The shared conformance suite every Store runs (in-process, Redis, Redis Cluster): call
-// `storeConformance(name, factory)` from a *.test.ts file. A store that cannot support a case must
-// pass `skip` with the case name and a reason; the reason is printed in the test name.
+// `storeConformance(name, factory)` from a *.test.ts file. Every case runs for every store.
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { SlotTable } from '../../src/memory/slots.js';
@@ -10,8 +9,6 @@ import type { ArchiveItem, SessionRef, SlotRecord } from '../../src/types.js';
 export interface ConformanceOptions {
   /** Allowed absolute error per key component after a round trip (int8 payloads quantise). */
   keyTolerance?: number;
-  /** Case names to skip, each with its reason. */
-  skip?: Record<string, string>;
   /** Tenant prefix so parallel suites on one server never collide. */
   tenant?: string;
 }
@@ -84,13 +81,11 @@ export function commitOf(over: Partial<CommitRequest>): CommitRequest {
 
 export function storeConformance(name: string, factory: () => Promise<Store>, options: ConformanceOptions = {}): void {
   const tol = options.keyTolerance ?? 1e-6;
-  const skip = options.skip ?? {};
   const tenantBase = options.tenant ?? `conf-${name}-${process.pid}-${Date.now().toString(36)}`;
   let counter = 0;
   const fresh = (user?: string): SessionRef => ({ tenant: tenantBase, session: `s${++counter}`, ...(user ? { user } : {}) });
   const test = (caseName: string, fn: () => Promise<void>): void => {
-    if (skip[caseName]) it.skip(`${caseName} (skipped: ${skip[caseName]})`, fn);
-    else it(caseName, fn);
+    it(caseName, fn);
   };
   const expectSlot = (table: SlotTable, i: number, want: SlotRecord): void => {
     const got = table.get(i);
