@@ -1,17 +1,18 @@
 // `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--repeat R] [--json]`: the cost
 // of one turn against the length of a session's history, for tidemark and for the full-history
-// baseline (`flat` from src/cli/baselines.ts: every user turn kept and ranked exhaustively with the same
+// baseline (`flat` from src/cli/baselines.ts: every turn kept and ranked exhaustively with the same
 // embedder, cosine + BM25), measured side by side in one run on one growing session each.
 // A turn is read + write for tidemark (as in `core`), query + add for the baseline; both embed the
 // query with the built-in embedder behind a cache (tidemark's own; a memo for the baseline), so the
-// curves differ by what each keeps and scans. tidemark should stay flat (slots are bounded; the
-// archive is searched by nearest neighbour), the baseline grows with every turn kept.
+// curves differ by how each searches. Both keep every turn; tidemark's logbook answers from an
+// inverted index (cost grows with the postings of the query's words, not with the history), the
+// baseline scans every turn.
 
 import type { Embedder } from '../src/embed/embedder.js';
 import { HashingEmbedder } from '../src/embed/hashing.js';
 import { TurnBaseline } from '../src/cli/baselines.js';
 import { createTidemark, type Tidemark } from '../src/middleware/tidemark.js';
-import { MemoryStore, scopeOf } from '../src/store/memory.js';
+import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';
 import { generateScenario } from './lib/scenario.js';
 import { loadAverage } from './load.js';
@@ -51,15 +52,16 @@ interface Point {
   baseline_p95_us: number;
   /** tidemark's read alone (median µs); the rest of the turn is the write. */
   tidemark_read_us: number;
-  /** Share of tidemark's reads that also searched the archive (a slot miss). */
-  archive_searched: number;
+  /** tidemark's logbook search alone (median µs, part of the read). */
+  tidemark_search_us: number;
   slots_in_use: number;
-  archive_items: number;
+  /** Logbook entries of the session (every turn, plus values that left working memory). */
+  logbook_entries: number;
   baseline_items: number;
 }
 
-/** One exchange through tidemark; returns the read's share (µs) and whether it searched the archive. */
-async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<{ readUs: number; archive: boolean }> {
+/** One exchange through tidemark; returns the read's share (µs) and the logbook search's. */
+async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<{ readUs: number; searchUs: number }> {
   const t0 = performance.now();
   const ctx = await tm.read({ session: SESSION, text: x.user });
   const readUs = (performance.now() - t0) * 1000;
@@ -68,9 +70,9 @@ async function tidemarkTurn(tm: Tidemark, n: number, x: Exchange): Promise<{ rea
       { session: SESSION, text: x.user, turn: `u${n}` },
       { session: SESSION, text: x.reply, role: 'assistant', turn: `a${n}` },
     ],
-    { reinforce: ctx.items.filter((i) => i.source === 'slot').map((i) => i.id) },
+    { reinforce: tm.usedBy(ctx, x.reply) },
   );
-  return { readUs, archive: ctx.trace.archiveSearched };
+  return { readUs, searchUs: ctx.trace.searchUs };
 }
 
 async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n: number, x: Exchange): Promise<void> {
@@ -84,7 +86,7 @@ async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n
 async function measure(lengths: readonly number[], window: number, seed: number): Promise<Point[]> {
   const convo = conversation(lengths[lengths.length - 1]! + window * lengths.length + 10, seed);
   const embedder = new HashingEmbedder({ dim: 384 });
-  const store = new MemoryStore();
+  const store = new InProcessStore();
   const tm = createTidemark({ store, embedder, secret: 'growth-bench' });
   const emb = memoized(embedder);
   const base = new TurnBaseline({ kind: 'flat' }, { embedder: emb });
@@ -109,12 +111,12 @@ async function measure(lengths: readonly number[], window: number, seed: number)
     }
     // Snapshot the history's size where the window starts.
     const snap = await store.load({ tenant: tm.tenant, session: SESSION });
-    const archive = (await store.listArchive(scopeOf({ tenant: tm.tenant, session: SESSION }), 10_000_000)).length;
+    const entries = (await store.listLogbook(scopeOf({ tenant: tm.tenant, session: SESSION }), { limit: 10_000_000 })).length;
     const kept = base.itemsKept() - warm.length;
     const tUs = new Float64Array(window);
     const rUs = new Float64Array(window);
     const bUs = new Float64Array(window);
-    let searched = 0;
+    const sUs = new Float64Array(window);
     for (let w = 0; w < window; w++, n++) {
       const x = convo[n]!;
       // Alternate which goes first, so neither always runs on a warmer cache.
@@ -124,7 +126,7 @@ async function measure(lengths: readonly number[], window: number, seed: number)
         if (which === 't') {
           const r = await tidemarkTurn(tm, n, x);
           rUs[w] = r.readUs;
-          if (r.archive) searched++;
+          sUs[w] = r.searchUs;
         } else await baselineTurn(base, emb, n, x);
         (which === 't' ? tUs : bUs)[w] = (performance.now() - t0) * 1000;
       }
@@ -136,9 +138,9 @@ async function measure(lengths: readonly number[], window: number, seed: number)
       tidemark_p95_us: round(percentile(tUs, 95), 1),
       baseline_p95_us: round(percentile(bUs, 95), 1),
       tidemark_read_us: round(percentile(rUs, 50), 1),
-      archive_searched: round(searched / window, 2),
+      tidemark_search_us: round(percentile(sUs, 50), 1),
       slots_in_use: snap?.table.count() ?? 0,
-      archive_items: archive,
+      logbook_entries: entries,
       baseline_items: kept,
     });
   }
@@ -167,10 +169,10 @@ export default async function main(argv: string[]): Promise<void> {
   const p = runs[0]!;
   console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
   console.log(asciiTable(
-    ['history (exchanges)', 'tidemark µs', 'p95', 'of which read', 'flat baseline µs', 'p95', 'slots', 'archive', 'archive searched', 'baseline turns'],
+    ['history (exchanges)', 'tidemark µs', 'p95', 'of which read', 'of which search', 'flat baseline µs', 'p95', 'slots', 'logbook entries', 'baseline turns'],
     lengths.map((l, i) => [
-      l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, med((x) => x.tidemark_read_us)[i]!, baseline[i]!, med((x) => x.baseline_p95_us)[i]!,
-      p[i]!.slots_in_use, p[i]!.archive_items, `${Math.round(100 * med((x) => x.archive_searched)[i]!)}%`, p[i]!.baseline_items,
+      l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, med((x) => x.tidemark_read_us)[i]!, med((x) => x.tidemark_search_us)[i]!, baseline[i]!,
+      med((x) => x.baseline_p95_us)[i]!, p[i]!.slots_in_use, p[i]!.logbook_entries, p[i]!.baseline_items,
     ]),
   ));
   console.log(`ratio ${lengths[last]} / ${lengths[0]}: tidemark ${ratio} (target <= 1.5), flat baseline ${baselineRatio}`);

@@ -21,7 +21,7 @@ import type { Redis as RedisType } from 'ioredis';
 import { progressBar } from '../src/cli/progress.js';
 import { createTidemark, type Tidemark, type WrapContext, type WrapInput } from '../src/middleware/tidemark.js';
 import type { SlotTable } from '../src/memory/slots.js';
-import { MemoryStore, scopeOf } from '../src/store/memory.js';
+import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import type { CommitRequest, Store } from '../src/store/store.js';
 import type { RedisClient, RedisStore } from '../adapters/redis/index.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
@@ -192,20 +192,20 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
   if (kind === 'memory') {
     return {
       kind,
-      open: async () => ({ store: new MemoryStore() }),
+      open: async () => ({ store: new InProcessStore() }),
       async bytesOf(store, sessions) {
         let total = 0;
         for (const s of sessions) {
           const ref = { tenant: TENANT, session: s };
           const snap = await store.load(ref);
           if (snap) total += tableBytes(snap.table);
-          for (const a of await store.listArchive(scopeOf(ref), 100_000)) {
-            total += 64 + a.key.byteLength + 16 * 5 + a.id.length + a.keyText.length + a.value.length + a.provenance.reduce((x, p) => x + 24 + p.length, 0);
+          for (const a of await store.listLogbook(scopeOf(ref), { limit: 100_000 })) {
+            total += 64 + (a.key?.byteLength ?? 0) + 16 * 5 + a.id.length + a.keyText.length + a.value.length + a.provenance.reduce((x, p) => x + 24 + p.length, 0);
           }
           // Event objects: about 6 fields of 8 B plus headers (from memory, rough).
           total += (await store.readEvents(ref, 100_000)).length * 96;
         }
-        return { bytes: Math.round(total / Math.max(1, sessions.length)), method: 'estimate from slot tables, archive items and events' };
+        return { bytes: Math.round(total / Math.max(1, sessions.length)), method: 'estimate from slot tables, logbook entries and events' };
       },
       cleanup: async () => 0,
       close: async () => undefined,
@@ -435,7 +435,7 @@ async function usedMemory(client: RedisClient): Promise<number> {
 async function idleRun(backend: Backend, count: number, turns: number, capacity: number, progress: boolean): Promise<IdleFigures> {
   if (!backend.client) throw new Error('--idle needs --store redis or --store cluster');
   // Templates: real conversations on the in-process store.
-  const tmpl = new MemoryStore();
+  const tmpl = new InProcessStore();
   const tt = createTidemark({ store: tmpl, tenant: TENANT, capacity });
   const convo = scripts(64, turns, 23);
   for (let i = 0; i < 64; i++) {
@@ -459,7 +459,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
     slots += ops.length;
     reqs.push({
       expectedVersion: 0, clock: snap.clock, turns: snap.turns, capacity: snap.table.capacity, dim: DIM, ops,
-      archive: await tmpl.listArchive(scopeOf(ref), 100_000), events: await tmpl.readEvents(ref, 100_000),
+      logbook: (await tmpl.listLogbook(scopeOf(ref), { limit: 100_000 })).reverse(), events: await tmpl.readEvents(ref, 100_000),
     });
   }
   await tt.close();

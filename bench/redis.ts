@@ -9,7 +9,7 @@ import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Cluster, Redis } from 'ioredis';
 import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS, RedisStore, redisStore } from '../adapters/redis/index.js';
-import { encodeArchive, encodeSlot } from '../adapters/redis/codec.js';
+import { encodeLogbook, encodeSlot } from '../adapters/redis/codec.js';
 import { createTidemark } from '../src/index.js';
 import type { Store } from '../src/store/store.js';
 
@@ -74,16 +74,16 @@ class TimedStore {
             if (self.sized < 200) {
               self.sized++;
               for (const op of req.ops) self.commitBytes += op.slot ? encodeSlot(op.slot, 'int8').payload.length : 1;
-              for (const it of req.archive) self.commitBytes += encodeArchive(it, ref.user, 'int8').length;
+              for (const it of req.logbook) self.commitBytes += encodeLogbook(it, ref.user, 'int8').length;
             }
             const t0 = performance.now();
             try { return await target.commit(ref, req); } finally { self.commits.push(performance.now() - t0); }
           };
         }
-        if (prop === 'searchArchive') {
-          return (...args: Parameters<Store['searchArchive']>) => {
+        if (prop === 'searchLogbook') {
+          return (...args: Parameters<Store['searchLogbook']>) => {
             self.searches++;
-            return target.searchArchive(...args);
+            return target.searchLogbook(...args);
           };
         }
         const v = Reflect.get(target, prop, recv);
@@ -242,9 +242,9 @@ export default async function main(argv: string[]): Promise<void> {
   log(`redis bench: ${CONCURRENCY} sessions in flight, ${CAPACITY} slots x 384 dims (hashing embedder), ${turnsPerSession} turns each, ${url}`);
   const one = await phase('single', single, turnsPerSession);
   log(`single: ${JSON.stringify(one)}`);
-  const item = encodeArchive({
-    id: 'r0123456789ab', tenant: 'bench', session: 'shop-0', key: new Float32Array(384).fill(1 / Math.sqrt(384)), keyText: 'my zobaki',
-    value: 'tevomu', provenance: ['t100'], reason: 'capacity', strength: 0.3, halfLife: 200, clock: 100, createdMs: Date.now(), archivedMs: Date.now(),
+  const item = encodeLogbook({
+    id: 'r0123456789ab', kind: 'capacity', tenant: 'bench', session: 'shop-0', key: new Float32Array(384).fill(1 / Math.sqrt(384)), keyText: 'my zobaki',
+    value: 'tevomu', provenance: ['t100'], strength: 0.3, halfLife: 200, clock: 100, seq: 0, createdMs: Date.now(), atMs: Date.now(),
   }, undefined, 'int8').length;
   const ceil = await ceiling(single, turnsPerSession, one.shape, item);
   // Latency without queueing: one session, turns one after another.

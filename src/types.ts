@@ -10,8 +10,11 @@ export type EvictReason = 'capacity' | 'decayed' | 'expired' | 'erased';
 /** Why an item is in the archive: it was replaced by a newer value, or evicted. */
 export type ArchiveReason = 'superseded' | 'capacity' | 'decayed' | 'expired';
 
-/** Outcome of one read: a working-memory slot matched, only the archive matched, or nothing did. */
-export type ReadResult = 'hit' | 'archive_hit' | 'miss';
+/**
+ * Outcome of one read: the top item is relevant (by the calibrated hit threshold) and is a slot
+ * (`slot`) or a logbook entry (`logbook`), or nothing relevant was found (`miss`).
+ */
+export type ReadResult = 'slot' | 'logbook' | 'miss';
 
 /** Outcome of one candidate write. */
 export type WriteOutcome = 'allocated' | 'overwritten' | 'reinforced' | 'gated_out';
@@ -44,8 +47,11 @@ export interface SessionRef {
   user?: string;
 }
 
-/** Where archive items are kept and searched: one user (across sessions) or one session. */
-export type ArchiveScope = { tenant: string; user: string } | { tenant: string; session: string };
+/** Where logbook entries are kept and searched: one user (across sessions) or one session. */
+export type LogbookScope = { tenant: string; user: string } | { tenant: string; session: string };
+
+/** @deprecated since 0.2: use `LogbookScope`. */
+export type ArchiveScope = LogbookScope;
 
 /**
  * One slot as a record (array-of-structs form), used to move a slot between the core and a store.
@@ -80,34 +86,86 @@ export interface SlotRecord {
   pinned: boolean;
   /** Id of the revision this one replaced, if any. */
   previous?: string;
+  /** Whose fact it is: the speaker who stated it, when turns name their speakers. */
+  owner?: string;
+  /** Written from a bot's own reply (an assistant turn naming no speaker); such a slot never overwrites the user's. */
+  reply?: boolean;
+  /**
+   * An update that could not be tied to one fact: the revision ids of the values it may replace. They
+   * stay in working memory; a read ranks this slot just above each of them (newest first).
+   */
+  maybeReplaces?: string[];
 }
 
-/** An item of the long-term archive: an evicted or superseded slot value. */
-export interface ArchiveItem {
-  /** The slot revision id it carried while in working memory. */
+/**
+ * Why an entry is in the logbook: a turn as it was said (`turn`), or a slot value that left working
+ * memory — replaced by a newer value (`superseded`), or evicted (`capacity`, `decayed`, `expired`).
+ */
+export type LogbookKind = 'turn' | ArchiveReason;
+
+/** A resolved date a turn mentions (see `resolveDates`). */
+export interface MentionedDate {
+  /** The expression as written ("last Saturday"). */
+  text: string;
+  /** `YYYY-MM-DD`, the first day of the period for coarser grains. */
+  day: string;
+  grain: 'day' | 'week' | 'month' | 'year';
+}
+
+/**
+ * One entry of the long-term tier, the logbook: every kept turn with its provenance, speaker and
+ * time, and every value that left working memory. Entries live per user (when the turn carries a
+ * user id) or per session, under the retention policy; erasure removes them all.
+ */
+export interface LogbookEntry {
+  /** Unique within its scope. For a demoted slot value: the revision id it had in working memory. */
   id: string;
+  kind: LogbookKind;
   tenant: string;
   session: string;
   user?: string;
-  key: Float32Array;
-  keyText: string;
+  /** What a read recalls: the turn's text, or the slot's value. */
   value: string;
+  /** The slot's topic for demoted values; empty for turns. */
+  keyText: string;
+  /** Source turn ids, newest first: `[turn]` for a turn entry. */
   provenance: string[];
-  reason: ArchiveReason;
-  /** Strength when it left working memory. */
-  strength: number;
-  halfLife: number;
-  /** Session clock when it left working memory. */
-  clock: number;
+  /** Who said it (turn entries). */
+  role?: Role;
+  speaker?: string;
+  /** Whose fact it is: the speaker a slot value belonged to (demoted values with a speaker). */
+  owner?: string;
+  /** When it was said (turns) or when it left working memory (demoted values), epoch ms. */
+  atMs: number;
+  /** When it was first said (the slot's creation for demoted values), epoch ms. */
   createdMs: number;
-  archivedMs: number;
-  /** For `superseded` items: the revision id that replaced this value. */
+  /** Session clock (turns or seconds) at the write. */
+  clock: number;
+  /** Order of the turn within its session (1, 2, ...); the neighbours of a turn are the turns at seq ± 1. */
+  seq: number;
+  /** Dates the text mentions, resolved against `atMs` (turn entries). */
+  dates?: MentionedDate[];
+  /**
+   * Unit vector: the slot key of a demoted value; for a turn, its text's embedding when the
+   * logbook keeps turn vectors (see `logbook.vectors`).
+   */
+  key?: Float32Array;
+  /** Strength and half-life when it left working memory (demoted values). */
+  strength?: number;
+  halfLife?: number;
+  /** For `superseded` values: the revision id that replaced this one. */
   successor?: string;
 }
 
+/**
+ * @deprecated since 0.2: the archive became the logbook (`LogbookEntry`), which also keeps every turn.
+ * Kept as an alias for one minor version.
+ */
+export type ArchiveItem = LogbookEntry;
+
 /** One nearest-neighbour result from an archive search. */
 export interface ArchiveHit {
-  item: ArchiveItem;
+  item: LogbookEntry;
   cosine: number;
 }
 
@@ -123,49 +181,85 @@ export interface StoredEvent {
 
 /** One item a read returns. */
 export interface RecallItem {
-  /** Where it came from. */
-  source: 'slot' | 'archive';
-  /** Slot index (slot items) or undefined. */
+  /** Which tier it came from: working memory or the logbook. */
+  source: 'slot' | 'logbook';
+  /** `slot`, or the logbook entry's kind (`turn`, `superseded`, `capacity`, `decayed`, `expired`). */
+  kind: 'slot' | LogbookKind;
+  /** Slot index (slot items). */
   slot?: number;
-  /** Revision id of the value. */
+  /** Revision id of a slot value, or the logbook entry's id. */
   id: string;
+  /** The slot's topic (empty for turns). */
   key: string;
+  /** What is recalled: the slot's value, or the turn's text. */
   value: string;
   provenance: string[];
-  /** Attention weight in (0, 1]; slot items' weights come from one softmax. */
+  /** Who said it (turns), whose fact it is (slots and demoted values), when known. */
+  speaker?: string;
+  role?: Role;
+  /** When it was said (turns), epoch ms. */
+  atMs?: number;
+  /** Dates the turn mentions, resolved. */
+  dates?: MentionedDate[];
+  /** Share of this read's total score, in (0, 1]; items' weights sum to 1. */
   weight: number;
-  /** Pre-softmax score z = beta*cos + gamma*lexical + delta*ln(strength). */
+  /** Score in the merged ranking (see `trace`). */
   score: number;
+  /** Cosine to the query (NaN when not computed). */
   cosine: number;
-  /** BM25 score normalised by the best BM25 score of this read, in [0, 1]. */
+  /** Own BM25 score of the item for the query. */
   lexical: number;
-  /** Strength at read time. */
+  /** Own BM25 over the query's maximum: how much of the query the item covers. */
+  coverage: number;
+  /** Strength at read time (slots; 0 for logbook entries). */
   strength: number;
-  /** Archive items only: why it was archived and what replaced it. */
-  reason?: ArchiveReason;
+  /** Why it stands where it does: by score, lifted above a value it replaced, or as an ambiguous update. */
+  placed: 'score' | 'successor' | 'ambiguous';
+  /** Superseded values: what replaced it. */
   successor?: string;
+  /** Ambiguous updates: the revision ids of the values it may replace. */
+  maybeReplaces?: string[];
+  /** @deprecated since 0.2: the logbook kind of a demoted value; use `kind`. */
+  reason?: ArchiveReason;
 }
 
 /** Everything a read did, for logs (no text), debugging and dashboards. */
 export interface ReadTrace {
   result: ReadResult;
-  /** Number of slots scanned. */
+  /** Slots scanned. */
   scanned: number;
+  /** Logbook entries in the scope searched. */
+  logbookSize: number;
   /** Best cosine among slots (or -1 when empty). */
   topCosine: number;
-  /** Largest attention weight. */
+  /** Largest slot attention weight. */
   topWeight: number;
   /** Shannon entropy (nats) of the slot attention weights. */
   entropy: number;
-  /** Hops performed. */
+  /** Slot attention hops performed. */
   hops: number;
-  /** Whether the archive was searched, and how many items it returned. */
-  archiveSearched: boolean;
-  archiveHits: number;
+  /** Coverage of the top item; a hit when it reaches `read.hitCoverage`. */
+  topCoverage: number;
+  /** Speakers of the scope the query names (how many). */
+  speakersNamed: number;
+  /** The query asks when something happened. */
+  temporal: boolean;
+  /** Whether a dense list took part in the ranking. */
+  dense: boolean;
   /** Per-item detail, in rank order (same order as `items`). */
-  items: Array<Pick<RecallItem, 'source' | 'slot' | 'id' | 'cosine' | 'lexical' | 'strength' | 'weight' | 'score' | 'provenance'>>;
+  items: Array<
+    Pick<RecallItem, 'source' | 'kind' | 'slot' | 'id' | 'cosine' | 'lexical' | 'coverage' | 'strength' | 'weight' | 'score' | 'placed' | 'provenance'> & {
+      /** Share of the score from neighbouring turns. */
+      context: number;
+      lexicalRank: number;
+      denseRank: number;
+      speakerMatch: boolean;
+    }
+  >;
   /** Microseconds spent in the read, embedding included. */
   durationUs: number;
+  /** Microseconds of that in the logbook search. */
+  searchUs: number;
 }
 
 /** What a wrapped handler receives as `ctx.memory`. */

@@ -1,15 +1,21 @@
-// Binary payloads of the Redis store: one slot record or one archive item per hash field. Each payload
+// Binary payloads of the Redis store: one slot record or one logbook entry per hash field. Each payload
 // opens with a format version byte, a kind byte and a CRC32 of the rest, so a truncated, tampered or
-// foreign value is reported as corrupt instead of being decoded into wrong memories.
+// foreign value is reported as corrupt instead of being decoded into wrong memories. Format 2 (0.2)
+// adds owners, reply flags, ambiguous-update links and logbook turn entries; format 1 payloads written
+// by 0.1 still decode.
 
 import * as zlib from 'node:zlib';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
-import type { ArchiveItem, ArchiveReason, SlotRecord } from '../../src/types.js';
+import type { ArchiveReason, LogbookEntry, LogbookKind, MentionedDate, Role, SlotRecord } from '../../src/types.js';
 
 /** Bumped when the layout below changes; a reader refuses versions it does not know. */
-export const PAYLOAD_FORMAT = 1;
+export const PAYLOAD_FORMAT = 2;
+/** The 0.1 layout, still read. */
+const PAYLOAD_FORMAT_1 = 1;
 export const KIND_SLOT = 1;
+/** A 0.1 archive item (read only). */
 export const KIND_ARCHIVE = 2;
+export const KIND_LOGBOOK = 3;
 const HEADER = 6; // format(1) kind(1) crc32(4)
 
 export type KeyFormat = 'int8' | 'float32';
@@ -17,6 +23,9 @@ const KEY_FLOAT32 = 0;
 const KEY_INT8 = 1;
 
 const ARCHIVE_REASONS: readonly ArchiveReason[] = ['superseded', 'capacity', 'decayed', 'expired'];
+const LOGBOOK_KINDS: readonly LogbookKind[] = ['turn', 'superseded', 'capacity', 'decayed', 'expired'];
+const ROLES: readonly Role[] = ['user', 'assistant', 'system'];
+const GRAINS: readonly MentionedDate['grain'][] = ['day', 'week', 'month', 'year'];
 
 // CRC-32 (IEEE 802.3 polynomial, reflected 0xEDB88320) — the same checksum as zlib/PNG. Node has
 // `zlib.crc32` from 20.15 and 22.2; older Node 20 releases fall back to the table version below.
@@ -132,7 +141,7 @@ function dequantise(q: Int8Array, scale: number): Float32Array {
 /** Bounds-checked reader; every overrun is a corrupt payload. */
 class Reader {
   pos = HEADER;
-  constructor(readonly buf: Buffer, readonly what: string) {}
+  constructor(readonly buf: Buffer, readonly what: string, readonly format = PAYLOAD_FORMAT) {}
   fail(reason: string): never {
     throw corrupt(this.what, reason);
   }
@@ -201,21 +210,28 @@ export function corrupt(what: string, reason: string): StoreError {
   );
 }
 
-function open(buf: Buffer, kind: number, what: string): Reader {
+function open(buf: Buffer, kind: number, what: string, kinds: readonly number[] = [kind]): Reader {
   if (buf.length < HEADER) throw corrupt(what, 'too short');
-  if (buf[0] !== PAYLOAD_FORMAT) throw corrupt(what, `format version ${buf[0]}, expected ${PAYLOAD_FORMAT}`);
-  if (buf[1] !== kind) throw corrupt(what, `kind ${buf[1]}, expected ${kind}`);
+  if (buf[0] !== PAYLOAD_FORMAT && buf[0] !== PAYLOAD_FORMAT_1) throw corrupt(what, `format version ${buf[0]}, expected ${PAYLOAD_FORMAT}`);
+  if (!kinds.includes(buf[1]!)) throw corrupt(what, `kind ${buf[1]}, expected ${kind}`);
   if (buf.readUInt32LE(2) !== crc32(buf.subarray(HEADER))) throw corrupt(what, 'checksum mismatch');
-  return new Reader(buf, what);
+  return new Reader(buf, what, buf[0]!);
 }
 
 const SLOT_PINNED = 1;
 const SLOT_PREVIOUS = 2;
+const SLOT_OWNER = 4;
+const SLOT_REPLY = 8;
+const SLOT_MAYBE = 16;
 
 /** Encodes a slot; `key` is the vector a reader will get back (quantised when int8). */
 export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffer; key: Float32Array } {
   const w = new Writer(HEADER + 64 + rec.key.length * (format === 'int8' ? 1 : 4) + 4 * (rec.keyText.length + rec.value.length) + 64);
-  w.u8((rec.pinned ? SLOT_PINNED : 0) | (rec.previous !== undefined ? SLOT_PREVIOUS : 0));
+  const maybe = rec.maybeReplaces ?? [];
+  w.u8(
+    (rec.pinned ? SLOT_PINNED : 0) | (rec.previous !== undefined ? SLOT_PREVIOUS : 0) | (rec.owner !== undefined ? SLOT_OWNER : 0) |
+      (rec.reply ? SLOT_REPLY : 0) | (maybe.length > 0 ? SLOT_MAYBE : 0),
+  );
   w.f64(rec.strength);
   w.f64(rec.halfLife);
   w.f64(rec.stamp);
@@ -227,6 +243,11 @@ export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffe
   w.str(rec.keyText);
   w.str(rec.value);
   if (rec.previous !== undefined) w.str(rec.previous);
+  if (rec.owner !== undefined) w.str(rec.owner);
+  if (maybe.length > 0) {
+    w.varint(maybe.length);
+    for (const m of maybe) w.str(m);
+  }
   w.varint(rec.provenance.length);
   for (const p of rec.provenance) w.str(p);
   const key = w.key(rec.key, format);
@@ -247,6 +268,10 @@ export function decodeSlot(buf: Buffer, what: string): SlotRecord {
   const keyText = r.str();
   const value = r.str();
   const previous = flags & SLOT_PREVIOUS ? r.str() : undefined;
+  const v2 = r.format >= 2;
+  const owner = v2 && flags & SLOT_OWNER ? r.str() : undefined;
+  const maybe: string[] = [];
+  if (v2 && flags & SLOT_MAYBE) for (let i = 0, m = r.varint(); i < m; i++) maybe.push(r.str());
   const n = r.varint();
   const provenance: string[] = [];
   for (let i = 0; i < n; i++) provenance.push(r.str());
@@ -257,37 +282,128 @@ export function decodeSlot(buf: Buffer, what: string): SlotRecord {
     pinned: (flags & SLOT_PINNED) !== 0,
   };
   if (previous !== undefined) rec.previous = previous;
+  if (owner !== undefined) rec.owner = owner;
+  if (v2 && flags & SLOT_REPLY) rec.reply = true;
+  if (maybe.length > 0) rec.maybeReplaces = maybe;
   return rec;
+}
+
+const LB_USER = 1;
+const LB_SUCCESSOR = 2;
+const LB_SPEAKER = 4;
+const LB_OWNER = 8;
+const LB_KEY = 16;
+const LB_DATES = 32;
+const LB_ROLE = 64;
+const LB_DEMOTED = 128;
+
+/**
+ * Encodes a logbook entry; `user` is the scope it was committed in (overrides `entry.user`). A turn
+ * entry costs its text plus about 40 bytes (ids, times, seq); a vector is kept only when the entry
+ * carries one (demoted slot values, and turns when the logbook keeps turn vectors).
+ */
+export function encodeLogbook(e: LogbookEntry, user: string | undefined, format: KeyFormat): Buffer {
+  const w = new Writer(HEADER + 64 + (e.key ? e.key.length * (format === 'int8' ? 1 : 4) : 0) + 4 * (e.keyText.length + e.value.length) + 64);
+  const demoted = e.kind !== 'turn';
+  const dates = e.dates ?? [];
+  w.u8(
+    (user !== undefined ? LB_USER : 0) | (e.successor !== undefined ? LB_SUCCESSOR : 0) | (e.speaker !== undefined ? LB_SPEAKER : 0) |
+      (e.owner !== undefined ? LB_OWNER : 0) | (e.key ? LB_KEY : 0) | (dates.length > 0 ? LB_DATES : 0) | (e.role ? LB_ROLE : 0) | (demoted ? LB_DEMOTED : 0),
+  );
+  w.u8(LOGBOOK_KINDS.indexOf(e.kind));
+  w.f64(e.atMs);
+  w.f64(e.createdMs);
+  w.f64(e.clock);
+  w.varint(e.seq);
+  if (demoted) {
+    w.f64(e.strength ?? 0);
+    w.f64(e.halfLife ?? 0);
+  }
+  w.str(e.id);
+  w.str(e.tenant);
+  w.str(e.session);
+  if (user !== undefined) w.str(user);
+  w.str(e.keyText);
+  w.str(e.value);
+  if (e.successor !== undefined) w.str(e.successor);
+  if (e.speaker !== undefined) w.str(e.speaker);
+  if (e.owner !== undefined) w.str(e.owner);
+  if (e.role) w.u8(ROLES.indexOf(e.role));
+  w.varint(e.provenance.length);
+  for (const p of e.provenance) w.str(p);
+  if (dates.length > 0) {
+    w.varint(dates.length);
+    for (const d of dates) {
+      w.str(d.text);
+      w.str(d.day);
+      w.u8(GRAINS.indexOf(d.grain));
+    }
+  }
+  if (e.key) w.key(e.key, format);
+  return w.finish(KIND_LOGBOOK);
+}
+
+/** Decodes a logbook entry, or a 0.1 archive item as the demoted entry it now is. */
+export function decodeLogbook(buf: Buffer, what: string): LogbookEntry {
+  const r = open(buf, KIND_LOGBOOK, what, [KIND_LOGBOOK, KIND_ARCHIVE]);
+  if (buf[1] === KIND_ARCHIVE) return decodeArchiveV1(r);
+  const flags = r.u8();
+  const kind = LOGBOOK_KINDS[r.u8()];
+  if (kind === undefined) r.fail('unknown logbook kind');
+  const atMs = r.f64();
+  const createdMs = r.f64();
+  const clock = r.f64();
+  const seq = r.varint();
+  const demoted = (flags & LB_DEMOTED) !== 0;
+  const strength = demoted ? r.f64() : undefined;
+  const halfLife = demoted ? r.f64() : undefined;
+  const id = r.str();
+  const tenant = r.str();
+  const session = r.str();
+  const user = flags & LB_USER ? r.str() : undefined;
+  const keyText = r.str();
+  const value = r.str();
+  const successor = flags & LB_SUCCESSOR ? r.str() : undefined;
+  const speaker = flags & LB_SPEAKER ? r.str() : undefined;
+  const owner = flags & LB_OWNER ? r.str() : undefined;
+  let role: Role | undefined;
+  if (flags & LB_ROLE) {
+    role = ROLES[r.u8()];
+    if (role === undefined) r.fail('unknown role');
+  }
+  const n = r.varint();
+  const provenance: string[] = [];
+  for (let i = 0; i < n; i++) provenance.push(r.str());
+  const dates: MentionedDate[] = [];
+  if (flags & LB_DATES) {
+    for (let i = 0, m = r.varint(); i < m; i++) {
+      const text = r.str();
+      const day = r.str();
+      const grain = GRAINS[r.u8()];
+      if (grain === undefined) r.fail('unknown date grain');
+      dates.push({ text, day, grain });
+    }
+  }
+  const key = flags & LB_KEY ? r.key() : undefined;
+  r.end();
+  const e: LogbookEntry = { id, kind: kind!, tenant, session, value, keyText, provenance, atMs, createdMs, clock, seq };
+  if (user !== undefined) e.user = user;
+  if (role) e.role = role;
+  if (speaker !== undefined) e.speaker = speaker;
+  if (owner !== undefined) e.owner = owner;
+  if (dates.length > 0) e.dates = dates;
+  if (key) e.key = key;
+  if (strength !== undefined) e.strength = strength;
+  if (halfLife !== undefined) e.halfLife = halfLife;
+  if (successor !== undefined) e.successor = successor;
+  return e;
 }
 
 const ARCH_USER = 1;
 const ARCH_SUCCESSOR = 2;
 
-/** Encodes an archive item; `user` is the scope it was committed in (overrides `item.user`). */
-export function encodeArchive(item: ArchiveItem, user: string | undefined, format: KeyFormat): Buffer {
-  const w = new Writer(HEADER + 64 + item.key.length * (format === 'int8' ? 1 : 4) + 4 * (item.keyText.length + item.value.length) + 128);
-  w.u8((user !== undefined ? ARCH_USER : 0) | (item.successor !== undefined ? ARCH_SUCCESSOR : 0));
-  w.u8(ARCHIVE_REASONS.indexOf(item.reason));
-  w.f64(item.strength);
-  w.f64(item.halfLife);
-  w.f64(item.clock);
-  w.f64(item.createdMs);
-  w.f64(item.archivedMs);
-  w.str(item.id);
-  w.str(item.tenant);
-  w.str(item.session);
-  if (user !== undefined) w.str(user);
-  w.str(item.keyText);
-  w.str(item.value);
-  if (item.successor !== undefined) w.str(item.successor);
-  w.varint(item.provenance.length);
-  for (const p of item.provenance) w.str(p);
-  w.key(item.key, format);
-  return w.finish(KIND_ARCHIVE);
-}
-
-export function decodeArchive(buf: Buffer, what: string): ArchiveItem {
-  const r = open(buf, KIND_ARCHIVE, what);
+/** A 0.1 archive item: an evicted or superseded slot value. */
+function decodeArchiveV1(r: Reader): LogbookEntry {
   const flags = r.u8();
   const reason = ARCHIVE_REASONS[r.u8()];
   if (reason === undefined) r.fail('unknown archive reason');
@@ -308,8 +424,8 @@ export function decodeArchive(buf: Buffer, what: string): ArchiveItem {
   for (let i = 0; i < n; i++) provenance.push(r.str());
   const key = r.key();
   r.end();
-  const item: ArchiveItem = { id, tenant, session, key, keyText, value, provenance, reason, strength, halfLife, clock, createdMs, archivedMs };
-  if (user !== undefined) item.user = user;
-  if (successor !== undefined) item.successor = successor;
-  return item;
+  const e: LogbookEntry = { id, kind: reason!, tenant, session, key, keyText, value, provenance, strength, halfLife, clock, createdMs, atMs: archivedMs, seq: 0 };
+  if (user !== undefined) e.user = user;
+  if (successor !== undefined) e.successor = successor;
+  return e;
 }

@@ -29,16 +29,20 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 `);
 
 /**
- * Commit one turn in one round trip: check the version, apply slot ops, store archive items, append
- * events (capped), bump the version, refresh the idle TTL.
+ * Commit one turn in one round trip: check the version, apply slot ops, add logbook entries, apply
+ * the retention policy to the logbook slice written, append events (capped), bump the version,
+ * refresh the idle TTL.
  * KEYS: meta, slots, events, arch, uarch, alog, ualog.
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
- *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 reserved (''),
- *       12 #ops, 13 #archive items, 14 #events, then #ops x (index, payload or '' to free),
- *       #archive x (id, payload), #events x json.
- * The commit id is remembered for the session's last 16 commits (meta field `rc`).
- * Reply: {1, version, epoch} applied | {2, version, epoch} this commit id was already applied at `version` |
- *        {0, version, epoch} version mismatch.
+ *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 retention: max entries per
+ *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
+ *       15 #events, then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
+ * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
+ * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
+ * readers keep fetching only the new tail. The commit id is remembered for the session's last 16
+ * commits (meta field `rc`).
+ * Reply: {1, version, epoch, dropped by age, dropped by count} applied | {2, version, epoch} this commit
+ *        id was already applied at `version` | {0, version, epoch} version mismatch.
  */
 export const COMMIT = script('commit', 7, `
 local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
@@ -64,33 +68,58 @@ if m[1] then
     for i = cap, oldcap - 1 do redis.call('HDEL', KEYS[2], tostring(i)) end
   end
 end
-local nops, narch, nev = tonumber(ARGV[12]), tonumber(ARGV[13]), tonumber(ARGV[14])
-local a = 15
+local nops, nlb, nev = tonumber(ARGV[13]), tonumber(ARGV[14]), tonumber(ARGV[15])
+local a = 16
 for i = 1, nops do
   if ARGV[a + 1] == '' then redis.call('HDEL', KEYS[2], ARGV[a]) else redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1]) end
   a = a + 2
 end
 local fields = {'v', v + 1, 'ep', ep, 'c', ARGV[4], 'n', ARGV[5], 'cap', ARGV[6], 'dim', ARGV[7]}
 if not m[1] then
-  -- Archive epochs start fresh with the session, so no cached copy of an erased one can match.
-  fields[#fields + 1] = 'as'
-  fields[#fields + 1] = ep
-  fields[#fields + 1] = 'au'
-  fields[#fields + 1] = ep
+  -- Logbook epochs and heads start fresh with the session, so no cached copy of an erased one can match.
+  for _, f in ipairs({'as', ep, 'au', ep, 'ah', 0, 'auh', 0}) do fields[#fields + 1] = f end
 end
 if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
   fields[#fields + 1] = ARGV[8]
 end
-if narch > 0 then
-  -- Items go to the hash; their ids are appended to the log so readers fetch only what is new.
-  local h, log = KEYS[4], KEYS[6]
-  if ARGV[8] ~= '' then h, log = KEYS[5], KEYS[7] end
-  for i = 1, narch do
-    redis.call('HSET', h, ARGV[a], ARGV[a + 1])
-    redis.call('RPUSH', log, ARGV[a])
-    a = a + 2
+local h, log, headf = KEYS[4], KEYS[6], 'ah'
+if ARGV[8] ~= '' then h, log, headf = KEYS[5], KEYS[7], 'auh' end
+for i = 1, nlb do
+  -- An id already present is replaced in place (a resent turn); only a new one joins the log.
+  if redis.call('HSET', h, ARGV[a], ARGV[a + 2]) == 1 then redis.call('RPUSH', log, ARGV[a + 1] .. ':' .. ARGV[a]) end
+  a = a + 3
+end
+-- Retention: oldest first from the head of the log, by age then by count. A popped element whose
+-- entry was already deleted (a tombstone) is not counted.
+local dropAge, dropCount, popped = 0, 0, 0
+local maxn, cutoff = tonumber(ARGV[11]), tonumber(ARGV[12])
+local function pop()
+  local e = redis.call('LPOP', log)
+  if not e then return nil end
+  popped = popped + 1
+  local id = string.match(e, '^%-?%d+:(.*)$') or e
+  return redis.call('HDEL', h, id)
+end
+if cutoff > 0 then
+  while true do
+    local e = redis.call('LINDEX', log, 0)
+    if not e then break end
+    local at = tonumber(string.match(e, '^(%-?%d+):'))
+    if at == nil or at >= cutoff then break end
+    dropAge = dropAge + pop()
   end
+end
+if maxn > 0 then
+  while redis.call('HLEN', h) > maxn do
+    local d = pop()
+    if d == nil then break end
+    dropCount = dropCount + d
+  end
+end
+if popped > 0 then
+  fields[#fields + 1] = headf
+  fields[#fields + 1] = tonumber(redis.call('HGET', KEYS[1], headf) or '0') + popped
 end
 local maxe = tonumber(ARGV[10])
 for i = 1, nev do
@@ -110,55 +139,72 @@ local ttl = tonumber(ARGV[9])
 for i = 1, 7 do
   if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
 end
-return {1, v + 1, ep}
+return {1, v + 1, ep, dropAge, dropCount}
 `);
 
 /**
- * Fetch what is new in one archive hash of a session.
- * KEYS: meta, hash (arch | uarch), log (alog | ualog). ARGV: epoch field ('as' | 'au'), '=' .. cached
- * epoch or '' (nothing cached), cached log length.
- * Reply: nil (no session) | {epoch, n} (unchanged) | {epoch, n, 'd', {id, payload, ...}} (items appended
- * since the cached length) | {epoch, n, 'f', {id, payload, ...}} (everything: first fetch or epoch moved).
+ * Fetch what is new in one logbook slice of a session.
+ * KEYS: meta, hash (arch | uarch), log (alog | ualog). ARGV: epoch field ('as' | 'au'), head field
+ * ('ah' | 'auh'), '=' .. cached epoch or '' (nothing cached), cached absolute end of the log.
+ * Positions are absolute: the head counts elements trimmed from the front since the session began.
+ * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads}
+ * (the elements after the cached end) | {epoch, head, end, 'f', elements, payloads} (everything: first
+ * fetch, epoch moved, or too far behind). Payloads align with elements; a deleted entry's is false.
  */
-export const ARCHIVE_FETCH = script('archive_fetch', 3, `
+export const LOG_FETCH = script('log_fetch', 3, `
 if redis.call('EXISTS', KEYS[1]) == 0 then return false end
-local ep = redis.call('HGET', KEYS[1], ARGV[1]) or ''
+local mh = redis.call('HMGET', KEYS[1], ARGV[1], ARGV[2])
+local ep = mh[1] or ''
+local head = tonumber(mh[2] or '0')
 local n = redis.call('LLEN', KEYS[3])
-local from = tonumber(ARGV[3])
-if ARGV[2] ~= '' and ARGV[2] == ('=' .. ep) and n >= from and n - from <= 1000 then
-  if n == from then return {ep, n} end
-  local ids = redis.call('LRANGE', KEYS[3], from, n - 1)
-  local vals = redis.call('HMGET', KEYS[2], unpack(ids))
-  local out = {}
-  for i = 1, #ids do
-    if vals[i] then
-      out[#out + 1] = ids[i]
-      out[#out + 1] = vals[i]
-    end
-  end
-  return {ep, n, 'd', out}
+local stop = head + n
+local from = tonumber(ARGV[4])
+local mode = 'f'
+local els
+if ARGV[3] ~= '' and ARGV[3] == ('=' .. ep) and from >= head and from <= stop and stop - from <= 1000 then
+  if from == stop then return {ep, head, stop} end
+  mode = 'd'
+  els = redis.call('LRANGE', KEYS[3], from - head, -1)
+else
+  els = redis.call('LRANGE', KEYS[3], 0, -1)
 end
-return {ep, n, 'f', redis.call('HGETALL', KEYS[2])}
+local vals = {}
+-- HMGET in chunks: unpack() of thousands of arguments overflows Lua's C stack.
+for c = 1, #els, 500 do
+  local ids = {}
+  for i = c, math.min(c + 499, #els) do ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i] end
+  local got = redis.call('HMGET', KEYS[2], unpack(ids))
+  for i = 1, #got do vals[#vals + 1] = got[i] end
+end
+return {ep, head, stop, mode, els, vals}
 `);
 
 /**
- * Delete archive items of one session hash by id; moves the epoch so cached copies refetch in full.
+ * Delete logbook entries of one session slice by id, with their log elements (so an id added again
+ * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
+ * O(log length): deletes are rare (a promotion, an edit), never per turn.
  * KEYS: meta, hash, log. ARGV: epoch field, new epoch, ids... Reply: number removed.
  */
-export const ARCHIVE_DELETE = script('archive_delete', 3, `
-local n = 0
+export const LOG_DELETE = script('log_delete', 3, `
+local want, n = {}, 0
 for i = 3, #ARGV do
-  local d = redis.call('HDEL', KEYS[2], ARGV[i])
-  if d > 0 then redis.call('LREM', KEYS[3], 0, ARGV[i]) end
-  n = n + d
+  if redis.call('HDEL', KEYS[2], ARGV[i]) == 1 then
+    want[ARGV[i]] = true
+    n = n + 1
+  end
 end
-if n > 0 and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], ARGV[1], ARGV[2]) end
+if n == 0 then return 0 end
+for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
+  local id = string.match(e, '^%-?%d+:(.*)$') or e
+  if want[id] then redis.call('LREM', KEYS[3], 1, e) end
+end
+if redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], ARGV[1], ARGV[2]) end
 return n
 `);
 
 /**
  * Erase one session: count, then delete every key.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog. Reply: {existed, slots, archive items, events, user or ''}.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog. Reply: {existed, slots, logbook entries, events, user or ''}.
  */
 export const ERASE = script('erase', 7, `
 local existed = redis.call('EXISTS', KEYS[1])

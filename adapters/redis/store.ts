@@ -1,18 +1,22 @@
-// The Redis store: sessions, archive items and event streams in Redis or Redis Cluster, shared by every
-// bot process. A read is one EVALSHA (answered with just the version when this process's cached copy is
-// current), a commit is one EVALSHA that checks the version and applies the whole turn atomically.
+// The Redis store: sessions, logbooks and event streams in Redis or Redis Cluster, shared by every bot
+// process. A read is one EVALSHA for the slots (answered with just the version when this process's
+// cached copy is current) and one per logbook slice for what is new since this process last looked;
+// a commit is one EVALSHA that checks the version and applies the whole turn atomically. Each process
+// keeps a LogbookIndex per scope it serves, extended incrementally, so a search costs no more Redis
+// traffic than the entries added since the last one.
 
 import { randomBytes } from 'node:crypto';
-import type { Archive } from '../../src/archive/archive.js';
-import { createArchive, type ArchiveOptions } from '../../src/archive/index.js';
+import type { ArchiveOptions } from '../../src/archive/index.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
+import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, SessionSnapshot, Store } from '../../src/store/store.js';
-import type { ArchiveHit, ArchiveItem, ArchiveScope, SessionRef, StoredEvent } from '../../src/types.js';
+import { listEntries } from '../../src/store/in-process.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
+import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, isCluster, runScript, unavailable, type RedisClient } from './client.js';
-import { corrupt, decodeArchive, decodeSlot, encodeArchive, encodeSlot, type KeyFormat } from './codec.js';
+import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { ARCHIVE_DELETE, ARCHIVE_FETCH, COMMIT, ERASE, LOAD } from './scripts.js';
+import { COMMIT, ERASE, LOAD, LOG_DELETE, LOG_FETCH } from './scripts.js';
 
 export interface RedisStoreOptions {
   /**
@@ -25,12 +29,12 @@ export interface RedisStoreOptions {
   /** Prepended to every key; must not contain `{` or `}` (they would move the hash tag). @default 'tidemark:' */
   prefix?: string;
   /**
-   * Seconds of inactivity after which a session's keys (slots, events, its archive items) expire; every
+   * Seconds of inactivity after which a session's keys (slots, events, its logbook entries) expire; every
    * commit refreshes it. 0 keeps sessions until erased. @default 2592000 (30 days)
    */
   idleTtlSeconds?: number;
   /**
-   * How slot and archive keys are stored: `int8` (1 byte per dimension plus a per-vector scale; about a
+   * How slot and logbook vectors are stored: `int8` (1 byte per dimension plus a per-vector scale; about a
    * quarter of the memory, component error below 0.005 for unit vectors) or `float32` (exact).
    * @default 'int8'
    */
@@ -42,13 +46,13 @@ export interface RedisStoreOptions {
   maxEvents?: number;
   /**
    * Sessions whose decoded slot table this process keeps, keyed by version (least recently used out);
-   * a read of an unchanged session then transfers only its version. Also bounds the archive scopes kept
+   * a read of an unchanged session then transfers only its version. Also bounds the logbook scopes kept
    * indexed. 0 disables both caches. @default 1000
    */
   cacheSessions?: number;
   /** How long the first call waits for the initial connection (ms); later calls never wait. @default 2000 */
   connectTimeoutMs?: number;
-  /** Options for each archive scope's nearest-neighbour index. */
+  /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
   archive?: ArchiveOptions;
 }
 
@@ -73,20 +77,27 @@ interface CachedSession {
 }
 
 interface ScopeSession {
-  /** Archive epoch of the session (moves on delete and on re-creation). */
+  /** Logbook epoch of the session slice (moves on delete and on re-creation). */
   epoch: string;
-  /** Length of the session's archive log already applied. */
-  len: number;
+  /** Absolute log positions applied: [head, end). */
+  head: number;
+  end: number;
+  /** Entry id at each position from `head` ('' for a deleted entry). */
   ids: string[];
 }
 
 interface ScopeCache {
   sessions: Map<string, ScopeSession>;
-  items: Map<string, { item: ArchiveItem; session: string }>;
-  index: Archive | null;
+  index: LogbookIndex;
   /** Refreshes of one scope run one after another, so replies are applied in the order they were asked. */
   lock: Promise<unknown>;
 }
+
+/** The entry id of a log element `atMs:id` (0.1 logs hold bare ids). */
+const elementId = (e: string): string => {
+  const m = /^-?\d+:/.exec(e);
+  return m ? e.slice(m[0].length) : e;
+};
 
 const token = (): string => randomBytes(8).toString('hex');
 const str = (b: unknown): string => (Buffer.isBuffer(b) ? b.toString('utf8') : String(b));
@@ -98,7 +109,7 @@ function num(b: unknown, what: string, integer: boolean): number {
   return n;
 }
 
-function scopeKeyOf(scope: ArchiveScope): string {
+function scopeKeyOf(scope: LogbookScope): string {
   return 'user' in scope ? `u\u0000${scope.tenant}\u0000${scope.user}` : `s\u0000${scope.tenant}\u0000${scope.session}`;
 }
 
@@ -245,49 +256,35 @@ export class RedisStore implements Store {
       return { ok: true, version };
     }
     this.applyToCache(k.meta, req, epoch, version, keys);
-    return { ok: true, version };
+    const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
+    return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
   }
 
-  async searchArchive(scope: ArchiveScope, query: Float32Array, k: number): Promise<ArchiveHit[]> {
-    if (k <= 0) return [];
+  async searchLogbook(scope: LogbookScope, query: LogbookQuery, params: LogbookSearchParams): Promise<LogbookSearchResult> {
     const sc = await this.refreshScope(scope);
-    if (sc.items.size === 0) return [];
-    if (!sc.index || sc.index.dim !== query.length) {
-      sc.index = createArchive(query.length, this.o.archive);
-      for (const [id, { item }] of sc.items) if (item.key.length === query.length) sc.index.add(id, item.key);
-    }
-    const hits: ArchiveHit[] = [];
-    for (const m of sc.index.search(query, k)) {
-      const entry = sc.items.get(m.id);
-      if (entry) hits.push({ item: entry.item, cosine: m.cosine });
-    }
-    return hits;
+    return sc.index.search(query, params);
   }
 
-  async listArchive(scope: ArchiveScope, limit = 100): Promise<ArchiveItem[]> {
+  async listLogbook(scope: LogbookScope, options: ListLogbookOptions = {}): Promise<LogbookEntry[]> {
     const sc = await this.refreshScope(scope);
-    return [...sc.items.values()]
-      .map((e) => e.item)
-      .sort((x, y) => y.archivedMs - x.archivedMs || y.clock - x.clock)
-      .slice(0, limit);
+    return listEntries(sc.index, options);
   }
 
-  async deleteArchive(scope: ArchiveScope, ids: readonly string[]): Promise<number> {
+  async deleteLogbook(scope: LogbookScope, ids: readonly string[]): Promise<number> {
     if (ids.length === 0) return 0;
     try {
-      const c = await this.conn('deleteArchive');
-      const sessions = 'user' in scope ? await c.smembers(this.keys.userSessions(scope.tenant, scope.user)) : [scope.session];
-      const field = 'user' in scope ? 'au' : 'as';
+      const c = await this.conn('deleteLogbook');
+      const user = 'user' in scope;
+      const sessions = user ? await c.smembers(this.keys.userSessions(scope.tenant, scope.user)) : [scope.session];
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
-          const user = 'user' in scope;
-          return runScript(c, ARCHIVE_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [field, token(), ...ids]);
+          return runScript(c, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
         }),
       );
       return counts.reduce<number>((sum, n) => sum + Number(n), 0);
     } catch (err) {
-      throw unavailable('deleteArchive', err);
+      throw unavailable('deleteLogbook', err);
     }
   }
 
@@ -314,7 +311,7 @@ export class RedisStore implements Store {
   }
 
   async erase(target: EraseTarget): Promise<EraseReport> {
-    const report: EraseReport = { sessions: 0, slots: 0, archiveItems: 0, events: 0 };
+    const report: EraseReport = { sessions: 0, slots: 0, logbookEntries: 0, events: 0 };
     try {
       const c = await this.conn('erase');
       let sessions: string[];
@@ -331,7 +328,7 @@ export class RedisStore implements Store {
         const r = (await runScript(c, ERASE, k.all, [])) as unknown[];
         report.sessions += Number(r[0]);
         report.slots += Number(r[1]);
-        report.archiveItems += Number(r[2]);
+        report.logbookEntries += Number(r[2]);
         report.events += Number(r[3]);
         const user = str(r[4]);
         this.forget(target.tenant, s, k, user);
@@ -403,9 +400,11 @@ export class RedisStore implements Store {
     let id = typeof given === 'string' && /^[^\s=]{1,128}$/.test(given) ? given : this.commitIds.get(req);
     if (!id) this.commitIds.set(req, (id = token()));
     const kf = this.o.keyFormat;
+    const policy = req.retention?.policy;
+    const cutoff = policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
-      this.o.idleTtlSeconds, this.o.maxEvents, '', req.ops.length, req.archive.length, req.events.length,
+      this.o.idleTtlSeconds, this.o.maxEvents, policy?.maxEntries ?? 0, cutoff, req.ops.length, req.logbook.length, req.events.length,
     ];
     const keys: (Float32Array | null)[] = [];
     for (const op of req.ops) {
@@ -422,7 +421,7 @@ export class RedisStore implements Store {
         keys.push(null);
       }
     }
-    for (const item of req.archive) args.push(item.id, encodeArchive(item, ref.user, kf));
+    for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf));
     for (const ev of req.events) args.push(JSON.stringify(ev));
     return { args, keys };
   }
@@ -459,16 +458,17 @@ export class RedisStore implements Store {
   }
 
   /**
-   * Brings the scope's cached items and index up to date. Every call asks Redis, for each session of
-   * the scope, for the items appended since this process last looked (one round trip; a user scope
-   * adds one SMEMBERS first); a delete moves the session's archive epoch and forces a full fetch.
-   * So a search sees every item committed before the search started, and costs O(new items).
+   * Brings the scope's index up to date. Every call asks Redis, for each session slice of the scope,
+   * for the entries appended since this process last looked (one round trip; a user scope adds one
+   * SMEMBERS first); entries that retention trimmed from the head of a slice leave the index; a
+   * delete moves the slice's epoch and forces a full fetch. So a search sees every entry committed
+   * before it started, and costs O(new entries) in transfer.
    */
-  private refreshScope(scope: ArchiveScope): Promise<ScopeCache> {
+  private refreshScope(scope: LogbookScope): Promise<ScopeCache> {
     const key = scopeKeyOf(scope);
     let sc = this.scopes.get(key);
     if (!sc) {
-      sc = { sessions: new Map(), items: new Map(), index: null, lock: Promise.resolve() };
+      sc = { sessions: new Map(), index: new LogbookIndex(this.o.archive ? { vectorIndex: this.o.archive } : {}), lock: Promise.resolve() };
       if (this.o.cacheSessions > 0) {
         this.scopes.set(key, sc);
         if (this.scopes.size > this.o.cacheSessions) this.scopes.delete(this.scopes.keys().next().value!);
@@ -483,23 +483,23 @@ export class RedisStore implements Store {
     return run;
   }
 
-  private async refreshNow(scope: ArchiveScope, sc: ScopeCache): Promise<ScopeCache> {
+  private async refreshNow(scope: LogbookScope, sc: ScopeCache): Promise<ScopeCache> {
     const user = 'user' in scope ? scope.user : undefined;
     let sessions: string[];
     let replies: unknown[];
     try {
-      const c = await this.conn('searchArchive');
+      const c = await this.conn('searchLogbook');
       sessions = user !== undefined ? await c.smembers(this.keys.userSessions(scope.tenant, user)) : [(scope as { session: string }).session];
       replies = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
           const cached = sc.sessions.get(s);
           const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
-          return runScript(c, ARCHIVE_FETCH, keys, [user !== undefined ? 'au' : 'as', cached ? `=${cached.epoch}` : '', cached ? cached.len : 0]);
+          return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0]);
         }),
       );
     } catch (err) {
-      throw unavailable('searchArchive', err);
+      throw unavailable('searchLogbook', err);
     }
     const live = new Set(sessions);
     for (const s of [...sc.sessions.keys()]) if (!live.has(s)) this.dropScopeSession(sc, s);
@@ -510,37 +510,60 @@ export class RedisStore implements Store {
         return;
       }
       const epoch = str(r[0]);
-      const len = num(r[1], 'archive log length', true);
-      if (r.length === 2) {
-        const cached = sc.sessions.get(s);
-        if (cached) cached.len = len;
-        return; // unchanged
+      const head = num(r[1], 'logbook head', true);
+      const end = num(r[2], 'logbook end', true);
+      let cached = sc.sessions.get(s);
+      const delta = r.length > 3 && str(r[3]) === 'd' && cached !== undefined;
+      if (r.length === 3 || delta) {
+        // Entries trimmed from the head since the last look leave the index.
+        if (cached && head > cached.head) {
+          for (const id of cached.ids.splice(0, head - cached.head)) if (id) this.dropEntry(sc, id, s);
+          cached.head = head;
+        }
+        if (r.length === 3) {
+          if (cached) cached.end = end;
+          return;
+        }
+      } else {
+        this.dropScopeSession(sc, s);
+        cached = undefined;
       }
-      const delta = str(r[2]) === 'd' && sc.sessions.has(s);
-      const ids = delta ? sc.sessions.get(s)!.ids : [];
-      if (!delta) this.dropScopeSession(sc, s);
-      const flat = r[3] as Buffer[];
-      for (let j = 0; j + 1 < flat.length; j += 2) {
-        const item = decodeArchive(flat[j + 1]!, 'archive item payload');
-        if (user !== undefined && item.user !== user) continue;
-        sc.items.set(item.id, { item, session: s });
-        if (sc.index && sc.index.dim === item.key.length) sc.index.add(item.id, item.key);
-        ids.push(item.id);
-      }
-      sc.sessions.set(s, { epoch, len, ids });
+      const els = (r[4] as Buffer[]).map(str);
+      const vals = r[5] as Array<Buffer | null | false>;
+      const entry: ScopeSession = cached ?? { epoch, head, end: head, ids: [] };
+      const fresh: LogbookEntry[] = [];
+      els.forEach((el, j) => {
+        const v = vals[j];
+        const id = elementId(el);
+        if (!v) {
+          entry.ids.push('');
+          return;
+        }
+        const e = decodeLogbook(v as Buffer, 'logbook entry payload');
+        if (user !== undefined && e.user !== user) {
+          entry.ids.push('');
+          return;
+        }
+        entry.ids.push(id);
+        fresh.push(e);
+      });
+      // A full fetch comes in log order already; neighbours link by seq either way.
+      for (const e of fresh) sc.index.add(e);
+      entry.epoch = epoch;
+      entry.end = end;
+      sc.sessions.set(s, entry);
     });
     return sc;
+  }
+
+  private dropEntry(sc: ScopeCache, id: string, session: string): void {
+    if (sc.index.get(id)?.session === session) sc.index.remove(id);
   }
 
   private dropScopeSession(sc: ScopeCache, session: string): void {
     const entry = sc.sessions.get(session);
     if (!entry) return;
-    for (const id of entry.ids) {
-      if (sc.items.get(id)?.session === session) {
-        sc.items.delete(id);
-        sc.index?.remove(id);
-      }
-    }
+    for (const id of entry.ids) if (id) this.dropEntry(sc, id, session);
     sc.sessions.delete(session);
   }
 

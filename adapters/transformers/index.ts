@@ -263,6 +263,8 @@ function checkOptions(o: ResolvedTransformersEmbedderOptions): void {
 
 export class TransformersEmbedder implements Embedder {
   readonly id: string;
+  /** A trained sentence model: its cosines carry paraphrase, so reads use a dense list beside BM25. */
+  readonly semantic = true;
   private readonly o: ResolvedTransformersEmbedderOptions;
   /** Model name as the library sees it (a folder name inside `root`) and that folder, if known now. */
   private readonly name: string;

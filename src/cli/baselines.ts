@@ -1,7 +1,8 @@
-// The baselines replay runs beside tidemark, so a recall figure never stands alone: `window:N` keeps
-// the last N turns of each session, `flat` keeps every turn. Both rank their turns with the same
-// scoring as tidemark's read minus strength (beta * cosine + gamma * BM25 normalised per query, with
-// the same embedder), and have no gates, no decay and no capacity.
+// The baselines replay runs beside tidemark, so a recall figure never stands alone. `bm25` is the
+// plainest strong one: Okapi BM25 (k1 1.2, b 0.75) over every turn of the kept roles, on the
+// project's tokenizer and stopwords, no stemming, nothing else. `flat` keeps every turn too and ranks
+// by beta * cosine + gamma * BM25 normalised per query (the same embedder as tidemark); `window:N`
+// does the same over the last N turns of each session. None has gates, decay or capacity.
 
 import type { Embedder } from '../embed/embedder.js';
 import { ConfigError, describeValue } from '../errors.js';
@@ -10,17 +11,18 @@ import { bm25Scores, docStats, type DocStats } from '../memory/bm25.js';
 import { contentWords } from '../memory/text.js';
 import type { Role } from '../types.js';
 
-export type BaselineSpec = { kind: 'window'; size: number } | { kind: 'flat' };
+export type BaselineSpec = { kind: 'window'; size: number } | { kind: 'flat' } | { kind: 'bm25' };
 
-/** `window:N` (N >= 1) or `flat`. */
+/** `bm25`, `flat` or `window:N` (N >= 1). */
 export function parseBaseline(spec: string): BaselineSpec {
   if (spec === 'flat') return { kind: 'flat' };
+  if (spec === 'bm25') return { kind: 'bm25' };
   const m = /^window:(\d+)$/.exec(spec);
   if (m && Number(m[1]) >= 1) return { kind: 'window', size: Number(m[1]) };
-  throw new ConfigError(`baseline must be "window:N" (N >= 1) or "flat", got ${describeValue(spec)}`, { details: { option: 'baseline', value: spec } });
+  throw new ConfigError(`baseline must be "bm25", "flat" or "window:N" (N >= 1), got ${describeValue(spec)}`, { details: { option: 'baseline', value: spec } });
 }
 
-export const baselineName = (s: BaselineSpec): string => (s.kind === 'flat' ? 'flat' : `window:${s.size}`);
+export const baselineName = (s: BaselineSpec): string => (s.kind === 'window' ? `window:${s.size}` : s.kind);
 
 export interface BaselineOptions {
   embedder: Embedder;
@@ -28,7 +30,7 @@ export interface BaselineOptions {
   beta?: number;
   /** Weight of the normalised BM25 score. @default 4 (tidemark's read.gamma) */
   gamma?: number;
-  /** Roles of the turns kept: the ones tidemark writes from. @default ['user'] */
+  /** Roles of the turns kept: the ones tidemark keeps in its logbook. @default ['user', 'assistant'] */
   roles?: readonly Role[];
 }
 
@@ -45,6 +47,8 @@ export interface BaselineQuery {
   us: number;
 }
 
+const EMPTY = new Float32Array(0);
+
 /** One baseline over all sessions of a replay. */
 export class TurnBaseline {
   readonly name: string;
@@ -58,14 +62,14 @@ export class TurnBaseline {
     this.name = baselineName(spec);
     this.beta = o.beta ?? 10;
     this.gamma = o.gamma ?? 4;
-    this.roles = new Set(o.roles ?? ['user']);
+    this.roles = new Set(o.roles ?? ['user', 'assistant']);
     this.limit = spec.kind === 'window' ? spec.size : Infinity;
   }
 
   /** Keeps a turn (if its role is kept); the window drops its oldest turn past N. */
   async add(turn: { session: string; turn: string; role: Role; text: string }, vec?: Float32Array): Promise<void> {
     if (!this.roles.has(turn.role)) return;
-    const v = vec ?? (await this.o.embedder.embed([turn.text]))[0]!;
+    const v = this.spec.kind === 'bm25' ? EMPTY : vec ?? (await this.o.embedder.embed([turn.text]))[0]!;
     let docs = this.sessions.get(turn.session);
     if (!docs) this.sessions.set(turn.session, (docs = []));
     docs.push({ turn: turn.turn, vec: v, stats: docStats(contentWords(turn.text)) });
@@ -77,9 +81,14 @@ export class TurnBaseline {
     const t0 = performance.now();
     const docs = this.sessions.get(session) ?? [];
     if (docs.length === 0) return { retrieved: [], us: (performance.now() - t0) * 1000 };
-    const q = qvec ?? (await this.o.embedder.embed([text]))[0]!;
     const lex = new Float64Array(docs.length);
     bm25Scores(queryTerms(text), docs.map((d) => d.stats), lex);
+    if (this.spec.kind === 'bm25') {
+      // Plain BM25: documents with no query term are not ranked at all.
+      const order = docs.map((_, i) => i).filter((i) => lex[i]! > 0).sort((a, b) => lex[b]! - lex[a]! || b - a);
+      return { retrieved: order.slice(0, k).map((i) => docs[i]!.turn), us: (performance.now() - t0) * 1000 };
+    }
+    const q = qvec ?? (await this.o.embedder.embed([text]))[0]!;
     let maxLex = 0;
     for (const v of lex) if (v > maxLex) maxLex = v;
     const score = new Float64Array(docs.length);

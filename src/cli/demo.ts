@@ -30,12 +30,10 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
 
   const tm = createTidemark({
     capacity: options.capacity ?? 6,
-    // Search the archive on every read, so the superseded Tuesday shows below Friday.
-    read: { archive: 'always' },
     ...options.tidemark,
   });
   const session = 'demo-dana';
-  const counts = { hit: 0, archive_hit: 0, miss: 0, allocated: 0, overwritten: 0, reinforced: 0, gated_out: 0, capacity: 0, decayed: 0, expired: 0, erased: 0 };
+  const counts = { slot: 0, logbook: 0, miss: 0, allocated: 0, overwritten: 0, reinforced: 0, gated_out: 0, capacity: 0, decayed: 0, expired: 0, erased: 0 };
   let writes: WriteEvent[] = [];
   let gates: GateEvent[] = [];
   let evicts: EvictEvent[] = [];
@@ -55,7 +53,7 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
 
   let recalled = '';
   const chat = tm.wrap((input, ctx) => {
-    recalled = `[${ctx.memory.trace.result.replace('_', ' ')}] ${describeRecall(ctx.memory.items)}`;
+    recalled = `[${ctx.memory.trace.result}] ${describeRecall(ctx.memory.items)}`;
     return demoHandler(input, ctx);
   });
   say(bold('tidemark demo — Spoke & Sprocket Cycles booking assistant'));
@@ -82,13 +80,13 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
       else say(`   ${w.outcome === 'overwritten' ? amber('overwrote') : teal('wrote')} slot ${w.slot}: ${what} ${dim(`(gate ${w.gate.toFixed(2)}, from ${s?.provenance.join(', ')})`)}`);
     }
     for (const e of evicts) {
-      const a = view.archive.find((x) => x.id === e.id);
-      say(`   ${rose('evicted')} slot ${e.slot} (${e.reason}) -> archive: ${a ? `${a.keyText} = ${a.value}` : e.id}`);
+      const a = view.logbook.find((x) => x.id === e.id);
+      say(`   ${rose('evicted')} slot ${e.slot} (${e.reason}) -> logbook: ${a ? `${a.keyText} = ${a.value}` : e.id}`);
     }
     for (const g of gates.filter((x) => !x.passed)) say(dim(`   gated out (salience ${g.score.toFixed(2)} < ${g.threshold})`));
   }
 
-  // The update check: Friday (live slot) must outrank Tuesday (superseded, archived).
+  // The update check: Friday (the live slot) must outrank Tuesday (superseded, in the logbook).
   const check = await tm.read({ session, text: 'When is my booking?' });
   const rank = (re: RegExp) => check.items.findIndex((i) => re.test(i.value));
   const fri = rank(/friday/i);
@@ -97,17 +95,18 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
   say('');
   say(bold('"When is my booking?" — ranked recall'));
   check.items.forEach((i, k) => {
-    const tag = i.source === 'slot' ? 'slot' : `archive, ${i.reason}`;
-    say(`   ${k + 1}. ${i.value}  ${dim(`weight ${i.weight.toFixed(3)}, cosine ${i.cosine.toFixed(2)}, ${tag}, from ${i.provenance.join(', ')}`)}`);
+    const tag = i.source === 'slot' ? 'slot' : `logbook, ${i.kind}`;
+    say(`   ${k + 1}. ${i.value}  ${dim(`weight ${i.weight.toFixed(3)}, coverage ${i.coverage.toFixed(2)}, ${tag}, from ${i.provenance.join(', ')}`)}`);
   });
   say(friday ? teal('   Friday outranks Tuesday: the update won.') : rose('   Friday does NOT outrank Tuesday.'));
 
   const view = await tm.inspect(session);
   say('');
   say(bold('summary'));
-  say(`   turns ${view.turns}; reads: ${counts.hit} hit, ${counts.archive_hit} archive hit, ${counts.miss} miss`);
+  say(`   turns ${view.turns}; reads: ${counts.slot} from a slot, ${counts.logbook} from the logbook, ${counts.miss} miss`);
   say(`   writes: ${counts.allocated} allocated, ${counts.overwritten} overwritten, ${counts.reinforced} reinforced, ${counts.gated_out} gated out`);
-  say(`   evictions: ${counts.capacity} capacity, ${counts.decayed} decayed; archive holds ${view.archive.length}`);
+  const kept = view.logbook.filter((x) => x.kind === 'turn').length;
+  say(`   evictions: ${counts.capacity} capacity, ${counts.decayed} decayed; logbook holds ${kept} turns and ${view.logbook.length - kept} values that left working memory`);
   say(`   slots in use ${view.slots.length}/${view.capacity}:`);
   for (const s of view.slots) say(dim(`     [${s.index}] ${s.key} = ${s.value}  (strength ${s.strength.toFixed(2)}, half-life ${s.halfLife.toFixed(0)}${s.pinned ? ', pinned' : ''})`));
   await tm.close();
@@ -117,6 +116,6 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
 function describeRecall(items: ReadonlyArray<RecallItem>): string {
   if (items.length === 0) return 'nothing';
   return items
-    .map((i) => `${i.key === i.value ? i.value : `${i.key}: ${i.value}`} (weight ${i.weight.toFixed(2)}, ${i.provenance.join('+')}${i.source === 'archive' ? `, archive/${i.reason}` : ''})`)
+    .map((i) => `${i.key === i.value ? i.value : `${i.key}: ${i.value}`} (weight ${i.weight.toFixed(2)}, ${i.provenance.join('+')}${i.source === 'logbook' ? `, logbook/${i.kind}` : ''})`)
     .join('; ');
 }

@@ -23,8 +23,18 @@ export interface Probe {
   id: string;
   session: string;
   query: string;
+  /** Source turns a good read returns (may be empty when the probe checks values only). */
   expect: string[];
   after?: string;
+  /** Probe kind for per-kind figures: the `kind` field, else `category`, else the id's prefix before ':'. */
+  kind?: string;
+  /**
+   * What the recalled value must contain (case-insensitive substrings; `/source/flags` for a pattern):
+   * one match among the items counts.
+   */
+  expectText?: string[];
+  /** Stale or wrong values that must not rank above the expected one (same syntax). */
+  rejectText?: string[];
   line: number;
 }
 
@@ -106,17 +116,54 @@ export const checkTurn: Check<TranscriptTurn> = (o, line) => {
   return t;
 };
 
-/** Checks one probe line: `{ id?, session, query, expect: [turn ids], after? }`. */
+/** A string or a list of strings (the `expectText` / `rejectText` forms), checked; null when malformed. */
+function textList(v: unknown, allowEmpty = false): string[] | null {
+  if (str(v)) return v.length > 0 ? [v] : null;
+  if (Array.isArray(v) && (allowEmpty || v.length > 0) && v.every((x) => str(x) && x.length > 0)) return v as string[];
+  return null;
+}
+
+/** The RegExp of a `/source/flags` pattern (always case-insensitive); null when `s` is a plain string. Throws when it does not compile. */
+export function patternOf(s: string): RegExp | null {
+  const m = /^\/(.+)\/([a-z]*)$/s.exec(s);
+  if (!m) return null;
+  return new RegExp(m[1]!, m[2]!.includes('i') ? m[2]! : `${m[2]}i`);
+}
+
+/**
+ * Checks one probe line: `{ id?, session, query, expect?: [turn ids], after?, kind?, category?,
+ * expectText?, rejectText? }`; a probe needs `expect` or `expectText`.
+ */
 export const checkProbe: Check<Probe> = (o, line) => {
   if (!str(o.session) || !SESSION_ID.test(o.session)) return `field "session" must be 1-128 chars of letters, digits and . _ : @ -, got ${describeValue(o.session)}`;
   if (!str(o.query) || o.query.trim().length === 0) return `field "query" must be a non-empty string, got ${describeValue(o.query)}`;
-  if (!Array.isArray(o.expect) || o.expect.length === 0 || !o.expect.every((e) => str(e) && e.length > 0)) {
-    return `field "expect" must be a non-empty array of turn ids, got ${describeValue(o.expect)}`;
+  const expectText = o.expectText === undefined ? undefined : textList(o.expectText);
+  if (expectText === null) return `field "expectText" must be a non-empty string or array of non-empty strings, got ${describeValue(o.expectText)}`;
+  const rejectText = o.rejectText === undefined ? undefined : textList(o.rejectText, true);
+  if (rejectText === null) return `field "rejectText" must be a non-empty string or an array of non-empty strings, got ${describeValue(o.rejectText)}`;
+  for (const t of [...(expectText ?? []), ...(rejectText ?? [])]) {
+    try {
+      patternOf(t);
+    } catch {
+      return `pattern ${describeValue(t)} in expectText/rejectText does not compile`;
+    }
+  }
+  const expectOk = Array.isArray(o.expect) && o.expect.every((e) => str(e) && e.length > 0) && (o.expect.length > 0 || expectText !== undefined);
+  if (o.expect === undefined ? expectText === undefined : !expectOk) {
+    return `field "expect" must be a non-empty array of turn ids (or may be left out when "expectText" is given), got ${describeValue(o.expect)}`;
   }
   if (o.id !== undefined && !str(o.id)) return `field "id" must be a string, got ${describeValue(o.id)}`;
   if (o.after !== undefined && (!str(o.after) || o.after.length === 0)) return `field "after" must be a turn id, got ${describeValue(o.after)}`;
-  const p: Probe = { id: str(o.id) ? o.id : `line:${line}`, session: o.session, query: o.query, expect: [...new Set(o.expect as string[])], line };
+  if (o.kind !== undefined && (!str(o.kind) || o.kind.length === 0)) return `field "kind" must be a non-empty string, got ${describeValue(o.kind)}`;
+  if (o.category !== undefined && !(str(o.category) && o.category.length > 0) && !(typeof o.category === 'number' && Number.isFinite(o.category))) {
+    return `field "category" must be a string or a number, got ${describeValue(o.category)}`;
+  }
+  const p: Probe = { id: str(o.id) ? o.id : `line:${line}`, session: o.session, query: o.query, expect: [...new Set((o.expect as string[] | undefined) ?? [])], line };
   if (str(o.after)) p.after = o.after;
+  const kind = str(o.kind) ? o.kind : o.category !== undefined ? String(o.category) : undefined;
+  if (kind !== undefined) p.kind = kind;
+  if (expectText) p.expectText = expectText;
+  if (rejectText && rejectText.length > 0) p.rejectText = rejectText;
   return p;
 };
 

@@ -1,15 +1,16 @@
 // `tidemark replay`: feeds a transcript turn by turn through tidemark the way wrap() does (read before
-// each user turn, write with the used slots reinforced), asks the probes, and reports recall beside
-// baselines that see the same turns. runReplay() is the pure-ish core for tests and benches;
+// each user turn, write the turn and its reply with what the reply used reinforced), asks the probes,
+// and reports recall and value accuracy beside baselines that see the same turns. runReplay() is the pure-ish core for tests and benches;
 // replayCli() reads the files and prints a table or one JSON object.
 
 import type { Embedder } from '../embed/embedder.js';
 import { HashingEmbedder } from '../embed/hashing.js';
 import { ConfigError, describeValue, isTidemarkError } from '../errors.js';
-import { createTidemark, type TidemarkOptions } from '../middleware/tidemark.js';
-import type { EvictReason, ReadResult, RecallItem, Role } from '../types.js';
+import { itemLine } from '../memory/prompt.js';
+import { TIDEMARK_DEFAULTS, createTidemark, type TidemarkOptions } from '../middleware/tidemark.js';
+import type { EvictReason, LogbookKind, ReadResult, RecallItem, Role } from '../types.js';
 import { TurnBaseline, baselineName, parseBaseline, type BaselineSpec } from './baselines.js';
-import { parseProbes, parseTranscript, readText, ReplayFormatError, type FormatIssue, type Probe, type TranscriptTurn } from './jsonl.js';
+import { parseProbes, parseTranscript, patternOf, readText, ReplayFormatError, type FormatIssue, type Probe, type TranscriptTurn } from './jsonl.js';
 import { progressBar } from './progress.js';
 
 export interface ReplayOptions {
@@ -17,9 +18,9 @@ export interface ReplayOptions {
   probes?: readonly Probe[];
   /** Source turns kept per probe (the recall cut). Also raises read.k to at least k. @default read.k of the config, else 5 */
   k?: number;
-  /** createTidemark options (capacity, read, write, decayUnit, ...). `store` and `embedder` may be objects. */
+  /** createTidemark options (capacity, read, write, logbook, ...). `store` and `embedder` may be objects. */
   config?: TidemarkOptions;
-  /** Baselines to run beside tidemark, e.g. `['window:20', 'flat']`. @default [] */
+  /** Baselines to run beside tidemark, e.g. `['bm25', 'flat', 'window:20']`. @default [] */
   baselines?: ReadonlyArray<string | BaselineSpec>;
   /** Stop at the first probe whose `after` names a turn not in the transcript. @default false */
   strict?: boolean;
@@ -29,18 +30,58 @@ export interface ReplayOptions {
   onProgress?: (done: number, total: number) => void;
 }
 
+/** Figures of one probe kind. */
+export interface KindFigures {
+  probes: number;
+  recall_at_1: number;
+  recall_at_k: number;
+  /** Probes of the kind that check values (`expectText`), and their accuracy. */
+  value_probes?: number;
+  value_at_1?: number;
+  value_at_k?: number;
+}
+
 /** Recall figures of one system (tidemark or a baseline). */
 export interface RecallFigures {
+  /** Mean recall over the probes that list `expect` turns. */
   recall_at_k: number;
   recall_at_1: number;
-  /** Per probe kind (the id prefix before ':', e.g. `fact`, `latest`). */
-  by_kind: Record<string, { probes: number; recall_at_1: number; recall_at_k: number }>;
+  /**
+   * Over the probes with `expectText`: the share whose expected value is among the top k items with
+   * no rejected (stale or wrong) value above it, and the share whose top item holds it.
+   */
+  value_at_k: number | null;
+  value_at_1: number | null;
+  /** Per probe kind (`kind`, else `category`, else the id prefix before ':'). */
+  by_kind: Record<string, KindFigures>;
 }
 
 export interface BaselineSummary extends RecallFigures {
   read_us: { p50: number; p99: number };
   /** Turns held at the end, over all sessions. */
   items_kept: number;
+}
+
+/** What each tier holds at the end and what happened to it. */
+export interface TierSummary {
+  working: {
+    /** Slots in use at the end, over all sessions. */
+    slots_in_use: number;
+    capacity: number;
+    writes: { allocated: number; overwritten: number; reinforced: number; gated_out: number; ambiguous: number };
+    evictions: Record<EvictReason, number>;
+  };
+  logbook: {
+    /** Entries at the end, over all scopes, by kind. */
+    entries: Record<LogbookKind, number>;
+    /** Turns kept and values demoted over the replay. */
+    turns_kept: number;
+    demoted: number;
+    /** The retention policy in force and what it deleted. */
+    retention: { max_age_ms: number; max_entries: number; dropped_age: number; dropped_count: number };
+    /** Roles whose turns are kept. */
+    roles: Role[];
+  };
 }
 
 export interface ReplaySummary extends RecallFigures {
@@ -53,12 +94,22 @@ export interface ReplaySummary extends RecallFigures {
   reads: Record<ReadResult, number>;
   /** Probe reads, by result. */
   probe_reads: Record<ReadResult, number>;
+  /**
+   * Of the probe reads called a hit, the share whose top item comes from an expected turn (probes with
+   * `expect` only): how far "hit" can be trusted. Null with no such hit.
+   */
+  hit_precision: number | null;
+  /** Of the probe reads whose top item comes from an expected turn, the share called a hit. */
+  hit_recall: number | null;
   writes: { allocated: number; overwritten: number; reinforced: number; gated_out: number };
   evictions: Record<EvictReason, number>;
   /** Slots in use at the end, over all sessions. */
   slots_in_use: number;
-  /** Archive items at the end, over all sessions. */
+  /** Logbook entries at the end, over all scopes. */
+  logbook_entries: number;
+  /** @deprecated since 0.2: logbook entries other than turns (the values that left working memory). */
   archive_items: number;
+  tiers: TierSummary;
   /** Read latency (µs, embedding included) over turn and probe reads. */
   read_us: { p50: number; p99: number };
   /** Turns replayed per second of tidemark time (reads + writes; baselines excluded), wall clock. */
@@ -69,13 +120,29 @@ export interface ReplaySummary extends RecallFigures {
   skipped: number;
 }
 
+/** How a probe's values fared. */
+export interface ValueResult {
+  /** The expected value is in the top k items with no rejected value above it. */
+  ok: boolean;
+  /** The top item holds the expected value (and no rejected one). */
+  at_1: boolean;
+  /** 1-based rank of the first item holding the expected value (null when none). */
+  rank: number | null;
+  /** 1-based rank of the first item holding a rejected value (null when none). */
+  rejected_rank: number | null;
+}
+
 export interface ProbeResult {
   id: string;
   session: string;
+  kind: string | null;
   retrieved: string[];
   recall: number;
-  /** Per baseline: its retrieved turns and recall. */
-  baselines?: Record<string, { retrieved: string[]; recall: number }>;
+  /** The read's result and the tier of its top item. */
+  result: ReadResult;
+  value?: ValueResult;
+  /** Per baseline: its retrieved turns and recall (and value check, over the turns' text). */
+  baselines?: Record<string, { retrieved: string[]; recall: number; value?: ValueResult }>;
 }
 
 export interface ReplayResult {
@@ -94,7 +161,7 @@ export function percentile(sorted: readonly number[], q: number): number {
 
 /**
  * Distinct source turns of items in rank order, cut at k. An item with several sources spends
- * several places, so a merged slot cannot win by carrying more provenance (DESIGN.md section 6).
+ * several places, so a merged slot cannot win by carrying more provenance.
  */
 export function retrievedTurns(items: ReadonlyArray<Pick<RecallItem, 'provenance'>>, k: number): string[] {
   const out: string[] = [];
@@ -119,32 +186,79 @@ export function recallOf(expected: readonly string[], retrieved: readonly string
   return n / expected.length;
 }
 
-/** The kind of a probe: its id's prefix before ':' (none when the id has no colon). */
-export const probeKind = (id: string): string | null => {
-  const i = id.indexOf(':');
-  return i > 0 ? id.slice(0, i) : null;
+/** Whether `text` holds any of the strings (case-insensitive) or `/patterns/`. */
+export function holdsAny(text: string, needles: readonly string[]): boolean {
+  const lower = text.toLowerCase();
+  return needles.some((n) => {
+    const re = patternOf(n);
+    return re ? re.test(text) : lower.includes(n.toLowerCase());
+  });
+}
+
+/**
+ * Checks recalled texts (best first) against a probe's expected and rejected values. An item that
+ * holds a rejected value counts as rejected even when it also holds an expected string (so
+ * "female tutor" is not taken for "male tutor").
+ */
+export function checkValues(texts: readonly string[], expectText: readonly string[], rejectText: readonly string[], k: number): ValueResult {
+  let rank: number | null = null;
+  let rejected: number | null = null;
+  for (let i = 0; i < texts.length; i++) {
+    const bad = rejectText.length > 0 && holdsAny(texts[i]!, rejectText);
+    if (bad && rejected === null) rejected = i + 1;
+    if (!bad && rank === null && holdsAny(texts[i]!, expectText)) rank = i + 1;
+  }
+  const ok = rank !== null && rank <= k && (rejected === null || rejected > rank);
+  return { ok, at_1: rank === 1, rank, rejected_rank: rejected };
+}
+
+/** The kind of a probe: its `kind` (or `category`) field, else its id's prefix before ':' (none without one). */
+export const probeKind = (p: Pick<Probe, 'id' | 'kind'>): string | null => {
+  if (p.kind !== undefined) return p.kind;
+  const i = p.id.indexOf(':');
+  return i > 0 ? p.id.slice(0, i) : null;
 };
 
 const round = (x: number, d = 4): number => Math.round(x * 10 ** d) / 10 ** d;
 const mean = (xs: readonly number[]): number => (xs.length === 0 ? 0 : xs.reduce((a, b) => a + b, 0) / xs.length);
+const meanOrNull = (xs: readonly number[]): number | null => (xs.length === 0 ? null : round(mean(xs)));
 
-function figures(probes: readonly Probe[], retrieved: readonly string[][]): RecallFigures {
-  const atK = probes.map((p, i) => recallOf(p.expect, retrieved[i]!));
-  const at1 = probes.map((p, i) => recallOf(p.expect, retrieved[i]!.slice(0, 1)));
+function figures(probes: readonly Probe[], retrieved: readonly string[][], values: ReadonlyArray<ValueResult | undefined>): RecallFigures {
+  const withExpect = probes.map((p, i) => i).filter((i) => probes[i]!.expect.length > 0);
+  const withValue = probes.map((p, i) => i).filter((i) => values[i] !== undefined);
+  const atK = (i: number): number => recallOf(probes[i]!.expect, retrieved[i]!);
+  const at1 = (i: number): number => recallOf(probes[i]!.expect, retrieved[i]!.slice(0, 1));
   const by: RecallFigures['by_kind'] = {};
   const groups = new Map<string, number[]>();
   probes.forEach((p, i) => {
-    const kind = probeKind(p.id);
+    const kind = probeKind(p);
     if (kind === null) return;
     let g = groups.get(kind);
     if (!g) groups.set(kind, (g = []));
     g.push(i);
   });
   for (const [kind, idx] of [...groups].sort((a, b) => a[0].localeCompare(b[0]))) {
-    by[kind] = { probes: idx.length, recall_at_1: round(mean(idx.map((i) => at1[i]!))), recall_at_k: round(mean(idx.map((i) => atK[i]!))) };
+    const rec = idx.filter((i) => probes[i]!.expect.length > 0);
+    const val = idx.filter((i) => values[i] !== undefined);
+    const f: KindFigures = { probes: idx.length, recall_at_1: round(mean(rec.map(at1))), recall_at_k: round(mean(rec.map(atK))) };
+    if (val.length > 0) {
+      f.value_probes = val.length;
+      f.value_at_1 = round(mean(val.map((i) => Number(values[i]!.at_1 && (values[i]!.rejected_rank ?? Infinity) > 1))));
+      f.value_at_k = round(mean(val.map((i) => Number(values[i]!.ok))));
+    }
+    by[kind] = f;
   }
-  return { recall_at_k: round(mean(atK)), recall_at_1: round(mean(at1)), by_kind: by };
+  return {
+    recall_at_k: round(mean(withExpect.map(atK))),
+    recall_at_1: round(mean(withExpect.map(at1))),
+    value_at_k: meanOrNull(withValue.map((i) => Number(values[i]!.ok))),
+    value_at_1: meanOrNull(withValue.map((i) => Number(values[i]!.at_1 && (values[i]!.rejected_rank ?? Infinity) > 1))),
+    by_kind: by,
+  };
 }
+
+const READ_RESULTS = (): Record<ReadResult, number> => ({ slot: 0, logbook: 0, miss: 0 });
+const LOGBOOK_KINDS = (): Record<LogbookKind, number> => ({ turn: 0, superseded: 0, capacity: 0, decayed: 0, expired: 0 });
 
 /** Replays turns through a fresh tidemark instance and asks the probes. */
 export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
@@ -160,7 +274,7 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
   config.embedder = embedder;
   const tm = createTidemark(config);
   const issues: FormatIssue[] = [...(opts.issues ?? [])];
-  const roles: Role[] = config.writeReplies ? ['user', 'assistant'] : ['user'];
+  const roles: Role[] = config.logbook?.roles ?? TIDEMARK_DEFAULTS.logbook.roles;
   const specs = (opts.baselines ?? []).map((b) => (typeof b === 'string' ? parseBaseline(b) : b));
   const baselines = specs.map((s) => new TurnBaseline(s, { embedder, beta: tm.params.read.beta, gamma: tm.params.read.gamma, roles }));
   const names = new Set<string>();
@@ -171,6 +285,7 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
 
   // Probes asked right after a turn, keyed by session + turn id; the rest at the end.
   const turnKeys = new Set(opts.turns.map((t) => `${t.session}\u0000${t.turn}`));
+  const turnText = new Map(opts.turns.map((t) => [`${t.session}\u0000${t.turn}`, t]));
   const afterTurn = new Map<string, Probe[]>();
   const atEnd: Probe[] = [];
   for (const p of opts.probes ?? []) {
@@ -190,19 +305,36 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
     list.push(p);
   }
 
-  const reads: Record<ReadResult, number> = { hit: 0, archive_hit: 0, miss: 0 };
-  const probeReads: Record<ReadResult, number> = { hit: 0, archive_hit: 0, miss: 0 };
+  const reads = READ_RESULTS();
+  const probeReads = READ_RESULTS();
   const writes = { allocated: 0, overwritten: 0, reinforced: 0, gated_out: 0 };
+  let ambiguous = 0;
   const evictions: Record<EvictReason, number> = { capacity: 0, decayed: 0, expired: 0, erased: 0 };
+  const logbook = { turns: 0, demoted: 0, droppedAge: 0, droppedCount: 0 };
   tm.on('evict', (e) => {
     evictions[e.reason]++;
+  });
+  tm.on('write', (e) => {
+    if (e.ambiguous) ambiguous++;
+  });
+  tm.on('logbook', (e) => {
+    logbook.turns += e.turns;
+    logbook.demoted += e.demoted;
+    logbook.droppedAge += e.droppedAge;
+    logbook.droppedCount += e.droppedCount;
   });
   const readUs: number[] = [];
   const baseUs = baselines.map(() => [] as number[]);
   const asked: Probe[] = [];
   const results: ProbeResult[] = [];
+  const values: Array<ValueResult | undefined> = [];
   const baseRetrieved = baselines.map(() => [] as string[][]);
+  const baseValues = baselines.map(() => [] as Array<ValueResult | undefined>);
   const sessions = new Set<string>();
+  let hits = 0;
+  let hitsRight = 0;
+  let topRight = 0;
+  let topRightHit = 0;
   let tmMs = 0;
   let cpuUs = 0;
   let replayed = 0;
@@ -213,7 +345,20 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
     probeReads[ctx.trace.result]++;
     readUs.push(ctx.trace.durationUs);
     const retrieved = retrievedTurns(ctx.items, k);
-    const r: ProbeResult = { id: p.id, session: p.session, retrieved, recall: round(recallOf(p.expect, retrieved)) };
+    const r: ProbeResult = { id: p.id, session: p.session, kind: probeKind(p), retrieved, recall: round(recallOf(p.expect, retrieved)), result: ctx.trace.result };
+    if (p.expect.length > 0) {
+      const topOk = ctx.items[0]?.provenance.some((t) => p.expect.includes(t)) === true;
+      if (ctx.trace.result !== 'miss') {
+        hits++;
+        if (topOk) hitsRight++;
+      }
+      if (topOk) {
+        topRight++;
+        if (ctx.trace.result !== 'miss') topRightHit++;
+      }
+    }
+    let v: ValueResult | undefined;
+    if (p.expectText) v = r.value = checkValues(ctx.items.map(itemLine), p.expectText, p.rejectText ?? [], k);
     if (baselines.length > 0) {
       r.baselines = {};
       const qv = (await embedder.embed([p.query]))[0]!;
@@ -221,10 +366,17 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
         const q = await baselines[b]!.query(p.session, p.query, k, qv);
         baseUs[b]!.push(q.us);
         baseRetrieved[b]!.push(q.retrieved);
-        r.baselines[baselines[b]!.name] = { retrieved: q.retrieved, recall: round(recallOf(p.expect, q.retrieved)) };
+        const entry: { retrieved: string[]; recall: number; value?: ValueResult } = { retrieved: q.retrieved, recall: round(recallOf(p.expect, q.retrieved)) };
+        if (p.expectText) {
+          const texts = q.retrieved.map((id) => turnText.get(`${p.session}\u0000${id}`)?.text ?? '');
+          entry.value = checkValues(texts, p.expectText, p.rejectText ?? [], k);
+        }
+        baseValues[b]!.push(entry.value);
+        r.baselines[baselines[b]!.name] = entry;
       }
     }
     asked.push(p);
+    values.push(v);
     results.push(r);
   };
 
@@ -236,15 +388,19 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
       const c0 = process.cpuUsage();
       try {
         let used: string[] = [];
+        let promote: string[] = [];
         if (t.role === 'user') {
-          const ctx = await tm.read({ session: t.session, text: t.text });
+          const ctx = await tm.read({ session: t.session, text: t.text, ...(t.at ? { at: t.at } : {}) });
           reads[ctx.trace.result]++;
           readUs.push(ctx.trace.durationUs);
-          used = tm.usedBy(ctx);
+          // Like wrap(): what the turn used is judged by the reply that follows it.
+          const reply = batch[1]?.role === 'assistant' ? batch[1].text : undefined;
+          used = tm.usedBy(ctx, reply);
+          promote = tm.promotedBy(ctx, reply);
         }
         const report = await tm.write(
           batch.map((b) => ({ session: b.session, turn: b.turn, role: b.role, text: b.text, ...(b.at ? { at: b.at } : {}), ...(b.speaker ? { speaker: b.speaker } : {}) })),
-          { reinforce: used },
+          { reinforce: used, promote },
         );
         writes.allocated += report.allocated;
         writes.overwritten += report.overwritten;
@@ -271,7 +427,8 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
       sessions.add(t.session);
       replayed++;
       if (baselines.length > 0) {
-        const v = roles.includes(t.role) ? (await embedder.embed([t.text]))[0]! : undefined;
+        const needVec = roles.includes(t.role) && baselines.some((b) => b.spec.kind !== 'bm25');
+        const v = needVec ? (await embedder.embed([t.text]))[0]! : undefined;
         for (const b of baselines) await b.add(t, v);
       }
       const due = dueAfter(t);
@@ -303,14 +460,20 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
     opts.onProgress?.(total, total);
 
     let slotsInUse = 0;
-    let archiveItems = 0;
+    const entries = LOGBOOK_KINDS();
+    const scopes = new Set<string>();
     for (const s of sessions) {
-      const view = await tm.inspect(s, tm.tenant, { archiveLimit: 1_000_000, eventLimit: 0 });
+      const view = await tm.inspect(s, tm.tenant, { logbookLimit: 0, eventLimit: 0 });
       slotsInUse += view.slots.length;
-      archiveItems += view.archive.length;
+      // A replay's sessions have no user, so each is its own logbook scope.
+      if (!scopes.has(s)) {
+        scopes.add(s);
+        for (const e of await tm.store.listLogbook({ tenant: tm.tenant, session: s }, { limit: Number.MAX_SAFE_INTEGER })) entries[e.kind]++;
+      }
     }
     readUs.sort((a, b) => a - b);
-    const tmFig = figures(asked, results.map((r) => r.retrieved));
+    const tmFig = figures(asked, results.map((r) => r.retrieved), values);
+    const logbookEntries = Object.values(entries).reduce((a, b) => a + b, 0);
     const summary: ReplaySummary = {
       turns: replayed,
       sessions: sessions.size,
@@ -320,10 +483,28 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
       ...tmFig,
       reads,
       probe_reads: probeReads,
+      hit_precision: hits > 0 ? round(hitsRight / hits) : null,
+      hit_recall: topRight > 0 ? round(topRightHit / topRight) : null,
       writes,
       evictions,
       slots_in_use: slotsInUse,
-      archive_items: archiveItems,
+      logbook_entries: logbookEntries,
+      archive_items: logbookEntries - entries.turn,
+      tiers: {
+        working: { slots_in_use: slotsInUse, capacity: tm.params.capacity, writes: { ...writes, ambiguous }, evictions: { ...evictions } },
+        logbook: {
+          entries,
+          turns_kept: logbook.turns,
+          demoted: logbook.demoted,
+          retention: {
+            max_age_ms: config.logbook?.maxAgeMs ?? TIDEMARK_DEFAULTS.logbook.maxAgeMs,
+            max_entries: config.logbook?.maxEntries ?? TIDEMARK_DEFAULTS.logbook.maxEntries,
+            dropped_age: logbook.droppedAge,
+            dropped_count: logbook.droppedCount,
+          },
+          roles: [...roles],
+        },
+      },
       read_us: { p50: round(percentile(readUs, 0.5), 1), p99: round(percentile(readUs, 0.99), 1) },
       turns_per_s: Math.round(replayed / Math.max(1e-9, tmMs / 1000)),
       turns_per_cpu_s: Math.round(replayed / Math.max(1e-9, cpuUs / 1e6)),
@@ -333,7 +514,7 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
     baselines.forEach((b, i) => {
       const us = baseUs[i]!.sort((x, y) => x - y);
       baseOut[b.name] = {
-        ...figures(asked, baseRetrieved[i]!),
+        ...figures(asked, baseRetrieved[i]!, baseValues[i]!),
         read_us: { p50: round(percentile(us, 0.5), 1), p99: round(percentile(us, 0.99), 1) },
         items_kept: b.itemsKept(),
       };
@@ -351,7 +532,7 @@ export interface ReplayCliOptions {
   k?: number | string;
   config?: string;
   json?: boolean;
-  /** Repeatable: `window:N` or `flat`. */
+  /** Repeatable: `bm25`, `flat` or `window:N`. */
   baseline?: string[] | string;
   strict?: boolean;
 }
@@ -400,28 +581,40 @@ const int = (x: number): string => Math.round(x).toLocaleString('en-US');
 export function formatReplayTable(r: ReplayResult): string {
   const s = r.summary;
   const kinds = Object.keys(s.by_kind);
-  const head = ['', `recall@${s.k}`, 'recall@1', ...kinds.flatMap((k) => [`${k}@1`, `${k}@${s.k}`]), 'read p50 µs', 'read p99 µs', 'items kept'];
+  const hasValues = s.value_at_k !== null;
+  const head = [
+    '', `recall@${s.k}`, 'recall@1', ...(hasValues ? [`value@${s.k}`, 'value@1'] : []),
+    ...kinds.flatMap((k) => [`${k}@1`, `${k}@${s.k}`]), 'read p50 µs', 'read p99 µs', 'items kept',
+  ];
+  const opt = (x: number | null): string => (x === null ? '-' : fmt(x));
   const row = (name: string, f: RecallFigures, us: { p50: number; p99: number }, kept: number): string[] => [
     name,
     fmt(f.recall_at_k),
     fmt(f.recall_at_1),
+    ...(hasValues ? [opt(f.value_at_k), opt(f.value_at_1)] : []),
     ...kinds.flatMap((k) => [fmt(f.by_kind[k]?.recall_at_1 ?? 0), fmt(f.by_kind[k]?.recall_at_k ?? 0)]),
     us.p50.toFixed(1),
     us.p99.toFixed(1),
     int(kept),
   ];
-  const rows = [head, row('tidemark', s, s.read_us, s.slots_in_use), ...Object.entries(r.baselines).map(([n, b]) => row(n, b, b.read_us, b.items_kept))];
+  const rows = [head, row('tidemark', s, s.read_us, s.slots_in_use + s.logbook_entries), ...Object.entries(r.baselines).map(([n, b]) => row(n, b, b.read_us, b.items_kept))];
   const widths = head.map((_, c) => Math.max(...rows.map((x) => x[c]!.length)));
   const lines = rows.map((x) => x.map((cell, c) => (c === 0 ? cell.padEnd(widths[c]!) : cell.padStart(widths[c]!))).join('  '));
+  const t = s.tiers;
+  const e = t.logbook.entries;
+  const ret = t.logbook.retention;
   const out = [
     `replay: ${int(s.turns)} turns, ${s.sessions} sessions, ${s.probes} probes, k = ${s.k}, capacity ${s.capacity}${s.skipped ? `, ${s.skipped} lines skipped` : ''}`,
     '',
     ...lines,
     '',
-    `reads      hit ${int(s.reads.hit)}, archive hit ${int(s.reads.archive_hit)}, miss ${int(s.reads.miss)} (probe reads: ${s.probe_reads.hit}/${s.probe_reads.archive_hit}/${s.probe_reads.miss})`,
-    `writes     allocated ${int(s.writes.allocated)}, overwritten ${int(s.writes.overwritten)}, reinforced ${int(s.writes.reinforced)}, gated out ${int(s.writes.gated_out)}`,
+    `reads      slot ${int(s.reads.slot)}, logbook ${int(s.reads.logbook)}, miss ${int(s.reads.miss)} (probe reads: ${s.probe_reads.slot}/${s.probe_reads.logbook}/${s.probe_reads.miss}; hit precision ${opt(s.hit_precision)}, hit recall ${opt(s.hit_recall)})`,
+    `working    ${int(t.working.slots_in_use)} slots in use (${fmt(t.working.slots_in_use / Math.max(1, s.sessions), 1)} per session of ${s.capacity}); ` +
+      `allocated ${int(s.writes.allocated)}, overwritten ${int(s.writes.overwritten)}, ambiguous kept beside ${int(t.working.writes.ambiguous)}, reinforced ${int(s.writes.reinforced)}, gated out ${int(s.writes.gated_out)}`,
     `evictions  capacity ${int(s.evictions.capacity)}, decayed ${int(s.evictions.decayed)}, expired ${int(s.evictions.expired)}`,
-    `memory     ${int(s.slots_in_use)} slots in use (${fmt(s.slots_in_use / Math.max(1, s.sessions), 1)} per session of ${s.capacity}), ${int(s.archive_items)} archive items`,
+    `logbook    ${int(s.logbook_entries)} entries: ${int(e.turn)} turns (${t.logbook.roles.join(' + ')}), ${int(e.superseded)} superseded, ` +
+      `${int(e.capacity + e.decayed + e.expired)} evicted values; retention ${ret.max_age_ms > 0 ? `max age ${int(ret.max_age_ms / 86_400_000)} d` : 'no max age'}, ` +
+      `${ret.max_entries > 0 ? `max ${int(ret.max_entries)} per scope` : 'no count cap'} (deleted: ${int(ret.dropped_age)} by age, ${int(ret.dropped_count)} by count)`,
     `speed      ${int(s.turns_per_s)} turns/s (${int(s.turns_per_cpu_s)} per CPU second)`,
   ];
   for (const i of r.issues.slice(0, 20)) out.push(`skipped    ${i.file} line ${i.line}: ${i.message}`);

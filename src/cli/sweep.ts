@@ -1,5 +1,5 @@
 // `tidemark sweep`: replays one transcript + probes under a grid of settings (capacity, gate and
-// overwrite thresholds, hit threshold, half-life, lexical weight gamma, temperature), prints the
+// overwrite thresholds, the read's speaker, neighbour, slot and recency weights, BM25's b), prints the
 // frontier of recall against slots and against read cost, writes a self-contained SVG/HTML plot,
 // and says which setting to pick: the cheapest one within 0.01 of the best recall.
 
@@ -20,21 +20,30 @@ export interface SweepGrid {
   axes: SweepAxes;
 }
 
-/** 16 replays (the base point once): about 55 s of CPU on the synthetic scenario on this machine. */
+/**
+ * 15 replays (the base point once): the levers of the merged read (speakers, neighbours, the slot
+ * tier's priors, BM25's length normalisation) and of working memory (capacity, gate, overwrite).
+ */
 export const DEFAULT_GRID: SweepGrid = {
   mode: 'axes',
   axes: {
-    capacity: [16, 32, 64, 128],
+    capacity: [16, 128],
     'write.gateThreshold': [0.5, 0.7],
     'write.overwriteThreshold': [0.7, 0.9],
-    'read.hitCosine': [0.2, 0.4],
-    'write.halfLife': [100, 800],
-    'read.gamma': [2, 8],
-    'read.temperature': [0.5, 2],
+    'read.speakerBoost': [0.5, 2],
+    'read.neighbourWeight': [0, 0.5],
+    'read.slotPrior': [0, 2],
+    'read.recencyBoost': [0, 2],
+    'read.b': [0.4],
   },
 };
 
-const PATHS = new Set(['capacity', 'read.beta', 'read.gamma', 'read.delta', 'read.temperature', 'read.k', 'read.minWeight', 'read.hitCosine', 'read.minCosine', 'read.minLexical', 'write.gateThreshold', 'write.overwriteThreshold', 'write.halfLife', 'write.keyBlend', 'write.reinforceGain', 'write.halfLifeGrowth', 'write.strengthFloor']);
+const PATHS = new Set([
+  'capacity', 'read.beta', 'read.gamma', 'read.delta', 'read.temperature', 'read.k', 'read.minWeight', 'read.hitCosine', 'read.minCosine', 'read.minLexical',
+  'read.hitCoverage', 'read.hitMargin', 'read.slotPrior', 'read.provenanceWeight', 'read.recencyBoost', 'read.recencyHalfLife', 'read.denseWeight', 'read.rrfK',
+  'read.k1', 'read.b', 'read.neighbourWeight', 'read.speakerBoost', 'read.nameWeight', 'read.dateWeight', 'read.temporalBoost', 'read.replyWeight', 'read.questionWeight',
+  'read.logbookLimit', 'write.gateThreshold', 'write.overwriteThreshold', 'write.halfLife', 'write.keyBlend', 'write.reinforceGain', 'write.halfLifeGrowth', 'write.strengthFloor',
+]);
 
 /** Checks a grid read from a file; names the bad path or value. */
 export function checkGrid(v: unknown): SweepGrid {

@@ -48,13 +48,13 @@ const SCRIPT = String.raw`
 (function () {
   'use strict';
   var C = {
-    hit: '#2f7d6d', archive_hit: '#7fa7c0', miss: '#d9c39a',
+    slot: '#2f7d6d', logbook: '#7fa7c0', miss: '#d9c39a',
     allocated: '#2f7d6d', overwritten: '#4f6d9a', reinforced: '#a3c48f', gated_out: '#cbc2b0',
     capacity: '#b5654a', decayed: '#d5a24f', expired: '#8d8fa6', erased: '#5d4a6e',
     read: '#2f7d6d', write: '#4f6d9a', turn: '#b5654a'
   };
   var LABEL = {
-    hit: 'slot hit', archive_hit: 'archive hit', miss: 'miss', allocated: 'allocated', overwritten: 'overwritten',
+    slot: 'slot', logbook: 'logbook', miss: 'miss', allocated: 'allocated', overwritten: 'overwritten',
     reinforced: 'reinforced', gated_out: 'gated out', capacity: 'capacity', decayed: 'decayed', expired: 'expired',
     erased: 'erased', read: 'read', write: 'write', turn: 'turn'
   };
@@ -172,8 +172,8 @@ const SCRIPT = String.raw`
   window.addEventListener('resize', function () { if (lastSnap) render(lastSnap); });
   function render(s) {
     last = Date.now(); lastSnap = s;
-    var tot = s.totals, reads = tot.reads.hit + tot.reads.archive_hit + tot.reads.miss;
-    var lastMin = 0; for (var i = Math.max(0, s.t.length - Math.round(60000 / s.bucketMs)); i < s.t.length; i++) lastMin += s.reads.hit[i] + s.reads.archive_hit[i] + s.reads.miss[i];
+    var tot = s.totals, reads = tot.reads.slot + tot.reads.logbook + tot.reads.miss;
+    var lastMin = 0; for (var i = Math.max(0, s.t.length - Math.round(60000 / s.bucketMs)); i < s.t.length; i++) lastMin += s.reads.slot[i] + s.reads.logbook[i] + s.reads.miss[i];
     $('k-hit').textContent = tot.hitRatio === null ? '–' : fmt(tot.hitRatio * 100, 1) + '%';
     $('k-rpm').textContent = fmt(lastMin);
     $('k-sessions').textContent = fmt(s.activeSessions);
@@ -181,7 +181,7 @@ const SCRIPT = String.raw`
     $('k-median').textContent = s.retention.clock.median === null ? '> ' + fmt(s.retention.clock.steps.length ? s.retention.clock.steps[s.retention.clock.steps.length - 1].time : 0) : fmt(s.retention.clock.median) + ' turns';
     $('k-p95').textContent = ms(tot.latency.turn.p95 !== null ? tot.latency.turn.p95 : tot.latency.read.p95);
 
-    setPanel('recall', reads, stacked(widthOf('recall'), s.t, ['hit', 'archive_hit', 'miss'], s.reads, true, s.atMs), legend(['hit', 'archive_hit', 'miss'], tot.reads));
+    setPanel('recall', reads, stacked(widthOf('recall'), s.t, ['slot', 'logbook', 'miss'], s.reads, true, s.atMs), legend(['slot', 'logbook', 'miss'], tot.reads));
     var nw = sum(Object.keys(tot.writes).map(function (k) { return tot.writes[k]; }));
     setPanel('writes', nw, stacked(widthOf('writes'), s.t, ['allocated', 'overwritten', 'reinforced', 'gated_out'], s.writes, false, s.atMs), legend(['allocated', 'overwritten', 'reinforced', 'gated_out'], tot.writes));
     var ne = sum(Object.keys(tot.evictions).map(function (k) { return tot.evictions[k]; }));
@@ -237,9 +237,9 @@ export function dashboardPage(): string {
 <body>
 <header>${logo}<div><h1>tidemark</h1><div class="sub">working memory, last 15 minutes</div></div>
 <div class="status"><span class="dot" id="dot"></span><span id="status">connecting…</span></div></header>
-<div class="kpis">${kpi('k-hit', 'hit ratio (slot + archive)')}${kpi('k-rpm', 'reads in the last minute')}${kpi('k-sessions', 'active sessions')}${kpi('k-alive', 'slots alive')}${kpi('k-median', 'median slot lifetime')}${kpi('k-p95', 'turn latency p95')}</div>
+<div class="kpis">${kpi('k-hit', 'hit share (slot + logbook)')}${kpi('k-rpm', 'reads in the last minute')}${kpi('k-sessions', 'active sessions')}${kpi('k-alive', 'slots alive')}${kpi('k-median', 'median slot lifetime')}${kpi('k-p95', 'turn latency p95')}</div>
 <main class="grid">
-${panel('recall', 's8', 'Recall over time', 'Share of reads per 5 s answered from a working-memory slot, only from the archive, or not at all.')}
+${panel('recall', 's8', 'Hit share over time', 'Share of reads per 5 s whose top item was a relevant working-memory slot, a relevant logbook entry, or nothing relevant (miss).')}
 ${panel('occupancy', 's4', 'Slot occupancy', 'Active sessions by the share of their slots in use.')}
 ${panel('writes', 's4', 'Writes by outcome', 'Candidates per 5 s: new slot, replaced value, strengthened slot, or refused by the write gate.')}
 ${panel('evictions', 's4', 'Evictions by reason', 'Slots leaving working memory per 5 s.')}

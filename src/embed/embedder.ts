@@ -10,6 +10,12 @@ export interface Embedder {
   /** Length of every vector returned. */
   readonly dim: number;
   /**
+   * True when the vectors carry meaning beyond the words they share (a trained model): reads then add
+   * a dense list to the lexical one, and the logbook keeps turn vectors when `logbook.vectors` is
+   * `'auto'`. Unset means false.
+   */
+  readonly semantic?: boolean;
+  /**
    * Embeds a batch. Must return one vector per input, in order, each of length `dim`. Vectors should
    * be L2-normalised; the core normalises again and rejects NaN/Infinity or all-zero vectors with
    * `TIDEMARK_E_EMBED_INVALID`.

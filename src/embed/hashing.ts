@@ -27,6 +27,8 @@ export const HASHING_EMBEDDER_DEFAULTS: Required<HashingEmbedderOptions> = {
 
 export class HashingEmbedder implements Embedder {
   readonly id: string;
+  /** Hashed words and n-grams restate what BM25 already scores: no dense list from these. */
+  readonly semantic = false;
   readonly dim: number;
   private readonly o: Required<HashingEmbedderOptions>;
 

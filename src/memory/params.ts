@@ -5,43 +5,81 @@ import { ConfigError, describeValue } from '../errors.js';
 import { DEFAULT_GATE_WEIGHTS, type GateWeights } from './gate.js';
 
 export interface ReadParams {
-  /** Key strength beta: weight of cosine similarity in the score. @default 10 */
+  /** Key strength beta: weight of cosine similarity in the slot attention score. @default 10 */
   beta: number;
-  /** Weight gamma of the normalised BM25 score. @default 4 */
+  /** Weight gamma of the normalised BM25 score in the slot attention score. @default 4 */
   gamma: number;
-  /** Weight delta of ln(strength). @default 0.5 */
+  /** Weight delta of ln(strength) in the slot attention score. @default 0.5 */
   delta: number;
-  /** Softmax temperature tau. @default 1 */
+  /** Softmax temperature tau of the slot attention. @default 1 */
   temperature: number;
-  /** Items returned at most. @default 5 */
+  /** Items returned at most, over both tiers. @default 8 */
   k: number;
-  /** Items below this attention weight are dropped (the best item is always kept on a hit). @default 0.02 */
+  /** Slots below this attention weight are not counted as attended (trace and multi-hop). @default 0.02 */
   minWeight: number;
-  /** Stop adding items once their cumulative weight reaches this mass. @default 0.99 */
+  /** Multi-hop reads stop adding slots once their cumulative attention reaches this mass. @default 0.99 */
   maxMass: number;
-  /**
-   * A slot is relevant when its cosine reaches this... The default, -1, lets every slot compete: a
-   * read returns the top-k of working memory by attention, and `trace.result` says whether any of it
-   * matched well (a hit). Raise it to return only close matches. @default -1
-   */
+  /** Slots whose cosine is below this take no part in multi-hop reads... @default -1 */
   minCosine: number;
-  /**
-   * ...or its raw BM25 score reaches this. @default 0.25 — raw BM25 shrinks with the number of slots
-   * (IDF of a term in 2 of 3 slots is 0.47), so 1 ignored single-word matches in small sessions.
-   */
+  /** ...unless their raw BM25 over the slots reaches this. @default 0.25 */
   minLexical: number;
-  /** A read is a hit when its best relevant slot has cosine >= hitCosine or BM25 >= minLexical. @default 0.3 */
+  /**
+   * With a dense list (a semantic embedder), the top item is also a hit when its cosine reaches this.
+   * @default 0.5 — sentence-embedding cosines of unrelated chat turns sit mostly below 0.4 (common practice).
+   */
   hitCosine: number;
-  /** Reads performed (1 = single hop; 2+ = multi-hop with q' = normalize(q + sum a_i v_i)). @default 1 */
+  /** Reads of working memory (1 = single hop; 2+ = multi-hop with q' = normalize(q + sum a_i v_i)). @default 1 */
   hops: number;
-  /** When to search the archive: on a slot miss, on every read, or never. @default 'miss' */
-  archive: 'miss' | 'always' | 'never';
-  /** Archive items fetched per read. @default 3 */
-  archiveK: number;
-  /** Archive items below this cosine are ignored unless they match lexically. @default 0.3 */
-  archiveMinCosine: number;
   /** Return superseded values ranked by their own score (history queries). @default false */
   history: boolean;
+  /**
+   * Which tiers a read ranks: both (the default), working memory alone, or the logbook alone — for
+   * ablations (`sweep`) and for bots that want only one of them. @default 'both'
+   */
+  tiers: 'both' | 'slots' | 'logbook';
+  /**
+   * The top item is a hit when its coverage — its own BM25 over the query's maximum (the sum of the
+   * query terms' IDF) — reaches this, and it stands clear of the next item (`hitMargin`). Calibrated on
+   * the project's checks: see the README for the precision this gives. @default 0.3
+   */
+  hitCoverage: number;
+  /** ...and its score is at least hitMargin × the second item's. @default 1.3 */
+  hitMargin: number;
+  /** A slot's lexical score × (1 + slotPrior × strength): the working-memory tier's precedence. @default 0.5 */
+  slotPrior: number;
+  /** A slot also scores this share of the best lexical score among the turns it came from. @default 0.5 */
+  provenanceWeight: number;
+  /**
+   * Working memory's precedence for what was just said: a slot written `age` clock units ago scores
+   * × (1 + recencyBoost × 2^(−age / recencyHalfLife)), so of two slots on one topic the newer leads. @default 1
+   */
+  recencyBoost: number;
+  /** @default 20 (clock units: turns, or seconds with decayUnit 'seconds') */
+  recencyHalfLife: number;
+  /** Weight of the dense list in reciprocal rank fusion; used only when there is one (see logbook.vectors). @default 1 */
+  denseWeight: number;
+  /** The constant of reciprocal rank fusion (60 in Cormack et al. 2009). @default 60 */
+  rrfK: number;
+  /** BM25 k1 (term-frequency saturation) for slots and logbook alike. @default 1.2 */
+  k1: number;
+  /** BM25 b (length normalisation). @default 0.75 */
+  b: number;
+  /** Share of each neighbouring turn's score a logbook turn receives. @default 0.3 */
+  neighbourWeight: number;
+  /** An item said by (or about the facts of) a person the query names scores × (1 + speakerBoost). @default 1 */
+  speakerBoost: number;
+  /** Weight of a speaker's name as a plain query term. @default 0.2 */
+  nameWeight: number;
+  /** Weight of a query's resolved-date terms. @default 1 */
+  dateWeight: number;
+  /** On a "when" question, a turn that mentions a date scores × (1 + temporalBoost). @default 0.3 */
+  temporalBoost: number;
+  /** A bot's own reply (assistant turn, no speaker named) in the logbook scores × replyWeight. @default 0.4 */
+  replyWeight: number;
+  /** A logbook turn that only asks for information scores × questionWeight (it is context, rarely the fact). @default 0.7 */
+  questionWeight: number;
+  /** Logbook entries taken from the lexical ranking per read (before merging). @default 50 */
+  logbookLimit: number;
 }
 
 export interface WriteParams {
@@ -83,18 +121,34 @@ export const READ_DEFAULTS: ReadParams = {
   gamma: 4,
   delta: 0.5,
   temperature: 1,
-  k: 5,
+  k: 8,
   minWeight: 0.02,
   maxMass: 0.99,
   minCosine: -1,
   minLexical: 0.25,
-  hitCosine: 0.3,
+  hitCosine: 0.5,
   hops: 1,
-  archive: 'miss',
-  archiveK: 3,
-  archiveMinCosine: 0.3,
   history: false,
-};
+  tiers: 'both',
+  hitCoverage: 0.3,
+  hitMargin: 1.3,
+  slotPrior: 0.5,
+  provenanceWeight: 0.5,
+  recencyBoost: 1,
+  recencyHalfLife: 20,
+  denseWeight: 1,
+  rrfK: 60,
+  k1: 1.2,
+  b: 0.75,
+  neighbourWeight: 0.3,
+  speakerBoost: 1,
+  nameWeight: 0.2,
+  dateWeight: 1,
+  temporalBoost: 0.3,
+  replyWeight: 0.4,
+  questionWeight: 0.7,
+  logbookLimit: 50,
+}
 
 export const WRITE_DEFAULTS: WriteParams = {
   gateThreshold: 0.6,
@@ -163,11 +217,28 @@ export function resolveMemoryParams(input: MemoryParamsInput = {}): MemoryParams
   num('read.minLexical', read.minLexical, 0, 1000);
   num('read.hitCosine', read.hitCosine, -1, 1);
   num('read.hops', read.hops, 1, 5, { integer: true });
-  if (!['miss', 'always', 'never'].includes(read.archive)) {
-    throw new ConfigError(`option read.archive must be 'miss', 'always' or 'never', got ${describeValue(read.archive)}`, { details: { option: 'read.archive' } });
+  if (typeof read.history !== 'boolean') throw new ConfigError(`option read.history must be a boolean, got ${describeValue(read.history)}`, { details: { option: 'read.history' } });
+  if (!['both', 'slots', 'logbook'].includes(read.tiers)) {
+    throw new ConfigError(`option read.tiers must be 'both', 'slots' or 'logbook', got ${describeValue(read.tiers)}`, { details: { option: 'read.tiers' } });
   }
-  num('read.archiveK', read.archiveK, 0, 1000, { integer: true });
-  num('read.archiveMinCosine', read.archiveMinCosine, -1, 1);
+  num('read.hitCoverage', read.hitCoverage, 0, 100);
+  num('read.hitMargin', read.hitMargin, 1, 1000);
+  num('read.slotPrior', read.slotPrior, 0, 100);
+  num('read.provenanceWeight', read.provenanceWeight, 0, 100);
+  num('read.recencyBoost', read.recencyBoost, 0, 100);
+  num('read.recencyHalfLife', read.recencyHalfLife, 0, Number.MAX_SAFE_INTEGER, { openMin: true });
+  num('read.denseWeight', read.denseWeight, 0, 100);
+  num('read.rrfK', read.rrfK, 0, 10_000);
+  num('read.k1', read.k1, 0, 100);
+  num('read.b', read.b, 0, 1);
+  num('read.neighbourWeight', read.neighbourWeight, 0, 10);
+  num('read.speakerBoost', read.speakerBoost, 0, 100);
+  num('read.nameWeight', read.nameWeight, 0, 10);
+  num('read.dateWeight', read.dateWeight, 0, 100);
+  num('read.temporalBoost', read.temporalBoost, 0, 100);
+  num('read.replyWeight', read.replyWeight, 0, 10);
+  num('read.questionWeight', read.questionWeight, 0, 10);
+  num('read.logbookLimit', read.logbookLimit, 0, 10_000, { integer: true });
   num('write.gateThreshold', write.gateThreshold, 0, 1);
   num('write.beta', write.beta, 0, 1000);
   num('write.overwriteThreshold', write.overwriteThreshold, -1, 1);

@@ -3,6 +3,7 @@
 // English with BPE tokenizers); bots pass their tokenizer's count for exact budgets.
 
 import type { RecallItem } from '../types.js';
+import { formatMention } from './dates.js';
 
 /** Counts tokens of a string. */
 export type TokenCounter = (text: string) => number;
@@ -15,20 +16,37 @@ export interface PromptOptions {
   tokenBudget: number;
   /** @default approxTokens */
   countTokens: TokenCounter;
-  /** First line of the block. @default 'What this user has told us (most relevant first):' */
+  /** First line of the block. @default 'From memory (most relevant first):' */
   header: string;
 }
 
 export const PROMPT_DEFAULTS: PromptOptions = {
   tokenBudget: 256,
   countTokens: approxTokens,
-  header: 'What this user has told us (most relevant first):',
+  header: 'From memory (most relevant first):',
 };
 
-/** One line per item: "- key: value" (or just the value when key and value are the same text). */
+/** The day of an epoch-ms time, as a prompt shows it ("2023-05-07"). */
+const dayOf = (ms: number): string => formatMention({ day: new Date(ms).toISOString().slice(0, 10), grain: 'day' });
+
+/**
+ * One line per item. A slot: "- key: value". A turn: "- [7 May 2023] Ana: text (last Saturday =
+ * 6 May 2023)", so the model sees who said it, when, and what its relative dates meant. A value
+ * that left working memory says whether it was replaced.
+ */
 export function itemLine(item: RecallItem): string {
-  const older = item.source === 'archive' ? (item.reason === 'superseded' ? ' (earlier, since replaced)' : ' (older)') : '';
-  return item.key && item.key !== item.value ? `- ${item.key}: ${item.value}${older}` : `- ${item.value}${older}`;
+  if (item.kind === 'turn') {
+    const when = item.atMs !== undefined && Number.isFinite(item.atMs) ? `[${dayOf(item.atMs)}] ` : '';
+    const who = item.speaker ?? item.role ?? 'user';
+    const dates = item.dates && item.dates.length > 0 ? ` (${item.dates.map((d) => `${d.text} = ${formatMention(d)}`).join('; ')})` : '';
+    return `- ${when}${who}: ${item.value}${dates}`;
+  }
+  const note =
+    item.kind === 'superseded' ? ' (earlier, since replaced)'
+    : item.kind === 'slot' ? (item.placed === 'ambiguous' ? ' (said later; may update the next item)' : '')
+    : ' (older)';
+  const dates = item.dates && item.dates.length > 0 ? ` (${item.dates.map((d) => `${d.text} = ${formatMention(d)}`).join('; ')})` : '';
+  return item.key && item.key !== item.value ? `- ${item.key}: ${item.value}${dates}${note}` : `- ${item.value}${dates}${note}`;
 }
 
 /** The prompt block; empty string when there is nothing to say or the header alone busts the budget. */

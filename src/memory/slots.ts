@@ -27,6 +27,10 @@ export class SlotTable {
   readonly value: string[];
   readonly provenance: string[][];
   readonly previous: (string | undefined)[];
+  readonly owner: (string | undefined)[];
+  /** Bit set per slot: written from a bot's reply. */
+  readonly reply: Uint8Array;
+  readonly maybeReplaces: (string[] | undefined)[];
 
   constructor(capacity: number, dim: number) {
     this.capacity = capacity;
@@ -45,6 +49,9 @@ export class SlotTable {
     this.value = new Array<string>(capacity).fill('');
     this.provenance = Array.from({ length: capacity }, () => []);
     this.previous = new Array<string | undefined>(capacity).fill(undefined);
+    this.owner = new Array<string | undefined>(capacity).fill(undefined);
+    this.reply = new Uint8Array(capacity);
+    this.maybeReplaces = new Array<string[] | undefined>(capacity).fill(undefined);
   }
 
   isUsed(i: number): boolean {
@@ -92,6 +99,9 @@ export class SlotTable {
     this.value[i] = rec.value;
     this.provenance[i] = rec.provenance.slice();
     this.previous[i] = rec.previous;
+    this.owner[i] = rec.owner;
+    this.reply[i] = rec.reply ? 1 : 0;
+    this.maybeReplaces[i] = rec.maybeReplaces && rec.maybeReplaces.length > 0 ? rec.maybeReplaces.slice() : undefined;
   }
 
   /** Frees slot i and zeroes its key so no stale vector remains. */
@@ -110,6 +120,9 @@ export class SlotTable {
     this.value[i] = '';
     this.provenance[i] = [];
     this.previous[i] = undefined;
+    this.owner[i] = undefined;
+    this.reply[i] = 0;
+    this.maybeReplaces[i] = undefined;
   }
 
   /** Slot i as a record (the key copied), or null when free. */
@@ -131,6 +144,9 @@ export class SlotTable {
       pinned: this.isPinned(i),
     };
     if (this.previous[i] !== undefined) rec.previous = this.previous[i];
+    if (this.owner[i] !== undefined) rec.owner = this.owner[i];
+    if (this.reply[i] === 1) rec.reply = true;
+    if (this.maybeReplaces[i] !== undefined) rec.maybeReplaces = this.maybeReplaces[i]!.slice();
     return rec;
   }
 

@@ -1,5 +1,7 @@
 // Text helpers shared by the lexical scorer, the extractor and the built-in embedder: one tokenizer,
-// one stopword list and one fast string hash, so every part of tidemark sees the same words.
+// one stopword list, one stemmer and one fast string hash, so every part of tidemark sees the same words.
+
+import { stemmer as porterStem } from 'stemmer';
 
 /** Lower-cased word tokens: letters and digits (any script), apostrophes inside words dropped. */
 export function tokenize(text: string): string[] {
@@ -48,4 +50,38 @@ export function fnv1a(s: string, seed = 0x811c9dc5): number {
 /** A 64-bit hex digest from two FNV-1a passes with different seeds: a cache key that holds no text. */
 export function textDigest(s: string): string {
   return fnv1a(s).toString(16).padStart(8, '0') + fnv1a(s, 0x9747b28c).toString(16).padStart(8, '0');
+}
+
+// ------------------------------------------------------------------ analysed terms
+
+/**
+ * Stems of recent words, so a hot conversation does not pay the stemmer per token twice (bounded;
+ * cleared when full, which costs a few recomputations and keeps no text around for long).
+ */
+const stems = new Map<string, string>();
+const STEM_CACHE = 50_000;
+
+/**
+ * The Porter stem of a lower-cased word (Porter 1980, "An algorithm for suffix stripping", via the
+ * `stemmer` package), so "painting", "painted" and "paints" meet at "paint" on both sides of a search.
+ * Numbers and very short words are kept as they are.
+ */
+export function stem(word: string): string {
+  if (word.length <= 3 || !/^\p{L}+$/u.test(word)) return word;
+  let s = stems.get(word);
+  if (s === undefined) {
+    s = porterStem(word);
+    if (stems.size >= STEM_CACHE) stems.clear();
+    stems.set(word, s);
+  }
+  return s;
+}
+
+/** Index and query terms of a text: its content words, stemmed (all words stemmed when it has none). */
+export function analyze(text: string): string[] {
+  const words = tokenize(text);
+  const out: string[] = [];
+  for (const w of words) if (!STOPWORDS.has(w)) out.push(stem(w));
+  if (out.length === 0) for (const w of words) out.push(stem(w));
+  return out;
 }

@@ -15,11 +15,13 @@ const MONTH = '(?:jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|jul
 const ORD = '\\d{1,2}(?:st|nd|rd|th)?';
 
 const PATTERNS: Array<{ kind: ValueKind; re: RegExp }> = [
-  { kind: 'date', re: new RegExp(`\\b(?:next|this|coming|last)?\\s*${WEEKDAY}\\b(?:,?\\s+(?:the\\s+)?${ORD}(?:\\s+of\\s+${MONTH})?)?`, 'i') },
+  { kind: 'date', re: new RegExp(`\\b(?:next|this|coming|last)?\\s*${WEEKDAY}s?\\b(?:,?\\s+(?:the\\s+)?${ORD}(?:\\s+(?:of\\s+)?${MONTH})?)?`, 'i') },
   { kind: 'date', re: new RegExp(`\\b(?:the\\s+)?${ORD}\\s+(?:of\\s+)?${MONTH}\\b|\\b${MONTH}\\s+(?:the\\s+)?${ORD}\\b`, 'i') },
   { kind: 'date', re: /\b\d{4}-\d{2}-\d{2}\b|\b\d{1,2}\/\d{1,2}(?:\/\d{2,4})?\b/ },
   { kind: 'date', re: /\b(?:tomorrow|day after tomorrow|tonight|next week|next month|the weekend|this weekend|later this week)\b/i },
   { kind: 'date', re: /\b(?:on\s+)?the\s+\d{1,2}(?:st|nd|rd|th)\b/i },
+  // A month on its own ("it's in November instead"); "may" only with "in"/"of", never the verb.
+  { kind: 'date', re: new RegExp(`(?<=\\b(?:in|of|for|until|till|by|from)\\s+(?:early\\s+|mid\\s+|late\\s+)?)(?:(?!may\\b)${MONTH}|(?<=\\bin\\s+)may)\\b`, 'i') },
   { kind: 'time', re: /\b(?:at\s+)?\d{1,2}(?::\d{2})?\s*(?:am|pm|a\.m\.|p\.m\.)|\b\d{1,2}:\d{2}\b|\b(?:noon|midnight)\b/i },
   {
     kind: 'quantity',
@@ -36,6 +38,8 @@ function isIdentifierNumber(text: string, index: number, match: string): boolean
   if (!/^\d+$/.test(match)) return false;
   if (match.length >= 6) return true;
   const after = text.slice(index + match.length);
+  // The hour or minutes of a time ("10:30", "at 9:15"), not an amount.
+  if (/^[:.]\d{2}\b/.test(after) || /\d[:.]$/.test(text.slice(Math.max(0, index - 3), index))) return true;
   if (/^\s+\p{Lu}/u.test(after)) return true;
   // Part of a longer digit group ("0161 496 0000") or a code ("B12").
   const before = text.slice(Math.max(0, index - 2), index);

@@ -1,19 +1,26 @@
-// The write path: plans one turn's changes to a session's slots as a list of slot operations,
-// without touching the table. Content addressing (Graves et al. 2014, "Neural Turing Machines"):
-// w_i = softmax_i(beta * cos(k, K_i)); when the best match passes the overwrite threshold the slot is
-// overwritten erase-then-add style (its key moves toward the new key, its value is replaced and the
-// old value is archived as superseded, linked to its successor). Otherwise usage-based allocation
-// (Graves et al. 2016, "Hybrid computing using a neural network with dynamic external memory"): a
-// free slot, else the non-pinned slot with the lowest retention.
+// The write path of working memory: plans one turn's changes to a session's slots as a list of slot
+// operations, without touching the table. Content addressing (Graves et al. 2014, "Neural Turing
+// Machines"): the candidate's key is compared with every slot key by cosine; when the best match
+// passes the overwrite threshold *and* the two share the fact's words, the slot is overwritten
+// erase-then-add style (its key moves toward the new key, its value is replaced and the old value goes
+// to the logbook as superseded, linked to its successor). Otherwise usage-based allocation (Graves et
+// al. 2016, "Hybrid computing using a neural network with dynamic external memory"): a free slot,
+// else the non-pinned slot with the lowest retention.
+//
+// Fidelity before coverage: a wrong overwrite tells the bot something false with confidence, so an
+// overwrite needs evidence that the new statement is about the same fact; one clause of a turn never
+// overwrites another clause of the same turn; an update that could be about several facts replaces
+// none of them and is kept beside them, newest first (`maybeReplaces`).
 
 import type { SlotOp } from '../store/store.js';
-import type { ArchiveItem, ArchiveReason, EvictReason, Role, SlotRecord, StoredEvent, WriteOutcome } from '../types.js';
+import type { ArchiveReason, EvictReason, LogbookEntry, Role, SlotRecord, StoredEvent, WriteOutcome } from '../types.js';
 import { decayed, reinforce } from './decay.js';
 import type { Candidate } from './extract.js';
 import { gateFeatures, gateScore, type GateFeatures } from './gate.js';
 import type { WriteParams } from './params.js';
 import type { SlotTable } from './slots.js';
-import { findAll } from './values.js';
+import { analyze } from './text.js';
+import { findAll, type ValueKind } from './values.js';
 import { dot } from './vector.js';
 
 /** A candidate with its embedded key and where it came from. */
@@ -29,6 +36,8 @@ export interface KeyedCandidate {
   stored?: Float32Array;
   turn: string;
   role: Role;
+  /** Whose fact it is (the turn's speaker); undefined matches any owner. */
+  owner?: string;
 }
 
 export interface WritePlanInput {
@@ -41,12 +50,18 @@ export interface WritePlanInput {
   session: string;
   user?: string;
   candidates: KeyedCandidate[];
-  /** Revision ids of slots the turn's read used; they are reinforced. */
+  /** Revision ids of slots the turn used; they are reinforced. */
   reinforce: readonly string[];
-  /** Archive items the turn's read used: they are promoted back into working memory. */
-  promote?: readonly ArchiveItem[];
+  /** Logbook entries (values evicted earlier) the turn used: they are promoted back into working memory. */
+  promote?: readonly LogbookEntry[];
   /** Makes a fresh revision id. */
   newId: () => string;
+  /**
+   * Texts of the turns just before this one, newest first, when the caller knows them: an update
+   * that could be about several facts is tied to the one this context talks about ("How is the exam
+   * prep going?" — "They moved it, it's in November instead").
+   */
+  context?: readonly string[];
 }
 
 export interface CandidateOutcome {
@@ -59,6 +74,8 @@ export interface CandidateOutcome {
   cosine: number;
   /** For overwrites: the superseded revision id. */
   supersededId?: string;
+  /** For an ambiguous update allocated beside the values it may replace: their revision ids. */
+  maybeReplaces?: string[];
   id?: string;
 }
 
@@ -72,50 +89,87 @@ export interface Eviction {
 
 export interface WritePlan {
   ops: SlotOp[];
-  archive: ArchiveItem[];
+  /** Values leaving working memory (superseded or evicted), as logbook entries. */
+  archive: LogbookEntry[];
   events: StoredEvent[];
   outcomes: CandidateOutcome[];
   evictions: Eviction[];
   reinforced: Array<{ slot: number; id: string; strength: number; halfLife: number }>;
-  /** Archive items moved back into slots (the caller deletes them from the archive after the commit). */
+  /** Logbook entries moved back into slots (the caller deletes them from the logbook after the commit). */
   promoted: Array<{ slot: number; id: string }>;
   /** Used slots after the plan is applied. */
   slotsInUse: number;
 }
 
-/** How far back (clock units) a bare correction may reach for the slot it corrects. */
-const CORRECTION_WINDOW = 8;
+/**
+ * How far back (clock units) an update without a topic may reach for the fact it changes: a
+ * correction refers to what was just said (common practice in dialogue state tracking). A correction
+ * that shares no word with the fact reaches back only to the previous exchange.
+ */
+export const CORRECTION_WINDOW = 8;
+export const BARE_CORRECTION_WINDOW = 3;
 
 const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
-/** A slot record as the archive item it becomes when it leaves working memory. */
-export function archiveItemOf(
+/** Words that say nothing about which fact a statement is about. */
+const GENERIC = new Set(
+  analyze(
+    'thing things stuff like likes prefer preference want wants need needs get got go going one actually instead please now new time ' +
+      'really kind sort much lot way make made put change changed move moved switch sorry wait mean meant correct correction rather',
+  ),
+);
+const topicWords = (text: string): Set<string> => new Set(analyze(text).filter((w) => !GENERIC.has(w) && !w.startsWith('§')));
+function shares(a: Set<string>, b: Set<string>): boolean {
+  for (const w of a) if (b.has(w)) return true;
+  return false;
+}
+
+/** Owners conflict only when both are known and differ. */
+const ownersMatch = (a: string | undefined, b: string | undefined): boolean => a === undefined || b === undefined || a.toLowerCase() === b.toLowerCase();
+
+/** "Saturday not Sunday", "not Sunday but Saturday", "instead of Sunday": the value being corrected. */
+const CONTRAST = /\b(?:not|rather than|instead of)\s+(?:the\s+|a\s+|an\s+|on\s+|at\s+|in\s+)?([\p{L}\p{N}](?:[\p{L}\p{N}'’:.-]*[\p{L}\p{N}])?(?:\s+[\p{L}\p{N}](?:[\p{L}\p{N}'’:.-]*[\p{L}\p{N}])?){0,2}?)(?=\s*(?:[,.!?;]|$|\bbut\b|\band\b|\bplease\b))/iu;
+
+/** The shape of a date expression, so a weekday update is not aimed at a calendar date and back. */
+function dateShape(expr: string): 'weekday' | 'calendar' | 'other' {
+  if (/\b(?:mon|tue|wed|thu|fri|sat|sun)[a-z]*\b/i.test(expr)) return 'weekday';
+  if (/\b(?:jan|feb|mar|apr|may|jun|jul|aug|sep|oct|nov|dec)[a-z]*\b|\d/i.test(expr)) return 'calendar';
+  return 'other';
+}
+
+/** A slot value as the logbook entry it becomes when it leaves working memory. */
+export function demotedEntry(
   rec: SlotRecord,
   where: { tenant: string; session: string; user?: string },
   reason: ArchiveReason,
   strength: number,
   clock: number,
-  archivedMs: number,
+  atMs: number,
   successor?: string,
-): ArchiveItem {
+): LogbookEntry {
   return {
     id: rec.id,
+    kind: reason,
     tenant: where.tenant,
     session: where.session,
     ...(where.user ? { user: where.user } : {}),
-    key: rec.key,
-    keyText: rec.keyText,
     value: rec.value,
+    keyText: rec.keyText,
     provenance: rec.provenance.slice(),
-    reason,
+    ...(rec.owner ? { owner: rec.owner } : {}),
+    atMs,
+    createdMs: rec.createdMs,
+    clock,
+    seq: 0,
+    key: rec.key,
     strength,
     halfLife: rec.halfLife,
-    clock,
-    createdMs: rec.createdMs,
-    archivedMs,
     ...(successor ? { successor } : {}),
   };
 }
+
+/** @deprecated since 0.2: use `demotedEntry`. */
+export const archiveItemOf = demotedEntry;
 
 /** Plans the changes of one turn. Pure: reads `table`, returns operations. */
 export function planWrite(input: WritePlanInput): WritePlan {
@@ -123,6 +177,8 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const cap = table.capacity;
   const dim = table.dim;
   const pending = new Map<number, SlotRecord | null>();
+  /** Slots written by this plan, and the turn that wrote them: a turn never overwrites itself. */
+  const writtenBy = new Map<number, string>();
   const plan: WritePlan = { ops: [], archive: [], events: [], outcomes: [], evictions: [], reinforced: [], promoted: [], slotsInUse: 0 };
 
   const used = (i: number): boolean => (pending.has(i) ? pending.get(i) !== null : table.isUsed(i));
@@ -131,9 +187,21 @@ export function planWrite(input: WritePlanInput): WritePlan {
   // Field reads without materialising a record (table.get copies the key vector).
   const idAt = (i: number): string => pending.get(i)?.id ?? table.ids[i]!;
   const valueAt = (i: number): string => pending.get(i)?.value ?? table.value[i]!;
-  const recencyAt = (i: number): number => {
-    const r = pending.get(i);
-    return r ? r.updatedMs + r.stamp * 1e-6 : table.updatedMs[i]! + table.stamp[i]! * 1e-6;
+  const keyTextAt = (i: number): string => pending.get(i)?.keyText ?? table.keyText[i]!;
+  const ownerAt = (i: number): string | undefined => (pending.has(i) ? pending.get(i)?.owner : table.owner[i]);
+  const replyAt = (i: number): boolean => (pending.has(i) ? pending.get(i)?.reply === true : table.reply[i] === 1);
+  const stampAt = (i: number): number => pending.get(i)?.stamp ?? table.stamp[i]!;
+  /**
+   * How recently slot i was written: the session clock first, wall-clock ms to break ties. (A sum such
+   * as ms + clock * 1e-6 loses the clock below float64 precision at epoch-ms magnitudes.)
+   */
+  const newer = (i: number, j: number): number => {
+    const ri = pending.get(i);
+    const rj = pending.get(j);
+    const si = ri ? ri.stamp : table.stamp[i]!;
+    const sj = rj ? rj.stamp : table.stamp[j]!;
+    if (si !== sj) return si - sj;
+    return (ri ? ri.updatedMs : table.updatedMs[i]!) - (rj ? rj.updatedMs : table.updatedMs[j]!);
   };
   const strengthNow = (i: number): number => {
     const r = pending.get(i);
@@ -148,12 +216,12 @@ export function planWrite(input: WritePlanInput): WritePlan {
     pending.set(i, rec);
   };
   const where = { tenant: input.tenant, session: input.session, ...(input.user ? { user: input.user } : {}) };
-  const toArchive = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): ArchiveItem =>
-    archiveItemOf(rec, where, reason, strength, now, nowMs, successor);
+  const toLogbook = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): LogbookEntry =>
+    demotedEntry(rec, where, reason, strength, now, nowMs, successor);
   const evict = (i: number, reason: EvictReason): void => {
     const rec = record(i)!;
     const s = strengthNow(i);
-    plan.archive.push(toArchive(rec, reason as ArchiveReason, s));
+    plan.archive.push(toLogbook(rec, reason as ArchiveReason, s));
     plan.evictions.push({ slot: i, record: rec, reason, archived: true, strength: s });
     plan.events.push({ type: 'evict', slot: i, id: rec.id, clock: now, atMs: nowMs, reason });
     set(i, null);
@@ -166,7 +234,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
     else if (strengthNow(i) < p.strengthFloor) evict(i, 'decayed');
   }
 
-  // 2. Reinforce what the turn's read used (spacing effect: stronger, longer half-life).
+  // 2. Reinforce what the turn used (spacing effect: stronger, longer half-life).
   if (input.reinforce.length > 0) {
     const wanted = new Set(input.reinforce);
     for (let i = 0; i < cap; i++) {
@@ -196,22 +264,32 @@ export function planWrite(input: WritePlanInput): WritePlan {
     return weakest;
   };
 
-  // 2b. Promote archive items the read used back into working memory, reinforced as a use.
+  // 2b. Promote logbook values the turn used back into working memory, reinforced as a use.
   for (const item of input.promote ?? []) {
     let live = false;
     for (let i = 0; i < cap && !live; i++) live = used(i) && idAt(i) === item.id;
-    if (live || item.key.length !== dim) continue;
+    if (live || !item.key || item.key.length !== dim || item.kind === 'turn' || item.kind === 'superseded') continue;
     const slot = allocate();
     if (slot < 0) break;
-    const r = reinforce(item.strength, item.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
+    const r = reinforce(item.strength ?? p.strengthFloor * 2, item.halfLife ?? p.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
     set(slot, {
       id: item.id, key: item.key, keyText: item.keyText, value: item.value, provenance: item.provenance.slice(),
       strength: Math.max(r.strength, p.strengthFloor * 2), halfLife: r.halfLife, stamp: now, created: now,
-      createdMs: item.createdMs, updatedMs: nowMs, reads: 1, pinned: false,
+      createdMs: item.createdMs, updatedMs: nowMs, reads: 1, pinned: false, ...(item.owner ? { owner: item.owner } : {}),
     });
     plan.promoted.push({ slot, id: item.id });
     plan.events.push({ type: 'allocate', slot, id: item.id, clock: now, atMs: nowMs });
   }
+
+  /** A candidate from a bot's own reply (an assistant turn naming no speaker). */
+  const fromReply = (kc: KeyedCandidate): boolean => kc.role !== 'user' && kc.owner === undefined;
+  /**
+   * Slots a candidate may change: same owner, not written by the same turn, and never a user's fact
+   * changed by the bot's reply (a reply restates or proposes; a model's wording must not replace what
+   * the user said).
+   */
+  const open = (i: number, kc: KeyedCandidate): boolean =>
+    used(i) && ownersMatch(ownerAt(i), kc.owner) && writtenBy.get(i) !== kc.turn && (!fromReply(kc) || replyAt(i));
 
   // 3. Write each candidate: gate, address, overwrite or allocate.
   input.candidates.forEach((kc, index) => {
@@ -219,63 +297,104 @@ export function planWrite(input: WritePlanInput): WritePlan {
     let best = -1;
     let bestCos = -1;
     for (let i = 0; i < cap; i++) {
-      if (!used(i)) continue;
+      if (!open(i, kc)) continue;
       const d = cosAt(i, kc.key);
       if (d > bestCos) {
         bestCos = d;
         best = i;
       }
     }
-    // An update names a new value but not its topic: aim it at the newest slot holding a value of
-    // the same kind, unless the key itself already addresses a slot.
-    let target = bestCos >= p.overwriteThreshold ? best : -1;
+    const cTopic = topicWords(c.key);
+    const sameFact = (i: number): boolean => normalizeText(keyTextAt(i)) === normalizeText(c.key) || shares(cTopic, topicWords(keyTextAt(i)));
+    // Overwrite by key: close in meaning *and* sharing the fact's words. Facts that add up ("I like
+    // X") replace one another only when the sentence says so.
+    let target = bestCos >= p.overwriteThreshold && sameFact(best) && (!c.accumulate || c.updates !== undefined || c.revises === true || normalizeText(valueAt(best)) === normalizeText(c.value)) ? best : -1;
     let value = c.value;
     let provenanceTail: string[] = [];
+    let maybe: number[] = [];
+    const swapIn = (i: number, kind: ValueKind, expr: string): boolean => {
+      const old = record(i)!;
+      const exprs = findAll(old.value, kind);
+      const last = exprs[exprs.length - 1];
+      if (!last) return false;
+      value = old.value.slice(0, last.index) + expr + old.value.slice(last.index + last.text.length);
+      provenanceTail = old.provenance;
+      return true;
+    };
+
+    if (c.updates && c.updates.kind !== 'latest' && target >= 0) {
+      // An update of a fact named by its topic: swap the new value into the old one when it holds an
+      // expression of that kind ("have my lessons on Tuesdays" -> "... on Wednesday").
+      if (!swapIn(target, c.updates.kind, c.updates.expr)) provenanceTail = [];
+    }
+    if (c.updates && target < 0) {
+      // "Saturday, not Sunday": the slot holding the value being corrected is the one.
+      const contrast = CONTRAST.exec(c.text);
+      if (contrast) {
+        const y = new RegExp(`\\b${contrast[1]!.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}\\b`, 'i');
+        let newest = -1;
+        for (let i = 0; i < cap; i++) if (open(i, kc) && y.test(valueAt(i)) && (newest < 0 || newer(i, newest) > 0)) newest = i;
+        if (newest >= 0) {
+          target = newest;
+          const old = record(newest)!;
+          // The corrected word is swapped for the new value when the update has one ("3 hours, not 2":
+          // the number for the number); a correction without one ("it's the blue one, not the red")
+          // replaces the fact with its own sentence.
+          if (c.updates.kind !== 'latest') {
+            const lead = /^\d+(?:[.,]\d+)?/.exec(c.updates.expr);
+            value = old.value.replace(y, /^\d/.test(contrast[1]!) && lead ? lead[0] : c.updates.expr);
+          }
+          provenanceTail = old.provenance;
+        }
+      }
+    }
     if (c.updates?.kind === 'latest' && target < 0) {
-      // A correction without a recognisable value ("no, the patio speaker instead") replaces the
-      // slot its topic half-matches, else the one written most recently, if that was within the last
-      // few turns (a correction refers to what was just said; common practice in dialogue state tracking).
-      if (bestCos >= p.overwriteThreshold / 2) target = best;
+      // A correction without a recognisable value ("no, the patio speaker instead") replaces the fact
+      // it shares words with among the last few turns' (its topic half-matching, or the newest such
+      // slot); one that shares no word with anything corrects nothing for certain, so it is kept
+      // beside the newest fact of the last exchange (newest first) rather than replacing it.
+      const cWords = topicWords(`${c.text} ${c.context ?? ''}`);
+      const related = (i: number): boolean => shares(cWords, topicWords(`${keyTextAt(i)} ${valueAt(i)}`));
+      if (best >= 0 && bestCos >= p.overwriteThreshold / 2 && related(best)) target = best;
       else {
         let newest = -1;
-        let newestAt = -Infinity;
+        let newestRelated = -1;
         for (let i = 0; i < cap; i++) {
-          if (!used(i) || pinned(i)) continue;
-          const at = recencyAt(i);
-          if (at > newestAt) {
-            newestAt = at;
-            newest = i;
-          }
+          if (!open(i, kc) || pinned(i) || now - stampAt(i) > CORRECTION_WINDOW) continue;
+          if (newest < 0 || newer(i, newest) > 0) newest = i;
+          if (related(i) && (newestRelated < 0 || newer(i, newestRelated) > 0)) newestRelated = i;
         }
-        const stampOf = (i: number): number => pending.get(i)?.stamp ?? table.stamp[i]!;
-        if (newest >= 0 && now - stampOf(newest) <= CORRECTION_WINDOW) target = newest;
+        if (newestRelated >= 0) target = newestRelated;
+        else if (newest >= 0 && now - stampAt(newest) <= BARE_CORRECTION_WINDOW) maybe = [newest];
       }
       if (target >= 0) provenanceTail = record(target)!.provenance;
     }
     if (c.updates && c.updates.kind !== 'latest' && target < 0) {
-      let newest = -1;
-      let newestMs = -Infinity;
+      // An update that names a new value but not its topic ("make it Friday instead"): the fact it
+      // changes holds a value of the same kind (and shape). One such fact, or one within the correction
+      // window: that one. Several: it could be any of them, so none is replaced (kept beside them).
+      const kind = c.updates.kind;
+      const shape = kind === 'date' ? dateShape(c.updates.expr) : 'other';
+      const holders: number[] = [];
       for (let i = 0; i < cap; i++) {
-        if (!used(i)) continue;
-        if (findAll(valueAt(i), c.updates.kind).length === 0) continue;
-        const at = recencyAt(i);
-        if (at > newestMs) {
-          newestMs = at;
-          newest = i;
-        }
+        if (!open(i, kc)) continue;
+        const exprs = findAll(valueAt(i), kind);
+        if (exprs.length === 0) continue;
+        if (kind === 'date' && shape !== 'other' && !exprs.some((e) => dateShape(e.text) === shape)) continue;
+        holders.push(i);
       }
-      if (newest >= 0) target = newest;
+      holders.sort((a, b) => newer(b, a));
+      const recent = holders.filter((i) => now - stampAt(i) <= CORRECTION_WINDOW);
+      const pool = recent.length > 0 ? recent : holders;
+      // Its own words, the sentence before it, then the turns before may say which fact "it" is.
+      const spoken = topicWords([c.key, c.context ?? '', ...(input.context ?? [])].join(' '));
+      const talkedOf = spoken.size > 0 ? pool.filter((i) => shares(spoken, topicWords(keyTextAt(i)))) : [];
+      if (pool.length === 1) target = pool[0]!;
+      else if (talkedOf.length === 1) target = talkedOf[0]!;
+      else if (pool.length > 0) maybe = (talkedOf.length > 1 ? talkedOf : pool).slice(0, 3);
+      if (target >= 0) swapIn(target, kind, c.updates.expr);
     }
-    if (c.updates && c.updates.kind !== 'latest' && target >= 0) {
-      // Swap the old expression for the new one so the value reads as the current fact.
-      const old = record(target)!;
-      const exprs = findAll(old.value, c.updates.kind);
-      const last = exprs[exprs.length - 1];
-      if (last) {
-        value = old.value.slice(0, last.index) + c.updates.expr + old.value.slice(last.index + last.text.length);
-        provenanceTail = old.provenance;
-      }
-    }
+
     const features = gateFeatures(c, kc.role, 1 - Math.max(0, bestCos));
     const gate = gateScore(features, p.gateWeights);
     const base = { index, gate, features, cosine: bestCos };
@@ -290,6 +409,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
         const r = reinforce(strengthNow(target), old.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
         const provenance = [kc.turn, ...old.provenance.filter((t) => t !== kc.turn)];
         set(target, { ...old, strength: Math.max(r.strength, gate), halfLife: r.halfLife, stamp: now, updatedMs: nowMs, provenance, pinned: old.pinned || c.pin === true });
+        writtenBy.set(target, kc.turn);
         plan.outcomes.push({ ...base, outcome: 'reinforced', slot: target, id: old.id });
         plan.events.push({ type: 'reinforce', slot: target, id: old.id, clock: now, atMs: nowMs });
         return;
@@ -306,13 +426,14 @@ export function planWrite(input: WritePlanInput): WritePlan {
       const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
       for (let j = 0; j < dim; j++) key[j] = key[j]! * inv;
       const provenance = [kc.turn, ...provenanceTail.filter((t) => t !== kc.turn)];
-      plan.archive.push(toArchive(old, 'superseded', strengthNow(target), id));
+      plan.archive.push(toLogbook(old, 'superseded', strengthNow(target), id));
       const rec: SlotRecord = {
         id,
         key,
         keyText: c.updates ? old.keyText : c.key,
         value,
         provenance,
+        // The fact's retention carries over: an update is as established as what it replaces.
         strength: Math.max(gate, strengthNow(target)),
         halfLife: old.halfLife,
         stamp: now,
@@ -322,12 +443,15 @@ export function planWrite(input: WritePlanInput): WritePlan {
         reads: old.reads,
         pinned: old.pinned || c.pin === true,
         previous: old.id,
+        ...(old.owner ?? kc.owner ? { owner: (old.owner ?? kc.owner)! } : {}),
       };
       set(target, rec);
+      writtenBy.set(target, kc.turn);
       plan.outcomes.push({ ...base, outcome: 'overwritten', slot: target, id, supersededId: old.id });
       plan.events.push({ type: 'overwrite', slot: target, id, clock: now, atMs: nowMs });
       return;
     }
+    const maybeIds = maybe.map(idAt);
     const slot = allocate();
     if (slot < 0) {
       // Every slot is pinned: nothing may be displaced.
@@ -349,8 +473,12 @@ export function planWrite(input: WritePlanInput): WritePlan {
       updatedMs: nowMs,
       reads: 0,
       pinned: c.pin === true,
+      ...(kc.owner ? { owner: kc.owner } : {}),
+      ...(fromReply(kc) ? { reply: true } : {}),
+      ...(maybeIds.length > 0 ? { maybeReplaces: maybeIds } : {}),
     });
-    plan.outcomes.push({ ...base, outcome: 'allocated', slot, id });
+    writtenBy.set(slot, kc.turn);
+    plan.outcomes.push({ ...base, outcome: 'allocated', slot, id, ...(maybeIds.length > 0 ? { maybeReplaces: maybeIds } : {}) });
     plan.events.push({ type: 'allocate', slot, id, clock: now, atMs: nowMs });
   });
 

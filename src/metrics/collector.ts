@@ -65,7 +65,7 @@ export interface DashboardSnapshot {
     reads: Record<ReadResult, number>;
     writes: Record<WriteOutcome, number>;
     evictions: Record<EvictReason, number>;
-    /** (hit + archive_hit) / reads over the window; null with no reads. */
+    /** (slot + logbook) / reads over the window: the share of reads whose top item was relevant; null with no reads. */
     hitRatio: number | null;
     latency: Record<LatencyKind, Percentiles>;
   };
@@ -82,7 +82,7 @@ export interface DashboardSnapshot {
   };
 }
 
-const READ_RESULTS: readonly ReadResult[] = ['hit', 'archive_hit', 'miss'];
+const READ_RESULTS: readonly ReadResult[] = ['slot', 'logbook', 'miss'];
 const WRITE_OUTCOMES: readonly WriteOutcome[] = ['allocated', 'overwritten', 'reinforced', 'gated_out'];
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
 const LATENCY_KINDS: readonly LatencyKind[] = ['read', 'write', 'turn'];
@@ -212,7 +212,7 @@ export class DashboardCollector {
         if (h) merged[kind].add(h);
       }
     }
-    const readCount = totals.reads.hit + totals.reads.archive_hit + totals.reads.miss;
+    const readCount = totals.reads.slot + totals.reads.logbook + totals.reads.miss;
 
     const bins = Array.from({ length: 10 }, (_, i) => ({ lo: i / 10, hi: (i + 1) / 10, count: 0 }));
     let fillSum = 0;
@@ -242,7 +242,7 @@ export class DashboardCollector {
       latency,
       totals: {
         ...totals,
-        hitRatio: readCount > 0 ? (totals.reads.hit + totals.reads.archive_hit) / readCount : null,
+        hitRatio: readCount > 0 ? (totals.reads.slot + totals.reads.logbook) / readCount : null,
         latency: Object.fromEntries(LATENCY_KINDS.map((k) => [k, percentiles(merged[k])])) as Record<LatencyKind, Percentiles>,
       },
       occupancy: { bins, sessions: filled, meanFill: filled > 0 ? fillSum / filled : null },

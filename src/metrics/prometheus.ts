@@ -50,7 +50,7 @@ export interface PrometheusMetrics {
   stop(): void;
 }
 
-const READ_RESULTS: readonly ReadResult[] = ['hit', 'archive_hit', 'miss'];
+const READ_RESULTS: readonly ReadResult[] = ['slot', 'logbook', 'miss'];
 const WRITE_OUTCOMES: readonly WriteOutcome[] = ['allocated', 'overwritten', 'reinforced', 'gated_out'];
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
@@ -108,10 +108,10 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   };
   let outboxDepth = 0;
 
-  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: a slot matched (hit), only the archive matched (archive_hit), or nothing did (miss).', labelNames: ['result'], registers });
+  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), or nothing relevant was found (miss).', labelNames: ['result'], registers });
   const writes = new client.Counter({ name: `${p}writes_total`, help: 'Candidate writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced), refused by the write gate (gated_out).', labelNames: ['outcome'], registers });
   const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: ['reason'], registers });
-  const archived = new client.Counter({ name: `${p}archived_items_total`, help: 'Items moved to the long-term archive, by reason.', labelNames: ['reason'], registers });
+  const archived = new client.Counter({ name: `${p}archived_items_total`, help: 'Values that left working memory for the logbook, by reason.', labelNames: ['reason'], registers });
   const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read, embedding included.', buckets, registers });
   const writeDuration = new client.Histogram({ name: `${p}write_duration_seconds`, help: 'Time of one memory commit (store time included).', buckets, registers });
   const embedDuration = new client.Histogram({ name: `${p}embed_duration_seconds`, help: 'Time spent embedding, by stage (read query or write candidates).', labelNames: ['stage'], buckets, registers });

@@ -16,18 +16,26 @@ export interface SessionEventBase {
 
 export interface ReadEvent extends SessionEventBase {
   result: ReadResult;
-  /** Items returned (slots + archive). */
+  /** Items returned (slots + logbook entries). */
   items: number;
   slotItems: number;
+  logbookItems: number;
+  /** @deprecated since 0.2: the same as `logbookItems`. */
   archiveItems: number;
   scanned: number;
   slotsInUse: number;
   capacity: number;
+  /** Logbook entries of the scope searched. */
+  logbookSize: number;
   topWeight: number;
   /** Entropy (nats) of the slot attention weights. */
   entropy: number;
   topCosine: number;
+  /** Coverage of the top item (a hit at `read.hitCoverage`). */
+  topCoverage: number;
   durationUs: number;
+  /** Microseconds in the logbook search (part of `durationUs`). */
+  searchUs: number;
   embedUs: number;
 }
 
@@ -44,6 +52,8 @@ export interface WriteEvent extends SessionEventBase {
   halfLife: number;
   slotsInUse: number;
   capacity: number;
+  /** An update kept beside the values it may replace (they were not overwritten). */
+  ambiguous?: boolean;
 }
 
 export interface OverwriteEvent extends SessionEventBase {
@@ -80,7 +90,10 @@ export interface GateEvent extends SessionEventBase {
 
 export interface CommitEvent extends SessionEventBase {
   ops: number;
+  /** Values demoted to the logbook (superseded or evicted). */
   archived: number;
+  /** Logbook entries added: turns kept plus values demoted. */
+  logbook: number;
   /** Conflicts retried before success. */
   retries: number;
   durationUs: number;
@@ -112,9 +125,21 @@ export interface OutboxEvent {
   sessionHash?: string;
 }
 
+/** A value left working memory for the logbook. */
 export interface ArchiveEvent extends SessionEventBase {
   reason: ArchiveReason;
   id: string;
+}
+
+/** What one commit did to the logbook. */
+export interface LogbookEvent extends SessionEventBase {
+  /** Turns kept. */
+  turns: number;
+  /** Values demoted from working memory. */
+  demoted: number;
+  /** Entries the retention policy deleted: past the maximum age, and past the maximum count. */
+  droppedAge: number;
+  droppedCount: number;
 }
 
 /** Event name -> listener signature, for `tidemark.on(name, listener)`. */
@@ -126,6 +151,7 @@ export interface TidemarkEvents {
   gate: (e: GateEvent) => void;
   commit: (e: CommitEvent) => void;
   archive: (e: ArchiveEvent) => void;
+  logbook: (e: LogbookEvent) => void;
   degraded: (e: DegradedEvent) => void;
   outbox: (e: OutboxEvent) => void;
   error: (e: ErrorEvent) => void;

@@ -1,16 +1,11 @@
-// The Store extension point: where sessions' slots, archive items and event streams persist.
-// The core loads a versioned snapshot, plans a turn's changes as slot operations, and commits them
-// against the version it read; a store applies a commit atomically or refuses it as a conflict.
+// The Store extension point: where sessions' slots, logbook entries and event streams persist.
+// The core loads a versioned snapshot, plans a turn's changes as slot operations plus the logbook
+// entries the turn adds, and commits them against the version it read; a store applies a commit
+// atomically or refuses it as a conflict.
 
+import type { LogbookQuery, LogbookSearchParams, LogbookSearchResult } from '../logbook/index.js';
 import type { SlotTable } from '../memory/slots.js';
-import type {
-  ArchiveHit,
-  ArchiveItem,
-  ArchiveScope,
-  SessionRef,
-  SlotRecord,
-  StoredEvent,
-} from '../types.js';
+import type { LogbookScope, LogbookEntry, LogbookKind, SessionRef, SlotRecord, StoredEvent } from '../types.js';
 
 /** A session's state as loaded. */
 export interface SessionSnapshot {
@@ -45,8 +40,18 @@ export interface CommitRequest {
   capacity: number;
   dim: number;
   ops: SlotOp[];
-  /** Items demoted in this commit (superseded or evicted values). */
-  archive: ArchiveItem[];
+  /**
+   * Logbook entries this commit adds: the turns it keeps and the values it demotes (superseded or
+   * evicted). An entry with the id of one already in the scope replaces it (so a resent commit adds
+   * nothing twice).
+   */
+  logbook: LogbookEntry[];
+  /**
+   * The retention policy to apply to the scope's logbook after adding, with the time it is applied
+   * at (the turn's time, so a replay of old transcripts ages them as they were lived). Dropped entries
+   * are counted in the result.
+   */
+  retention?: { policy: RetentionPolicy; nowMs: number };
   /** Appended to the session's capped event stream. */
   events: StoredEvent[];
   /**
@@ -58,17 +63,45 @@ export interface CommitRequest {
   commitId?: string;
 }
 
-export type CommitResult = { ok: true; version: number } | { ok: false; conflict: true; version: number };
+/**
+ * How long the logbook keeps entries: up to an age and up to a number per scope, oldest dropped first.
+ * 0 turns a limit off.
+ */
+export interface RetentionPolicy {
+  /** Entries older than this (by `atMs`) are deleted. @default 0 (no age limit) */
+  maxAgeMs: number;
+  /** At most this many entries per scope; past it the oldest are deleted. @default 100000 */
+  maxEntries: number;
+}
 
-/** What to erase: a whole session, or everything of one user (all their sessions and archive). */
+/** Entries a retention pass deleted, by reason. */
+export interface RetentionDropped {
+  age: number;
+  count: number;
+}
+
+export type CommitResult =
+  | { ok: true; version: number; dropped?: RetentionDropped }
+  | { ok: false; conflict: true; version: number };
+
+/** What to erase: a whole session, or everything of one user (all their sessions and logbook). */
 export type EraseTarget = { tenant: string; session: string } | { tenant: string; user: string };
 
 /** What an erase removed. */
 export interface EraseReport {
   sessions: number;
   slots: number;
-  archiveItems: number;
+  /** Logbook entries removed (turns and demoted values). */
+  logbookEntries: number;
   events: number;
+}
+
+/** Which logbook entries to list. */
+export interface ListLogbookOptions {
+  /** @default 100 */
+  limit?: number;
+  /** Only these kinds; all when unset. */
+  kinds?: readonly LogbookKind[];
 }
 
 /** Persistence for sessions. Every implementation passes `test/store/conformance.ts`. */
@@ -82,20 +115,23 @@ export interface Store {
   load(ref: SessionRef): Promise<SessionSnapshot | null>;
   /**
    * Applies a commit atomically if the stored version equals `expectedVersion`, bumping it by one;
-   * otherwise applies nothing and reports a conflict with the current version. Archive items in the
-   * commit are indexed for `searchArchive` in the scope of `ref` (user when `ref.user` is set).
+   * otherwise applies nothing and reports a conflict with the current version. Logbook entries in the
+   * commit are indexed for `searchLogbook` in the scope of `ref` (user when `ref.user` is set).
    */
   commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult>;
-  /** Nearest archive items to a unit query vector in one scope, best first. */
-  searchArchive(scope: ArchiveScope, query: Float32Array, k: number): Promise<ArchiveHit[]>;
-  /** Archive items of a scope, newest first, up to `limit`. */
-  listArchive(scope: ArchiveScope, limit?: number): Promise<ArchiveItem[]>;
-  /** Deletes archive items by id from a scope; resolves to how many were removed. */
-  deleteArchive(scope: ArchiveScope, ids: readonly string[]): Promise<number>;
+  /**
+   * Ranks a scope's logbook for an analysed query (see `LogbookIndex.search`; every store keeps the
+   * same index, so rankings agree across stores).
+   */
+  searchLogbook(scope: LogbookScope, query: LogbookQuery, params: LogbookSearchParams): Promise<LogbookSearchResult>;
+  /** Logbook entries of a scope, newest first. */
+  listLogbook(scope: LogbookScope, options?: ListLogbookOptions): Promise<LogbookEntry[]>;
+  /** Deletes logbook entries by id from a scope; resolves to how many were removed. */
+  deleteLogbook(scope: LogbookScope, ids: readonly string[]): Promise<number>;
   /** The session's event stream, oldest first, up to the last `limit`. */
   readEvents(ref: SessionRef, limit?: number): Promise<StoredEvent[]>;
   /**
-   * Removes every trace of a session or user: slots, archive items and their index entries, event
+   * Removes every trace of a session or user: slots, logbook entries and their index entries, event
    * stream entries, snapshots. Nothing erased may be returned by any later call.
    */
   erase(target: EraseTarget): Promise<EraseReport>;

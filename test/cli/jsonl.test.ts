@@ -66,7 +66,7 @@ describe('parseProbes', () => {
       { id: 'fact:a', session: 's1', query: 'what bike?', expect: ['t3', 't9'], after: 't40', line: 1 },
       { id: 'line:2', session: 's1', query: 'name?', expect: ['t1'], line: 2 },
     ]);
-    expect(r.issues).toEqual([{ file: 'probes', line: 3, message: 'field "expect" must be a non-empty array of turn ids, got an array of 0' }]);
+    expect(r.issues).toEqual([{ file: 'probes', line: 3, message: 'field "expect" must be a non-empty array of turn ids (or may be left out when "expectText" is given), got an array of 0' }]);
   });
 
   it('round-trips through toJsonl', () => {

@@ -49,8 +49,8 @@ describe('runSweep', () => {
   it('finds that more slots buy recall on the tiny transcript and plots every point', async () => {
     const turns = parseTranscript(TINY_TRANSCRIPT).items;
     const probes = parseProbes(TINY_PROBES).items;
-    // Without the archive, what leaves the slots is gone, so capacity shows in recall.
-    const r = await runSweep({ turns, probes, k: 3, config: { read: { archive: 'never' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8, 64] } } });
+    // Reading working memory alone, what leaves the slots is out of reach, so capacity shows in recall.
+    const r = await runSweep({ turns, probes, k: 3, config: { read: { tiers: 'slots' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8, 64] } } });
     expect(r.points.map((p) => p.capacity)).toEqual([64, 1, 2, 8]);
     expect(r.points.map((p) => p.slots_per_session)).toEqual([2, 1, 1.5, 2]);
     const recall = r.points.map((p) => p.recall_at_k);

@@ -5,7 +5,7 @@ import { PROMPT_DEFAULTS, approxTokens, itemLine, renderPrompt } from '../../src
 import type { RecallItem } from '../../src/types.js';
 
 const item = (key: string, value: string, over: Partial<RecallItem> = {}): RecallItem => ({
-  source: 'slot', id: key, key, value, provenance: ['t1'], weight: 0.5, score: 1, cosine: 0.5, lexical: 0, strength: 1, ...over,
+  source: 'slot', kind: 'slot', id: key, key, value, provenance: ['t1'], weight: 0.5, score: 1, cosine: 0.5, lexical: 0, coverage: 0, strength: 1, placed: 'score', ...over,
 });
 
 describe('renderPrompt', () => {
@@ -15,10 +15,20 @@ describe('renderPrompt', () => {
     expect(renderPrompt(items)).toBe([PROMPT_DEFAULTS.header, '- my booking: Friday at 9', '- my name: Dana', '- my bike: a green Brompton'].join('\n'));
   });
 
-  it('writes only the value when key and value are the same text, and marks archive items', () => {
+  it('writes only the value when key and value are the same text, and marks values that left working memory', () => {
     expect(itemLine(item('same text', 'same text'))).toBe('- same text');
-    expect(itemLine(item('my booking', 'Tuesday', { source: 'archive', reason: 'superseded' }))).toBe('- my booking: Tuesday (earlier, since replaced)');
-    expect(itemLine(item('my bike', 'a Moulton', { source: 'archive', reason: 'capacity' }))).toBe('- my bike: a Moulton (older)');
+    expect(itemLine(item('my booking', 'Tuesday', { source: 'logbook', kind: 'superseded' }))).toBe('- my booking: Tuesday (earlier, since replaced)');
+    expect(itemLine(item('my bike', 'a Larkspur roadster', { source: 'logbook', kind: 'capacity' }))).toBe('- my bike: a Larkspur roadster (older)');
+    expect(itemLine(item('my exam', 'They moved it to November', { placed: 'ambiguous' }))).toBe('- my exam: They moved it to November (said later; may update the next item)');
+  });
+
+  it('shows a turn with its day, its speaker and what its relative dates meant', () => {
+    const turn = item('', 'I ran my first 10k last Saturday!', {
+      source: 'logbook', kind: 'turn', speaker: 'Maren', atMs: Date.parse('2025-06-11T18:00:00Z'),
+      dates: [{ text: 'last Saturday', day: '2025-06-07', grain: 'day' }],
+    });
+    expect(itemLine(turn)).toBe('- [2025-06-11] Maren: I ran my first 10k last Saturday! (last Saturday = 2025-06-07)');
+    expect(itemLine({ ...turn, speaker: undefined, role: 'assistant', dates: undefined } as RecallItem)).toBe('- [2025-06-11] assistant: I ran my first 10k last Saturday!');
   });
 
   it('stays within the token budget, skipping lines that do not fit', () => {

@@ -9,6 +9,8 @@ import { decayed } from '../../src/memory/decay.js';
 import { DEFAULT_GATE_WEIGHTS } from '../../src/memory/gate.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { planWrite, type KeyedCandidate } from '../../src/memory/write.js';
+import { LOGBOOK_SEARCH_DEFAULTS } from '../../src/logbook/index.js';
+import { analyseQuery } from '../../src/logbook/query.js';
 import { MemoryStore } from '../../src/store/memory.js';
 import { readParams, vec, writeParams } from './helpers.js';
 
@@ -74,11 +76,11 @@ describe('memory invariants (fast-check)', () => {
             table: t, now: clock, nowMs: s * 1000, params, tenant: ref.tenant, session: ref.session, candidates,
             reinforce: step.reinforceRead ? read.selected.map((i) => t.ids[i]!) : [], newId: () => `r${++n}`,
           });
-          const res = await store.commit(ref, { expectedVersion: version, clock, turns: s + 1, capacity, dim: DIM, ops: plan.ops, archive: plan.archive, events: plan.events });
+          const res = await store.commit(ref, { expectedVersion: version, clock, turns: s + 1, capacity, dim: DIM, ops: plan.ops, logbook: plan.archive, events: plan.events });
           expect(res.ok).toBe(true);
           version = res.version;
           t = (await store.load(ref))!.table;
-          for (const a of plan.archive) if (a.reason === 'superseded') superseded.push({ id: a.id, successor: a.successor! });
+          for (const a of plan.archive) if (a.kind === 'superseded') superseded.push({ id: a.id, successor: a.successor! });
           // Capacity is never exceeded.
           expect(t.count()).toBeLessThanOrEqual(capacity);
           expect(plan.slotsInUse).toBe(t.count());
@@ -98,8 +100,8 @@ describe('memory invariants (fast-check)', () => {
             expect(t.isPinned(i)).toBe(true);
           }
         }
-        // Every superseded value is in the archive, linked to its successor, and findable by search.
-        const archive = await store.listArchive(ref, 10_000);
+        // Every superseded value is in the logbook, linked to its successor, and findable by its words.
+        const archive = await store.listLogbook(ref, { limit: 10_000 });
         const byId = new Map(archive.map((a) => [a.id, a]));
         const live = new Set<string>();
         for (let i = 0; i < capacity; i++) if (t.isUsed(i)) live.add(t.ids[i]!);
@@ -109,8 +111,8 @@ describe('memory invariants (fast-check)', () => {
           expect(item!.successor).toBe(successor);
           // The successor is live, or itself archived (superseded or evicted later).
           expect(live.has(successor) || byId.has(successor)).toBe(true);
-          const hits = await store.searchArchive(ref, item!.key, 10_000);
-          expect(hits.some((h) => h.item.id === id)).toBe(true);
+          const r = await store.searchLogbook(ref, analyseQuery(item!.value, 0), { ...LOGBOOK_SEARCH_DEFAULTS, limit: 10_000 });
+          expect(r.hits.some((h) => h.entry.id === id)).toBe(true);
         }
       }),
       { numRuns: 100 },

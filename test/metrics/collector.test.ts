@@ -13,15 +13,15 @@ describe('DashboardCollector', () => {
     const bus = new EventEmitter<TidemarkEvents>();
     const c = new DashboardCollector({ bucketMs: 5_000, windowMs: 30_000 });
     c.attach(bus);
-    emitTurn(bus, { sessionHash: 'a', atMs: T0 + 100, result: 'hit' });
+    emitTurn(bus, { sessionHash: 'a', atMs: T0 + 100, result: 'slot' });
     emitTurn(bus, { sessionHash: 'a', atMs: T0 + 4_900, result: 'miss', passed: false });
-    emitTurn(bus, { sessionHash: 'b', atMs: T0 + 5_000, result: 'archive_hit', outcome: 'overwritten', evict: 'capacity' });
-    emitTurn(bus, { sessionHash: 'old', atMs: T0 - 60_000, result: 'hit' }); // outside the window
+    emitTurn(bus, { sessionHash: 'b', atMs: T0 + 5_000, result: 'logbook', outcome: 'overwritten', evict: 'capacity' });
+    emitTurn(bus, { sessionHash: 'old', atMs: T0 - 60_000, result: 'slot' }); // outside the window
     const s = c.snapshot(T0 + 9_999);
     expect(s.t).toEqual([-4, -3, -2, -1, 0, 1].map((i) => T0 + i * 5_000));
-    expect(s.reads.hit).toEqual([0, 0, 0, 0, 1, 0]);
+    expect(s.reads.slot).toEqual([0, 0, 0, 0, 1, 0]);
     expect(s.reads.miss).toEqual([0, 0, 0, 0, 1, 0]);
-    expect(s.reads.archive_hit).toEqual([0, 0, 0, 0, 0, 1]);
+    expect(s.reads.logbook).toEqual([0, 0, 0, 0, 0, 1]);
     expect(s.writes.gated_out).toEqual([0, 0, 0, 0, 1, 0]);
     expect(s.writes.allocated).toEqual([0, 0, 0, 0, 1, 0]);
     expect(s.writes.overwritten).toEqual([0, 0, 0, 0, 0, 1]);

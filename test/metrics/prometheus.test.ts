@@ -32,8 +32,8 @@ describe('prometheusMetrics', () => {
     const bus = new EventEmitter<TidemarkEvents>();
     const registry = new client.Registry();
     const m = await prometheusMetrics(bus, { registry });
-    emitTurn(bus, { sessionHash: 'h1', result: 'hit', readUs: 1500 });
-    emitTurn(bus, { sessionHash: 'h1', result: 'archive_hit', outcome: 'overwritten', evict: 'capacity' });
+    emitTurn(bus, { sessionHash: 'h1', result: 'slot', readUs: 1500 });
+    emitTurn(bus, { sessionHash: 'h1', result: 'logbook', outcome: 'overwritten', evict: 'capacity' });
     emitTurn(bus, { sessionHash: 'h2', result: 'miss', passed: false, evict: 'decayed' });
     emitTurn(bus, { sessionHash: 'h2', result: 'miss', outcome: 'reinforced', slotsInUse: 8 });
     bus.emit('outbox', { depth: 3, change: 'queued' });
@@ -42,8 +42,8 @@ describe('prometheusMetrics', () => {
 
     const text = await m.metrics();
     const parsed = parsePrometheusTextFormat(text);
-    expect(value(parsed, 'tidemark_reads_total', { result: 'hit' })).toBe(1);
-    expect(value(parsed, 'tidemark_reads_total', { result: 'archive_hit' })).toBe(1);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'slot' })).toBe(1);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'logbook' })).toBe(1);
     expect(value(parsed, 'tidemark_reads_total', { result: 'miss' })).toBe(2);
     expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated' })).toBe(1);
     expect(value(parsed, 'tidemark_writes_total', { outcome: 'overwritten' })).toBe(1);
@@ -85,7 +85,7 @@ describe('prometheusMetrics', () => {
     for (let i = 0; i < 10; i++) emitTurn(bus, { sessionHash: `warm${i}`, evict: 'capacity' });
     const before = await m.metrics();
     for (let i = 0; i < 10_000; i++) {
-      emitTurn(bus, { sessionHash: `s${i}`, result: (['hit', 'archive_hit', 'miss'] as const)[i % 3], evict: i % 7 === 0 ? 'decayed' : undefined });
+      emitTurn(bus, { sessionHash: `s${i}`, result: (['slot', 'logbook', 'miss'] as const)[i % 3], evict: i % 7 === 0 ? 'decayed' : undefined });
     }
     const after = await m.metrics();
     const parsedAfter = parsePrometheusTextFormat(after);

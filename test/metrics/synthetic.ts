@@ -26,8 +26,8 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
   const capacity = t.capacity ?? 8;
   const slotsInUse = t.slotsInUse ?? 3;
   bus.emit('read', {
-    ...base, result: t.result ?? 'hit', items: 2, slotItems: 2, archiveItems: 0, scanned: slotsInUse,
-    slotsInUse, capacity, topWeight: 0.7, entropy: 0.6, topCosine: 0.8, durationUs: t.readUs ?? 400, embedUs: 50,
+    ...base, result: t.result ?? 'slot', items: 2, slotItems: 2, logbookItems: 0, archiveItems: 0, scanned: slotsInUse,
+    slotsInUse, capacity, logbookSize: 10, topWeight: 0.7, entropy: 0.6, topCosine: 0.8, topCoverage: 0.6, durationUs: t.readUs ?? 400, searchUs: 40, embedUs: 50,
   });
   bus.emit('gate', { ...base, score: t.passed === false ? 0.2 : 0.8, threshold: 0.5, passed: t.passed !== false, features: { novelty: 0.5 } });
   if (t.passed !== false) {
@@ -43,7 +43,7 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
     });
   }
   bus.emit('commit', {
-    ...base, ops: 1, archived: t.evict && t.evict !== 'erased' ? 1 : 0, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
+    ...base, ops: 1, archived: t.evict && t.evict !== 'erased' ? 1 : 0, logbook: 2, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
     embedUs: 60, slotsInUse, capacity, version: 1,
   });
 }

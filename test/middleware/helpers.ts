@@ -1,15 +1,16 @@
 // Test doubles for the middleware suites: a Store wrapper that delays or fails on demand (around a
-// real MemoryStore, so the data path is the real one), and reply helpers.
+// real InProcessStore, so the data path is the real one), and reply helpers.
 
+import { InProcessStore } from '../../src/store/in-process.js';
 import type { Store } from '../../src/store/store.js';
-import { MemoryStore } from '../../src/store/memory.js';
 
 export const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
 
-/** A MemoryStore behind switches: delays for load/commit, failures for load/commit, and timings. */
+/** An InProcessStore behind switches: delays for load/commit/search, failures for load/commit, and timings. */
 export class ControlledStore implements Store {
   readonly name = 'controlled';
-  readonly inner: MemoryStore;
+  readonly inner: InProcessStore;
+  searchDelayMs = 0;
   loadDelayMs = 0;
   commitDelayMs = 0;
   failLoad = false;
@@ -19,7 +20,7 @@ export class ControlledStore implements Store {
   /** performance.now() when each successful commit finished. */
   readonly commitDone: number[] = [];
 
-  constructor(inner = new MemoryStore()) {
+  constructor(inner = new InProcessStore()) {
     this.inner = inner;
   }
 
@@ -39,14 +40,15 @@ export class ControlledStore implements Store {
     return r;
   }
 
-  searchArchive(...a: Parameters<Store['searchArchive']>): ReturnType<Store['searchArchive']> {
-    return this.inner.searchArchive(...a);
+  async searchLogbook(...a: Parameters<Store['searchLogbook']>): ReturnType<Store['searchLogbook']> {
+    if (this.searchDelayMs > 0) await sleep(this.searchDelayMs);
+    return this.inner.searchLogbook(...a);
   }
-  listArchive(...a: Parameters<Store['listArchive']>): ReturnType<Store['listArchive']> {
-    return this.inner.listArchive(...a);
+  listLogbook(...a: Parameters<Store['listLogbook']>): ReturnType<Store['listLogbook']> {
+    return this.inner.listLogbook(...a);
   }
-  deleteArchive(...a: Parameters<Store['deleteArchive']>): ReturnType<Store['deleteArchive']> {
-    return this.inner.deleteArchive(...a);
+  deleteLogbook(...a: Parameters<Store['deleteLogbook']>): ReturnType<Store['deleteLogbook']> {
+    return this.inner.deleteLogbook(...a);
   }
   readEvents(...a: Parameters<Store['readEvents']>): ReturnType<Store['readEvents']> {
     return this.inner.readEvents(...a);

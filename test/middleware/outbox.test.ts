@@ -24,10 +24,12 @@ describe('outbox drain', () => {
     for (const s of sessions) {
       const view = await tm.inspect(s);
       expect(view.turns).toBe(3);
-      // Applied in order: the last value wins, the earlier ones are superseded in the archive.
-      const lesson = view.slots.find((x) => x.key === 'my lesson');
+      // Applied in order: the last value wins, the earlier ones are superseded in the logbook.
+      const lesson = view.slots.find((x) => x.key === 'my booking (lesson)');
       expect(lesson?.value).toMatch(/Wednesday/);
-      expect(view.archive.map((a) => a.value).join(' ')).toMatch(/Monday/);
+      expect(view.logbook.filter((a) => a.kind === 'superseded').map((a) => a.value).join(' ')).toMatch(/Monday/);
+      // And all three turns are kept, in order.
+      expect(view.logbook.filter((a) => a.kind === 'turn').map((a) => a.seq)).toEqual([3, 2, 1]);
     }
     await tm.close();
   });

@@ -1,14 +1,16 @@
 // The memory invariants again, end to end through createTidemark with the real extractor, gate,
 // embedder and store (fast-check): capacity, strengths in (0, 1], pinned slots kept, and every
-// superseded value reachable in the archive through its successor link.
+// superseded value reachable in the logbook through its successor link, every turn kept there.
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { createTidemark } from '../../src/middleware/tidemark.js';
-import { MemoryStore } from '../../src/store/memory.js';
+import { LOGBOOK_SEARCH_DEFAULTS } from '../../src/logbook/index.js';
+import { analyseQuery } from '../../src/logbook/query.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 
 const TOPICS = ['bike', 'saddle', 'helmet', 'lock', 'pump', 'postcode'];
-const VALUES = ['a green Brompton', 'a red Moulton', 'blue', 'orange', 'BS3 4QT', 'a Brooks B17', 'brass'];
+const VALUES = ['a green Harlow Tourer', 'a red Pennick Sprint', 'blue', 'orange', 'ZZ99 9ZZ', 'a Fenwick leather saddle', 'brass'];
 const turnArb = fc.oneof(
   fc.record({ kind: fc.constant('fact' as const), topic: fc.constantFrom(...TOPICS), value: fc.constantFrom(...VALUES) }),
   fc.record({ kind: fc.constant('booking' as const), day: fc.constantFrom('Tuesday', 'Friday', 'Monday') }),
@@ -21,7 +23,7 @@ describe('memory invariants through the middleware (fast-check)', () => {
   it('hold over random conversations', async () => {
     await fc.assert(
       fc.asyncProperty(fc.integer({ min: 1, max: 4 }), fc.array(turnArb, { minLength: 1, maxLength: 14 }), async (capacity, turns) => {
-        const store = new MemoryStore();
+        const store = new InProcessStore();
         const tm = createTidemark({ store, capacity, secret: 'p', write: { halfLife: 6 } });
         const pinnedIds = new Set<number>();
         for (const t of turns) {
@@ -46,14 +48,16 @@ describe('memory invariants through the middleware (fast-check)', () => {
           for (const i of pinnedIds) expect(v.slots.find((s) => s.index === i)?.pinned).toBe(true);
         }
         const ref = { tenant: 'default', session: 's' };
-        const archive = await store.listArchive(ref, 10_000);
+        const archive = await store.listLogbook(ref, { limit: 10_000 });
         const ids = new Set(archive.map((a) => a.id));
         const live = new Set((await tm.inspect('s')).slots.map((s) => s.id));
-        for (const a of archive.filter((x) => x.reason === 'superseded')) {
+        // Nothing said is lost: every turn written is in the logbook.
+        expect(archive.filter((x) => x.kind === 'turn')).toHaveLength(turns.filter((t) => t.kind !== 'pin').length);
+        for (const a of archive.filter((x) => x.kind === 'superseded')) {
           expect(a.successor).toBeDefined();
           expect(live.has(a.successor!) || ids.has(a.successor!)).toBe(true);
-          const hits = await store.searchArchive(ref, a.key, 10_000);
-          expect(hits.map((h) => h.item.id)).toContain(a.id);
+          const r = await store.searchLogbook(ref, analyseQuery(a.value, 0), { ...LOGBOOK_SEARCH_DEFAULTS, limit: 10_000 });
+          expect(r.hits.map((h) => h.entry.id)).toContain(a.id);
         }
         await tm.close();
       }),

@@ -6,7 +6,7 @@ import { afterEach, describe, expect, it } from 'vitest';
 import type { Embedder } from '../../src/embed/embedder.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
 import { Tidemark, createTidemark, type TidemarkOptions } from '../../src/middleware/tidemark.js';
-import { MemoryStore } from '../../src/store/memory.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 import { ControlledStore, sleep } from './helpers.js';
 
 const open: Tidemark[] = [];
@@ -20,7 +20,7 @@ afterEach(async () => {
 });
 
 /** The bike workshop conversation of the demo, up to the change of day. */
-const BOOKING = ['Hi, my name is Dana and my bike is a green Brompton.', 'Can I book a service for Tuesday?', 'I am allergic to chain wax.', 'Actually, can we move it to Friday instead?'];
+const BOOKING = ['Hi, my name is Dana and my bike is a green Harlow Tourer.', 'Can I book a service for Tuesday?', 'I am allergic to chain wax.', 'Actually, can we move it to Friday instead?'];
 
 describe('bad input gets a coded error and nothing written', () => {
   async function nothingWritten(tm: Tidemark, session = 's1'): Promise<void> {
@@ -42,7 +42,7 @@ describe('bad input gets a coded error and nothing written', () => {
 
   it('oversize text: TIDEMARK_E_INPUT_TOO_LARGE; with truncate: true it is cut on a UTF-8 boundary', async () => {
     const tm = make({ maxTextBytes: 40 });
-    const long = 'My bike is a ' + 'Brompton '.repeat(10);
+    const long = 'My bike is a ' + 'Harlow Tourer '.repeat(10);
     await expect(tm.write({ session: 's1', text: long })).rejects.toMatchObject({ code: 'TIDEMARK_E_INPUT_TOO_LARGE' });
     await nothingWritten(tm);
     // "Remember that " is 14 bytes, then 3-byte characters: 40 bytes end inside the 9th, so 8 are kept.
@@ -58,7 +58,7 @@ describe('bad input gets a coded error and nothing written', () => {
       await expect(tm.write({ session, text: 'My name is Dana' } as never)).rejects.toMatchObject({ code: 'TIDEMARK_E_INPUT_ID' });
       await expect(tm.read({ session, text: 'name?' } as never)).rejects.toMatchObject({ code: 'TIDEMARK_E_INPUT_ID' });
     }
-    expect(await (tm.store as MemoryStore).listSessions('default')).toEqual([]);
+    expect(await (tm.store as InProcessStore).listSessions('default')).toEqual([]);
   });
 
   it('an embedder returning NaN: TIDEMARK_E_EMBED_INVALID from read and write, nothing written', async () => {
@@ -73,7 +73,7 @@ describe('bad input gets a coded error and nothing written', () => {
   });
 
   it('a session stored with 384 dims read with a 256-dim embedder: TIDEMARK_E_EMBED_DIM naming both', async () => {
-    const store = new MemoryStore();
+    const store = new InProcessStore();
     await make({ store }).write({ session: 's1', text: 'My name is Dana' });
     const other = make({ store, embedder: new HashingEmbedder({ dim: 256 }) });
     const err = await other.read({ session: 's1', text: 'what is my name' }).catch((e: unknown) => e);
@@ -82,7 +82,7 @@ describe('bad input gets a coded error and nothing written', () => {
     expect((err as Error).message).toContain('gives 256');
     expect((err as Error).message).toContain('migrate');
     expect((err as Error).message).not.toContain('s1'); // the raw session id stays out of messages
-    await expect(other.write({ session: 's1', text: 'My bike is a Brompton' })).rejects.toMatchObject({ code: 'TIDEMARK_E_EMBED_DIM' });
+    await expect(other.write({ session: 's1', text: 'My bike is a Harlow Tourer' })).rejects.toMatchObject({ code: 'TIDEMARK_E_EMBED_DIM' });
     expect((await store.load({ tenant: 'default', session: 's1' }))!.version).toBe(1);
   });
 
@@ -118,7 +118,7 @@ describe('bad input gets a coded error and nothing written', () => {
 
 describe('recall', () => {
   it('after "Actually, can we move it to Friday instead?" the Friday booking outranks Tuesday', async () => {
-    const tm = make({ read: { archive: 'always' } });
+    const tm = make();
     for (const text of BOOKING) await tm.write({ session: 'bike-1', text });
     const r = await tm.read({ session: 'bike-1', text: 'When is my service booked?' });
     const friday = r.items.findIndex((i) => /friday/i.test(i.value));
@@ -126,11 +126,15 @@ describe('recall', () => {
     expect(friday).toBe(0);
     expect(r.items[0]!.source).toBe('slot');
     expect(r.items[0]!.provenance).toEqual(['t4', 't2']);
-    if (tuesday >= 0) {
-      expect(tuesday).toBeGreaterThan(friday);
-      expect(r.items[tuesday]).toMatchObject({ source: 'archive', reason: 'superseded', successor: r.items[0]!.id });
-    }
-    expect(r.trace.result).toBe('hit');
+    // The turn that said Tuesday is still there, below Friday; the superseded value itself adds no
+    // source turn the successor lacks, so it is left out...
+    expect(tuesday).toBeGreaterThan(friday);
+    expect(r.items[tuesday]).toMatchObject({ source: 'logbook', kind: 'turn', provenance: ['t2'] });
+    expect(r.items.some((i) => i.kind === 'superseded')).toBe(false);
+    expect(r.trace.result).toBe('slot');
+    // ...until history is asked for: then it ranks by its own score, linked to what replaced it.
+    const h = await tm.read({ session: 'bike-1', text: 'When was my service booked before?', history: true });
+    expect(h.items.find((i) => i.kind === 'superseded')).toMatchObject({ source: 'logbook', value: 'book a service for Tuesday', successor: r.items[0]!.id });
     expect(r.prompt.split('\n')[1]).toMatch(/Friday/);
     // Even a query naming Tuesday gets the current booking first.
     const t = await tm.read({ session: 'bike-1', text: 'Is my service still on Tuesday?' });
@@ -157,23 +161,23 @@ describe('recall', () => {
 });
 
 describe('admin', () => {
-  it('erase removes slots, archive and events, and a later read cannot return erased text', async () => {
-    const store = new MemoryStore();
-    const tm = make({ store, read: { archive: 'always' } });
+  it('erase removes slots, logbook and events, and a later read cannot return erased text', async () => {
+    const store = new InProcessStore();
+    const tm = make({ store });
     for (const text of BOOKING) await tm.write({ session: 'bike-1', text });
     await tm.write({ session: 'other', text: 'My name is Rowan' });
-    expect((await tm.inspect('bike-1')).archive.length).toBeGreaterThan(0);
+    expect((await tm.inspect('bike-1')).logbook.length).toBe(BOOKING.length + 1); // every turn, and Tuesday superseded
     const report = await tm.erase({ session: 'bike-1' });
     expect(report.sessions).toBe(1);
     expect(report.slots).toBeGreaterThan(0);
     const v = await tm.inspect('bike-1');
-    expect(v).toMatchObject({ version: 0, slots: [], archive: [], events: [] });
+    expect(v).toMatchObject({ version: 0, slots: [], logbook: [], events: [] });
     for (const q of ['When is my service booked?', 'Tuesday', 'chain wax', 'What is my name? Dana']) {
       const r = await tm.read({ session: 'bike-1', text: q });
       expect(r.items).toEqual([]);
       expect(r.prompt).toBe('');
     }
-    expect(await store.listArchive({ tenant: 'default', session: 'bike-1' })).toEqual([]);
+    expect(await store.listLogbook({ tenant: 'default', session: 'bike-1' })).toEqual([]);
     // Other sessions are untouched.
     expect((await tm.read({ session: 'other', text: 'What is my name?' })).items[0]!.value).toBe('Rowan');
   });
@@ -203,7 +207,7 @@ describe('admin', () => {
   it('erase by user removes every session of that user', async () => {
     const tm = make();
     await tm.write({ session: 'a', user: 'u1', text: 'My name is Dana' });
-    await tm.write({ session: 'b', user: 'u1', text: 'My bike is a green Brompton' });
+    await tm.write({ session: 'b', user: 'u1', text: 'My bike is a green Harlow Tourer' });
     await tm.write({ session: 'c', user: 'u2', text: 'My name is Rowan' });
     await tm.erase({ user: 'u1' });
     expect((await tm.inspect('a')).slots).toEqual([]);
@@ -216,7 +220,7 @@ describe('admin', () => {
     await tm.write({ session: 's', text: 'I am allergic to chain wax.' });
     const slot = (await tm.inspect('s')).slots[0]!;
     await tm.pin('s', slot.index);
-    const facts = ['My name is Dana', 'My bike is a green Brompton', 'My postcode is BS3 4QT', 'My phone is 07700 900123', 'My saddle is a Brooks B17', 'My helmet is blue'];
+    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My phone is 07700 900123', 'My saddle is a Fenwick leather saddle', 'My helmet is blue'];
     let evicted = 0;
     tm.on('evict', () => evicted++);
     for (const text of facts) await tm.write({ session: 's', text });
@@ -231,9 +235,9 @@ describe('admin', () => {
   });
 
   it('reopening a session with a smaller capacity keeps pinned and strongest slots and reports the evictions', async () => {
-    const store = new MemoryStore();
+    const store = new InProcessStore();
     const big = make({ store, capacity: 4, write: { halfLife: 2 } });
-    const facts = ['My name is Dana', 'I am allergic to chain wax.', 'My bike is a green Brompton', 'My postcode is BS3 4QT'];
+    const facts = ['My name is Dana', 'I am allergic to chain wax.', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ'];
     for (const text of facts) await big.write({ session: 's', text });
     await big.pin('s', 1); // the allergy
     const small = make({ store, capacity: 2, write: { halfLife: 2 } });
@@ -243,15 +247,15 @@ describe('admin', () => {
     const v = await small.inspect('s');
     expect(v.capacity).toBe(2);
     // Older slots have decayed most (half-life 2 turns): the newest fact and the pinned one stay.
-    expect(v.slots.map((x) => x.value).sort()).toEqual(['BS3 4QT', 'chain wax']);
+    expect(v.slots.map((x) => x.value).sort()).toEqual(['ZZ99 9ZZ', 'chain wax']);
     expect(report.evicted).toBe(2);
     expect(evicted).toEqual([['capacity', true], ['capacity', true]]);
-    expect(v.archive.map((a) => [a.value, a.reason]).sort()).toEqual([['Dana', 'capacity'], ['a green Brompton', 'capacity']]);
+    expect(v.logbook.filter((a) => a.kind !== 'turn').map((a) => [a.value, a.kind]).sort()).toEqual([['Dana', 'capacity'], ['a green Harlow Tourer', 'capacity']]);
     expect(v.events.filter((e) => e.type === 'evict').map((e) => e.reason)).toEqual(['capacity', 'capacity']);
   });
 
   it('inspect shows strengths decayed to the session clock', async () => {
-    const store = new MemoryStore();
+    const store = new InProcessStore();
     const tm = make({ store, write: { halfLife: 2 } });
     await tm.write({ session: 's', text: 'My name is Dana' });
     const s0 = (await tm.inspect('s')).slots[0]!.strength;
@@ -285,13 +289,15 @@ describe('admin', () => {
     for (const text of BOOKING) await tm.write({ session: 'bike-1', text });
     const v = await tm.inspect('bike-1');
     const booking = v.slots.find((s) => /Friday/.test(s.value))!;
-    expect(v.archive).toEqual([expect.objectContaining({ value: 'book a service for Tuesday', reason: 'superseded', successor: booking.id })]);
+    expect(v.logbook.filter((a) => a.kind !== 'turn')).toEqual([expect.objectContaining({ value: 'book a service for Tuesday', kind: 'superseded', successor: booking.id })]);
+    // And every turn, in its own words, with its provenance.
+    expect(v.logbook.filter((a) => a.kind === 'turn').map((a) => [a.value, a.provenance])).toEqual(BOOKING.map((t, i) => [t, [`t${i + 1}`]]).reverse());
     expect(v.events.map((e) => e.type)).toContain('overwrite');
     expect(JSON.stringify(v.events)).not.toMatch(/Tuesday|Friday|Dana/);
   });
 
   it('migrate() re-embeds a session for a new embedder, keeping values and provenance', async () => {
-    const store = new MemoryStore();
+    const store = new InProcessStore();
     const old = make({ store });
     for (const text of BOOKING) await old.write({ session: 'bike-1', text });
     const before = await old.inspect('bike-1');
@@ -307,8 +313,8 @@ describe('admin', () => {
   });
 
   it('migrate() stores the same vectors a fresh write with the new embedder would (value mix included)', async () => {
-    const store = new MemoryStore();
-    const facts = ['My name is Dana', 'My bike is a green Brompton', 'I am allergic to chain wax.'];
+    const store = new InProcessStore();
+    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'I am allergic to chain wax.'];
     const old = make({ store });
     for (const text of facts) await old.write({ session: 'old', text });
     const tm = make({ store, embedder: new HashingEmbedder({ dim: 256 }) });
@@ -348,7 +354,7 @@ describe('admin', () => {
 });
 
 describe('concurrency', () => {
-  const FACTS = ['My name is Dana', 'My bike is a green Brompton', 'My postcode is BS3 4QT', 'My saddle is a Brooks B17', 'My helmet is blue', 'My lock is a Kryptonite', 'My pump is orange', 'My bell is brass'];
+  const FACTS = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My saddle is a Fenwick leather saddle', 'My helmet is blue', 'My lock is a Brannock D-lock', 'My pump is orange', 'My bell is brass'];
 
   it('N concurrent writes to one session all land, in order (no lost update)', async () => {
     const store = new ControlledStore();
@@ -373,7 +379,7 @@ describe('concurrency', () => {
     const v = await a.inspect('s');
     expect(v.version).toBe(FACTS.length);
     expect(v.turns).toBe(FACTS.length);
-    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Brompton', 'BS3 4QT', 'a Brooks B17', 'blue', 'a Kryptonite', 'orange', 'brass'].sort());
+    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Harlow Tourer', 'ZZ99 9ZZ', 'a Fenwick leather saddle', 'blue', 'a Brannock D-lock', 'orange', 'brass'].sort());
   });
 
   it('different sessions run in parallel: a slow commit of one does not hold up another', async () => {

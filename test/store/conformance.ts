@@ -2,9 +2,11 @@
 // `storeConformance(name, factory)` from a *.test.ts file. Every case runs for every store.
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { LOGBOOK_SEARCH_DEFAULTS } from '../../src/logbook/index.js';
+import { analyseQuery } from '../../src/logbook/query.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import type { CommitRequest, Store } from '../../src/store/store.js';
-import type { ArchiveItem, SessionRef, SlotRecord } from '../../src/types.js';
+import type { LogbookEntry, LogbookScope, SessionRef, SlotRecord } from '../../src/types.js';
 
 export interface ConformanceOptions {
   /** Allowed absolute error per key component after a round trip (int8 payloads quantise). */
@@ -54,9 +56,11 @@ export function slot(n: number, over: Partial<SlotRecord> = {}): SlotRecord {
   };
 }
 
-export function archived(n: number, ref: SessionRef, over: Partial<ArchiveItem> = {}): ArchiveItem {
+/** A demoted slot value (superseded by revision r{n}). */
+export function archived(n: number, ref: SessionRef, over: Partial<LogbookEntry> = {}): LogbookEntry {
   return {
     id: `a${n}`,
+    kind: 'superseded',
     tenant: ref.tenant,
     session: ref.session,
     ...(ref.user ? { user: ref.user } : {}),
@@ -64,19 +68,44 @@ export function archived(n: number, ref: SessionRef, over: Partial<ArchiveItem> 
     keyText: `old topic ${n}`,
     value: `old value ${n}`,
     provenance: [`t${n}`],
-    reason: 'superseded',
     strength: 0.4,
     halfLife: 200,
     clock: n,
+    seq: 0,
     createdMs: 1_700_000_000_000,
-    archivedMs: 1_700_000_000_000 + n,
+    atMs: 1_700_000_000_000 + n,
     successor: `r${n}`,
     ...over,
   };
 }
 
+/** A kept turn: seq n, said by `speaker`, at 1_700_000_000_000 + n * 1000. */
+export function turnEntry(n: number, ref: SessionRef, text: string, over: Partial<LogbookEntry> = {}): LogbookEntry {
+  return {
+    id: `T-${ref.session}-${n}`,
+    kind: 'turn',
+    tenant: ref.tenant,
+    session: ref.session,
+    ...(ref.user ? { user: ref.user } : {}),
+    value: text,
+    keyText: '',
+    provenance: [`t${n}`],
+    role: n % 2 === 1 ? 'user' : 'assistant',
+    atMs: 1_700_000_000_000 + n * 1000,
+    createdMs: 1_700_000_000_000 + n * 1000,
+    clock: n,
+    seq: n,
+    ...over,
+  };
+}
+
 export function commitOf(over: Partial<CommitRequest>): CommitRequest {
-  return { expectedVersion: 0, clock: 1, turns: 1, capacity: 8, dim: DIM, ops: [], archive: [], events: [], ...over };
+  return { expectedVersion: 0, clock: 1, turns: 1, capacity: 8, dim: DIM, ops: [], logbook: [], events: [], ...over };
+}
+
+/** A logbook search for a text, with the default settings. */
+export function searchText(store: Store, scope: LogbookScope, text: string) {
+  return store.searchLogbook(scope, analyseQuery(text, Date.now()), LOGBOOK_SEARCH_DEFAULTS);
 }
 
 export function storeConformance(name: string, factory: () => Promise<Store>, options: ConformanceOptions = {}): void {
@@ -114,7 +143,7 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
 
     test('a first commit creates the session at version 1 with its slots', async () => {
       const ref = fresh();
-      const res = await store.commit(ref, commitOf({ clock: 3, turns: 4, ops: [{ index: 0, slot: slot(1) }, { index: 5, slot: slot(2, { pinned: true, previous: 'r0' }) }] }));
+      const res = await store.commit(ref, commitOf({ clock: 3, turns: 4, ops: [{ index: 0, slot: slot(1) }, { index: 5, slot: slot(2, { pinned: true, previous: 'r0', owner: 'Kofi', reply: true, maybeReplaces: ['r7', 'r8'] }) }] }));
       expect(res).toEqual({ ok: true, version: 1 });
       const snap = await store.load(ref);
       expect(snap).not.toBeNull();
@@ -125,7 +154,7 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expect(snap!.table.dim).toBe(DIM);
       expect(snap!.table.count()).toBe(2);
       expectSlot(snap!.table, 0, slot(1));
-      expectSlot(snap!.table, 5, slot(2, { pinned: true, previous: 'r0' }));
+      expectSlot(snap!.table, 5, slot(2, { pinned: true, previous: 'r0', owner: 'Kofi', reply: true, maybeReplaces: ['r7', 'r8'] }));
       expect(snap!.table.isUsed(1)).toBe(false);
     });
 
@@ -184,41 +213,96 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expectSlot(snap!.table, 1, slot(2));
     });
 
-    test('archive items are searchable by nearest key, best first, in the session scope', async () => {
+    test('every kept turn is searchable by its words, best first, in the session scope only', async () => {
       const ref = fresh();
-      const items = [1, 2, 3, 4].map((n) => archived(n, ref));
-      await store.commit(ref, commitOf({ archive: items }));
-      const hits = await store.searchArchive({ tenant: ref.tenant, session: ref.session }, unit(1002), 2);
-      expect(hits).toHaveLength(2);
-      expect(hits[0]!.item.id).toBe('a2');
-      expect(hits[0]!.cosine).toBeCloseTo(1, 2);
-      expect(hits[0]!.cosine).toBeGreaterThanOrEqual(hits[1]!.cosine);
-      expect(hits[0]!.item.value).toBe('old value 2');
-      expect(hits[0]!.item.successor).toBe('r2');
-      expect(hits[0]!.item.provenance).toEqual(['t2']);
+      const turns = [
+        turnEntry(1, ref, 'We adopted a puppy last week, she is a beagle mix.', { speaker: 'Maren' }),
+        turnEntry(2, ref, 'Aww! What is her name?', { speaker: 'Kofi' }),
+        turnEntry(3, ref, 'Biscuit! She chews everything.', { speaker: 'Maren' }),
+        turnEntry(4, ref, 'I finally finished the pottery course.', { speaker: 'Kofi' }),
+      ];
+      await store.commit(ref, commitOf({ logbook: turns }));
+      const r = await searchText(store, { tenant: ref.tenant, session: ref.session }, 'What kind of puppy did Maren adopt?');
+      expect(r.size).toBe(4);
+      const ranked = r.hits.sort((a, b) => b.score - a.score);
+      expect(ranked[0]!.entry).toMatchObject({ id: turns[0]!.id, value: turns[0]!.value, speaker: 'Maren', role: 'user', seq: 1, provenance: ['t1'] });
+      expect(ranked[0]!.speakerMatch).toBe(true);
+      expect(r.speakers).toEqual(['maren']);
+      // The reply after it shares no word with the query but is found as its neighbour.
+      expect(ranked.map((h) => h.entry.id)).toContain(turns[1]!.id);
+      expect(ranked.map((h) => h.entry.id)).not.toContain(turns[3]!.id);
       // Another session of the tenant sees nothing of it.
-      expect(await store.searchArchive({ tenant: ref.tenant, session: 'other' }, unit(1002), 2)).toEqual([]);
+      expect((await searchText(store, { tenant: ref.tenant, session: 'other' }, 'puppy')).hits).toEqual([]);
     });
 
-    test('listArchive is newest first; deleteArchive removes from search too', async () => {
+    test('demoted values round-trip with their vectors, links and owners', async () => {
+      const ref = fresh();
+      const items = [1, 2, 3].map((n) => archived(n, ref, n === 2 ? { owner: 'Ana', kind: 'capacity', successor: undefined } : {}));
+      delete (items[1] as { successor?: string }).successor;
+      await store.commit(ref, commitOf({ logbook: items }));
+      const listed = await store.listLogbook({ tenant: ref.tenant, session: ref.session });
+      expect(listed.map((i) => i.id)).toEqual(['a3', 'a2', 'a1']);
+      const two = listed.find((i) => i.id === 'a2')!;
+      expect(two).toMatchObject({ kind: 'capacity', owner: 'Ana', keyText: 'old topic 2', value: 'old value 2', provenance: ['t2'], strength: 0.4, halfLife: 200 });
+      expect(two.successor).toBeUndefined();
+      expect(listed.find((i) => i.id === 'a1')!.successor).toBe('r1');
+      const key = two.key!;
+      const want = unit(1002);
+      for (let j = 0; j < want.length; j++) expect(Math.abs(key[j]! - want[j]!)).toBeLessThanOrEqual(tol);
+      expect((await store.listLogbook({ tenant: ref.tenant, session: ref.session }, { kinds: ['superseded'] })).map((i) => i.id)).toEqual(['a3', 'a1']);
+    });
+
+    test('dates and roles of turns round-trip; a resent entry id replaces, not duplicates', async () => {
+      const ref = fresh();
+      const t = turnEntry(1, ref, 'I ran my first 10k yesterday!', { dates: [{ text: 'yesterday', day: '2023-11-13', grain: 'day' }], speaker: 'Priya' });
+      await store.commit(ref, commitOf({ logbook: [t] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [t] }));
+      const listed = await store.listLogbook({ tenant: ref.tenant, session: ref.session });
+      expect(listed).toHaveLength(1);
+      expect(listed[0]).toMatchObject({ dates: [{ text: 'yesterday', day: '2023-11-13', grain: 'day' }], role: 'user', speaker: 'Priya', atMs: t.atMs });
+      const r = await store.searchLogbook({ tenant: ref.tenant, session: ref.session }, { ...analyseQuery('what happened on 13 November 2023', Date.now()) }, LOGBOOK_SEARCH_DEFAULTS);
+      expect(r.hits.map((h) => h.entry.id)).toEqual([t.id]);
+    });
+
+    test('deleteLogbook removes from listing and search', async () => {
       const ref = fresh();
       const scope = { tenant: ref.tenant, session: ref.session };
-      await store.commit(ref, commitOf({ archive: [1, 2, 3].map((n) => archived(n, ref)) }));
-      expect((await store.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a2', 'a1']);
-      expect(await store.deleteArchive(scope, ['a2', 'nope'])).toBe(1);
-      expect((await store.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a1']);
-      const hits = await store.searchArchive(scope, unit(1002), 3);
-      expect(hits.map((h) => h.item.id)).not.toContain('a2');
+      await store.commit(ref, commitOf({ logbook: [1, 2, 3].map((n) => archived(n, ref)) }));
+      expect(await store.deleteLogbook(scope, ['a2', 'nope'])).toBe(1);
+      expect((await store.listLogbook(scope)).map((i) => i.id)).toEqual(['a3', 'a1']);
+      const r = await searchText(store, scope, 'old value 2');
+      expect(r.hits.map((h) => h.entry.id)).not.toContain('a2');
+      // The same id can come back later (a value evicted again) and is searchable again.
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [archived(2, ref, { value: 'old value 2 revisited' })] }));
+      expect((await searchText(store, scope, 'revisited')).hits.map((h) => h.entry.id)).toEqual(['a2']);
     });
 
-    test('sessions of one user share a user-scope archive', async () => {
+    test('the retention policy deletes the oldest past the count, and the expired, and says how many', async () => {
+      const ref = fresh();
+      const scope = { tenant: ref.tenant, session: ref.session };
+      const t = (n: number) => turnEntry(n, ref, `note number ${n} about kayaks`);
+      const first = await store.commit(ref, commitOf({ logbook: [1, 2, 3].map(t), retention: { policy: { maxAgeMs: 0, maxEntries: 5 }, nowMs: t(3).atMs } }));
+      expect(first).toEqual({ ok: true, version: 1 });
+      const second = await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [4, 5, 6, 7].map(t), retention: { policy: { maxAgeMs: 0, maxEntries: 5 }, nowMs: t(7).atMs } }));
+      expect(second).toEqual({ ok: true, version: 2, dropped: { age: 0, count: 2 } });
+      expect((await store.listLogbook(scope)).map((e) => e.seq)).toEqual([7, 6, 5, 4, 3]);
+      // Entries older than 2.5 s before turn 9 (turns 3..6) go by age.
+      const third = await store.commit(ref, commitOf({ expectedVersion: 2, logbook: [8, 9].map(t), retention: { policy: { maxAgeMs: 2500, maxEntries: 5 }, nowMs: t(9).atMs } }));
+      expect(third).toEqual({ ok: true, version: 3, dropped: { age: 4, count: 0 } });
+      expect((await store.listLogbook(scope)).map((e) => e.seq)).toEqual([9, 8, 7]);
+      expect((await searchText(store, scope, 'kayaks')).hits.map((h) => h.entry.seq).sort()).toEqual([7, 8, 9]);
+    });
+
+    test('sessions of one user share a user-scope logbook', async () => {
       const a = fresh('u1');
       const b = fresh('u1');
-      await store.commit(a, commitOf({ archive: [archived(1, a)] }));
-      await store.commit(b, commitOf({ archive: [archived(2, b)] }));
-      const hits = await store.searchArchive({ tenant: a.tenant, user: 'u1' }, unit(1001), 5);
-      expect(hits.map((h) => h.item.id).sort()).toEqual(['a1', 'a2']);
-      expect(hits.find((h) => h.item.id === 'a1')!.item.session).toBe(a.session);
+      await store.commit(a, commitOf({ logbook: [archived(1, a), turnEntry(1, a, 'the first violin lesson')] }));
+      await store.commit(b, commitOf({ logbook: [archived(2, b), turnEntry(1, b, 'the second violin lesson')] }));
+      const listed = await store.listLogbook({ tenant: a.tenant, user: 'u1' });
+      expect(listed.map((h) => h.id).sort()).toEqual(['T-' + a.session + '-1', 'T-' + b.session + '-1', 'a1', 'a2'].sort());
+      expect(listed.find((h) => h.id === 'a1')!.session).toBe(a.session);
+      const r = await searchText(store, { tenant: a.tenant, user: 'u1' }, 'violin lesson');
+      expect(r.hits).toHaveLength(2);
     });
 
     test('events append in order and read back with a limit', async () => {
@@ -230,53 +314,52 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expect((await store.readEvents(ref, 2)).map((e) => e.slot)).toEqual([2, 3]);
     });
 
-    test('erasing a session removes slots, archive items and events', async () => {
+    test('erasing a session removes slots, logbook entries and events', async () => {
       const ref = fresh();
       const keep = fresh();
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref), turnEntry(1, ref, 'my secret diary')], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       await store.commit(keep, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
       const report = await store.erase({ tenant: ref.tenant, session: ref.session });
-      expect(report).toMatchObject({ sessions: 1, slots: 1, archiveItems: 1, events: 1 });
+      expect(report).toMatchObject({ sessions: 1, slots: 1, logbookEntries: 2, events: 1 });
       expect(await store.load(ref)).toBeNull();
-      expect(await store.searchArchive({ tenant: ref.tenant, session: ref.session }, unit(1001), 5)).toEqual([]);
-      expect(await store.listArchive({ tenant: ref.tenant, session: ref.session })).toEqual([]);
+      expect((await searchText(store, { tenant: ref.tenant, session: ref.session }, 'secret diary')).hits).toEqual([]);
+      expect(await store.listLogbook({ tenant: ref.tenant, session: ref.session })).toEqual([]);
       expect(await store.readEvents(ref)).toEqual([]);
       expect(await store.listSessions(ref.tenant, 10_000)).not.toContain(ref.session);
       expect((await store.load(keep))!.table.count()).toBe(1);
     });
 
-    test('erasing a session also removes what it put in its user archive', async () => {
+    test('erasing a session also removes what it put in its user logbook', async () => {
       const a = fresh('u2');
       const b = fresh('u2');
-      await store.commit(a, commitOf({ archive: [archived(1, a)] }));
-      await store.commit(b, commitOf({ archive: [archived(2, b)] }));
+      await store.commit(a, commitOf({ logbook: [archived(1, a)] }));
+      await store.commit(b, commitOf({ logbook: [archived(2, b)] }));
       await store.erase({ tenant: a.tenant, session: a.session });
-      const hits = await store.searchArchive({ tenant: a.tenant, user: 'u2' }, unit(1001), 5);
-      expect(hits.map((h) => h.item.id)).toEqual(['a2']);
+      expect((await store.listLogbook({ tenant: a.tenant, user: 'u2' })).map((h) => h.id)).toEqual(['a2']);
     });
 
     test('erasing a user removes all of their sessions and archive', async () => {
       const a = fresh('u3');
       const b = fresh('u3');
       const other = fresh('u4');
-      for (const r of [a, b, other]) await store.commit(r, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, r, { id: `a-${r.session}` })] }));
+      for (const r of [a, b, other]) await store.commit(r, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, r, { id: `a-${r.session}` })] }));
       const report = await store.erase({ tenant: a.tenant, user: 'u3' });
       expect(report.sessions).toBe(2);
-      expect(report.archiveItems).toBe(2);
+      expect(report.logbookEntries).toBe(2);
       expect(await store.load(a)).toBeNull();
       expect(await store.load(b)).toBeNull();
-      expect(await store.searchArchive({ tenant: a.tenant, user: 'u3' }, unit(1001), 5)).toEqual([]);
+      expect(await store.listLogbook({ tenant: a.tenant, user: 'u3' })).toEqual([]);
       expect(await store.load(other)).not.toBeNull();
-      expect(await store.searchArchive({ tenant: a.tenant, user: 'u4' }, unit(1001), 5)).toHaveLength(1);
+      expect(await store.listLogbook({ tenant: a.tenant, user: 'u4' })).toHaveLength(1);
     });
 
     test('tenants are isolated: same session id, separate state', async () => {
       const s = `iso${++counter}`;
       const t1 = { tenant: `${tenantBase}-x`, session: s };
       const t2 = { tenant: `${tenantBase}-y`, session: s };
-      await store.commit(t1, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, t1)] }));
+      await store.commit(t1, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, t1)] }));
       expect(await store.load(t2)).toBeNull();
-      expect(await store.searchArchive({ tenant: t2.tenant, session: s }, unit(1001), 5)).toEqual([]);
+      expect(await store.listLogbook({ tenant: t2.tenant, session: s })).toEqual([]);
       expect(await store.listSessions(t2.tenant)).toEqual([]);
       await store.erase({ tenant: t2.tenant, session: s });
       expect(await store.load(t1)).not.toBeNull();

@@ -112,7 +112,7 @@ describe('POST /chat (node listener)', () => {
 
     const again = parseSse(await (await post('/chat', JSON.stringify({ session: 'rider-1', text: 'What bike do I ride?' }))).text());
     const m2 = JSON.parse(again[0]!.data) as { result: string; items: Array<Record<string, unknown>> };
-    expect(m2.result).toBe('hit');
+    expect(m2.result).toBe('slot');
     expect(m2.items.length).toBeGreaterThan(0);
     // ids mode: revision ids, weights and provenance, never key or value text.
     for (const item of m2.items) {
@@ -203,8 +203,8 @@ describe('admin endpoints', () => {
     expect(page.status).toBe(200);
     expect(await page.text()).toContain('data-panel="survival"');
 
-    const data = (await (await fetch(`${base}/dashboard/data`)).json()) as { totals: { reads: { hit: number } } };
-    expect(data.totals.reads.hit).toBeGreaterThanOrEqual(1);
+    const data = (await (await fetch(`${base}/dashboard/data`)).json()) as { totals: { reads: { slot: number } } };
+    expect(data.totals.reads.slot).toBeGreaterThanOrEqual(1);
 
     const controller = new AbortController();
     const feed = await fetch(`${base}/dashboard/feed`, { signal: controller.signal });

@@ -5,7 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Cluster } from 'ioredis';
 import { redisStore } from '../../../adapters/redis/index.js';
-import { archived, commitOf, slot, storeConformance, unit } from '../../store/conformance.js';
+import { archived, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
 import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
 
 // The cluster needs redis-server and redis-cli; the same probe as the single-node suite decides
@@ -47,7 +47,8 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
     const slotsSeen = new Set<number>();
     for (let n = 0; n < 24; n++) {
       const ref = { tenant: 'acme', session: `ks-${n}`, user: 'u-ks' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      // Distinct entry ids per session, so gathering them proves every master was asked.
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref, { id: `a-${n}`, value: `kayak note ${n}` })], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', ref.session);
       const slots = new Set<number>();
       for (const key of k.all) slots.add(Number(await admin.cluster('KEYSLOT', key)));
@@ -63,18 +64,18 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
     }
     expect(owners.size).toBe(3);
     expect((await store.listSessions('acme', 10_000)).sort()).toEqual(Array.from({ length: 24 }, (_, n) => `ks-${n}`).sort());
-    // The user's archive gathers items from sessions on all three masters.
-    expect(await store.searchArchive({ tenant: 'acme', user: 'u-ks' }, unit(1001), 100)).toHaveLength(1);
-    expect((await store.listArchive({ tenant: 'acme', user: 'u-ks' }, 100)).length).toBe(1); // same id a1 in each session
+    // The user's logbook gathers entries from sessions on all three masters.
+    expect((await searchText(store, { tenant: 'acme', user: 'u-ks' }, 'kayak note')).hits).toHaveLength(24);
+    expect((await store.listLogbook({ tenant: 'acme', user: 'u-ks' }, { limit: 100 })).map((e) => e.id).sort()).toEqual(Array.from({ length: 24 }, (_, n) => `a-${n}`).sort());
     const report = await store.erase({ tenant: 'acme', user: 'u-ks' });
-    expect(report).toEqual({ sessions: 24, slots: 24, archiveItems: 24, events: 24 });
+    expect(report).toEqual({ sessions: 24, slots: 24, logbookEntries: 24, events: 24 });
     expect(await scanKeys(admin, `${prefix}*`)).toEqual([]);
   });
 
   it('erasing a session leaves no key of it on any master', async () => {
     const store = redisStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
-    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
     expect((await scanKeys(admin, `${prefix}*`)).length).toBe(6); // meta, slots, events, uarch, ualog + the user's set
     await store.erase({ tenant: 'acme', session: 'bye' });
     // The session's keys are gone; the user's set no longer names it (it is empty, so Redis dropped it).

@@ -5,7 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
-import { archived, commitOf, slot, storeConformance, unit } from '../../store/conformance.js';
+import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
@@ -72,20 +72,20 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       raw[raw.length - 1] ^= 0x01;
       raw[0] = 9;
       await admin.hset(k.slots, '0', raw);
-      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'format version 9, expected 1' } });
+      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'format version 9, expected 2' } });
       // A garbage version in the meta hash as well.
       await admin.hset(k.meta, 'v', 'banana');
       await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
     });
 
-    it('a tampered archive payload is reported as corrupt by search', async () => {
+    it('a tampered logbook payload is reported as corrupt by search', async () => {
       const ref = { tenant: 't', session: 'tamper-arch' };
-      await store.commit(ref, commitOf({ archive: [archived(1, ref)] }));
+      await store.commit(ref, commitOf({ logbook: [archived(1, ref)] }));
       const k = store.sessionKeys('t', 'tamper-arch');
       const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
       await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
       await admin.hset(k.meta, 'as', 'moved'); // as a real writer would, so the cached copy is refreshed
-      await expect(store.searchArchive({ tenant: 't', session: 'tamper-arch' }, unit(1001), 1)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
+      await expect(searchText(store, { tenant: 't', session: 'tamper-arch' }, 'old value')).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
     });
   });
 
@@ -121,15 +121,17 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 'acme', session: 'rt1' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       await settle();
-      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
       let cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
       const cold = redisStore({ redis: client, prefix });
       expect((await cold.load(ref))!.table.count()).toBe(2);
       cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
-      // A session search is one round trip too.
-      expect(await store.searchArchive({ tenant: 'acme', session: 'rt1' }, unit(1001), 1)).toHaveLength(1);
+      // A session search is one round trip too, and a repeat transfers only that nothing is new.
+      expect((await searchText(store, { tenant: 'acme', session: 'rt1' }, 'old value 1')).hits).toHaveLength(1);
+      expect((await settle()).map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
+      expect((await searchText(store, { tenant: 'acme', session: 'rt1' }, 'old value 1')).hits).toHaveLength(1);
       expect((await settle()).map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
     });
 
@@ -152,21 +154,25 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(after!.table.get(0)!.id).toBe('r9');
     });
 
-    it('archive searches pick up items appended by another process, and its deletes', async () => {
+    it('logbook searches pick up entries appended by another process, its deletes and its retention', async () => {
       const a = redisStore({ redis: client, prefix });
       const b = redisStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'arch-delta' };
       const scope = { tenant: 'acme', session: 'arch-delta' };
-      await b.commit(ref, commitOf({ archive: [archived(1, ref), archived(2, ref)] }));
-      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a2', 'a1']);
-      await b.commit(ref, commitOf({ expectedVersion: 1, archive: [archived(3, ref)] }));
-      const hits = await a.searchArchive(scope, unit(1003), 1);
-      expect(hits[0]!.item.id).toBe('a3');
-      expect(hits[0]!.cosine).toBeCloseTo(1, 2);
-      await b.deleteArchive(scope, ['a1']);
-      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a3', 'a2']);
-      await b.commit(ref, commitOf({ expectedVersion: 2, archive: [archived(4, ref)] }));
-      expect((await a.listArchive(scope)).map((i) => i.id)).toEqual(['a4', 'a3', 'a2']);
+      await b.commit(ref, commitOf({ logbook: [archived(1, ref), archived(2, ref)] }));
+      expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a2', 'a1']);
+      await b.commit(ref, commitOf({ expectedVersion: 1, logbook: [archived(3, ref)] }));
+      const r = await searchText(a, scope, 'old value 3');
+      expect(r.hits.sort((x, y) => y.score - x.score)[0]!.entry.id).toBe('a3');
+      await b.deleteLogbook(scope, ['a1']);
+      expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a3', 'a2']);
+      await b.commit(ref, commitOf({ expectedVersion: 2, logbook: [archived(4, ref)] }));
+      expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a4', 'a3', 'a2']);
+      // Retention in b's commit trims the head of the log; a's cached index drops the trimmed entries.
+      const t = (n: number) => turnEntry(n, ref, `logbook turn ${n}`);
+      await b.commit(ref, commitOf({ expectedVersion: 3, logbook: [t(1), t(2)], retention: { policy: { maxAgeMs: 0, maxEntries: 3 }, nowMs: Date.now() } }));
+      expect((await a.listLogbook(scope)).map((i) => i.id).sort()).toEqual(['T-arch-delta-1', 'T-arch-delta-2', 'a4']);
+      expect((await searchText(a, scope, 'old value')).hits.map((h) => h.entry.id)).toEqual(['a4']);
     });
 
     it('a re-sent commit is recognised and applied once', async () => {
@@ -195,15 +201,15 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('no call for one tenant names a key of another tenant', async () => {
       const store = redisStore({ redis: client, prefix });
       const other = { tenant: 'beta', session: 'shared-id', user: 'u1' };
-      await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, other)] }));
+      await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, other)] }));
       await settle();
       const ref = { tenant: 'alpha', session: 'shared-id', user: 'u1' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(2) }], archive: [archived(2, ref)], events: [{ type: 'allocate', slot: 0, id: 'r2', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(2) }], logbook: [archived(2, ref)], events: [{ type: 'allocate', slot: 0, id: 'r2', clock: 1, atMs: 1 }] }));
       await store.load(ref);
-      await store.searchArchive({ tenant: 'alpha', user: 'u1' }, unit(1001), 5);
-      await store.searchArchive({ tenant: 'alpha', session: 'shared-id' }, unit(1001), 5);
-      await store.listArchive({ tenant: 'alpha', user: 'u1' });
-      await store.deleteArchive({ tenant: 'alpha', user: 'u1' }, ['a1', 'a2']);
+      await searchText(store, { tenant: 'alpha', user: 'u1' }, 'old value');
+      await searchText(store, { tenant: 'alpha', session: 'shared-id' }, 'old value');
+      await store.listLogbook({ tenant: 'alpha', user: 'u1' });
+      await store.deleteLogbook({ tenant: 'alpha', user: 'u1' }, ['a1', 'a2']);
       await store.readEvents(ref);
       expect(await store.listSessions('alpha')).toEqual(['shared-id']);
       await store.erase({ tenant: 'alpha', user: 'u1' });
@@ -217,7 +223,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       }
       // And beta's state is untouched.
       expect((await store.load(other))!.table.count()).toBe(1);
-      expect(await store.searchArchive({ tenant: 'beta', user: 'u1' }, unit(1001), 5)).toHaveLength(1);
+      expect(await store.listLogbook({ tenant: 'beta', user: 'u1' })).toHaveLength(1);
     });
 
     it('tenant and session ids cannot collide through ":" or braces', async () => {
@@ -233,7 +239,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
       const store = redisStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
       for (const key of [k.meta, k.slots, k.events, k.uarch, k.ualog]) {
         const ttl = await client.ttl(key);
@@ -252,17 +258,17 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
       const c = { tenant: 'acme', session: 'gone-3' };
       for (const ref of [a, b, c]) {
-        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], archive: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
       expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(5 * 3); // meta, slots, events, (u)arch, (u)alog
       expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
-      expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, archiveItems: 2, events: 2 });
-      expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, archiveItems: 1, events: 1 });
+      expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, logbookEntries: 2, events: 2 });
+      expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, logbookEntries: 1, events: 1 });
       expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toEqual([]);
       expect(await scanKeys(client, `${prefix}{acme:u:u-gone}*`)).toEqual([]);
       // A store that had them cached returns nothing either.
       expect(await store.load(a)).toBeNull();
-      expect(await store.searchArchive({ tenant: 'acme', user: 'u-gone' }, unit(1001), 5)).toEqual([]);
+      expect((await searchText(store, { tenant: 'acme', user: 'u-gone' }, 'old value')).hits).toEqual([]);
     });
   });
 

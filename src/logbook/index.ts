@@ -1,0 +1,552 @@
+// The logbook's search index for one scope (a session, or a user across sessions): an inverted index
+// for Okapi BM25 (Robertson & Zaragoza 2009) kept incrementally as entries arrive, each turn linked to
+// the turns before and after it in its session, the speakers who said them, the dates they mention,
+// and optionally a vector index (exact scan, HNSW past a size). Pure: no I/O; both stores keep one
+// per scope. A search costs O(postings of the query's terms), not O(entries).
+
+import type { Archive } from '../archive/archive.js';
+import { createArchive, type ArchiveOptions } from '../archive/index.js';
+import { dateTerms } from '../memory/dates.js';
+import { analyze, tokenize } from '../memory/text.js';
+import type { LogbookEntry } from '../types.js';
+
+/** How one search scores entries. Every field is a read option (see ReadParams). */
+export interface LogbookSearchParams {
+  /** BM25 term-frequency saturation. @default 1.2 */
+  k1: number;
+  /** BM25 length normalisation. @default 0.75 */
+  b: number;
+  /** Share of each neighbouring turn's score a turn receives (its context). @default 0.3 */
+  neighbourWeight: number;
+  /** A turn said by a person the query names scores × (1 + speakerBoost). @default 1 */
+  speakerBoost: number;
+  /** Weight of a speaker's name as a plain query term (it also matches greetings). @default 0.2 */
+  nameWeight: number;
+  /** Weight of a resolved-date term of the query. @default 1 */
+  dateWeight: number;
+  /** On a "when" question, a turn that mentions a date scores × (1 + temporalBoost). @default 0.3 */
+  temporalBoost: number;
+  /**
+   * A bot's own reply (an assistant turn with no speaker named) scores × replyWeight: it restates or
+   * proposes, while the user's words are the fact. Turns of named speakers are peers. @default 0.4
+   */
+  replyWeight: number;
+  /** A turn that only asks for information scores × questionWeight: it is context, rarely the fact. @default 0.7 */
+  questionWeight: number;
+  /** Entries returned by the lexical ranking at most. @default 50 */
+  limit: number;
+}
+
+export const LOGBOOK_SEARCH_DEFAULTS: LogbookSearchParams = {
+  k1: 1.2,
+  b: 0.75,
+  neighbourWeight: 0.3,
+  speakerBoost: 1,
+  nameWeight: 0.2,
+  dateWeight: 1,
+  temporalBoost: 0.3,
+  replyWeight: 0.4,
+  questionWeight: 0.7,
+  limit: 50,
+};
+
+/** A query, analysed once by the caller (the same analysis scores slots). */
+export interface LogbookQuery {
+  /** Analysed terms (see `analyze`), with repeats. */
+  terms: readonly string[];
+  /** Raw lower-cased tokens, to recognise speakers' names. */
+  tokens: readonly string[];
+  /** Resolved-date terms of the query (see `dateTerms`). */
+  dateTerms: readonly string[];
+  /** The query asks when something happened. */
+  temporal: boolean;
+  /** Unit query vector, for the dense list. */
+  vector?: Float32Array;
+  /** Dense candidates wanted (0 for none). */
+  denseK?: number;
+}
+
+/** One entry a search found. */
+export interface LogbookHit {
+  entry: LogbookEntry;
+  /** Final lexical score: own BM25 plus the neighbours' share, times the speaker and date boosts. */
+  score: number;
+  /** The entry's own BM25 score (boosts excluded). */
+  lexical: number;
+  /** The part of `score` that came from neighbouring turns (before boosts). */
+  context: number;
+  /** Own BM25 over the query's maximum, in [0, ~1.5]: how much of the query the entry covers. */
+  coverage: number;
+  /** Cosine to the query vector, when the dense list was searched and holds the entry (else NaN). */
+  cosine: number;
+  /** Rank in the lexical list (1-based; 0 when only the dense list found it). */
+  lexicalRank: number;
+  /** Rank in the dense list (1-based; 0 when absent). */
+  denseRank: number;
+  /** Said by a person the query names. */
+  speakerMatch: boolean;
+  /**
+   * For a superseded value, and for a turn that stated a superseded value the query matched: the
+   * revision id of the current value (the successor chain followed through the logbook). A read never
+   * ranks this hit above it.
+   */
+  supersededBy?: string;
+}
+
+/** What a search found, and the statistics to score other texts (slots) on the same scale. */
+export interface LogbookSearchResult {
+  hits: LogbookHit[];
+  /** Entries in the index. */
+  size: number;
+  /** Average analysed length of the entries. */
+  avgLength: number;
+  /** Inverse document frequency per distinct query term (0 for unseen terms). */
+  idf: Map<string, number>;
+  /** Document frequency per distinct query term (live entries holding it). */
+  df: Map<string, number>;
+  /** Weight of each distinct query term (name and date terms are weighted differently). */
+  weight: Map<string, number>;
+  /** The query's maximum BM25: sum of weight × idf; coverage is a score over this. */
+  maxScore: number;
+  /** Speakers of this scope the query names, lower-cased. */
+  speakers: string[];
+  /** Final successors of superseded hits that are logbook entries themselves (evicted since). */
+  successors: Map<string, LogbookEntry>;
+}
+
+/**
+ * A turn whose every sentence asks for information ("How did it go?", "When is my booking?"). A
+ * request ("Can you book a table for 3?") states what the speaker wants, so it is not one.
+ */
+function isQuestionOnly(text: string): boolean {
+  const parts = text.split(/(?<=[.!?])\s+/).filter((x) => x.trim().length > 0);
+  return parts.length > 0 && parts.every((x) => /\?\s*$/.test(x) && /^\W*(?:what|when|where|who|whom|whose|why|how|which|is|are|was|were|do|does|did|have|has|had)\b/i.test(x));
+}
+
+/** BM25's IDF in the non-negative form Lucene uses: ln(1 + (N − n + 0.5) / (n + 0.5)). */
+export const bm25Idf = (n: number, df: number): number => (df > 0 ? Math.log(1 + (n - df + 0.5) / (df + 0.5)) : 0);
+
+/** The BM25 term score of one document. */
+export function bm25Term(idf: number, tf: number, len: number, avg: number, k1: number, b: number): number {
+  return (idf * (tf * (k1 + 1))) / (tf + k1 * (1 - b + (b * len) / (avg || 1)));
+}
+
+interface Posting {
+  docs: Int32Array;
+  tfs: Uint16Array;
+  n: number;
+}
+
+/** The speaker names a query can use: the whole label and each of its words ("Ana Ruiz" -> "ana", "ruiz"). */
+export function speakerTokens(speaker: string): string[] {
+  const whole = speaker.trim().toLowerCase();
+  const words = tokenize(speaker);
+  return whole.length > 0 ? [...new Set([whole, ...words])] : [];
+}
+
+export interface LogbookIndexOptions {
+  /** Keep a vector index over entries that carry a vector. @default true */
+  vectors?: boolean;
+  /** Options of the vector index (exact scan, HNSW past a size). */
+  vectorIndex?: ArchiveOptions;
+}
+
+/** The index of one scope (see module comment). */
+export class LogbookIndex {
+  private readonly o: Required<Pick<LogbookIndexOptions, 'vectors'>> & LogbookIndexOptions;
+  // Documents, by dense number; a removed one keeps its number (alive = 0) until compaction.
+  private entries: (LogbookEntry | null)[] = [];
+  private lens: number[] = [];
+  private docTerms: Int32Array[] = [];
+  private docTfs: Uint16Array[] = [];
+  private prev: number[] = [];
+  private next: number[] = [];
+  private speakerOf: string[] = [];
+  /** Bit 0: mentions a date; bit 1: a bot's reply (assistant, no speaker); bit 2: a question only. */
+  private dated: Uint8Array = new Uint8Array(64);
+  private readonly byId = new Map<string, number>();
+  // Terms: id -> postings; df counts live documents only.
+  private readonly termIds = new Map<string, number>();
+  private postings: Posting[] = [];
+  private df: number[] = [];
+  private live = 0;
+  private totalLen = 0;
+  // Turns of each session in seq order, for neighbour links: session -> sorted [seq, doc] pairs.
+  private readonly order = new Map<string, { seqs: number[]; docs: number[] }>();
+  /** Name token -> speaker label -> live entries said by that speaker (so removals can forget names). */
+  private readonly speakers = new Map<string, Map<string, number>>();
+  /** session + turn id -> ids of the superseded values that turn stated (their newest source). */
+  private readonly staleTurns = new Map<string, Set<string>>();
+  private vectorIndex: Archive | null = null;
+  // Scratch arrays of a search, reused (searches of one index never overlap: they are synchronous).
+  private scratch = new Float64Array(64);
+  /** First document number that may be live (see `oldest`). */
+  private head = 0;
+  private touched: number[] = [];
+
+  constructor(options: LogbookIndexOptions = {}) {
+    this.o = { vectors: true, ...options };
+  }
+
+  /** Live entries. */
+  get size(): number {
+    return this.live;
+  }
+
+  has(id: string): boolean {
+    return this.byId.has(id);
+  }
+
+  get(id: string): LogbookEntry | undefined {
+    const d = this.byId.get(id);
+    return d === undefined ? undefined : this.entries[d]!;
+  }
+
+  /** Live entries, oldest first. */
+  *all(): IterableIterator<LogbookEntry> {
+    for (const e of this.entries) if (e) yield e;
+  }
+
+  /** The oldest live entry (by arrival), or undefined when empty. Amortised O(1). */
+  oldest(): LogbookEntry | undefined {
+    while (this.head < this.entries.length && this.entries[this.head] === null) this.head++;
+    return this.entries[this.head] ?? undefined;
+  }
+
+  /** Adds an entry (replacing one with the same id). */
+  add(entry: LogbookEntry): void {
+    if (this.byId.has(entry.id)) this.remove(entry.id);
+    const d = this.entries.length;
+    const terms = analyze(entry.keyText ? `${entry.keyText} ${entry.value}` : entry.value);
+    if (entry.dates && entry.dates.length > 0) terms.push(...dateTerms(entry.dates));
+    const counts = new Map<number, number>();
+    for (const t of terms) {
+      const id = this.termId(t);
+      counts.set(id, (counts.get(id) ?? 0) + 1);
+    }
+    const ids = new Int32Array(counts.size);
+    const tfs = new Uint16Array(counts.size);
+    let n = 0;
+    for (const [id, tf] of counts) {
+      ids[n] = id;
+      tfs[n] = Math.min(tf, 65_535);
+      n++;
+      this.post(id, d, tfs[n - 1]!);
+      this.df[id] = (this.df[id] ?? 0) + 1;
+    }
+    this.entries.push(entry);
+    this.lens.push(terms.length);
+    this.docTerms.push(ids);
+    this.docTfs.push(tfs);
+    this.prev.push(-1);
+    this.next.push(-1);
+    const speaker = (entry.speaker ?? entry.owner ?? '').toLowerCase();
+    this.speakerOf.push(speaker);
+    if (d >= this.dated.length) {
+      const grown = new Uint8Array(this.dated.length * 2);
+      grown.set(this.dated);
+      this.dated = grown;
+    }
+    this.dated[d] = (entry.dates && entry.dates.length > 0 ? 1 : 0) | (entry.role === 'assistant' && !entry.speaker ? 2 : 0) | (entry.kind === 'turn' && isQuestionOnly(entry.value) ? 4 : 0);
+    this.byId.set(entry.id, d);
+    this.live++;
+    this.totalLen += terms.length;
+    if (speaker) {
+      for (const t of speakerTokens(speaker)) {
+        let s = this.speakers.get(t);
+        if (!s) this.speakers.set(t, (s = new Map()));
+        s.set(speaker, (s.get(speaker) ?? 0) + 1);
+      }
+    }
+    if (entry.kind === 'turn') this.link(d, entry);
+    if (entry.kind === 'superseded' && entry.provenance.length > 0) {
+      const k = `${entry.session}\u0000${entry.provenance[0]}`;
+      let set = this.staleTurns.get(k);
+      if (!set) this.staleTurns.set(k, (set = new Set()));
+      set.add(entry.id);
+    }
+    if (entry.key && this.o.vectors) {
+      this.vectorIndex ??= createArchive(entry.key.length, this.o.vectorIndex);
+      // Vectors of another dimension (an embedder switch) stay out of the dense list until migrated.
+      if (this.vectorIndex.dim === entry.key.length) this.vectorIndex.add(entry.id, entry.key);
+    }
+  }
+
+  /** Removes an entry by id; false when absent. */
+  remove(id: string): boolean {
+    const d = this.byId.get(id);
+    if (d === undefined) return false;
+    const e = this.entries[d]!;
+    const ids = this.docTerms[d]!;
+    for (let i = 0; i < ids.length; i++) this.df[ids[i]!]!--;
+    this.live--;
+    this.totalLen -= this.lens[d]!;
+    this.byId.delete(id);
+    this.entries[d] = null;
+    if (e.kind === 'turn') this.unlink(d, e);
+    if (e.kind === 'superseded' && e.provenance.length > 0) {
+      const k = `${e.session}\u0000${e.provenance[0]}`;
+      const set = this.staleTurns.get(k);
+      set?.delete(e.id);
+      if (set && set.size === 0) this.staleTurns.delete(k);
+    }
+    const speaker = this.speakerOf[d]!;
+    if (speaker) {
+      for (const t of speakerTokens(speaker)) {
+        const s = this.speakers.get(t);
+        const c = (s?.get(speaker) ?? 0) - 1;
+        if (c > 0) s!.set(speaker, c);
+        else {
+          s?.delete(speaker);
+          if (s && s.size === 0) this.speakers.delete(t);
+        }
+      }
+    }
+    this.vectorIndex?.remove(id);
+    // Postings keep the dead number until compaction; searches skip it.
+    if (this.entries.length > 256 && this.live < this.entries.length / 2) this.compact();
+    return true;
+  }
+
+  /** Drops every entry. */
+  clear(): void {
+    this.entries = [];
+    this.head = 0;
+    this.lens = [];
+    this.docTerms = [];
+    this.docTfs = [];
+    this.prev = [];
+    this.next = [];
+    this.speakerOf = [];
+    this.dated = new Uint8Array(64);
+    this.byId.clear();
+    this.termIds.clear();
+    this.postings = [];
+    this.df = [];
+    this.live = 0;
+    this.totalLen = 0;
+    this.order.clear();
+    this.speakers.clear();
+    this.staleTurns.clear();
+    this.vectorIndex?.clear();
+    this.vectorIndex = null;
+  }
+
+  /** Speakers of this scope named by the query tokens (lower-cased labels). */
+  namedSpeakers(tokens: readonly string[]): string[] {
+    const out = new Set<string>();
+    for (const t of tokens) for (const s of this.speakers.get(t)?.keys() ?? []) out.add(s);
+    return [...out];
+  }
+
+  /**
+   * Ranks entries for a query: BM25 over the inverted index, each turn then taking a share of its
+   * neighbours' scores, boosted when said by a person the query names or, for a "when" question, when
+   * it mentions a date; plus a dense list by cosine when asked. Returns the best `limit` lexical
+   * entries and the best `denseK` dense ones (merged, one hit per entry).
+   */
+  search(q: LogbookQuery, p: LogbookSearchParams = LOGBOOK_SEARCH_DEFAULTS): LogbookSearchResult {
+    const n = this.live;
+    const avg = n > 0 ? this.totalLen / n : 0;
+    const named = this.namedSpeakers(q.tokens);
+    const nameTerms = new Set<string>();
+    for (const t of q.tokens) if (this.speakers.has(t)) for (const a of analyze(t)) nameTerms.add(a);
+    const weight = new Map<string, number>();
+    for (const t of q.terms) weight.set(t, nameTerms.has(t) ? p.nameWeight : 1);
+    for (const t of q.dateTerms) weight.set(t, p.dateWeight);
+    const idf = new Map<string, number>();
+    const dfs = new Map<string, number>();
+    let maxScore = 0;
+    for (const [t, w] of weight) {
+      const id = this.termIds.get(t);
+      const df = id === undefined ? 0 : this.df[id]!;
+      const v = bm25Idf(n, df);
+      idf.set(t, v);
+      dfs.set(t, df);
+      maxScore += w * v;
+    }
+    const result: LogbookSearchResult = { hits: [], size: n, avgLength: avg, idf, df: dfs, weight, maxScore, speakers: named, successors: new Map() };
+    if (n === 0) return result;
+
+    // 1. Own BM25 of every entry holding a query term.
+    if (this.scratch.length < this.entries.length) this.scratch = new Float64Array(Math.max(this.entries.length, this.scratch.length * 2));
+    const own = this.scratch;
+    const touched = this.touched;
+    touched.length = 0;
+    for (const [t, w] of weight) {
+      const v = idf.get(t)!;
+      if (v === 0 || w === 0) continue;
+      const post = this.postings[this.termIds.get(t)!]!;
+      for (let i = 0; i < post.n; i++) {
+        const d = post.docs[i]!;
+        if (this.entries[d] === null) continue;
+        if (own[d] === 0) touched.push(d);
+        own[d] += w * bm25Term(v, post.tfs[i]!, this.lens[d]!, avg, p.k1, p.b);
+      }
+    }
+
+    // 2. Context from neighbours, then boosts; candidates are the touched entries and their neighbours.
+    const cand = new Set<number>(touched);
+    if (p.neighbourWeight > 0) {
+      for (const d of touched) {
+        if (this.prev[d]! >= 0) cand.add(this.prev[d]!);
+        if (this.next[d]! >= 0) cand.add(this.next[d]!);
+      }
+    }
+    const namedSet = new Set(named);
+    const scored: Array<{ d: number; score: number; ctx: number }> = [];
+    for (const d of cand) {
+      const a = this.prev[d]!;
+      const b = this.next[d]!;
+      const ctx = p.neighbourWeight > 0 ? p.neighbourWeight * ((a >= 0 ? own[a]! : 0) + (b >= 0 ? own[b]! : 0)) : 0;
+      let s = own[d]! + ctx;
+      if (s <= 0) continue;
+      if (namedSet.size > 0 && namedSet.has(this.speakerOf[d]!)) s *= 1 + p.speakerBoost;
+      if (q.temporal && (this.dated[d]! & 1) !== 0) s *= 1 + p.temporalBoost;
+      if ((this.dated[d]! & 2) !== 0) s *= p.replyWeight;
+      if ((this.dated[d]! & 4) !== 0) s *= p.questionWeight;
+      scored.push({ d, score: s, ctx });
+    }
+    // Best first; ties go to the later entry (the newer statement).
+    scored.sort((x, y) => y.score - x.score || y.d - x.d);
+    const hits = new Map<number, LogbookHit>();
+    scored.slice(0, p.limit).forEach((x, r) => {
+      hits.set(x.d, {
+        entry: this.entries[x.d]!, score: x.score, lexical: own[x.d]!, context: x.ctx,
+        coverage: maxScore > 0 ? own[x.d]! / maxScore : 0, cosine: NaN, lexicalRank: r + 1, denseRank: 0,
+        speakerMatch: namedSet.has(this.speakerOf[x.d]!),
+      });
+    });
+
+    // 3. The dense list, when asked and there are vectors.
+    if (q.vector && (q.denseK ?? 0) > 0 && this.vectorIndex && this.vectorIndex.dim === q.vector.length && this.vectorIndex.size > 0) {
+      this.vectorIndex.search(q.vector, q.denseK!).forEach((m, r) => {
+        const d = this.byId.get(m.id);
+        if (d === undefined) return;
+        const h = hits.get(d);
+        if (h) {
+          h.cosine = m.cosine;
+          h.denseRank = r + 1;
+        } else {
+          hits.set(d, {
+            entry: this.entries[d]!, score: 0, lexical: own[d]!, context: 0, coverage: maxScore > 0 ? own[d]! / maxScore : 0,
+            cosine: m.cosine, lexicalRank: 0, denseRank: r + 1, speakerMatch: namedSet.has(this.speakerOf[d]!),
+          });
+        }
+      });
+    }
+    // 4. Supersession: a superseded value, or a turn that stated one the query matched, points at the
+    // current value, so the read can keep it below.
+    for (const h of hits.values()) {
+      const e = h.entry;
+      if (e.kind === 'superseded' && e.successor) h.supersededBy = this.finalSuccessor(e.successor, result.successors);
+      else if (e.kind === 'turn') {
+        const stale = this.staleTurns.get(`${e.session}\u0000${e.provenance[0]}`);
+        if (!stale) continue;
+        for (const sid of stale) {
+          const sd = this.byId.get(sid);
+          const se = sd === undefined ? undefined : this.entries[sd];
+          // Only when the query is about the replaced value (it shares a term with it): a turn that
+          // stated several facts stays where it ranks for questions about the others.
+          if (!se || !se.successor || own[sd!]! <= 0) continue;
+          h.supersededBy = this.finalSuccessor(se.successor, result.successors);
+          break;
+        }
+      }
+    }
+    for (const d of touched) own[d] = 0;
+    result.hits = [...hits.values()];
+    return result;
+  }
+
+  /** Follows a successor chain through superseded entries to the current value's revision id. */
+  private finalSuccessor(id: string, found: Map<string, LogbookEntry>): string {
+    let cur = id;
+    for (let hop = 0; hop < 64; hop++) {
+      const e = this.get(cur);
+      if (!e) return cur; // not in the logbook: a live slot (or gone)
+      if (e.kind !== 'superseded' || !e.successor) {
+        found.set(cur, e);
+        return cur;
+      }
+      cur = e.successor;
+    }
+    return cur;
+  }
+
+  // ---------------------------------------------------------------- internals
+
+  private termId(t: string): number {
+    let id = this.termIds.get(t);
+    if (id === undefined) {
+      id = this.postings.length;
+      this.termIds.set(t, id);
+      this.postings.push({ docs: new Int32Array(4), tfs: new Uint16Array(4), n: 0 });
+      this.df.push(0);
+    }
+    return id;
+  }
+
+  private post(id: number, d: number, tf: number): void {
+    const p = this.postings[id]!;
+    if (p.n === p.docs.length) {
+      const docs = new Int32Array(p.docs.length * 2);
+      docs.set(p.docs);
+      const tfs = new Uint16Array(p.tfs.length * 2);
+      tfs.set(p.tfs);
+      p.docs = docs;
+      p.tfs = tfs;
+    }
+    p.docs[p.n] = d;
+    p.tfs[p.n] = tf;
+    p.n++;
+  }
+
+  /** Links a turn between the turns before and after it in its session (by seq). */
+  private link(d: number, e: LogbookEntry): void {
+    let o = this.order.get(e.session);
+    if (!o) this.order.set(e.session, (o = { seqs: [], docs: [] }));
+    // Turns arrive in order almost always: a binary search keeps the rare late one correct.
+    let lo = 0;
+    let hi = o.seqs.length;
+    if (hi > 0 && o.seqs[hi - 1]! <= e.seq) lo = hi;
+    else {
+      while (lo < hi) {
+        const mid = (lo + hi) >> 1;
+        if (o.seqs[mid]! <= e.seq) lo = mid + 1;
+        else hi = mid;
+      }
+    }
+    o.seqs.splice(lo, 0, e.seq);
+    o.docs.splice(lo, 0, d);
+    const before = lo > 0 ? o.docs[lo - 1]! : -1;
+    const after = lo + 1 < o.docs.length ? o.docs[lo + 1]! : -1;
+    this.prev[d] = before;
+    this.next[d] = after;
+    if (before >= 0) this.next[before] = d;
+    if (after >= 0) this.prev[after] = d;
+  }
+
+  private unlink(d: number, e: LogbookEntry): void {
+    const o = this.order.get(e.session);
+    if (!o) return;
+    const at = o.docs.indexOf(d);
+    if (at < 0) return;
+    o.seqs.splice(at, 1);
+    o.docs.splice(at, 1);
+    const before = this.prev[d]!;
+    const after = this.next[d]!;
+    if (before >= 0) this.next[before] = after;
+    if (after >= 0) this.prev[after] = before;
+    this.prev[d] = -1;
+    this.next[d] = -1;
+    if (o.docs.length === 0) this.order.delete(e.session);
+  }
+
+  /** Rebuilds the numbering without removed entries (amortised: runs when half are dead). */
+  private compact(): void {
+    const keep = [...this.all()];
+    this.clear();
+    for (const e of keep) this.add(e);
+  }
+}

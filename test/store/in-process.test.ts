@@ -1,0 +1,61 @@
+import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, describe, expect, it } from 'vitest';
+import { InProcessStore } from '../../src/store/in-process.js';
+import { MemoryStore } from '../../src/store/memory.js';
+import { archived, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
+
+storeConformance('in-process', async () => new InProcessStore());
+
+describe('InProcessStore snapshot', () => {
+  const dir = mkdtempSync(join(tmpdir(), 'tidemark-snap-'));
+  afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+  it('restores sessions, slots, logbook and events after a restart', async () => {
+    const path = join(dir, 'a.json');
+    const ref = { tenant: 't', session: 's1' };
+    const first = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
+    const turn = turnEntry(1, ref, 'My sister Ana is a nurse in Fellbrook.', { speaker: 'Maren', dates: [{ text: 'today', day: '2023-11-14', grain: 'day' }] });
+    await first.commit(ref, commitOf({ clock: 5, turns: 6, ops: [{ index: 2, slot: slot(1) }], logbook: [archived(1, ref), turn], events: [{ type: 'allocate', slot: 2, id: 'r1', clock: 5, atMs: 9 }] }));
+    await first.close();
+    const second = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
+    const snap = await second.load(ref);
+    expect(snap!.version).toBe(1);
+    expect(snap!.clock).toBe(5);
+    expect(snap!.table.get(2)).toEqual(slot(1));
+    expect((await second.listLogbook(ref)).map((e) => e.id).sort()).toEqual(['T-s1-1', 'a1']);
+    expect((await second.listLogbook(ref)).find((e) => e.id === 'a1')!.key).toEqual(archived(1, ref).key);
+    const r = await searchText(second, ref, 'What does Ana do for work?');
+    expect(r.hits[0]!.entry).toEqual(turn);
+    expect(await second.readEvents(ref)).toHaveLength(1);
+    await second.close();
+  });
+
+  it('the deprecated MemoryStore name is the same class', () => {
+    expect(new MemoryStore()).toBeInstanceOf(InProcessStore);
+  });
+
+  it('erasure rewrites the snapshot at once, leaving no trace of the text', async () => {
+    const path = join(dir, 'b.json');
+    const ref = { tenant: 't', session: 'secret-session' };
+    const store = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
+    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1, { value: 'allergic to peanut oil' }) }], logbook: [archived(1, ref, { value: 'old booking Tuesday' }), turnEntry(1, ref, 'I told you about my tax return')] }));
+    store.save();
+    expect(readFileSync(path, 'utf8')).toContain('peanut oil');
+    await store.erase(ref);
+    const text = readFileSync(path, 'utf8');
+    expect(text).not.toContain('peanut oil');
+    expect(text).not.toContain('old booking Tuesday');
+    expect(text).not.toContain('tax return');
+    expect(text).not.toContain('secret-session');
+    await store.close();
+  });
+
+  it('rejects a snapshot of another format with a coded error', async () => {
+    const path = join(dir, 'c.json');
+    const { writeFileSync } = await import('node:fs');
+    writeFileSync(path, JSON.stringify({ format: 'something-else', version: 1 }));
+    expect(() => new InProcessStore({ snapshotPath: path })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_STORE_CORRUPT' }));
+  });
+});
