@@ -38,6 +38,7 @@ export interface Candidate {
   /**
    * Text that may say what a topic-less update is about: the sentence before it in the same turn
    * ("I need to move the Tourer's service. Could it be Friday instead?"), or the question it answers.
+   * Evidence of the same speaker's turn; the other side's earlier turns only break ties (see planWrite).
    */
   context?: string;
 }
@@ -81,7 +82,7 @@ const CLOSING = /\b(?:that'?s|that is|that will be|that would be) (?:all|it|ever
  * Words that mark a sentence as correcting an earlier choice. "No" counts only as an interjection
  * ("No, ...", "no wait"), not as a determiner ("no nut snacks please").
  */
-const CORRECTION = /^(?:(?:no|nope)(?=\s*[,!.;:—-]|\s+(?:wait|sorry|actually|i meant|it'?s|that'?s|not|make|change|move))|(?:sorry|oops|wait)\b)[\s,!.]*|\b(?:instead|on second thought|changed my mind|not right|rather|i meant|scratch that)\b/i;
+const CORRECTION = /^(?:(?:no|nope)(?=\s*[,!.;:—-]|\s+(?:wait|sorry|actually|i meant|it'?s|that'?s|not|make|change|move))|(?:sorry|oops|wait)\b)[\s,!.]*|\b(?:instead|on second thought|changed my mind|not right|i meant|scratch that)\b/i;
 const CORRECTION_ALL = new RegExp(CORRECTION.source, 'gi');
 const REMEMBER = /^(?:please\s+|can you\s+|could you\s+)?(?:remember|note|don'?t forget|keep in mind|make a note)\s+(?:that\s+)?(.+)$/i;
 
@@ -359,9 +360,9 @@ export class RuleExtractor implements Extractor {
       if (remember) c.remember = true;
       if (!first) c.clause = true;
       c.text = raw;
-      // A topic-less update or correction is about what was said just before it.
-      const before = i > 0 ? clauses[i - 1]!.text : context.previous;
-      if (c.updates && (c.pattern === 'update' || c.pattern === 'correction') && before) c.context = before;
+      // A topic-less update or correction is about what was said just before it in the same turn
+      // ("I need to move the Tourer's service. Could it be Friday instead?").
+      if (c.updates && (c.pattern === 'update' || c.pattern === 'correction') && i > 0) c.context = clauses[i - 1]!.text;
       // A short answer to the other side's question ("It's 07700 900814", "Tuesday at 9, please")
       // takes its topic from the question.
       if (i === 0 && context.previous && (c.pattern === 'sentence' || c.pattern.startsWith('with-')) && contentWords(sentence).length <= 6 && !/\?\s*$/.test(sentence) && ASKS.test(context.previous)) {

@@ -10,7 +10,9 @@ export interface ValueExpr {
   index: number;
 }
 
-const WEEKDAY = '(?:mon|tues?|wed(?:nes)?|thu(?:rs?)?|fri|sat(?:ur)?|sun)(?:day)?';
+// Full names, or an abbreviation before a day number ("Sat 27 September"): a bare "sun" or "sat" is
+// usually a word, not a day.
+const WEEKDAY = '(?:(?:mon|tues|wednes|thurs|fri|satur|sun)day|(?:mon|tue|tues|wed|thu|thur|thurs|fri|sat|sun)\\.?(?=,?\\s*\\d))';
 const MONTH = '(?:jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|july?|aug(?:ust)?|sep(?:t(?:ember)?)?|oct(?:ober)?|nov(?:ember)?|dec(?:ember)?)';
 const ORD = '\\d{1,2}(?:st|nd|rd|th)?';
 
@@ -25,7 +27,7 @@ const PATTERNS: Array<{ kind: ValueKind; re: RegExp }> = [
   { kind: 'time', re: /\b(?:at\s+)?\d{1,2}(?::\d{2})?\s*(?:am|pm|a\.m\.|p\.m\.)|\b\d{1,2}:\d{2}\b|\b(?:noon|midnight)\b/i },
   {
     kind: 'quantity',
-    re: /\b\d+(?:[.,]\d+)?\s*(?:%|percent|people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|minutes|kg|g|km|miles|litres|liters|ml|euros?|dollars?|pounds?|usd|eur|gbp|€|\$|£)?(?=\W|$)|\b(?:one|two|three|four|five|six|seven|eight|nine|ten|eleven|twelve)\s+(?:people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|adults|kids|children)\b/i,
+    re: /\b\d+(?:[.,]\d+)?\s*(?:%|percent|people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|minutes|kg|g|km|mm|cm|m|inch(?:es)?|ft|lbs?|oz|psi|miles|litres|liters|ml|euros?|dollars?|pounds?|usd|eur|gbp|€|\$|£)?(?=\W|$)|\b(?:one|two|three|four|five|six|seven|eight|nine|ten|eleven|twelve)\s+(?:people|persons|guests|tickets|seats|rooms|nights|days|weeks|hours|adults|kids|children)\b/i,
   },
 ];
 

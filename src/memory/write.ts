@@ -324,10 +324,16 @@ export function planWrite(input: WritePlanInput): WritePlan {
 
     if (c.updates && c.updates.kind !== 'latest' && target >= 0) {
       // An update of a fact named by its topic: swap the new value into the old one when it holds an
-      // expression of that kind ("have my lessons on Tuesdays" -> "... on Wednesday").
-      if (!swapIn(target, c.updates.kind, c.updates.expr)) provenanceTail = [];
+      // expression of that kind ("have my lessons on Tuesdays" -> "... on Wednesday"). When it holds
+      // none (a new day for a slot that says only the time), the update may not cover all of the old
+      // fact: keep both, newest first.
+      if (!swapIn(target, c.updates.kind, c.updates.expr)) {
+        maybe = [target];
+        target = -1;
+      }
     }
-    if (c.updates && target < 0) {
+    const named = maybe.length > 0;
+    if (c.updates && target < 0 && !named) {
       // "Saturday, not Sunday": the slot holding the value being corrected is the one.
       const contrast = CONTRAST.exec(c.text);
       if (contrast) {
@@ -348,11 +354,12 @@ export function planWrite(input: WritePlanInput): WritePlan {
         }
       }
     }
-    if (c.updates?.kind === 'latest' && target < 0) {
+    if (c.updates?.kind === 'latest' && target < 0 && !named) {
       // A correction without a recognisable value ("no, the patio speaker instead") replaces the fact
       // it shares words with among the last few turns' (its topic half-matching, or the newest such
       // slot); one that shares no word with anything corrects nothing for certain, so it is kept
       // beside the newest fact of the last exchange (newest first) rather than replacing it.
+      // Evidence comes from the correction's own turn; the other side's turns say nothing about it.
       const cWords = topicWords(`${c.text} ${c.context ?? ''}`);
       const related = (i: number): boolean => shares(cWords, topicWords(`${keyTextAt(i)} ${valueAt(i)}`));
       if (best >= 0 && bestCos >= p.overwriteThreshold / 2 && related(best)) target = best;
@@ -369,7 +376,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       }
       if (target >= 0) provenanceTail = record(target)!.provenance;
     }
-    if (c.updates && c.updates.kind !== 'latest' && target < 0) {
+    if (c.updates && c.updates.kind !== 'latest' && target < 0 && !named) {
       // An update that names a new value but not its topic ("make it Friday instead"): the fact it
       // changes holds a value of the same kind (and shape). One such fact, or one within the correction
       // window: that one. Several: it could be any of them, so none is replaced (kept beside them).
@@ -430,7 +437,9 @@ export function planWrite(input: WritePlanInput): WritePlan {
       const rec: SlotRecord = {
         id,
         key,
-        keyText: c.updates ? old.keyText : c.key,
+        // An update keeps the fact's topic, unless that topic was only the old sentence itself (a
+        // sentence-keyed fact): then the old wording would keep the replaced value in sight.
+        keyText: c.updates && normalizeText(old.keyText) !== normalizeText(old.value) ? old.keyText : c.key,
         value,
         provenance,
         // The fact's retention carries over: an update is as established as what it replaces.

@@ -2,7 +2,8 @@
 // Multi-domain Conversational Agents: The Schema-Guided Dialogue Dataset", DSTC8 test split, files
 // in ../shared/data/sgd). For every slot the user changed, the probe is the schema's description of
 // the slot and the expected turn is the user turn that stated the final value: an update must
-// outrank what it replaced.
+// outrank what it replaced. Beside it, in the same run, plain BM25 and `flat` over every turn of both
+// roles, which find the turns about the slot but cannot tell the later value from the earlier one.
 
 import { resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -16,13 +17,12 @@ const present = sgdPresent(dir);
 const ci = process.env.CI === 'true';
 
 /**
- * Margin on latest-value@3: 0.1 absolute. `flat` keeps every user turn and ranks by the same
- * embedder + BM25, so on a description query it finds the turns that mention the slot and cannot
- * tell the earlier value from the later one; a margin of 0.1 over ~300 probes is about 30 probes,
- * well outside run-to-run noise (the replay is deterministic) and small enough not to hinge on one
- * extractor rule.
+ * Margins on latest-value@3 over the 64 probes: 0.3 over plain BM25 (19 probes; measured 0.70 against
+ * 0.27) and 0.2 over `flat` (13 probes; measured against 0.31). The replay is deterministic, so the
+ * margin guards against a change that loses the update's precedence, not against noise.
  */
-const MARGIN = 0.1;
+const MARGIN_BM25 = 0.3;
+const MARGIN_FLAT = 0.2;
 
 describe('finalValueTurn', () => {
   it('is the first turn of the last run after a different value', () => {
@@ -40,15 +40,23 @@ describe('SGD: latest value after an update', () => {
   });
 
   // Skipped only outside CI when ../shared is absent (reason printed above).
-  it.skipIf(!present)('tidemark beats flat on latest-value@3 by at least 0.1', async () => {
+  it.skipIf(!present)('tidemark beats plain BM25 and flat on latest-value@3, both keeping every turn', async () => {
     const { turns, probes, dialogues } = loadSgd(dir);
     expect(dialogues).toBe(384);
     // 64 slots in these files are changed by a user INFORM with a different value (deterministic).
     expect(probes.length).toBe(64);
-    const r = await runReplay({ turns, probes, k: 3, baselines: ['flat'] });
+    const r = await runReplay({ turns, probes, k: 3, baselines: ['bm25', 'flat'] });
     const tm = r.summary.by_kind.latest!.recall_at_k;
+    const bm25 = r.baselines.bm25!.by_kind.latest!.recall_at_k;
     const flat = r.baselines.flat!.by_kind.latest!.recall_at_k;
-    console.log(`SGD latest-value@3 over ${r.summary.probes} probes, ${r.summary.turns} turns: tidemark ${tm.toFixed(3)}, flat ${flat.toFixed(3)} (@1: ${r.summary.by_kind.latest!.recall_at_1.toFixed(3)} vs ${r.baselines.flat!.by_kind.latest!.recall_at_1.toFixed(3)})`);
-    expect(tm - flat).toBeGreaterThanOrEqual(MARGIN);
+    console.log(
+      `SGD latest-value@3 over ${r.summary.probes} probes, ${r.summary.turns} turns: tidemark ${tm.toFixed(3)}, bm25 ${bm25.toFixed(3)}, flat ${flat.toFixed(3)} ` +
+        `(@1: ${r.summary.by_kind.latest!.recall_at_1.toFixed(3)} vs ${r.baselines.bm25!.by_kind.latest!.recall_at_1.toFixed(3)}); hit precision ${r.summary.hit_precision}`,
+    );
+    expect(tm - bm25).toBeGreaterThanOrEqual(MARGIN_BM25);
+    expect(tm - flat).toBeGreaterThanOrEqual(MARGIN_FLAT);
+    // Every turn of both roles is kept; the slots hold the updates.
+    expect(r.summary.tiers.logbook.entries.turn).toBe(r.summary.turns);
+    expect(r.summary.writes.overwritten).toBeGreaterThan(0);
   }, 120_000);
 });
