@@ -88,3 +88,73 @@ describe('write gate', () => {
     expect(gateScore({ ...f, statement: 0, novelty: 0 }, w)).toBeCloseTo(1 / (1 + Math.E), 15);
   });
 });
+
+describe('RuleExtractor: facts as people say them', () => {
+  const all = (text: string, context = {}) => ex.extract(text, 'user', context);
+
+  it('one key per thing preferred or liked; likes add up, a preference said as a change revises', () => {
+    const [tutor, grammar] = all('I prefer a female tutor, and I like grammar explained in English.');
+    expect(tutor).toMatchObject({ key: 'what I prefer: tutor', value: 'a female tutor', pattern: 'prefer' });
+    expect(tutor!.accumulate).toBeUndefined();
+    expect(grammar).toMatchObject({ key: 'what I like: grammar', accumulate: true, clause: true });
+    expect(one("Actually, I'd prefer a male tutor from now on.")).toMatchObject({ key: 'what I prefer: tutor', revises: true });
+    // A request is not a liking.
+    expect(one("I'd like to book a service.").pattern).not.toBe('prefer');
+  });
+
+  it('levels, jobs, introductions, workplaces and changed details get their own keys', () => {
+    expect(one("I'm at A2 level, I think.")).toMatchObject({ key: 'my level', value: 'A2' });
+    expect(one("Good news, I'm now at B1 level!")).toMatchObject({ key: 'my level', value: 'B1' });
+    expect(one("I'm a hospital pharmacist.")).toMatchObject({ key: 'my job (what I do for work)', value: 'hospital pharmacist' });
+    expect(one("Hi, I'm Nadia Corran.")).toMatchObject({ key: 'my name', value: 'Nadia Corran' });
+    expect(one("I'm Italian.").key).not.toBe('my name');
+    expect(one('I started at Cindermoor Games on Monday.')).toMatchObject({ key: 'where I work' });
+    expect(one('I started at 9 this morning.').key).not.toBe('where I work');
+    expect(one('My phone number changed, the new one is 07700 900123.')).toMatchObject({ key: 'my phone number (mobile)', value: '07700 900123' });
+    expect(one("I'd rather you call than text.")).toMatchObject({ key: 'how I want to be contacted', value: 'call than text' });
+    expect(one("Mel's daughter starts school in May.")).toMatchObject({ key: "Mel's daughter (starts)", pattern: 'their-x' });
+    // "names" is not a name.
+    expect(one("I'm a pharmacist, so medicine names and patients matter.").key).not.toBe('my name');
+  });
+
+  it('a booked thing keeps one key whether it is stated, requested or switched', () => {
+    expect(one('Can I have my weekly lessons on Tuesdays?').key).toBe('my booking (lesson)');
+    expect(one('My lessons are on Tuesdays.').key).toBe('my booking (lesson)');
+    expect(one('Can we switch my lessons to Wednesday?')).toMatchObject({ key: 'my booking (lesson)', updates: { kind: 'date', expr: 'Wednesday' } });
+  });
+
+  it('a later clause of a sentence is never a correction; "no" as a determiner corrects nothing', () => {
+    const [allergy, snacks] = all("I'm allergic to peanuts, so no nut snacks at the in-person sessions please.");
+    expect(allergy).toMatchObject({ key: 'what I am allergic to (my allergy)', value: 'peanuts' });
+    expect(snacks!.clause).toBe(true);
+    expect(snacks!.updates).toBeUndefined();
+    expect(one('No nut snacks at the session, please.').updates).toBeUndefined();
+    expect(one('No, the other one instead.').updates).toEqual({ kind: 'latest' });
+    expect(one("no wait, it's Saturday not Sunday.").updates).toEqual({ kind: 'date', expr: 'Saturday' });
+  });
+
+  it('a short answer takes its topic from the question it answers', () => {
+    expect(all("It's 07700 900814.", { previous: "What's the best number to reach you on?" })[0]).toMatchObject({ key: 'my phone number (mobile)', pattern: 'answer' });
+    expect(all('Tuesday at 9, please.', { previous: 'A full service would be sensible. I can do Tuesday at 9am or Wednesday at 2pm.' })[0]).toMatchObject({ key: 'my booking (service)', pattern: 'answer' });
+    // Not after a statement, and not for a long message that says its own topic.
+    expect(all("It's 07700 900814.", { previous: 'Thanks for coming in.' })[0]!.pattern).not.toBe('answer');
+  });
+
+  it('a topic-less update carries the sentence before it as context', () => {
+    const [, update] = all("I need to move the Tourer's service. Could it be Friday 17 October instead, same time?");
+    expect(update).toMatchObject({ updates: { kind: 'date', expr: 'Friday 17 October' }, context: "I need to move the Tourer's service." });
+  });
+});
+
+describe('value expressions: days people write', () => {
+  it('plural weekdays, a month on its own, an abbreviation only before a day number', () => {
+    expect(findValueExpr('lessons on Tuesdays')).toMatchObject({ kind: 'date', text: 'Tuesdays' });
+    expect(findValueExpr("it's in November instead")).toMatchObject({ kind: 'date', text: 'November' });
+    expect(findValueExpr('delivered Sat 27 September')).toMatchObject({ kind: 'date', text: 'Sat 27 September' });
+    expect(findValueExpr('too much sun or too little water')).toBeNull();
+    expect(findValueExpr('it may rain')).toBeNull();
+    expect(findValueExpr('a pair of 30mm tyres')).toMatchObject({ kind: 'quantity', text: '30mm' });
+    // The hour of a time is not an amount.
+    expect(findAll('Thursday at 10:30', 'quantity')).toEqual([]);
+  });
+});
