@@ -1,44 +1,63 @@
-// Recall benchmark: replays the synthetic scenario through tidemark beside the window and flat
-// baselines in one run and prints recall per probe kind, read cost and replay speed.
-// `npm run bench -- recall [--json] [--k 5] [--capacity 64] [--window 20] [--seed 7] [--sessions 20]`.
+// Recall benchmark: replays tidemark's two synthetic checks beside the baselines in one run and prints
+// recall and value accuracy per probe kind, read cost and replay speed. `conversations` are long
+// two-speaker conversations over many dated meetings (bench/lib/conversations.ts); `scenario` is the
+// single-user bot scenario with planted facts and updates (bench/lib/scenario.ts).
+// `npm run bench -- recall [--json] [--set conversations|scenario|both] [--k 10] [--capacity 64] [--seed N] [--sessions N]`.
 
-import { runReplay, formatReplayTable } from '../src/cli/replay.js';
 import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../src/cli/jsonl.js';
+import { formatReplayTable, runReplay, type ReplayResult } from '../src/cli/replay.js';
+import { generateConversations, CONVERSATION_DEFAULTS } from './lib/conversations.js';
 import { SCENARIO_DEFAULTS, generateScenario } from './lib/scenario.js';
 import { intFlag } from './scenario.js';
 
-/** The scenario as parsed replay input (through the same line checks as the files). */
+const parsed = (turns: readonly object[], probes: readonly object[]): { turns: TranscriptTurn[]; probes: Probe[] } => ({
+  turns: turns.map((t, i) => checkTurn(t as Record<string, unknown>, i + 1) as TranscriptTurn),
+  probes: probes.map((p, i) => checkProbe(p as Record<string, unknown>, i + 1) as Probe),
+});
+
+/** The bot scenario as parsed replay input (through the same line checks as the files). */
 export function scenarioInput(seed: number, sessions: number): { turns: TranscriptTurn[]; probes: Probe[] } {
   const sc = generateScenario({ seed, sessions });
-  const turns = sc.turns.map((t, i) => checkTurn(t as unknown as Record<string, unknown>, i + 1) as TranscriptTurn);
-  const probes = sc.probes.map((p, i) => checkProbe(p as unknown as Record<string, unknown>, i + 1) as Probe);
-  return { turns, probes };
+  return parsed(sc.turns, sc.probes);
+}
+
+/** The long two-speaker conversations as parsed replay input. */
+export function conversationInput(seed: number, conversations: number): { turns: TranscriptTurn[]; probes: Probe[] } {
+  const g = generateConversations({ seed, conversations });
+  return parsed(g.turns, g.probes);
+}
+
+function figures(name: string, r: ReplayResult, k: number) {
+  const f = (x: { recall_at_k: number; recall_at_1: number; value_at_k: number | null; value_at_1: number | null; by_kind: Record<string, { recall_at_k: number; recall_at_1: number }> }) => ({
+    recall_at_k: x.recall_at_k, recall_at_1: x.recall_at_1, value_at_k: x.value_at_k, value_at_1: x.value_at_1,
+    by_kind: Object.fromEntries(Object.entries(x.by_kind).map(([kind, v]) => [kind, { at_k: v.recall_at_k, at_1: v.recall_at_1 }])),
+  });
+  const s = r.summary;
+  return {
+    set: name, k, turns: s.turns, probes: s.probes,
+    tidemark: { ...f(s), hit_precision: s.hit_precision, read_us_p50: s.read_us.p50, read_us_p99: s.read_us.p99, turns_per_s: s.turns_per_s, turns_per_cpu_s: s.turns_per_cpu_s, tiers: s.tiers },
+    baselines: Object.fromEntries(Object.entries(r.baselines).map(([n, b]) => [n, { ...f(b), read_us_p50: b.read_us.p50, items_kept: b.items_kept }])),
+  };
 }
 
 export default async function main(argv: string[]): Promise<void> {
-  const k = intFlag(argv, 'k', 5);
+  const set = argv.includes('--set') ? argv[argv.indexOf('--set') + 1] ?? 'both' : 'both';
+  if (!['conversations', 'scenario', 'both'].includes(set)) throw new RangeError(`--set must be conversations, scenario or both, got ${set}`);
   const capacity = intFlag(argv, 'capacity', 64);
-  const window = intFlag(argv, 'window', 20);
-  const { turns, probes } = scenarioInput(intFlag(argv, 'seed', SCENARIO_DEFAULTS.seed), intFlag(argv, 'sessions', SCENARIO_DEFAULTS.sessions));
-  const result = await runReplay({ turns, probes, k, config: { capacity }, baselines: [`window:${window}`, 'flat'] });
-  const line = (name: string, f: { by_kind: Record<string, { recall_at_1: number; recall_at_k: number }> }) => ({
-    name,
-    fact_at_k: f.by_kind.fact?.recall_at_k ?? null,
-    latest_at_1: f.by_kind.latest?.recall_at_1 ?? null,
-  });
-  const figures = {
-    bench: 'recall',
-    k,
-    capacity,
-    turns: result.summary.turns,
-    probes: result.summary.probes,
-    tidemark: { ...line('tidemark', result.summary), recall_at_k: result.summary.recall_at_k, read_us_p50: result.summary.read_us.p50, read_us_p99: result.summary.read_us.p99, slots_in_use: result.summary.slots_in_use, turns_per_s: result.summary.turns_per_s, turns_per_cpu_s: result.summary.turns_per_cpu_s, writes: result.summary.writes, evictions: result.summary.evictions, reads: result.summary.reads },
-    baselines: Object.fromEntries(Object.entries(result.baselines).map(([n, b]) => [n, { ...line(n, b), recall_at_k: b.recall_at_k, read_us_p50: b.read_us.p50, items_kept: b.items_kept }])),
-    targets: { fact_at_5: 0.9, latest_at_1: 0.9, turns_per_s: 5000 },
-  };
-  process.stdout.write(formatReplayTable(result));
-  if (argv.includes('--verbose')) {
-    for (const p of result.probes) if (p.recall < 1) console.log(`miss ${p.id} expect ${probes.find((q) => q.id === p.id)!.expect.join(',')} got ${p.retrieved.join(',')}`);
+  const out: unknown[] = [];
+  if (set !== 'scenario') {
+    const k = intFlag(argv, 'k', 10);
+    const { turns, probes } = conversationInput(intFlag(argv, 'seed', CONVERSATION_DEFAULTS.seed), intFlag(argv, 'sessions', CONVERSATION_DEFAULTS.conversations));
+    const r = await runReplay({ turns, probes, k, config: { capacity }, baselines: ['bm25', 'flat', 'window:20'] });
+    process.stdout.write(`\n== long two-speaker conversations\n${formatReplayTable(r)}`);
+    out.push(figures('conversations', r, k));
   }
-  if (argv.includes('--json')) console.log(JSON.stringify(figures));
+  if (set !== 'conversations') {
+    const k = intFlag(argv, 'k', 5);
+    const { turns, probes } = scenarioInput(intFlag(argv, 'seed', SCENARIO_DEFAULTS.seed), intFlag(argv, 'sessions', SCENARIO_DEFAULTS.sessions));
+    const r = await runReplay({ turns, probes, k, config: { capacity }, baselines: ['bm25', 'flat', 'window:20'] });
+    process.stdout.write(`\n== bot scenario (planted facts and updates)\n${formatReplayTable(r)}`);
+    out.push({ ...figures('scenario', r, k), targets: { fact_at_5: 0.9, latest_at_1: 0.9 } });
+  }
+  if (argv.includes('--json')) console.log(JSON.stringify({ bench: 'recall', capacity, sets: out }));
 }

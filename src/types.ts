@@ -91,6 +91,11 @@ export interface SlotRecord {
   /** Written from a bot's own reply (an assistant turn naming no speaker); such a slot never overwrites the user's. */
   reply?: boolean;
   /**
+   * Whom the fact is about when not the speaker ("My brother rides a Vantor Trail": `brother`). Such a
+   * fact never overwrites the speaker's own, and ranks lower for questions that do not name them.
+   */
+  subject?: string;
+  /**
    * An update that could not be tied to one fact: the revision ids of the values it may replace. They
    * stay in working memory; a read ranks this slot just above each of them (newest first).
    */

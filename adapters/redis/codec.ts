@@ -223,6 +223,7 @@ const SLOT_PREVIOUS = 2;
 const SLOT_OWNER = 4;
 const SLOT_REPLY = 8;
 const SLOT_MAYBE = 16;
+const SLOT_SUBJECT = 32;
 
 /** Encodes a slot; `key` is the vector a reader will get back (quantised when int8). */
 export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffer; key: Float32Array } {
@@ -230,7 +231,7 @@ export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffe
   const maybe = rec.maybeReplaces ?? [];
   w.u8(
     (rec.pinned ? SLOT_PINNED : 0) | (rec.previous !== undefined ? SLOT_PREVIOUS : 0) | (rec.owner !== undefined ? SLOT_OWNER : 0) |
-      (rec.reply ? SLOT_REPLY : 0) | (maybe.length > 0 ? SLOT_MAYBE : 0),
+      (rec.reply ? SLOT_REPLY : 0) | (maybe.length > 0 ? SLOT_MAYBE : 0) | (rec.subject !== undefined ? SLOT_SUBJECT : 0),
   );
   w.f64(rec.strength);
   w.f64(rec.halfLife);
@@ -244,6 +245,7 @@ export function encodeSlot(rec: SlotRecord, format: KeyFormat): { payload: Buffe
   w.str(rec.value);
   if (rec.previous !== undefined) w.str(rec.previous);
   if (rec.owner !== undefined) w.str(rec.owner);
+  if (rec.subject !== undefined) w.str(rec.subject);
   if (maybe.length > 0) {
     w.varint(maybe.length);
     for (const m of maybe) w.str(m);
@@ -270,6 +272,7 @@ export function decodeSlot(buf: Buffer, what: string): SlotRecord {
   const previous = flags & SLOT_PREVIOUS ? r.str() : undefined;
   const v2 = r.format >= 2;
   const owner = v2 && flags & SLOT_OWNER ? r.str() : undefined;
+  const subject = v2 && flags & SLOT_SUBJECT ? r.str() : undefined;
   const maybe: string[] = [];
   if (v2 && flags & SLOT_MAYBE) for (let i = 0, m = r.varint(); i < m; i++) maybe.push(r.str());
   const n = r.varint();
@@ -283,6 +286,7 @@ export function decodeSlot(buf: Buffer, what: string): SlotRecord {
   };
   if (previous !== undefined) rec.previous = previous;
   if (owner !== undefined) rec.owner = owner;
+  if (subject !== undefined) rec.subject = subject;
   if (v2 && flags & SLOT_REPLY) rec.reply = true;
   if (maybe.length > 0) rec.maybeReplaces = maybe;
   return rec;

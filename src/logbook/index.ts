@@ -114,13 +114,16 @@ export interface LogbookSearchResult {
   successors: Map<string, LogbookEntry>;
 }
 
+/** A polite request ("could you order 4 bags?", "can I book a service for Tuesday?") states what is wanted. */
+const REQUEST = /^\W*(?:(?:hi|hey|hello|ok|okay|yes|no|sure|great|sorry|actually|then|and|so|well|also)\b[\s,!.]*)*(?:(?:can|could|would|will|may)\s+(?:you|we|i)\b|please\b|i(?:'d| would) like\b|let'?s\b)/i;
+
 /**
  * A turn whose every sentence asks for information ("How did it go?", "When is my booking?"). A
  * request ("Can you book a table for 3?") states what the speaker wants, so it is not one.
  */
 function isQuestionOnly(text: string): boolean {
   const parts = text.split(/(?<=[.!?])\s+/).filter((x) => x.trim().length > 0);
-  return parts.length > 0 && parts.every((x) => /\?\s*$/.test(x) && /^\W*(?:what|when|where|who|whom|whose|why|how|which|is|are|was|were|do|does|did|have|has|had)\b/i.test(x));
+  return parts.length > 0 && parts.every((x) => /\?\s*$/.test(x) && !REQUEST.test(x));
 }
 
 /** BM25's IDF in the non-negative form Lucene uses: ln(1 + (N − n + 0.5) / (n + 0.5)). */

@@ -35,6 +35,8 @@ export interface Candidate {
   clause?: boolean;
   /** The sentence says it changes its (named) fact: it may replace a fact that would otherwise add up. */
   revises?: boolean;
+  /** Whom the fact is about when not the speaker ("My brother wants 8 plant labels too": `brother`). */
+  subject?: string;
   /**
    * Text that may say what a topic-less update is about: the sentence before it in the same turn
    * ("I need to move the Tourer's service. Could it be Friday instead?"), or the question it answers.
@@ -326,6 +328,12 @@ const CUE_WORDS = /\b(?:actually|instead|rather|moved?|changed?|pushed back|resc
 /** A polite request states what the user wants ("can I have my lessons on Tuesdays?"), like a statement. */
 const REQUEST = /^(?:(?:hi|hey|hello|ok|okay|yes|no|sure|great|sorry|actually|then|and|so|well|also)\b[\s,!.]*)*(?:(?:can|could|would|will)\s+(?:you|we|i)\b|please\b|i(?:'d| would) like\b|let'?s\b)/i;
 
+/**
+ * A sentence about someone else: "My brother wants ...", "My colleague needs ...", "Our neighbour
+ * rides ...": the subject is a relation, and the verb is theirs (third person), not the speaker's.
+ */
+const OTHER_PERSON = /^(?:\W*(?:and|also|oh|btw|by the way)\b[\s,]*)?(?:my|our)\s+(?:(?:older|younger|little|big|best|old|new)\s+)?(brother|sister|mum|mom|mother|dad|father|partner|husband|wife|son|daughter|friend|boss|manager|colleague|neighbour|neighbor|cousin|aunt|uncle|grandmother|grandfather|gran|nan|flatmate|roommate|kids?|children)\b(?:\s+\p{Lu}\p{L}+)?\s+(?:also\s+|just\s+|really\s+)?(?:wants|needs|has|had|is|was|lives|lived|works|worked|rides|rode|owns|loves|likes|hates|says|said|bought|got|goes|went|drives|uses|thinks|passed|speaks|keeps|grows|studies|plays)\b/iu;
+
 /** The other side asked something, or offered a choice, that the next turn may answer. */
 const ASKS = /\?\s*$|\b(?:i can do|i have|would you like|do you want|shall i|which (?:one|day|time)|let me know)\b/i;
 /** "your number", "your email": a question about the speaker's own contact details or name. */
@@ -357,6 +365,8 @@ export class RuleExtractor implements Extractor {
         sentence = rm[1]!.trim();
       }
       const c = this.fromSentence(sentence, role, !first);
+      const about = OTHER_PERSON.exec(sentence);
+      if (about && c.pattern !== 'name' && c.pattern !== 'intro') c.subject = about[1]!.toLowerCase();
       if (remember) c.remember = true;
       if (!first) c.clause = true;
       c.text = raw;

@@ -49,6 +49,8 @@ export interface ReadParams {
   slotPrior: number;
   /** A slot also scores this share of the best lexical score among the turns it came from. @default 0.5 */
   provenanceWeight: number;
+  /** A fact about someone else ("my brother wants ...") scores × othersWeight unless the query names them. @default 0.5 */
+  othersWeight: number;
   /**
    * Working memory's precedence for what was just said: a slot written `age` clock units ago scores
    * × (1 + recencyBoost × 2^(−age / recencyHalfLife)), so of two slots on one topic the newer leads. @default 1
@@ -134,6 +136,7 @@ export const READ_DEFAULTS: ReadParams = {
   hitMargin: 1.3,
   slotPrior: 0.5,
   provenanceWeight: 0.5,
+  othersWeight: 0.5,
   recencyBoost: 1,
   recencyHalfLife: 20,
   denseWeight: 1,
@@ -225,6 +228,7 @@ export function resolveMemoryParams(input: MemoryParamsInput = {}): MemoryParams
   num('read.hitMargin', read.hitMargin, 1, 1000);
   num('read.slotPrior', read.slotPrior, 0, 100);
   num('read.provenanceWeight', read.provenanceWeight, 0, 100);
+  num('read.othersWeight', read.othersWeight, 0, 10);
   num('read.recencyBoost', read.recencyBoost, 0, 100);
   num('read.recencyHalfLife', read.recencyHalfLife, 0, Number.MAX_SAFE_INTEGER, { openMin: true });
   num('read.denseWeight', read.denseWeight, 0, 100);

@@ -9,7 +9,7 @@
 import type { LogbookEntry } from '../types.js';
 import type { LogbookHit, LogbookSearchParams, LogbookSearchResult } from '../logbook/index.js';
 import { bm25Idf, bm25Term } from '../logbook/index.js';
-import { analyze } from './text.js';
+import { analyze, stem } from './text.js';
 
 /** A slot as the ranking sees it. */
 export interface SlotCandidate {
@@ -19,6 +19,8 @@ export interface SlotCandidate {
   value: string;
   provenance: string[];
   owner?: string;
+  /** Whom the fact is about when not its owner (see SlotRecord.subject). */
+  subject?: string;
   /** Strength decayed to now, in (0, 1]. */
   strength: number;
   /** Cosine of the query to the slot's key. */
@@ -64,6 +66,8 @@ export interface RankParams {
   session: string;
   /** A slot also scores this share of the best lexical score among the turns it came from. */
   provenanceWeight: number;
+  /** A slot about someone else (a `subject`) scores × othersWeight unless the query names them. */
+  othersWeight: number;
   /** A slot written `age` clock units ago scores × (1 + recencyBoost × 2^(−age / recencyHalfLife)). */
   recencyBoost: number;
   recencyHalfLife: number;
@@ -150,6 +154,7 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   // (the slot's own text is a short topic and value; its source turns name the things around it).
   const turnLex = new Map<string, number>();
   for (const h of lb.hits) if (h.entry.kind === 'turn' && h.entry.session === p.session) turnLex.set(h.entry.provenance[0]!, h.lexical);
+  const queryTerms = new Set(lb.weight.keys());
   const items: RankedItem[] = [];
   const liveIds = new Map(slots.map((s) => [s.id, s]));
   slots.forEach((c, i) => {
@@ -158,8 +163,9 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
     for (const t of c.provenance) support = Math.max(support, turnLex.get(t) ?? 0);
     const own = s.score + p.provenanceWeight * support * (s.speakerMatch ? 1 + p.search.speakerBoost : 1);
     const fresh = p.recencyBoost > 0 && c.age !== undefined ? p.recencyBoost * Math.pow(2, -c.age / p.recencyHalfLife) : 0;
+    const others = c.subject !== undefined && !queryTerms.has(stem(c.subject)) ? p.othersWeight : 1;
     items.push({
-      source: 'slot', slot: c, id: c.id, score: own * (1 + p.slotPrior * c.strength) * (1 + fresh), lexical: s.lexical,
+      source: 'slot', slot: c, id: c.id, score: own * (1 + p.slotPrior * c.strength) * (1 + fresh) * others, lexical: s.lexical,
       coverage: s.lexical / maxScore, cosine: c.cosine, context: 0, lexicalRank: 0, denseRank: 0,
       speakerMatch: s.speakerMatch, placed: 'score',
     });

@@ -28,6 +28,7 @@ export class SlotTable {
   readonly provenance: string[][];
   readonly previous: (string | undefined)[];
   readonly owner: (string | undefined)[];
+  readonly subject: (string | undefined)[];
   /** Bit set per slot: written from a bot's reply. */
   readonly reply: Uint8Array;
   readonly maybeReplaces: (string[] | undefined)[];
@@ -50,6 +51,7 @@ export class SlotTable {
     this.provenance = Array.from({ length: capacity }, () => []);
     this.previous = new Array<string | undefined>(capacity).fill(undefined);
     this.owner = new Array<string | undefined>(capacity).fill(undefined);
+    this.subject = new Array<string | undefined>(capacity).fill(undefined);
     this.reply = new Uint8Array(capacity);
     this.maybeReplaces = new Array<string[] | undefined>(capacity).fill(undefined);
   }
@@ -100,6 +102,7 @@ export class SlotTable {
     this.provenance[i] = rec.provenance.slice();
     this.previous[i] = rec.previous;
     this.owner[i] = rec.owner;
+    this.subject[i] = rec.subject;
     this.reply[i] = rec.reply ? 1 : 0;
     this.maybeReplaces[i] = rec.maybeReplaces && rec.maybeReplaces.length > 0 ? rec.maybeReplaces.slice() : undefined;
   }
@@ -121,6 +124,7 @@ export class SlotTable {
     this.provenance[i] = [];
     this.previous[i] = undefined;
     this.owner[i] = undefined;
+    this.subject[i] = undefined;
     this.reply[i] = 0;
     this.maybeReplaces[i] = undefined;
   }
@@ -145,6 +149,7 @@ export class SlotTable {
     };
     if (this.previous[i] !== undefined) rec.previous = this.previous[i];
     if (this.owner[i] !== undefined) rec.owner = this.owner[i];
+    if (this.subject[i] !== undefined) rec.subject = this.subject[i];
     if (this.reply[i] === 1) rec.reply = true;
     if (this.maybeReplaces[i] !== undefined) rec.maybeReplaces = this.maybeReplaces[i]!.slice();
     return rec;

@@ -102,11 +102,11 @@ export interface WritePlan {
 }
 
 /**
- * How far back (clock units) an update without a topic may reach for the fact it changes: a
- * correction refers to what was just said (common practice in dialogue state tracking). A correction
- * that shares no word with the fact reaches back only to the previous exchange.
+ * How far back (clock units: turns of both sides) an update without a topic may reach for the fact it
+ * changes: a correction refers to what was said in the last few exchanges (common practice in dialogue
+ * state tracking). A correction that shares no word with the fact reaches back only to the previous one.
  */
-export const CORRECTION_WINDOW = 8;
+export const CORRECTION_WINDOW = 12;
 export const BARE_CORRECTION_WINDOW = 3;
 
 const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
@@ -189,6 +189,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const valueAt = (i: number): string => pending.get(i)?.value ?? table.value[i]!;
   const keyTextAt = (i: number): string => pending.get(i)?.keyText ?? table.keyText[i]!;
   const ownerAt = (i: number): string | undefined => (pending.has(i) ? pending.get(i)?.owner : table.owner[i]);
+  const subjectAt = (i: number): string | undefined => (pending.has(i) ? pending.get(i)?.subject : table.subject[i]);
   const replyAt = (i: number): boolean => (pending.has(i) ? pending.get(i)?.reply === true : table.reply[i] === 1);
   const stampAt = (i: number): number => pending.get(i)?.stamp ?? table.stamp[i]!;
   /**
@@ -289,7 +290,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
    * the user said).
    */
   const open = (i: number, kc: KeyedCandidate): boolean =>
-    used(i) && ownersMatch(ownerAt(i), kc.owner) && writtenBy.get(i) !== kc.turn && (!fromReply(kc) || replyAt(i));
+    used(i) && ownersMatch(ownerAt(i), kc.owner) && subjectAt(i) === kc.candidate.subject && writtenBy.get(i) !== kc.turn && (!fromReply(kc) || replyAt(i));
 
   // 3. Write each candidate: gate, address, overwrite or allocate.
   input.candidates.forEach((kc, index) => {
@@ -398,7 +399,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       const talkedOf = spoken.size > 0 ? pool.filter((i) => shares(spoken, topicWords(keyTextAt(i)))) : [];
       if (pool.length === 1) target = pool[0]!;
       else if (talkedOf.length === 1) target = talkedOf[0]!;
-      else if (pool.length > 0) maybe = (talkedOf.length > 1 ? talkedOf : pool).slice(0, 3);
+      else if (pool.length > 0) maybe = (talkedOf.length > 1 ? talkedOf : pool).slice(0, 4);
       if (target >= 0) swapIn(target, kind, c.updates.expr);
     }
 
@@ -452,6 +453,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
         reads: old.reads,
         pinned: old.pinned || c.pin === true,
         previous: old.id,
+        ...(old.subject ? { subject: old.subject } : {}),
         ...(old.owner ?? kc.owner ? { owner: (old.owner ?? kc.owner)! } : {}),
       };
       set(target, rec);
@@ -484,6 +486,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       pinned: c.pin === true,
       ...(kc.owner ? { owner: kc.owner } : {}),
       ...(fromReply(kc) ? { reply: true } : {}),
+      ...(c.subject ? { subject: c.subject } : {}),
       ...(maybeIds.length > 0 ? { maybeReplaces: maybeIds } : {}),
     });
     writtenBy.set(slot, kc.turn);

@@ -94,6 +94,7 @@ export class ReadPath {
         slots.push({
           slot: i, id: table.ids[i]!, keyText: table.keyText[i]!, value: table.value[i]!, provenance: table.provenance[i]!,
           ...(table.owner[i] ? { owner: table.owner[i]! } : {}),
+          ...(table.subject[i] ? { subject: table.subject[i]! } : {}),
           strength: table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
           cosine: att.cosine[i]!, weight: att.weight[i]!, updatedMs: table.updatedMs[i]!, age: Math.max(0, now - table.stamp[i]!),
           ...(table.maybeReplaces[i] ? { maybeReplaces: table.maybeReplaces[i]! } : {}),
@@ -102,7 +103,7 @@ export class ReadPath {
     }
 
     const ranked = rankTiers(slots, lb, {
-      k: p.k, session: ref.session, provenanceWeight: p.provenanceWeight, recencyBoost: p.recencyBoost, recencyHalfLife: p.recencyHalfLife, slotPrior: p.slotPrior, denseWeight: core.dense ? p.denseWeight : 0, rrfK: p.rrfK, hitCoverage: p.hitCoverage, hitMargin: p.hitMargin,
+      k: p.k, session: ref.session, provenanceWeight: p.provenanceWeight, othersWeight: p.othersWeight, recencyBoost: p.recencyBoost, recencyHalfLife: p.recencyHalfLife, slotPrior: p.slotPrior, denseWeight: core.dense ? p.denseWeight : 0, rrfK: p.rrfK, hitCoverage: p.hitCoverage, hitMargin: p.hitMargin,
       hitCosine: p.hitCosine, history: history || p.history, query: turn.text, search: this.search,
     });
     const total = ranked.items.reduce((a, x) => a + Math.max(0, x.score), 0) || 1;

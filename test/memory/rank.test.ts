@@ -11,7 +11,7 @@ import { rankTiers, scoreSlots, type RankParams, type SlotCandidate } from '../.
 import type { LogbookEntry } from '../../src/types.js';
 
 const P: RankParams = {
-  k: 8, session: 's', provenanceWeight: 0, recencyBoost: 0, recencyHalfLife: 20, slotPrior: 0, denseWeight: 0, rrfK: 60,
+  k: 8, session: 's', provenanceWeight: 0, othersWeight: 1, recencyBoost: 0, recencyHalfLife: 20, slotPrior: 0, denseWeight: 0, rrfK: 60,
   hitCoverage: 0.3, hitMargin: 1.3, hitCosine: 0.5, history: false, search: LOGBOOK_SEARCH_DEFAULTS,
 };
 const slot = (id: string, keyText: string, value: string, over: Partial<SlotCandidate> = {}): SlotCandidate => ({
