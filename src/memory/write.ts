@@ -394,11 +394,13 @@ export function planWrite(input: WritePlanInput): WritePlan {
       holders.sort((a, b) => newer(b, a));
       const recent = holders.filter((i) => now - stampAt(i) <= CORRECTION_WINDOW);
       const pool = recent.length > 0 ? recent : holders;
-      // Its own words, the sentence before it, then the turns before may say which fact "it" is.
+      // Its own words, the sentence before it, then the turns before may say which fact "it" is: that
+      // decides first ("How is the exam prep going?" — "They moved it"); else the one fact of the last
+      // exchanges holding such a value.
       const spoken = topicWords([c.key, c.context ?? '', ...(input.context ?? [])].join(' '));
-      const talkedOf = spoken.size > 0 ? pool.filter((i) => shares(spoken, topicWords(keyTextAt(i)))) : [];
-      if (pool.length === 1) target = pool[0]!;
-      else if (talkedOf.length === 1) target = talkedOf[0]!;
+      const talkedOf = spoken.size > 0 ? holders.filter((i) => shares(spoken, topicWords(keyTextAt(i)))) : [];
+      if (talkedOf.length === 1) target = talkedOf[0]!;
+      else if (pool.length === 1) target = pool[0]!;
       else if (pool.length > 0) maybe = (talkedOf.length > 1 ? talkedOf : pool).slice(0, 4);
       if (target >= 0) swapIn(target, kind, c.updates.expr);
     }
