@@ -80,6 +80,8 @@ export interface ReadParams {
   replyWeight: number;
   /** A logbook turn that only asks for information scores × questionWeight (it is context, rarely the fact). @default 0.7 */
   questionWeight: number;
+  /** Items scoring below this share of the best item's score are left out (noise in a prompt). @default 0.1 */
+  minShare: number;
   /** Logbook entries taken from the lexical ranking per read (before merging). @default 50 */
   logbookLimit: number;
 }
@@ -150,6 +152,7 @@ export const READ_DEFAULTS: ReadParams = {
   temporalBoost: 0.3,
   replyWeight: 0.4,
   questionWeight: 0.7,
+  minShare: 0.1,
   logbookLimit: 50,
 }
 
@@ -242,6 +245,7 @@ export function resolveMemoryParams(input: MemoryParamsInput = {}): MemoryParams
   num('read.temporalBoost', read.temporalBoost, 0, 100);
   num('read.replyWeight', read.replyWeight, 0, 10);
   num('read.questionWeight', read.questionWeight, 0, 10);
+  num('read.minShare', read.minShare, 0, 1);
   num('read.logbookLimit', read.logbookLimit, 0, 10_000, { integer: true });
   num('write.gateThreshold', write.gateThreshold, 0, 1);
   num('write.beta', write.beta, 0, 1000);

@@ -84,6 +84,8 @@ export interface RankParams {
   hitCosine: number;
   /** Return superseded values by their own score (history questions). */
   history: boolean;
+  /** Items scoring below this share of the best are left out. */
+  minShare: number;
   /** The query's text: an earlier turn saying exactly the same (the same question asked again) adds nothing. */
   query?: string;
   /** Scoring of slot texts: the logbook's BM25 and speaker settings. */
@@ -213,7 +215,9 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
     for (const t of prov) covered.add(t);
     distinct.push(x);
   }
-  const out = distinct.slice(0, p.k);
+  // Items far below the best (a neighbour's faint share, a stray word) are noise in a prompt.
+  const floor = distinct.length > 0 && p.minShare > 0 ? p.minShare * Math.max(...distinct.slice(0, 3).map((x) => x.score)) : 0;
+  const out = distinct.filter((x, i) => i === 0 || x.score >= floor || x.placed !== 'score').slice(0, p.k);
   const top = out[0];
   const next = out[1];
   const clear = top !== undefined && (next === undefined || top.score >= p.hitMargin * next.score);

@@ -104,7 +104,7 @@ export class ReadPath {
 
     const ranked = rankTiers(slots, lb, {
       k: p.k, session: ref.session, provenanceWeight: p.provenanceWeight, othersWeight: p.othersWeight, recencyBoost: p.recencyBoost, recencyHalfLife: p.recencyHalfLife, slotPrior: p.slotPrior, denseWeight: core.dense ? p.denseWeight : 0, rrfK: p.rrfK, hitCoverage: p.hitCoverage, hitMargin: p.hitMargin,
-      hitCosine: p.hitCosine, history: history || p.history, query: turn.text, search: this.search,
+      hitCosine: p.hitCosine, history: history || p.history, minShare: p.minShare, query: turn.text, search: this.search,
     });
     const total = ranked.items.reduce((a, x) => a + Math.max(0, x.score), 0) || 1;
     const items = ranked.items.map((x) => this.itemOf(x, total));

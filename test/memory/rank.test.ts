@@ -12,7 +12,7 @@ import type { LogbookEntry } from '../../src/types.js';
 
 const P: RankParams = {
   k: 8, session: 's', provenanceWeight: 0, othersWeight: 1, recencyBoost: 0, recencyHalfLife: 20, slotPrior: 0, denseWeight: 0, rrfK: 60,
-  hitCoverage: 0.3, hitMargin: 1.3, hitCosine: 0.5, history: false, search: LOGBOOK_SEARCH_DEFAULTS,
+  hitCoverage: 0.3, hitMargin: 1.3, hitCosine: 0.5, history: false, minShare: 0, search: LOGBOOK_SEARCH_DEFAULTS,
 };
 const slot = (id: string, keyText: string, value: string, over: Partial<SlotCandidate> = {}): SlotCandidate => ({
   slot: 0, id, keyText, value, provenance: [`p-${id}`], strength: 1, cosine: 0, weight: 0, age: 0, ...over,
