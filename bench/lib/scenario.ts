@@ -53,7 +53,7 @@ const FIRST = ['Dana', 'Priya', 'Tomasz', 'Ines', 'Kwame', 'Maren', 'Yusuf', 'Le
 const LAST = ['Whitfield', 'Okafor', 'Lindqvist', 'Moreau', 'Castellanos', 'Haddad', 'Brennan', 'Novak', 'Achterberg', 'Saltmarsh', 'Penhallow', 'Quist'];
 const STREETS = ['Mill Lane', 'Orchard Row', 'Kestrel Road', 'Fennel Street', 'Tanner Walk', 'Beacon Hill', 'Larch Avenue', 'Quarry Close', 'Willow Bank', 'Harbour Terrace'];
 const TOWNS = ['Ashford', 'Brackley', 'Dunmore', 'Elmstead', 'Fordham', 'Glenrick', 'Holloway', 'Kirkby', 'Lindale', 'Marwood'];
-const BRANDS = ['Brompton', 'Cannondale', 'Surly', 'Bianchi', 'Kona', 'Moulton', 'Pashley', 'Ridgeback'];
+const BRANDS = ['Quenby', 'Ferrow', 'Brackett', 'Velloni', 'Orrin', 'Tarrant', 'Wendell', 'Coldstream'];
 const MODELS = ['Audax', 'Vagabond', 'Tourer', 'Sprint 2', 'Trail 9', 'Roamer', 'Cityline', 'Gravel X'];
 const COLOURS = ['green', 'red', 'matte black', 'teal', 'orange', 'cream', 'silver', 'navy'];
 const PARTS = ['inner tubes', 'brake pads', 'spare chains', 'bottle cages', 'tyre levers', 'cable ties'];
@@ -143,7 +143,7 @@ const BIKE: FactType = {
 
 const PHONE: FactType = {
   name: 'phone',
-  make: (r) => ({ num: `07${String(Math.floor(r() * 1e9)).padStart(9, '0')}` }),
+  make: (r) => ({ num: `07700 900${String(Math.floor(r() * 1000)).padStart(3, '0')}` }), // the UK range set aside for fiction
   state: ['My phone number is {num}.', 'You can reach me on {num}.', 'My mobile is {num}.'],
   ask: ["What is the customer's phone number?", 'Which number can we call them on?'],
 };

@@ -126,6 +126,24 @@ function isQuestionOnly(text: string): boolean {
   return parts.length > 0 && parts.every((x) => /\?\s*$/.test(x) && !REQUEST.test(x));
 }
 
+/** A term held by more than this share of a scope's entries (and at least FREQUENT_MIN) is looked up, not walked. */
+const FREQUENT_SHARE = 0.02;
+const FREQUENT_MIN = 512;
+
+/** Index of `d` in the first `n` entries of ascending `docs`, or -1. */
+function findSorted(docs: Int32Array, n: number, d: number): number {
+  let lo = 0;
+  let hi = n - 1;
+  while (lo <= hi) {
+    const mid = (lo + hi) >> 1;
+    const v = docs[mid]!;
+    if (v === d) return mid;
+    if (v < d) lo = mid + 1;
+    else hi = mid - 1;
+  }
+  return -1;
+}
+
 /** BM25's IDF in the non-negative form Lucene uses: ln(1 + (N − n + 0.5) / (n + 0.5)). */
 export const bm25Idf = (n: number, df: number): number => (df > 0 ? Math.log(1 + (n - df + 0.5) / (df + 0.5)) : 0);
 
@@ -371,20 +389,48 @@ export class LogbookIndex {
     const result: LogbookSearchResult = { hits: [], size: n, avgLength: avg, idf, df: dfs, weight, maxScore, speakers: named, successors: new Map() };
     if (n === 0) return result;
 
-    // 1. Own BM25 of every entry holding a query term.
+    // 1. Own BM25 of every entry holding a query term. Terms with short posting lists are walked in
+    // full; a term held by very many entries (past FREQUENT_SHARE of them) is only looked up for the
+    // entries the rarer terms found and their neighbours, by binary search in its sorted postings
+    // (the idea of MaxScore, Turtle & Flood 1995: an entry matching only the commonest words cannot
+    // rank). So a search costs the short lists plus a few lookups, not the history. Scores of the
+    // entries found are exact; when every query term is common, they are all walked.
     if (this.scratch.length < this.entries.length) this.scratch = new Float64Array(Math.max(this.entries.length, this.scratch.length * 2));
     const own = this.scratch;
     const touched = this.touched;
     touched.length = 0;
+    const frequent = Math.max(FREQUENT_MIN, Math.floor(FREQUENT_SHARE * n));
+    const lists: Array<{ post: Posting; w: number; v: number }> = [];
     for (const [t, w] of weight) {
       const v = idf.get(t)!;
       if (v === 0 || w === 0) continue;
-      const post = this.postings[this.termIds.get(t)!]!;
+      lists.push({ post: this.postings[this.termIds.get(t)!]!, w, v });
+    }
+    const walk = (x: { post: Posting; w: number; v: number }): void => {
+      const post = x.post;
       for (let i = 0; i < post.n; i++) {
         const d = post.docs[i]!;
         if (this.entries[d] === null) continue;
         if (own[d] === 0) touched.push(d);
-        own[d] += w * bm25Term(v, post.tfs[i]!, this.lens[d]!, avg, p.k1, p.b);
+        own[d] += x.w * bm25Term(x.v, post.tfs[i]!, this.lens[d]!, avg, p.k1, p.b);
+      }
+    };
+    const common = lists.filter((x) => x.post.n > frequent);
+    for (const x of lists) if (x.post.n <= frequent) walk(x);
+    if (touched.length === 0) for (const x of common) walk(x);
+    else if (common.length > 0) {
+      const look = new Set<number>(touched);
+      if (p.neighbourWeight > 0) for (const d of touched) {
+        if (this.prev[d]! >= 0) look.add(this.prev[d]!);
+        if (this.next[d]! >= 0) look.add(this.next[d]!);
+      }
+      for (const x of common) {
+        for (const d of look) {
+          const i = findSorted(x.post.docs, x.post.n, d);
+          if (i < 0) continue;
+          if (own[d] === 0) touched.push(d);
+          own[d] += x.w * bm25Term(x.v, x.post.tfs[i]!, this.lens[d]!, avg, p.k1, p.b);
+        }
       }
     }
 

@@ -11,7 +11,7 @@ import { findValueExpr, type ValueKind } from './values.js';
 export interface Candidate {
   /** The topic it is addressed by ("my bike"); embedded as the slot key. */
   key: string;
-  /** What a read recalls ("a green Brompton"). */
+  /** What a read recalls ("a green Quenby"). */
   value: string;
   /** The sentence it came from (used for gate features). */
   text: string;
@@ -306,10 +306,10 @@ function bookingKey(sentence: string): string {
 
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
-  // "a green Brompton with a basket" -> "Brompton": stop at the first preposition.
+  // "a green Quenby with a basket" -> "Quenby": stop at the first preposition.
   const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
-  // A model number is not the noun: "a Kona Sprint 2" -> "sprint".
+  // A model number is not the noun: "a Orrin Sprint 2" -> "sprint".
   const wordy = head.filter((w) => /\p{L}/u.test(w));
   return (wordy[wordy.length - 1] ?? head[head.length - 1] ?? phrase).toLowerCase();
 }

@@ -78,6 +78,46 @@ describe('LogbookIndex BM25', () => {
     );
   });
 
+  it('a word most entries hold is looked up for the rarer words\' finds, with exact scores (MaxScore)', () => {
+    // 2,000 entries; "weather" is in 1,500 of them, far past the share that is walked in full.
+    const idx = new LogbookIndex();
+    const texts: string[] = [];
+    for (let i = 0; i < 2000; i++) {
+      const t = i % 100 === 7 ? 'The tandem needs new brake cables before the weather turns.'
+        : i % 100 === 53 ? 'Collected the tandem frame from the paint shop.'
+        : i % 4 === 3 ? `Order number ${i} left the depot.` : `Quiet day, the weather was mild, ticket ${i}.`;
+      texts.push(t);
+      idx.add(turn('s', i + 1, t));
+    }
+    const want = new Float64Array(texts.length);
+    const stats = texts.map((t) => docStats(analyze(t)));
+    const noCtx = PLAIN;
+    bm25Scores([...new Set(analyze('tandem weather'))], stats, want);
+    const hits = idx.search(q('tandem weather'), noCtx).hits;
+    // Every entry holding the rare word is found, scored as plain BM25 over the whole logbook.
+    const found = new Map(hits.map((h) => [h.entry.seq - 1, h.lexical]));
+    texts.forEach((t, i) => {
+      if (/tandem/.test(t)) expect(found.get(i), `entry ${i}`).toBeCloseTo(want[i]!, 12);
+    });
+    // Entries with only the common word (and, here, no neighbours counted) are not walked: the hits
+    // are the 40 holding the rare word, and those with both words carry the common word's share.
+    expect(hits.length).toBe(40);
+    expect(hits.every((h) => /tandem/.test(h.entry.value))).toBe(true);
+    const both = hits.find((h) => /weather/.test(h.entry.value))!;
+    const tandemOnly = new Float64Array(texts.length);
+    bm25Scores([...new Set(analyze('tandem'))], stats, tandemOnly);
+    expect(tandemOnly[both.entry.seq - 1]).toBeLessThan(both.lexical);
+    // With neighbours on, an entry beside a find is scored too, also exactly.
+    const ctx = idx.search(q('tandem weather'), { ...PLAIN, neighbourWeight: 0.3, limit: 5000 }).hits;
+    const beside = ctx.find((h) => h.entry.seq - 1 === 8)!;
+    expect(beside.lexical).toBeCloseTo(want[8]!, 12);
+    // A query of common words only walks them all.
+    bm25Scores([...new Set(analyze('weather'))], stats, want);
+    const all = idx.search(q('weather'), { ...noCtx, limit: 5000 }).hits;
+    expect(all.length).toBe(texts.filter((t) => /weather/.test(t)).length);
+    for (const h of all.slice(0, 50)) expect(h.lexical).toBeCloseTo(want[h.entry.seq - 1]!, 12);
+  });
+
   it('stems both sides: "painting" finds "painted"', () => {
     const idx = new LogbookIndex();
     idx.add(turn('s', 1, 'I painted the fence.'));

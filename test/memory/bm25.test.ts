@@ -16,7 +16,7 @@ const score = (query: string[], docs: Array<string[] | null>, p = BM25_DEFAULTS)
 describe('bm25Scores by hand', () => {
   // N = 3 documents, total length 10, average length 10/3; k1 = 1.2, b = 0.75.
   const docs = [
-    ['brompton', 'green', 'bike'],
+    ['quenby', 'green', 'bike'],
     ['service', 'tuesday', 'bike', 'bike'],
     ['chain', 'wax', 'allergy'],
   ];
@@ -61,17 +61,17 @@ describe('bm25Scores by hand', () => {
 // okapibm25 counts term frequency with a substring regex and document frequency with includes().
 const corpus = [
   'my name is Dana Whitfield',
-  'my bike is a green Brompton with a basket and a Brompton bag',
+  'my bike is a green Quenby with a basket and a Quenby bag',
   'book a service for Tuesday morning',
   'I am allergic to chain wax, so please use dry lube',
   'the rear brake squeaks when it rains and the front brake rubs',
-  'my daughter rides a red Brompton to school',
+  'my daughter rides a red Quenby to school',
   'service the gears and the brake cables',
 ].map((t) => contentWords(t));
 const queries = [
-  ['brompton'],
+  ['quenby'],
   ['brake', 'service'],
-  ['tuesday', 'service', 'brompton'],
+  ['tuesday', 'service', 'quenby'],
   ['wax', 'lube', 'allergic'],
   ['dana', 'whitfield', 'school', 'gears'],
 ];

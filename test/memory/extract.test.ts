@@ -25,12 +25,12 @@ describe('RuleExtractor', () => {
   });
 
   it('splits "my X is Y" statements', () => {
-    expect(one('My bike is a green Brompton.')).toMatchObject({ key: 'my bike', value: 'a green Brompton' });
+    expect(one('My bike is a green Quenby.')).toMatchObject({ key: 'my bike', value: 'a green Quenby' });
   });
 
   it('finds several facts in one message', () => {
-    const cs = ex.extract('Hi, my name is Dana and my bike is a green Brompton.', 'user');
-    expect(cs.map((c) => [c.key, c.value])).toEqual([['my name', 'Dana'], ['my bike', 'a green Brompton']]);
+    const cs = ex.extract('Hi, my name is Dana and my bike is a green Quenby.', 'user');
+    expect(cs.map((c) => [c.key, c.value])).toEqual([['my name', 'Dana'], ['my bike', 'a green Quenby']]);
   });
 
   it('marks an update of a date ("move it to Friday instead") with the new expression', () => {

@@ -44,14 +44,14 @@ function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePla
 describe('planWrite: allocation', () => {
   it('puts a new fact into the first free slot with the gate as its strength', () => {
     const t = table(3, 3, [rec('a', basis(3, 0))]);
-    const p = plan(t, [cand(basis(3, 1), { key: 'my bike', value: 'a green Brompton' })], { now: 4, nowMs: 5000 });
+    const p = plan(t, [cand(basis(3, 1), { key: 'my bike', value: 'a green Quenby' })], { now: 4, nowMs: 5000 });
     expect(p.outcomes).toEqual([expect.objectContaining({ index: 0, outcome: 'allocated', slot: 1, id: 'new1', cosine: 0 })]);
     expect(p.outcomes[0]!.gate).toBeCloseTo(GATE, 15);
     expect(p.ops).toHaveLength(1);
     const op = p.ops[0]!;
     expect(op.index).toBe(1);
     expect(op.slot).toMatchObject({
-      id: 'new1', keyText: 'my bike', value: 'a green Brompton', provenance: ['t9'], halfLife: 200, stamp: 4, created: 4, createdMs: 5000, updatedMs: 5000, reads: 0, pinned: false,
+      id: 'new1', keyText: 'my bike', value: 'a green Quenby', provenance: ['t9'], halfLife: 200, stamp: 4, created: 4, createdMs: 5000, updatedMs: 5000, reads: 0, pinned: false,
     });
     expect(op.slot!.strength).toBeCloseTo(GATE, 15);
     expect([...op.slot!.key]).toEqual([0, 1, 0]);
