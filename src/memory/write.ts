@@ -108,6 +108,12 @@ export interface WritePlan {
  */
 export const CORRECTION_WINDOW = 12;
 export const BARE_CORRECTION_WINDOW = 3;
+/**
+ * A slot cites at most this many source turns, newest first: a fact restated over thousands of turns
+ * must not grow without bound (every turn stays in the logbook; the slot keeps the recent ones).
+ */
+export const MAX_PROVENANCE = 16;
+const cite = (turn: string, older: readonly string[]): string[] => [turn, ...older.filter((t) => t !== turn)].slice(0, MAX_PROVENANCE);
 
 const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
@@ -417,7 +423,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       if (normalizeText(old.value) === normalizeText(value)) {
         // The same fact again: strengthen it and note the new source.
         const r = reinforce(strengthNow(target), old.halfLife, { gain: p.reinforceGain, growth: p.halfLifeGrowth, maxHalfLife: p.maxHalfLife });
-        const provenance = [kc.turn, ...old.provenance.filter((t) => t !== kc.turn)];
+        const provenance = cite(kc.turn, old.provenance);
         set(target, { ...old, strength: Math.max(r.strength, gate), halfLife: r.halfLife, stamp: now, updatedMs: nowMs, provenance, pinned: old.pinned || c.pin === true });
         writtenBy.set(target, kc.turn);
         plan.outcomes.push({ ...base, outcome: 'reinforced', slot: target, id: old.id });
@@ -435,7 +441,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       }
       const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
       for (let j = 0; j < dim; j++) key[j] = key[j]! * inv;
-      const provenance = [kc.turn, ...provenanceTail.filter((t) => t !== kc.turn)];
+      const provenance = cite(kc.turn, provenanceTail);
       plan.archive.push(toLogbook(old, 'superseded', strengthNow(target), id));
       const rec: SlotRecord = {
         id,

@@ -6,7 +6,7 @@
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { LOGBOOK_SEARCH_DEFAULTS, LogbookIndex, bm25Idf, type LogbookSearchParams } from '../../src/logbook/index.js';
+import { LOGBOOK_SEARCH_DEFAULTS, LogbookIndex, TopK, bm25Idf, gallop, type LogbookSearchParams } from '../../src/logbook/index.js';
 import { analyseQuery } from '../../src/logbook/query.js';
 import { bm25Scores, docStats } from '../../src/memory/bm25.js';
 import { analyze } from '../../src/memory/text.js';
@@ -135,6 +135,34 @@ describe('LogbookIndex BM25', () => {
     const hits = idx.search(q('kayaks'), { ...PLAIN, limit: 1000 }).hits;
     expect(hits).toHaveLength(100);
     expect(hits.every((h) => h.entry.seq > 400 && h.entry.seq % 2 === 0)).toBe(true);
+  });
+});
+
+describe('gallop', () => {
+  it('finds the first position at or past from holding a value >= d, as a linear scan does (fast-check)', () => {
+    fc.assert(
+      fc.property(fc.uniqueArray(fc.integer({ min: 0, max: 500 }), { maxLength: 120 }), fc.nat(130), fc.integer({ min: -5, max: 505 }), (xs, from, d) => {
+        const docs = Int32Array.from(xs.sort((a, b) => a - b));
+        const n = docs.length;
+        const start = Math.min(from, n);
+        let want = start;
+        while (want < n && docs[want]! < d) want++;
+        expect(gallop(docs, start, n, d)).toBe(want);
+      }),
+    );
+  });
+});
+
+describe('TopK', () => {
+  it('keeps what a full sort then a cut keeps, in the same order, ties to the later entry (fast-check)', () => {
+    fc.assert(
+      fc.property(fc.array(fc.integer({ min: 0, max: 6 }), { maxLength: 200 }), fc.integer({ min: 0, max: 30 }), (scores, k) => {
+        const top = new TopK(k);
+        scores.forEach((s, d) => top.offer(d, s));
+        const want = scores.map((score, d) => ({ d, score })).sort((x, y) => y.score - x.score || y.d - x.d).slice(0, k);
+        expect(top.sorted()).toEqual(want);
+      }),
+    );
   });
 });
 

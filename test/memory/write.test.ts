@@ -9,7 +9,7 @@ import { describe, expect, it } from 'vitest';
 import type { Candidate } from '../../src/memory/extract.js';
 import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
 import type { SlotTable } from '../../src/memory/slots.js';
-import { planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
+import { MAX_PROVENANCE, planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
 import { basis, rec, table, vec, writeParams } from './helpers.js';
 
 const flat = (bias: number): GateWeights => {
@@ -113,6 +113,15 @@ describe('planWrite: overwrite', () => {
     expect([...keep]).toEqual([1, 0, 0]);
     const take = plan(make(), [cand(newKey, { key: 'my bike', value: 'a red Pennick' })], {}, { keyBlend: 1 }).ops[0]!.slot!.key;
     for (let j = 0; j < 3; j++) expect(take[j]).toBeCloseTo(newKey[j]!, 6);
+  });
+
+  it('a fact restated many times cites only its newest MAX_PROVENANCE turns', () => {
+    const older = Array.from({ length: 40 }, (_, i) => `t${40 - i}`);
+    const t = table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Harlow', strength: 0.4, provenance: older, createdMs: 10, created: 1 })]);
+    const p = plan(t, [cand(newKey, { key: 'my bike', value: 'a green Harlow' }, 't41')], { now: 10 });
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'reinforced', id: 'old' });
+    const again = p.ops[0]!.slot!;
+    expect(again.provenance).toEqual(['t41', ...older.slice(0, MAX_PROVENANCE - 1)]);
   });
 
   it('allocates instead when the best match is under the overwrite threshold', () => {
