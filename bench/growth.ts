@@ -1,4 +1,4 @@
-// `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--repeat R] [--json]`: the cost
+// `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--block 20] [--repeat R] [--json]`: the cost
 // of one turn against the length of a session's history, for tidemark and for the full-history
 // baseline (`flat` from src/cli/baselines.ts: every turn kept and ranked exhaustively with the same
 // embedder, cosine + BM25), measured side by side in one run on one growing session each.
@@ -83,7 +83,7 @@ async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n
 }
 
 /** Grows both to each length in turn and times `window` turns there, alternating tidemark and baseline turns. */
-async function measure(lengths: readonly number[], window: number, seed: number): Promise<Point[]> {
+async function measure(lengths: readonly number[], window: number, block: number, seed: number): Promise<Point[]> {
   const convo = conversation(lengths[lengths.length - 1]! + window * lengths.length + 10, seed);
   const embedder = new HashingEmbedder({ dim: 384 });
   const store = new InProcessStore();
@@ -117,20 +117,26 @@ async function measure(lengths: readonly number[], window: number, seed: number)
     const rUs = new Float64Array(window);
     const bUs = new Float64Array(window);
     const sUs = new Float64Array(window);
-    for (let w = 0; w < window; w++, n++) {
-      const x = convo[n]!;
-      // Alternate which goes first, so neither always runs on a warmer cache.
-      const order = w % 2 === 0;
+    for (let w0 = 0; w0 < window; w0 += block) {
+      // Blocks of `block` turns each, alternating which goes first, so both share the machine's
+      // noise; within a block one runs alone, so the other's scan (20,000 vectors at 10,000
+      // exchanges) does not evict its caches before every turn. --block 1 alternates single turns.
+      const end = Math.min(window, w0 + block);
+      const order = (w0 / block) % 2 === 0;
       for (const which of order ? ['t', 'b'] : ['b', 't']) {
-        const t0 = performance.now();
-        if (which === 't') {
-          const r = await tidemarkTurn(tm, n, x);
-          rUs[w] = r.readUs;
-          sUs[w] = r.searchUs;
-        } else await baselineTurn(base, emb, n, x);
-        (which === 't' ? tUs : bUs)[w] = (performance.now() - t0) * 1000;
+        for (let w = w0; w < end; w++) {
+          const x = convo[n + w]!;
+          const t0 = performance.now();
+          if (which === 't') {
+            const r = await tidemarkTurn(tm, n + w, x);
+            rUs[w] = r.readUs;
+            sUs[w] = r.searchUs;
+          } else await baselineTurn(base, emb, n + w, x);
+          (which === 't' ? tUs : bUs)[w] = (performance.now() - t0) * 1000;
+        }
       }
     }
+    n += window;
     points.push({
       length,
       tidemark_us: round(percentile(tUs, 50), 1),
@@ -158,8 +164,10 @@ export default async function main(argv: string[]): Promise<void> {
   const repeat = Number(args.values.get('repeat') ?? 1);
   if (!Number.isInteger(window) || window < 10) throw new RangeError(`--window must be an integer >= 10, got ${window}`);
   if (!Number.isInteger(repeat) || repeat < 1) throw new RangeError(`--repeat must be an integer >= 1, got ${repeat}`);
+  const block = Number(args.values.get('block') ?? 20);
+  if (!Number.isInteger(block) || block < 1 || block > window) throw new RangeError(`--block must be an integer from 1 to --window, got ${block}`);
   const runs: Point[][] = [];
-  for (let r = 0; r < repeat; r++) runs.push(await measure(lengths, window, 7 + r));
+  for (let r = 0; r < repeat; r++) runs.push(await measure(lengths, window, block, 7 + r));
   const med = (f: (p: Point) => number): number[] => lengths.map((_, i) => percentile(runs.map((run) => f(run[i]!)), 50));
   const tidemark = med((p) => p.tidemark_us);
   const baseline = med((p) => p.baseline_us);
@@ -167,7 +175,7 @@ export default async function main(argv: string[]): Promise<void> {
   const ratio = round(tidemark[last]! / tidemark[0]!, 2);
   const baselineRatio = round(baseline[last]! / baseline[0]!, 2);
   const p = runs[0]!;
-  console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
+  console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns in alternating blocks of ${block}${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
   console.log(asciiTable(
     ['history (exchanges)', 'tidemark µs', 'p95', 'of which read', 'of which search', 'flat baseline µs', 'p95', 'slots', 'logbook entries', 'baseline turns'],
     lengths.map((l, i) => [
@@ -181,7 +189,7 @@ export default async function main(argv: string[]): Promise<void> {
     logX: true, logY: true,
     series: [{ name: 'tidemark', x: lengths, y: tidemark }, { name: 'flat baseline', x: lengths, y: baseline }],
   });
-  const out = { lengths, tidemark_us: tidemark, baseline_us: baseline, ratio, baseline_ratio: baselineRatio, window, repeat, points: runs, load: loadAverage(), machine: machine() };
+  const out = { lengths, tidemark_us: tidemark, baseline_us: baseline, ratio, baseline_ratio: baselineRatio, window, block, repeat, points: runs, load: loadAverage(), machine: machine() };
   const paths = writeResult('growth', out, svg, ['growth', ...argv]);
   console.log(`wrote ${paths.json} and ${paths.svg}`);
   if (args.flags.has('json')) console.log(JSON.stringify(out));

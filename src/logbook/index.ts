@@ -2,53 +2,34 @@
 // for Okapi BM25 (Robertson & Zaragoza 2009) kept incrementally as entries arrive, each turn linked to
 // the turns before and after it in its session, the speakers who said them, the dates they mention,
 // and optionally a vector index (exact scan, HNSW past a size). Pure: no I/O; both stores keep one
-// per scope. A search costs O(postings of the query's terms), not O(entries).
+// per scope. A search walks the postings of the query's rarer terms and looks up the common ones
+// (see search), not every entry.
 
 import type { Archive } from '../archive/archive.js';
 import { createArchive, type ArchiveOptions } from '../archive/index.js';
 import { dateTerms } from '../memory/dates.js';
+import { READ_DEFAULTS, type ReadParams } from '../memory/params.js';
 import { analyze, tokenize } from '../memory/text.js';
 import type { LogbookEntry } from '../types.js';
 
-/** How one search scores entries. Every field is a read option (see ReadParams). */
-export interface LogbookSearchParams {
-  /** BM25 term-frequency saturation. @default 1.2 */
-  k1: number;
-  /** BM25 length normalisation. @default 0.75 */
-  b: number;
-  /** Share of each neighbouring turn's score a turn receives (its context). @default 0.3 */
-  neighbourWeight: number;
-  /** A turn said by a person the query names scores × (1 + speakerBoost). @default 1 */
-  speakerBoost: number;
-  /** Weight of a speaker's name as a plain query term (it also matches greetings). @default 0.2 */
-  nameWeight: number;
-  /** Weight of a resolved-date term of the query. @default 1 */
-  dateWeight: number;
-  /** On a "when" question, a turn that mentions a date scores × (1 + temporalBoost). @default 0.3 */
-  temporalBoost: number;
-  /**
-   * A bot's own reply (an assistant turn with no speaker named) scores × replyWeight: it restates or
-   * proposes, while the user's words are the fact. Turns of named speakers are peers. @default 0.4
-   */
-  replyWeight: number;
-  /** A turn that only asks for information scores × questionWeight: it is context, rarely the fact. @default 0.7 */
-  questionWeight: number;
-  /** Entries returned by the lexical ranking at most. @default 50 */
+/** How one search scores entries: the read options that concern the logbook (see ReadParams). */
+export type LogbookSearchParams = Pick<
+  ReadParams,
+  'k1' | 'b' | 'neighbourWeight' | 'speakerBoost' | 'nameWeight' | 'dateWeight' | 'temporalBoost' | 'replyWeight' | 'questionWeight'
+> & {
+  /** Entries returned by the lexical ranking at most (read.logbookLimit). */
   limit: number;
+};
+
+/** The logbook search settings of a read's parameters. */
+export function searchParamsOf(p: ReadParams): LogbookSearchParams {
+  return {
+    k1: p.k1, b: p.b, neighbourWeight: p.neighbourWeight, speakerBoost: p.speakerBoost, nameWeight: p.nameWeight,
+    dateWeight: p.dateWeight, temporalBoost: p.temporalBoost, replyWeight: p.replyWeight, questionWeight: p.questionWeight, limit: p.logbookLimit,
+  };
 }
 
-export const LOGBOOK_SEARCH_DEFAULTS: LogbookSearchParams = {
-  k1: 1.2,
-  b: 0.75,
-  neighbourWeight: 0.3,
-  speakerBoost: 1,
-  nameWeight: 0.2,
-  dateWeight: 1,
-  temporalBoost: 0.3,
-  replyWeight: 0.4,
-  questionWeight: 0.7,
-  limit: 50,
-};
+export const LOGBOOK_SEARCH_DEFAULTS: LogbookSearchParams = searchParamsOf(READ_DEFAULTS);
 
 /** A query, analysed once by the caller (the same analysis scores slots). */
 export interface LogbookQuery {
@@ -133,6 +114,16 @@ function isQuestionOnly(text: string): boolean {
  * cost recall on the bot scenario.
  */
 const FREQUENT = 128;
+/**
+ * A walk of one posting list stops after this many postings, newest first, so a search's cost is
+ * bounded whatever the history's length. Only words held by more than this many entries are cut.
+ */
+const WALK_BUDGET = 1024;
+
+/** Offsets in an entry's four slots of LogbookIndex.meta (0 is its length). */
+const PREV = 1;
+const NEXT = 2;
+const FLAGS = 3;
 
 /**
  * The first index i in [from, n) with docs[i] >= d (n when none), for ascending `docs`: an
@@ -256,14 +247,16 @@ export class LogbookIndex {
   private readonly o: Required<Pick<LogbookIndexOptions, 'vectors'>> & LogbookIndexOptions;
   // Documents, by dense number; a removed one keeps its number (alive = 0) until compaction.
   private entries: (LogbookEntry | null)[] = [];
-  private lens: number[] = [];
   private docTerms: Int32Array[] = [];
   private docTfs: Uint16Array[] = [];
-  private prev: number[] = [];
-  private next: number[] = [];
   private speakerOf: string[] = [];
   /** Bit 0: mentions a date; bit 1: a bot's reply (assistant, no speaker); bit 2: a question only. */
-  private dated: Uint8Array = new Uint8Array(64);
+  /**
+   * Per entry, packed so one cache line serves four: [length in terms (-1 once removed), previous
+   * turn of its session, next turn (-1 when none), flags (1 mentions a date, 2 a bot's reply, 4 a
+   * question only)]. A search touches these for every posting and candidate.
+   */
+  private meta: Int32Array = new Int32Array(4 * 64);
   private readonly byId = new Map<string, number>();
   // Terms: id -> postings; df counts live documents only.
   private readonly termIds = new Map<string, number>();
@@ -338,19 +331,19 @@ export class LogbookIndex {
       this.df[id] = (this.df[id] ?? 0) + 1;
     }
     this.entries.push(entry);
-    this.lens.push(terms.length);
     this.docTerms.push(ids);
     this.docTfs.push(tfs);
-    this.prev.push(-1);
-    this.next.push(-1);
     const speaker = (entry.speaker ?? entry.owner ?? '').toLowerCase();
     this.speakerOf.push(speaker);
-    if (d >= this.dated.length) {
-      const grown = new Uint8Array(this.dated.length * 2);
-      grown.set(this.dated);
-      this.dated = grown;
+    if (4 * d + 4 > this.meta.length) {
+      const grown = new Int32Array(this.meta.length * 2);
+      grown.set(this.meta);
+      this.meta = grown;
     }
-    this.dated[d] = (entry.dates && entry.dates.length > 0 ? 1 : 0) | (entry.role === 'assistant' && !entry.speaker ? 2 : 0) | (entry.kind === 'turn' && isQuestionOnly(entry.value) ? 4 : 0);
+    this.meta[4 * d] = terms.length;
+    this.meta[4 * d + PREV] = -1;
+    this.meta[4 * d + NEXT] = -1;
+    this.meta[4 * d + FLAGS] = (entry.dates && entry.dates.length > 0 ? 1 : 0) | (entry.role === 'assistant' && !entry.speaker ? 2 : 0) | (entry.kind === 'turn' && isQuestionOnly(entry.value) ? 4 : 0);
     this.byId.set(entry.id, d);
     this.live++;
     this.totalLen += terms.length;
@@ -384,9 +377,10 @@ export class LogbookIndex {
     const ids = this.docTerms[d]!;
     for (let i = 0; i < ids.length; i++) this.df[ids[i]!]!--;
     this.live--;
-    this.totalLen -= this.lens[d]!;
+    this.totalLen -= this.meta[4 * d]!;
     this.byId.delete(id);
     this.entries[d] = null;
+    this.meta[4 * d] = -1;
     if (e.kind === 'turn') this.unlink(d, e);
     if (e.kind === 'superseded' && e.provenance.length > 0) {
       const bySession = this.staleTurns.get(e.session);
@@ -419,13 +413,10 @@ export class LogbookIndex {
   clear(): void {
     this.entries = [];
     this.head = 0;
-    this.lens = [];
     this.docTerms = [];
     this.docTfs = [];
-    this.prev = [];
-    this.next = [];
     this.speakerOf = [];
-    this.dated = new Uint8Array(64);
+    this.meta = new Int32Array(4 * 64);
     this.byId.clear();
     this.termIds.clear();
     this.postings = [];
@@ -479,11 +470,13 @@ export class LogbookIndex {
     // FREQUENT entries) are walked in full; a term held by more is only looked up, by binary search in
     // its sorted postings, for the entries the rarer terms found and their neighbours (the idea of
     // MaxScore, Turtle & Flood 1995: an entry holding only the commonest words of a query seldom
-    // ranks). When every term is common, the rarest is walked and the rest looked up. So a search
-    // costs a few short lists and lookups, not the history; the scores of the entries found are
-    // exact, and what is left out is an entry holding only common words the found ones lack.
+    // ranks). When every term is common, the rarest is walked and the rest looked up. A walk takes
+    // at most WALK_BUDGET postings, the newest. So a search costs a few short lists and lookups,
+    // bounded whatever the history's length; the scores of the entries found are exact, and what is
+    // left out is an entry holding only common words the found ones lack.
     if (this.scratch.length < this.entries.length) this.scratch = new Float64Array(Math.max(this.entries.length, this.scratch.length * 2));
     const own = this.scratch;
+    const meta = this.meta;
     const touched = this.touched;
     touched.length = 0;
     const frequent = FREQUENT;
@@ -493,13 +486,17 @@ export class LogbookIndex {
       if (v === 0 || w === 0) continue;
       lists.push({ post: this.postings[this.termIds.get(t)!]!, w, v });
     }
+    // A walk goes newest first and stops after WALK_BUDGET postings: a common word's oldest
+    // entries are reached only through the rarer words they hold (or as neighbours).
     const walk = (x: { post: Posting; w: number; v: number }): void => {
       const post = x.post;
-      for (let i = 0; i < post.n; i++) {
+      const stop = Math.max(0, post.n - WALK_BUDGET);
+      for (let i = post.n - 1; i >= stop; i--) {
         const d = post.docs[i]!;
-        if (this.entries[d] === null) continue;
+        const len = meta[4 * d]!;
+        if (len < 0) continue; // removed
         if (own[d] === 0) touched.push(d);
-        own[d] += x.w * bm25Term(x.v, post.tfs[i]!, this.lens[d]!, avg, p.k1, p.b);
+        own[d] += x.w * bm25Term(x.v, post.tfs[i]!, len, avg, p.k1, p.b);
       }
     };
     const common = lists.filter((x) => x.post.n > frequent).sort((x, y) => x.post.n - y.post.n);
@@ -510,8 +507,9 @@ export class LogbookIndex {
       const look = Int32Array.from(this.distinct(touched, p.neighbourWeight > 0)).sort();
       for (const x of common) {
         // A lookup gallops through the postings (both lists ascending); when the entries to look up
-        // are nearly as many as the postings, walking the list is as cheap and exact.
-        if (4 * look.length >= x.post.n) {
+        // are nearly as many as the postings of a list within the walk budget, walking it is as
+        // cheap and as exact.
+        if (x.post.n <= WALK_BUDGET && 4 * look.length >= x.post.n) {
           walk(x);
           continue;
         }
@@ -522,7 +520,7 @@ export class LogbookIndex {
           j = gallop(docs, j, x.post.n, d);
           if (j >= x.post.n || docs[j] !== d) continue;
           if (own[d] === 0) touched.push(d);
-          own[d] += x.w * bm25Term(x.v, x.post.tfs[j]!, this.lens[d]!, avg, p.k1, p.b);
+          own[d] += x.w * bm25Term(x.v, x.post.tfs[j]!, meta[4 * d]!, avg, p.k1, p.b);
         }
       }
     }
@@ -532,17 +530,18 @@ export class LogbookIndex {
     const namedSet = new Set(named);
     const top = new TopK(p.limit);
     const ctxOf = (d: number): number => {
-      const a = this.prev[d]!;
-      const b = this.next[d]!;
+      const a = meta[4 * d + PREV]!;
+      const b = meta[4 * d + NEXT]!;
       return p.neighbourWeight > 0 ? p.neighbourWeight * ((a >= 0 ? own[a]! : 0) + (b >= 0 ? own[b]! : 0)) : 0;
     };
     for (const d of cand) {
       let s = own[d]! + ctxOf(d);
       if (s <= 0) continue;
       if (namedSet.size > 0 && namedSet.has(this.speakerOf[d]!)) s *= 1 + p.speakerBoost;
-      if (q.temporal && (this.dated[d]! & 1) !== 0) s *= 1 + p.temporalBoost;
-      if ((this.dated[d]! & 2) !== 0) s *= p.replyWeight;
-      if ((this.dated[d]! & 4) !== 0) s *= p.questionWeight;
+      const flags = meta[4 * d + FLAGS]!;
+      if (q.temporal && (flags & 1) !== 0) s *= 1 + p.temporalBoost;
+      if ((flags & 2) !== 0) s *= p.replyWeight;
+      if ((flags & 4) !== 0) s *= p.questionWeight;
       top.offer(d, s);
     }
     // Best first; ties go to the later entry (the newer statement).
@@ -616,8 +615,8 @@ export class LogbookIndex {
     for (const d of docs) add(d);
     if (neighbours) {
       for (const d of docs) {
-        add(this.prev[d]!);
-        add(this.next[d]!);
+        add(this.meta[4 * d + PREV]!);
+        add(this.meta[4 * d + NEXT]!);
       }
     }
     return out;
@@ -685,10 +684,11 @@ export class LogbookIndex {
     o.docs.splice(lo, 0, d);
     const before = lo > 0 ? o.docs[lo - 1]! : -1;
     const after = lo + 1 < o.docs.length ? o.docs[lo + 1]! : -1;
-    this.prev[d] = before;
-    this.next[d] = after;
-    if (before >= 0) this.next[before] = d;
-    if (after >= 0) this.prev[after] = d;
+    const m = this.meta;
+    m[4 * d + PREV] = before;
+    m[4 * d + NEXT] = after;
+    if (before >= 0) m[4 * before + NEXT] = d;
+    if (after >= 0) m[4 * after + PREV] = d;
   }
 
   private unlink(d: number, e: LogbookEntry): void {
@@ -698,12 +698,13 @@ export class LogbookIndex {
     if (at < 0) return;
     o.seqs.splice(at, 1);
     o.docs.splice(at, 1);
-    const before = this.prev[d]!;
-    const after = this.next[d]!;
-    if (before >= 0) this.next[before] = after;
-    if (after >= 0) this.prev[after] = before;
-    this.prev[d] = -1;
-    this.next[d] = -1;
+    const m = this.meta;
+    const before = m[4 * d + PREV]!;
+    const after = m[4 * d + NEXT]!;
+    if (before >= 0) m[4 * before + NEXT] = after;
+    if (after >= 0) m[4 * after + PREV] = before;
+    m[4 * d + PREV] = -1;
+    m[4 * d + NEXT] = -1;
     if (o.docs.length === 0) this.order.delete(e.session);
   }
 

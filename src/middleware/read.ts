@@ -10,23 +10,13 @@ import { resolveDates } from '../memory/dates.js';
 import { decayed } from '../memory/decay.js';
 import { renderPrompt } from '../memory/prompt.js';
 import { rankTiers, type RankedItem, type SlotCandidate } from '../memory/rank.js';
-import type { ReadParams } from '../memory/params.js';
-import { LogbookIndex, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
+import { LogbookIndex, searchParamsOf, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
 import { analyseQuery } from '../logbook/query.js';
 import { scopeOf } from '../store/in-process.js';
 import type { SessionSnapshot } from '../store/store.js';
 import type { MemoryContext, ReadTrace, RecallItem, SessionRef } from '../types.js';
 import { Core, errMessage, keyOf, refOf, sleep, usSince } from './core.js';
 import type { Turn } from './validate.js';
-
-/** The logbook search settings of a read's parameters. */
-export function searchParamsOf(p: ReadParams): LogbookSearchParams {
-  return {
-    k1: p.k1, b: p.b, neighbourWeight: p.neighbourWeight, speakerBoost: p.speakerBoost, nameWeight: p.nameWeight,
-    dateWeight: p.dateWeight, temporalBoost: p.temporalBoost, replyWeight: p.replyWeight, questionWeight: p.questionWeight, limit: p.logbookLimit,
-  };
-}
-
 
 /** An empty logbook, searched when a read leaves the logbook out. */
 const NO_LOGBOOK = new LogbookIndex();

@@ -111,11 +111,18 @@ describe('LogbookIndex BM25', () => {
     const ctx = idx.search(q('tandem weather'), { ...PLAIN, neighbourWeight: 0.3, limit: 5000 }).hits;
     const beside = ctx.find((h) => h.entry.seq - 1 === 8)!;
     expect(beside.lexical).toBeCloseTo(want[8]!, 12);
-    // A query of common words only walks them all.
+    // A query of common words only walks the rarest, newest first, up to the walk budget (1,024):
+    // the newest 1,024 of the 1,500 entries holding "weather", each scored exactly.
     bm25Scores([...new Set(analyze('weather'))], stats, want);
     const all = idx.search(q('weather'), { ...noCtx, limit: 5000 }).hits;
-    expect(all.length).toBe(texts.filter((t) => /weather/.test(t)).length);
-    for (const h of all.slice(0, 50)) expect(h.lexical).toBeCloseTo(want[h.entry.seq - 1]!, 12);
+    const holding = texts.map((t, i) => (/weather/.test(t) ? i : -1)).filter((i) => i >= 0);
+    expect(holding.length).toBe(1500);
+    expect(new Set(all.map((h) => h.entry.seq - 1))).toEqual(new Set(holding.slice(-1024)));
+    for (const h of all) expect(h.lexical).toBeCloseTo(want[h.entry.seq - 1]!, 12);
+    // A rare word still finds its oldest entries, and the common word is looked up for them.
+    const oldest = idx.search(q('tandem weather'), { ...noCtx, limit: 5000 }).hits.find((h) => h.entry.seq - 1 === 7)!;
+    bm25Scores([...new Set(analyze('tandem weather'))], stats, want);
+    expect(oldest.lexical).toBeCloseTo(want[7]!, 12);
   });
 
   it('stems both sides: "painting" finds "painted"', () => {
