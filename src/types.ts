@@ -214,7 +214,10 @@ export interface RecallItem {
   cosine: number;
   /** Own BM25 score of the item for the query. */
   lexical: number;
-  /** Own BM25 over the query's maximum: how much of the query the item covers. */
+  /**
+   * Own BM25 over the sum of the query terms' IDF: how much of the query the item covers. It passes 1
+   * when a short text holds the query's words (a BM25 term weight reaches (k1 + 1) × IDF).
+   */
   coverage: number;
   /** Strength at read time (slots; 0 for logbook entries). */
   strength: number;

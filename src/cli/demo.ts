@@ -116,6 +116,10 @@ export async function runDemo(options: DemoOptions = {}): Promise<{ friday: bool
 function describeRecall(items: ReadonlyArray<RecallItem>): string {
   if (items.length === 0) return 'nothing';
   return items
-    .map((i) => `${i.key === i.value ? i.value : `${i.key}: ${i.value}`} (weight ${i.weight.toFixed(2)}, ${i.provenance.join('+')}${i.source === 'logbook' ? `, logbook/${i.kind}` : ''})`)
+    .map((i) => {
+      // A kept turn has no key: say who said it instead.
+      const head = i.key === '' || i.key === i.value ? (i.kind === 'turn' ? `${i.speaker ?? i.role ?? 'turn'} said "${i.value}"` : i.value) : `${i.key}: ${i.value}`;
+      return `${head} (weight ${i.weight.toFixed(2)}, ${i.provenance.join('+')}${i.source === 'logbook' ? `, logbook/${i.kind}` : ''})`;
+    })
     .join('; ');
 }

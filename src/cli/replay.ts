@@ -576,6 +576,7 @@ export function parseK(v: number | string | undefined): number | undefined {
 
 const fmt = (x: number, d = 3): string => x.toFixed(d);
 const int = (x: number): string => Math.round(x).toLocaleString('en-US');
+const readsLine = (r: Record<ReadResult, number>): string => `${int(r.slot)} hit in slots, ${int(r.logbook)} in the logbook, ${int(r.miss)} miss`;
 
 /** The readable table: tidemark beside the baselines, then tidemark's counters. */
 export function formatReplayTable(r: ReplayResult): string {
@@ -608,7 +609,7 @@ export function formatReplayTable(r: ReplayResult): string {
     '',
     ...lines,
     '',
-    `reads      slot ${int(s.reads.slot)}, logbook ${int(s.reads.logbook)}, miss ${int(s.reads.miss)} (probe reads: ${s.probe_reads.slot}/${s.probe_reads.logbook}/${s.probe_reads.miss}; hit precision ${opt(s.hit_precision)}, hit recall ${opt(s.hit_recall)})`,
+    `reads      of turns: ${readsLine(s.reads)}; of probes: ${readsLine(s.probe_reads)} (hit precision ${opt(s.hit_precision)}, hit recall ${opt(s.hit_recall)})`,
     `working    ${int(t.working.slots_in_use)} slots in use (${fmt(t.working.slots_in_use / Math.max(1, s.sessions), 1)} per session of ${s.capacity}); ` +
       `allocated ${int(s.writes.allocated)}, overwritten ${int(s.writes.overwritten)}, ambiguous kept beside ${int(t.working.writes.ambiguous)}, reinforced ${int(s.writes.reinforced)}, gated out ${int(s.writes.gated_out)}`,
     `evictions  capacity ${int(s.evictions.capacity)}, decayed ${int(s.evictions.decayed)}, expired ${int(s.evictions.expired)}`,
