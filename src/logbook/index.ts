@@ -7,9 +7,11 @@
 
 import type { Archive } from '../archive/archive.js';
 import { createArchive, type ArchiveOptions } from '../archive/index.js';
+import { bm25Idf, bm25Term } from '../memory/bm25.js';
 import { dateTerms } from '../memory/dates.js';
 import { READ_DEFAULTS, type ReadParams } from '../memory/params.js';
 import { analyze, tokenize } from '../memory/text.js';
+import { pushTopK } from '../memory/vector.js';
 import type { LogbookEntry } from '../types.js';
 
 /** How one search scores entries: the read options that concern the logbook (see ReadParams). */
@@ -150,77 +152,7 @@ export function gallop(docs: Int32Array, from: number, n: number, d: number): nu
   return hi;
 }
 
-/**
- * The best `k` of a stream of (entry, score) pairs, best = higher score, then the later entry: a
- * binary min-heap of size k whose root is the worst kept, so a search costs O(m log k), not a sort
- * of every candidate.
- */
-export class TopK {
-  private readonly ds: number[] = [];
-  private readonly ss: number[] = [];
-  constructor(private readonly k: number) {}
-
-  /** a is worse than b. */
-  private worse(i: number, j: number): boolean {
-    const a = this.ss[i]!;
-    const b = this.ss[j]!;
-    return a < b || (a === b && this.ds[i]! < this.ds[j]!);
-  }
-
-  private swap(i: number, j: number): void {
-    const d = this.ds[i]!;
-    this.ds[i] = this.ds[j]!;
-    this.ds[j] = d;
-    const s = this.ss[i]!;
-    this.ss[i] = this.ss[j]!;
-    this.ss[j] = s;
-  }
-
-  /** Offers a pair; true when it is kept (for now). */
-  offer(d: number, score: number): boolean {
-    if (this.k <= 0) return false;
-    const n = this.ds.length;
-    if (n < this.k) {
-      this.ds.push(d);
-      this.ss.push(score);
-      for (let i = n; i > 0; ) {
-        const up = (i - 1) >> 1;
-        if (!this.worse(i, up)) break;
-        this.swap(i, up);
-        i = up;
-      }
-      return true;
-    }
-    const root = this.ss[0]!;
-    if (score < root || (score === root && d < this.ds[0]!)) return false;
-    this.ds[0] = d;
-    this.ss[0] = score;
-    for (let i = 0; ; ) {
-      const l = 2 * i + 1;
-      const r = l + 1;
-      let m = i;
-      if (l < n && this.worse(l, m)) m = l;
-      if (r < n && this.worse(r, m)) m = r;
-      if (m === i) break;
-      this.swap(i, m);
-      i = m;
-    }
-    return true;
-  }
-
-  /** What was kept, best first. */
-  sorted(): Array<{ d: number; score: number }> {
-    return this.ds.map((d, i) => ({ d, score: this.ss[i]! })).sort((x, y) => y.score - x.score || y.d - x.d);
-  }
-}
-
-/** BM25's IDF in the non-negative form Lucene uses: ln(1 + (N − n + 0.5) / (n + 0.5)). */
-export const bm25Idf = (n: number, df: number): number => (df > 0 ? Math.log(1 + (n - df + 0.5) / (df + 0.5)) : 0);
-
-/** The BM25 term score of one document. */
-export function bm25Term(idf: number, tf: number, len: number, avg: number, k1: number, b: number): number {
-  return (idf * (tf * (k1 + 1))) / (tf + k1 * (1 - b + (b * len) / (avg || 1)));
-}
+export { bm25Idf, bm25Term };
 
 interface Posting {
   docs: Int32Array;
@@ -528,7 +460,8 @@ export class LogbookIndex {
     // 2. Context from neighbours, then boosts; candidates are the touched entries and their neighbours.
     const cand = this.distinct(touched, p.neighbourWeight > 0);
     const namedSet = new Set(named);
-    const top = new TopK(p.limit);
+    const topD: number[] = [];
+    const topS: number[] = [];
     const ctxOf = (d: number): number => {
       const a = meta[4 * d + PREV]!;
       const b = meta[4 * d + NEXT]!;
@@ -542,15 +475,15 @@ export class LogbookIndex {
       if (q.temporal && (flags & 1) !== 0) s *= 1 + p.temporalBoost;
       if ((flags & 2) !== 0) s *= p.replyWeight;
       if ((flags & 4) !== 0) s *= p.questionWeight;
-      top.offer(d, s);
+      pushTopK(topD, topS, d, s, p.limit, true);
     }
     // Best first; ties go to the later entry (the newer statement).
     const hits = new Map<number, LogbookHit>();
-    top.sorted().forEach((x, r) => {
-      hits.set(x.d, {
-        entry: this.entries[x.d]!, score: x.score, lexical: own[x.d]!, context: ctxOf(x.d),
-        coverage: maxScore > 0 ? own[x.d]! / maxScore : 0, cosine: NaN, lexicalRank: r + 1, denseRank: 0,
-        speakerMatch: namedSet.has(this.speakerOf[x.d]!),
+    topD.forEach((d, r) => {
+      hits.set(d, {
+        entry: this.entries[d]!, score: topS[r]!, lexical: own[d]!, context: ctxOf(d),
+        coverage: maxScore > 0 ? own[d]! / maxScore : 0, cosine: NaN, lexicalRank: r + 1, denseRank: 0,
+        speakerMatch: namedSet.has(this.speakerOf[d]!),
       });
     });
 

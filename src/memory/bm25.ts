@@ -24,6 +24,14 @@ export interface Bm25Params {
 
 export const BM25_DEFAULTS: Bm25Params = { k1: 1.2, b: 0.75 };
 
+/** BM25's IDF in the non-negative form Lucene uses: ln(1 + (N − n + 0.5) / (n + 0.5)); 0 for an unseen term. */
+export const bm25Idf = (n: number, df: number): number => (df > 0 ? Math.log(1 + (n - df + 0.5) / (df + 0.5)) : 0);
+
+/** The BM25 term score of one document: its IDF, saturated by term frequency, normalised by length. */
+export function bm25Term(idf: number, tf: number, len: number, avg: number, k1: number, b: number): number {
+  return (idf * (tf * (k1 + 1))) / (tf + k1 * (1 - b + (b * len) / (avg || 1)));
+}
+
 /**
  * BM25 score of each document for a query. `docs[i]` may be null (a free slot): its score is 0 and
  * it does not count toward N or the average length. Writes into `out` (length docs.length).
@@ -52,13 +60,13 @@ export function bm25Scores(
     let df = 0;
     for (const d of docs) if (d && d.tf.has(term)) df++;
     if (df === 0) continue;
-    const idf = Math.log(1 + (n - df + 0.5) / (df + 0.5));
+    const idf = bm25Idf(n, df);
     for (let i = 0; i < docs.length; i++) {
       const d = docs[i];
       if (!d) continue;
       const f = d.tf.get(term);
       if (!f) continue;
-      out[i]! += (idf * (f * (p.k1 + 1))) / (f + p.k1 * (1 - p.b + (p.b * d.len) / avg));
+      out[i]! += bm25Term(idf, f, d.len, avg, p.k1, p.b);
     }
   }
 }

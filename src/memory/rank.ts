@@ -8,8 +8,8 @@
 
 import type { LogbookEntry } from '../types.js';
 import type { LogbookHit, LogbookSearchParams, LogbookSearchResult } from '../logbook/index.js';
-import { bm25Idf, bm25Term } from '../logbook/index.js';
-import { analyze, stem } from './text.js';
+import { bm25Idf, bm25Term } from './bm25.js';
+import { analyze, normalizeText, stem } from './text.js';
 
 /** A slot as the ranking sees it. */
 export interface SlotCandidate {
@@ -173,10 +173,14 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
     });
   });
   const seen = new Set(items.map((x) => x.id));
-  const same = p.query !== undefined ? normalized(p.query) : null;
+  const same = p.query !== undefined ? normalizeText(p.query) : null;
+  // The question asked again is not its own answer. Normalising drops only punctuation and spacing,
+  // so a text over twice the query's length would have to be mostly punctuation to equal it: those
+  // skip the regex.
+  const isRepeat = (text: string): boolean => same !== null && text.length <= 2 * p.query!.length + 8 && normalizeText(text) === same;
   for (const h of lb.hits) {
     if (seen.has(h.entry.id)) continue; // a promoted value still in the logbook: the slot stands for it
-    if (same !== null && h.entry.kind === 'turn' && normalized(h.entry.value) === same) continue;
+    if (h.entry.kind === 'turn' && isRepeat(h.entry.value)) continue;
     seen.add(h.entry.id);
     items.push(fromHit(h, maxScore));
   }
@@ -224,8 +228,6 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   const hit = top !== undefined && ((top.coverage >= p.hitCoverage && clear) || (p.denseWeight > 0 && top.cosine >= p.hitCosine));
   return { items: out, hit };
 }
-
-const normalized = (t: string): string => t.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
 const byScore = (a: RankedItem, b: RankedItem): number =>
   b.score - a.score || (a.source === b.source ? 0 : a.source === 'slot' ? -1 : 1) || (b.entry?.seq ?? 0) - (a.entry?.seq ?? 0);

@@ -3,6 +3,9 @@
 
 import { stemmer as porterStem } from 'stemmer';
 
+/** Lower case, every run of non-letters and non-digits one space: for "the same words" comparisons. */
+export const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
+
 /** Lower-cased word tokens: letters and digits (any script), apostrophes inside words dropped. */
 export function tokenize(text: string): string[] {
   const out: string[] = [];

@@ -42,16 +42,19 @@ export function cosine(a: ArrayLike<number>, b: ArrayLike<number>): number {
 
 /**
  * Keeps the k best (index, score) pairs in two parallel arrays sorted best first. Insertion into a
- * short sorted array beats a heap for the small k used here.
+ * short sorted array beats a heap for the small k used here. On equal scores the pair offered first
+ * wins, or, with `laterWins`, the higher index (the logbook's newer entry).
  */
-export function pushTopK(idx: number[], score: number[], i: number, s: number, k: number): void {
-  if (score.length === k && s <= score[k - 1]!) return;
+export function pushTopK(idx: number[], score: number[], i: number, s: number, k: number, laterWins = false): void {
+  if (k <= 0) return;
+  const above = (j: number): boolean => score[j]! > s || (score[j] === s && !(laterWins && idx[j]! < i));
+  if (score.length === k && above(k - 1)) return;
   let p = score.length < k ? score.length : k - 1;
   if (score.length < k) {
     idx.push(i);
     score.push(s);
   }
-  while (p > 0 && score[p - 1]! < s) {
+  while (p > 0 && !above(p - 1)) {
     idx[p] = idx[p - 1]!;
     score[p] = score[p - 1]!;
     p--;

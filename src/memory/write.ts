@@ -19,7 +19,7 @@ import type { Candidate } from './extract.js';
 import { gateFeatures, gateScore, type GateFeatures } from './gate.js';
 import type { WriteParams } from './params.js';
 import type { SlotTable } from './slots.js';
-import { analyze } from './text.js';
+import { analyze, normalizeText } from './text.js';
 import { findAll, type ValueKind } from './values.js';
 import { dot } from './vector.js';
 
@@ -115,7 +115,6 @@ export const BARE_CORRECTION_WINDOW = 3;
 export const MAX_PROVENANCE = 16;
 const cite = (turn: string, older: readonly string[]): string[] => [turn, ...older.filter((t) => t !== turn)].slice(0, MAX_PROVENANCE);
 
-const normalizeText = (s: string): string => s.toLowerCase().replace(/[^\p{L}\p{N}]+/gu, ' ').trim();
 
 /** Words that say nothing about which fact a statement is about. */
 const GENERIC = new Set(

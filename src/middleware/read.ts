@@ -41,15 +41,20 @@ export class ReadPath {
     let lb: LogbookSearchResult;
     let searchUs = 0;
     try {
-      // Both round trips inside one deadline: a stalled store never holds the turn past readTimeoutMs.
-      const loaded = await this.withinDeadline(ref, t0, async () => {
-        const s = await this.load(ref, t0);
-        const s0 = performance.now();
-        // With the logbook left out, the search still runs on an empty scope: its statistics score the slots.
-        const r = p.tiers === 'slots'
-          ? NO_LOGBOOK.search(analysed, this.search)
-          : await core.store.searchLogbook(scopeOf(ref), { ...analysed, ...(core.dense ? { vector: q!, denseK: p.logbookLimit } : {}) }, this.search);
-        searchUs = usSince(s0);
+      // The load and the search run side by side (one round trip each on Redis), both inside one
+      // deadline: a stalled store never holds the turn past readTimeoutMs.
+      const loaded = await this.withinDeadline(t0, async () => {
+        await this.pendingWrite(ref, t0);
+        const search = async (): Promise<LogbookSearchResult> => {
+          const s0 = performance.now();
+          // With the logbook left out, the search still runs on an empty scope: its statistics score the slots.
+          const r = p.tiers === 'slots'
+            ? NO_LOGBOOK.search(analysed, this.search)
+            : await core.store.searchLogbook(scopeOf(ref), { ...analysed, ...(core.dense ? { vector: q!, denseK: p.logbookLimit } : {}) }, this.search);
+          searchUs = usSince(s0);
+          return r;
+        };
+        const [s, r] = await Promise.all([core.store.load(ref), search()]);
         return { s, r };
       });
       snap = loaded.s;
@@ -160,7 +165,7 @@ export class ReadPath {
   }
 
   /** Rejects with STORE_UNAVAILABLE when `fn` has not settled by the read deadline. */
-  private async withinDeadline<T>(ref: SessionRef, t0: number, fn: () => Promise<T>): Promise<T> {
+  private async withinDeadline<T>(t0: number, fn: () => Promise<T>): Promise<T> {
     const budget = this.core.o.readTimeoutMs;
     let timer: NodeJS.Timeout | undefined;
     const timeout = new Promise<never>((_, reject) => {
@@ -175,18 +180,16 @@ export class ReadPath {
       throw isTidemarkError(err) ? err : new StoreError(ErrorCodes.STORE_UNAVAILABLE, `store ${this.core.store.name} failed a read: ${errMessage(err)}`, { cause: err });
     } finally {
       clearTimeout(timer);
-      void ref;
     }
   }
 
-  /** Waits (for at most half the read budget) for the session's pending write, then loads it. */
-  private async load(ref: SessionRef, t0: number): Promise<SessionSnapshot | null> {
+  /** Waits (for at most half the read budget) for the session's pending write. */
+  private async pendingWrite(ref: SessionRef, t0: number): Promise<void> {
     const budget = this.core.o.readTimeoutMs;
     const pending = this.core.queues.get(keyOf(ref));
     // Past half the budget, read the last committed state rather than nothing (the pending write is
     // still serialised behind us).
     if (pending) await Promise.race([pending, sleep(Math.max(0, budget / 2 - (performance.now() - t0)))]);
-    return this.core.store.load(ref);
   }
 
   /** Empty memory for a read that could not be made; the reply still runs. */

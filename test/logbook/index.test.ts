@@ -1,15 +1,16 @@
 // The logbook's index: its BM25 is the one checked against two independent implementations in
 // test/memory/bm25.test.ts (bm25Scores, Robertson & Zaragoza 2009), kept incrementally through adds
-// and removals; each turn takes a share of its neighbours' scores; a speaker's name in the query
-// lifts what that speaker said instead of matching greetings; resolved dates match; a turn that stated
+// and removals; each turn takes a share of its neighbours' scores; a person's name in the query lifts
+// that person's own turns instead of matching greetings; resolved dates match; a turn that stated
 // a superseded value points at the current one.
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { LOGBOOK_SEARCH_DEFAULTS, LogbookIndex, TopK, bm25Idf, gallop, type LogbookSearchParams } from '../../src/logbook/index.js';
+import { LOGBOOK_SEARCH_DEFAULTS, LogbookIndex, bm25Idf, gallop, type LogbookSearchParams } from '../../src/logbook/index.js';
 import { analyseQuery } from '../../src/logbook/query.js';
 import { bm25Scores, docStats } from '../../src/memory/bm25.js';
 import { analyze } from '../../src/memory/text.js';
+import { pushTopK } from '../../src/memory/vector.js';
 import type { LogbookEntry } from '../../src/types.js';
 
 const AT = Date.parse('2025-06-11T18:00:00Z');
@@ -160,14 +161,18 @@ describe('gallop', () => {
   });
 });
 
-describe('TopK', () => {
-  it('keeps what a full sort then a cut keeps, in the same order, ties to the later entry (fast-check)', () => {
+describe('pushTopK with laterWins (the search keeps its best k with it)', () => {
+  it('keeps what a full sort then a cut keeps, in the same order, ties to the later entry, in any offer order (fast-check)', () => {
     fc.assert(
-      fc.property(fc.array(fc.integer({ min: 0, max: 6 }), { maxLength: 200 }), fc.integer({ min: 0, max: 30 }), (scores, k) => {
-        const top = new TopK(k);
-        scores.forEach((s, d) => top.offer(d, s));
-        const want = scores.map((score, d) => ({ d, score })).sort((x, y) => y.score - x.score || y.d - x.d).slice(0, k);
-        expect(top.sorted()).toEqual(want);
+      fc.property(fc.array(fc.integer({ min: 0, max: 6 }), { maxLength: 200 }), fc.integer({ min: 0, max: 30 }), fc.boolean(), (scores, k, reverse) => {
+        const idx: number[] = [];
+        const score: number[] = [];
+        const order = scores.map((_, d) => d);
+        if (reverse) order.reverse();
+        for (const d of order) pushTopK(idx, score, d, scores[d]!, k, true);
+        const want = scores.map((s, d) => ({ d, s })).sort((x, y) => y.s - x.s || y.d - x.d).slice(0, k);
+        expect(idx).toEqual(want.map((x) => x.d));
+        expect(score).toEqual(want.map((x) => x.s));
       }),
     );
   });
@@ -199,7 +204,7 @@ describe('LogbookIndex context, speakers and dates', () => {
     expect(hits.slice(0, 3).map((h) => h.entry.seq)).toContain(4);
   });
 
-  it("a speaker's name lifts what that speaker said, not the greetings that name them", () => {
+  it("a person's name lifts that person's own turns, not the greetings that name them", () => {
     const idx = chat();
     const r = idx.search(q('What did Kofi finish?'), LOGBOOK_SEARCH_DEFAULTS);
     expect(r.speakers).toEqual(['kofi']);
