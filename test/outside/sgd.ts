@@ -53,7 +53,7 @@ export function sgdToReplay(dialogues: readonly SgdDialogue[], schema: readonly 
   const probes: Probe[] = [];
   for (const d of dialogues) {
     const session = `sgd-${d.dialogue_id}`;
-    const history = new Map<string, Array<{ turn: string; value: string }>>();
+    const history = new Map<string, Array<{ turn: string; value: string; forms: string[] }>>();
     d.turns.forEach((t, i) => {
       const turn = `t${i + 1}`;
       turns.push({ session, turn, role: t.speaker === 'USER' ? 'user' : 'assistant', text: t.utterance, line: turns.length + 1 });
@@ -67,7 +67,7 @@ export function sgdToReplay(dialogues: readonly SgdDialogue[], schema: readonly 
           const key = `${f.service}/${slot}`;
           let h = history.get(key);
           if (!h) history.set(key, (h = []));
-          h.push({ turn, value: [...values].sort().join('\u0000') });
+          h.push({ turn, value: [...values].sort().join('\u0000'), forms: [...values] });
         }
       }
     });
@@ -77,7 +77,9 @@ export function sgdToReplay(dialogues: readonly SgdDialogue[], schema: readonly 
       const expect = finalValueTurn(runs);
       const query = describe.get(key);
       if (!expect || !query) continue;
-      probes.push({ id: `latest:${d.dialogue_id}:${key}`, session, query, expect: [expect], line: probes.length + 1 });
+      // The value check: the latest value, in any of the forms the annotation lists for it.
+      const forms = runs[runs.length - 1]!.forms.filter((v) => v.trim().length > 0);
+      probes.push({ id: `latest:${d.dialogue_id}:${key}`, session, query, expect: [expect], ...(forms.length > 0 ? { expectText: forms } : {}), line: probes.length + 1 });
     }
   }
   return { turns, probes };
