@@ -1,6 +1,6 @@
 // `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--block 20] [--repeat R] [--json]`: the cost
 // of one turn against the length of a session's history, for tidemark and for the full-history
-// baseline (`flat` from src/cli/baselines.ts: every turn kept and ranked exhaustively with the same
+// baseline (`flat` from cli/baselines.ts: every turn kept and ranked exhaustively with the same
 // embedder, cosine + BM25), measured side by side in one run on one growing session each.
 // A turn is read + write for tidemark (as in `core`), query + add for the baseline; both embed the
 // query with the built-in embedder behind a cache (tidemark's own; a memo for the baseline), so the
@@ -10,7 +10,7 @@
 
 import type { Embedder } from '../src/embed/embedder.js';
 import { HashingEmbedder } from '../src/embed/hashing.js';
-import { TurnBaseline } from '../src/cli/baselines.js';
+import { TurnBaseline } from '../cli/baselines.js';
 import { createTidemark, type Tidemark } from '../src/middleware/tidemark.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';

@@ -18,7 +18,7 @@ import { createRequire } from 'node:module';
 import { createInterface } from 'node:readline';
 import { fileURLToPath } from 'node:url';
 import { SSE_HEADERS, sseFrame } from '../adapters/http/sse.js';
-import { serve } from '../src/cli/serve.js';
+import { serve } from '../cli/serve.js';
 import { ID_PATTERN } from '../src/middleware/validate.js';
 import { fnv1a } from '../src/memory/text.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';

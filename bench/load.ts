@@ -18,7 +18,7 @@ import { execFileSync } from 'node:child_process';
 import { loadavg } from 'node:os';
 import { createHistogram, type RecordableHistogram } from 'node:perf_hooks';
 import type { Redis as RedisType } from 'ioredis';
-import { progressBar } from '../src/cli/progress.js';
+import { progressBar } from '../cli/progress.js';
 import { createTidemark, type Tidemark, type WrapContext, type WrapInput } from '../src/middleware/tidemark.js';
 import type { SlotTable } from '../src/memory/slots.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';

@@ -4,8 +4,8 @@
 // single-user bot scenario with planted facts and updates (bench/lib/scenario.ts).
 // `npm run bench -- recall [--json] [--set conversations|scenario|both] [--k 10] [--capacity 64] [--seed N] [--sessions N]`.
 
-import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../src/cli/jsonl.js';
-import { formatReplayTable, runReplay, type ReplayResult } from '../src/cli/replay.js';
+import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../cli/jsonl.js';
+import { formatReplayTable, runReplay, type ReplayResult } from '../cli/replay.js';
 import { generateConversations, CONVERSATION_DEFAULTS } from './lib/conversations.js';
 import { SCENARIO_DEFAULTS, generateScenario } from './lib/scenario.js';
 import { intFlag } from './scenario.js';

@@ -2,7 +2,7 @@
 // [--sessions N] [--min-turns N] [--max-turns N]` -> DIR/transcript.jsonl and DIR/probes.jsonl.
 
 import { mkdirSync, writeFileSync } from 'node:fs';
-import { toJsonl } from '../src/cli/jsonl.js';
+import { toJsonl } from '../cli/jsonl.js';
 import { SCENARIO_DEFAULTS, generateScenario, scenarioFiles } from './lib/scenario.js';
 
 export function flag(argv: string[], name: string): string | undefined {

@@ -9,7 +9,7 @@ import { mkdtempSync, rmSync } from 'node:fs';
 import { createServer, connect } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { progressBar } from '../src/cli/progress.js';
+import { progressBar } from '../cli/progress.js';
 import { ErrorCodes } from '../src/errors.js';
 import { createTidemark, TIDEMARK_DEFAULTS, type WrapInput } from '../src/middleware/tidemark.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';

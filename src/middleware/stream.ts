@@ -1,6 +1,7 @@
 // Reply passthrough: forward each chunk the moment it arrives and keep a text copy for the memory
 // write, without buffering the reply. We collect inside the forwarding loop rather than with
-// ReadableStream.tee(), whose slow branch queues without limit (DESIGN.md section 8).
+// ReadableStream.tee(), whose slower branch queues every chunk without limit while the other runs ahead
+// (Node 20's web streams).
 
 /** How a reply ended. */
 export type ReplyEnd = 'done' | 'aborted' | 'error';

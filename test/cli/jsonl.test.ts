@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { ErrorCodes } from '../../src/errors.js';
-import { parseProbes, parseTranscript, ReplayFormatError, toJsonl } from '../../src/cli/jsonl.js';
+import { parseProbes, parseTranscript, ReplayFormatError, toJsonl } from '../../cli/jsonl.js';
 
 const good = (turn: string, text = 'hello there'): string => JSON.stringify({ session: 's1', turn, role: 'user', text });
 

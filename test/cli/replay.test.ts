@@ -2,9 +2,9 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { TurnBaseline, parseBaseline } from '../../src/cli/baselines.js';
-import { parseProbes, parseTranscript } from '../../src/cli/jsonl.js';
-import { percentile, recallOf, replayCli, retrievedTurns, runReplay } from '../../src/cli/replay.js';
+import { TurnBaseline, parseBaseline } from '../../cli/baselines.js';
+import { parseProbes, parseTranscript } from '../../cli/jsonl.js';
+import { percentile, recallOf, replayCli, retrievedTurns, runReplay } from '../../cli/replay.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
 import { TINY_PROBES, TINY_TRANSCRIPT } from './fixtures.js';
 

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { parseProbes, parseTranscript } from '../../src/cli/jsonl.js';
-import { checkGrid, gridPoints, paretoFrontier, pickPoint, runSweep, sweepSvg, withParam, type SweepPoint } from '../../src/cli/sweep.js';
+import { parseProbes, parseTranscript } from '../../cli/jsonl.js';
+import { checkGrid, gridPoints, paretoFrontier, pickPoint, runSweep, sweepSvg, withParam, type SweepPoint } from '../../cli/sweep.js';
 import { TINY_PROBES, TINY_TRANSCRIPT } from './fixtures.js';
 
 const pt = (capacity: number, recall: number, us: number): SweepPoint => ({ settings: { capacity }, capacity, recall_at_k: recall, by_kind: {}, slots_per_session: capacity, read_us_p50: us, turns_per_s: 1 });

@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { existsSync, mkdirSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { chromium, type Browser } from 'playwright-core';
-import { serve, type Serving } from '../../src/cli/serve.js';
+import { serve, type Serving } from '../../cli/serve.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 const ARTIFACTS = fileURLToPath(new URL('../artifacts/', import.meta.url));

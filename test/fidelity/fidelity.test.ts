@@ -4,8 +4,8 @@
 // miss, so the hard rule is that no fact the user never retracted is ever shown as replaced.
 
 import { describe, expect, it } from 'vitest';
-import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../../src/cli/jsonl.js';
-import { holdsAny, runReplay } from '../../src/cli/replay.js';
+import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../../cli/jsonl.js';
+import { holdsAny, runReplay } from '../../cli/replay.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
 import { FIDELITY_SCENARIOS, type FidelityScenario } from './scenarios.js';
 

@@ -8,7 +8,7 @@
 import { resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
-import { runReplay } from '../../src/cli/replay.js';
+import { runReplay } from '../../cli/replay.js';
 import { finalValueTurn, loadSgd, sgdPresent } from './sgd.js';
 
 const repoRoot = resolve(fileURLToPath(new URL('../..', import.meta.url)));

@@ -6,7 +6,7 @@
 
 import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import type { Probe, TranscriptTurn } from '../../src/cli/jsonl.js';
+import type { Probe, TranscriptTurn } from '../../cli/jsonl.js';
 
 interface SgdFrame {
   service: string;

@@ -5,8 +5,8 @@
 // turn in the same run. Two seeds, so the margins hold on conversations the defaults were not set on.
 
 import { describe, expect, it } from 'vitest';
-import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../../src/cli/jsonl.js';
-import { recallOf, runReplay } from '../../src/cli/replay.js';
+import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../../cli/jsonl.js';
+import { recallOf, runReplay } from '../../cli/replay.js';
 import { generateConversations } from '../../bench/lib/conversations.js';
 
 function input(seed: number): { turns: TranscriptTurn[]; probes: Probe[] } {

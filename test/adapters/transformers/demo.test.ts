@@ -7,7 +7,7 @@ import { Writable } from 'node:stream';
 import { afterAll, describe, expect, it } from 'vitest';
 import { transformersEmbedder } from '../../../adapters/transformers/index.js';
 import { buildTinyModel } from '../../../bench/lib/tiny-model.js';
-import { runDemo } from '../../../src/cli/demo.js';
+import { runDemo } from '../../../cli/demo.js';
 
 describe('demo with the transformers embedder', () => {
   const root = mkdtempSync(join(tmpdir(), 'tidemark-demo-model-'));

@@ -2,8 +2,8 @@
 // streams its reply word by word and uses what tidemark recalled. Invented scenario, for the demo
 // and `tidemark serve` only.
 
-import type { WrapContext, WrapInput } from '../middleware/tidemark.js';
-import type { RecallItem } from '../types.js';
+import type { WrapContext, WrapInput } from '../src/middleware/tidemark.js';
+import type { RecallItem } from '../src/types.js';
 
 const find = (items: readonly RecallItem[], re: RegExp): RecallItem | undefined => items.find((i) => re.test(`${i.key} ${i.value}`));
 

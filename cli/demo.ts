@@ -2,9 +2,9 @@
 // for each turn what was recalled, what was written, overwritten, gated out or evicted, and a summary.
 
 import type { Writable } from 'node:stream';
-import { createTidemark, type TidemarkOptions } from '../middleware/tidemark.js';
-import type { EvictEvent, GateEvent, WriteEvent } from '../middleware/events.js';
-import type { RecallItem } from '../types.js';
+import { createTidemark, type TidemarkOptions } from '../src/middleware/tidemark.js';
+import type { EvictEvent, GateEvent, WriteEvent } from '../src/middleware/events.js';
+import type { RecallItem } from '../src/types.js';
 import { DEMO_CONVERSATION, demoHandler } from './demo-bot.js';
 
 export interface DemoOptions {

@@ -4,12 +4,12 @@
 // by beta * cosine + gamma * BM25 normalised per query (the same embedder as tidemark); `window:N`
 // does the same over the last N turns of each session. None has gates, decay or capacity.
 
-import type { Embedder } from '../embed/embedder.js';
-import { ConfigError, describeValue } from '../errors.js';
-import { queryTerms } from '../memory/attention.js';
-import { bm25Scores, docStats, type DocStats } from '../memory/bm25.js';
-import { contentWords } from '../memory/text.js';
-import type { Role } from '../types.js';
+import type { Embedder } from '../src/embed/embedder.js';
+import { ConfigError, describeValue } from '../src/errors.js';
+import { queryTerms } from '../src/memory/attention.js';
+import { bm25Scores, docStats, type DocStats } from '../src/memory/bm25.js';
+import { contentWords } from '../src/memory/text.js';
+import type { Role } from '../src/types.js';
 
 export type BaselineSpec = { kind: 'window'; size: number } | { kind: 'flat' } | { kind: 'bm25' };
 

@@ -4,9 +4,9 @@
 // and says which setting to pick: the cheapest one within 0.01 of the best recall.
 
 import { writeFile } from 'node:fs/promises';
-import { ConfigError, describeValue, isTidemarkError } from '../errors.js';
-import { resolveMemoryParams } from '../memory/params.js';
-import type { TidemarkOptions } from '../middleware/tidemark.js';
+import { ConfigError, describeValue, isTidemarkError } from '../src/errors.js';
+import { resolveMemoryParams } from '../src/memory/params.js';
+import type { TidemarkOptions } from '../src/middleware/tidemark.js';
 import { readText, type Probe, type TranscriptTurn } from './jsonl.js';
 import { progressBar } from './progress.js';
 import { defaultIo, loadConfig, loadReplayFiles, parseK, runReplay, type CliIo } from './replay.js';

@@ -3,12 +3,12 @@
 // and reports recall and value accuracy beside baselines that see the same turns. runReplay() is the pure-ish core for tests and benches;
 // replayCli() reads the files and prints a table or one JSON object.
 
-import type { Embedder } from '../embed/embedder.js';
-import { HashingEmbedder } from '../embed/hashing.js';
-import { ConfigError, describeValue, isTidemarkError } from '../errors.js';
-import { itemLine } from '../memory/prompt.js';
-import { TIDEMARK_DEFAULTS, createTidemark, type TidemarkOptions } from '../middleware/tidemark.js';
-import type { EvictReason, LogbookKind, ReadResult, RecallItem, Role } from '../types.js';
+import type { Embedder } from '../src/embed/embedder.js';
+import { HashingEmbedder } from '../src/embed/hashing.js';
+import { ConfigError, describeValue, isTidemarkError } from '../src/errors.js';
+import { itemLine } from '../src/memory/prompt.js';
+import { TIDEMARK_DEFAULTS, createTidemark, type TidemarkOptions } from '../src/middleware/tidemark.js';
+import type { EvictReason, LogbookKind, ReadResult, RecallItem, Role } from '../src/types.js';
 import { TurnBaseline, baselineName, parseBaseline, type BaselineSpec } from './baselines.js';
 import { parseProbes, parseTranscript, patternOf, readText, ReplayFormatError, type FormatIssue, type Probe, type TranscriptTurn } from './jsonl.js';
 import { progressBar } from './progress.js';

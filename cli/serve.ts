@@ -4,9 +4,9 @@
 
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
-import { createHttpAdapter, isLoopback, type ChatHandler } from '../../adapters/http/index.js';
-import { ConfigError, describeValue } from '../errors.js';
-import { createTidemark, type Tidemark, type TidemarkOptions } from '../middleware/tidemark.js';
+import { createHttpAdapter, isLoopback, type ChatHandler } from '../adapters/http/index.js';
+import { ConfigError, describeValue } from '../src/errors.js';
+import { createTidemark, type Tidemark, type TidemarkOptions } from '../src/middleware/tidemark.js';
 import { demoHandler } from './demo-bot.js';
 
 export interface ServeOptions {
@@ -51,7 +51,7 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
     if (typeof options.redis !== 'string' || !/^rediss?:\/\//.test(options.redis)) {
       throw new ConfigError(`serve: redis must be a redis:// or rediss:// URL, got ${describeValue(options.redis)}`, { details: { option: 'redis' } });
     }
-    const { RedisStore } = await import('../../adapters/redis/index.js');
+    const { RedisStore } = await import('../adapters/redis/index.js');
     store = new RedisStore({ redis: options.redis });
   }
   const tm = createTidemark({ ...(options.tidemark ?? {}), ...(store ? { store } : {}) });

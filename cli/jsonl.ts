@@ -1,10 +1,11 @@
-// Reading the replay files: transcripts and probes in JSON Lines (DESIGN.md section 6). Each line is
+// Reading the replay files: transcripts and probes in JSON Lines (formats in the README's
+// "Evaluate memory on your own logs"). Each line is
 // checked on its own; a bad line becomes an issue with its line number (TIDEMARK_E_REPLAY_FORMAT),
 // skipped by default or fatal in strict mode. Messages name the field, never the line's text.
 
 import { readFile } from 'node:fs/promises';
-import { ErrorCodes, InputError, describeValue } from '../errors.js';
-import type { Role } from '../types.js';
+import { ErrorCodes, InputError, describeValue } from '../src/errors.js';
+import type { Role } from '../src/types.js';
 
 /** One transcript line. */
 export interface TranscriptTurn {

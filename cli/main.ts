@@ -4,9 +4,9 @@
 
 import { Command, InvalidArgumentError } from 'commander';
 import { existsSync, readFileSync } from 'node:fs';
-import { isTidemarkError } from '../errors.js';
+import { isTidemarkError } from '../src/errors.js';
 
-/** Our package.json, found by walking up from this file (it runs from src/ and from dist/src/). */
+/** Our package.json, found by walking up from this file (it runs from cli/ and from dist/cli/). */
 function packageVersion(): string {
   let dir = new URL('.', import.meta.url);
   for (let i = 0; i < 5; i++) {
@@ -42,7 +42,7 @@ program
     let embedder;
     if (o.model) {
       // Loaded only when asked for: the core never imports the transformers adapter.
-      const { transformersEmbedder } = await import('../../adapters/transformers/index.js');
+      const { transformersEmbedder } = await import('../adapters/transformers/index.js');
       embedder = transformersEmbedder({ model: o.model });
       await embedder.warmup();
     }
