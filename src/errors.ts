@@ -25,7 +25,7 @@ export const ErrorCodes = {
   STORE_CONFLICT: 'TIDEMARK_E_STORE_CONFLICT',
   /** A stored payload failed its checksum or format check; it was not trusted. */
   STORE_CORRUPT: 'TIDEMARK_E_STORE_CORRUPT',
-  /** The bounded outbox of pending writes is full; the oldest pending write was refused. */
+  /** The bounded outbox of pending writes is full; the newest write (the one being queued) was refused. */
   STORE_OUTBOX_FULL: 'TIDEMARK_E_STORE_OUTBOX_FULL',
   /** A request to an HTTP endpoint was malformed (body, JSON, method). */
   HTTP_BAD_REQUEST: 'TIDEMARK_E_HTTP_BAD_REQUEST',
@@ -33,6 +33,12 @@ export const ErrorCodes = {
   HTTP_UNAUTHORIZED: 'TIDEMARK_E_HTTP_UNAUTHORIZED',
   /** A transcript or probe file line could not be parsed. */
   REPLAY_FORMAT: 'TIDEMARK_E_REPLAY_FORMAT',
+  /** The write was accepted before an erase of its session or user and was not stored (by design). */
+  STORE_ERASED: 'TIDEMARK_E_STORE_ERASED',
+  /** The instance was closed: reads and writes are refused. */
+  CLOSED: 'TIDEMARK_E_CLOSED',
+  /** A write waited in the outbox longer than `outbox.maxAgeMs` and was given up (reported, not stored). */
+  STORE_OUTBOX_EXPIRED: 'TIDEMARK_E_STORE_OUTBOX_EXPIRED',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];

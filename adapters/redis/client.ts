@@ -2,6 +2,7 @@
 // (instead of hanging or queueing without bound), creation from a URL, and EVALSHA with the NOSCRIPT
 // fallback. ioredis is imported only here, type-only or dynamically, so the core never loads it.
 
+import { createRequire } from 'node:module';
 import type { Cluster, ClusterOptions, Redis, RedisOptions } from 'ioredis';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
 import type { LuaScript } from './scripts.js';
@@ -55,6 +56,16 @@ export async function connectUrl(url: string): Promise<Redis> {
   return new RedisClass(url, { ...REDIS_CLIENT_OPTIONS, lazyConnect: true });
 }
 
+/** Whether the optional peer ioredis can be found from here (checked at construction, synchronously). */
+export function ioredisInstalled(): boolean {
+  try {
+    createRequire(import.meta.url).resolve('ioredis');
+    return true;
+  } catch {
+    return false;
+  }
+}
+
 export function isCluster(client: RedisClient): client is Cluster {
   return (client as { isCluster?: boolean }).isCluster === true;
 }
@@ -64,6 +75,11 @@ export function isCluster(client: RedisClient): client is Cluster {
  * later calls never wait: during an outage they fail at once and ioredis reconnects in the background.
  */
 const wasReady = new WeakSet<RedisClient>();
+/**
+ * Clients whose first connection timed out: until one becomes ready, later calls fail at once instead
+ * of each waiting `timeoutMs` again (ioredis keeps reconnecting in the background).
+ */
+const startFailed = new WeakSet<RedisClient>();
 
 export async function ensureReady(client: RedisClient, timeoutMs: number): Promise<void> {
   if (client.status === 'ready') {
@@ -78,6 +94,7 @@ export async function ensureReady(client: RedisClient, timeoutMs: number): Promi
   if (client.status === 'end' || client.status === 'close') {
     throw unavailable('connect', new Error(`connection is ${client.status}`));
   }
+  if (startFailed.has(client)) throw unavailable('connect', new Error(`never connected (status ${client.status}); retrying in the background`));
   await new Promise<void>((resolve, reject) => {
     const done = (err?: Error): void => {
       clearTimeout(timer);
@@ -91,7 +108,16 @@ export async function ensureReady(client: RedisClient, timeoutMs: number): Promi
       done();
     };
     const onEnd = (): void => done(new Error('connection ended'));
-    const timer = setTimeout(() => done(new Error(`not ready after ${timeoutMs} ms (status ${client.status})`)), timeoutMs);
+    const timer = setTimeout(() => {
+      if (!startFailed.has(client)) {
+        startFailed.add(client);
+        client.once('ready', () => {
+          startFailed.delete(client);
+          wasReady.add(client);
+        });
+      }
+      done(new Error(`not ready after ${timeoutMs} ms (status ${client.status})`));
+    }, timeoutMs);
     client.once('ready', onReady);
     client.once('end', onEnd);
   });

@@ -42,8 +42,17 @@ export interface SessionKeys {
   /** Lists of the item ids appended to arch / uarch, in order (readers fetch only the new tail). */
   alog: string;
   ualog: string;
-  /** All of the above, for EXPIRE/DEL/SCAN checks. */
+  /** All of the above (the session's data), for EXPIRE/DEL/SCAN checks. */
   all: string[];
+  /**
+   * String: time (ms, server clock) of the session's latest erase. Outlives the erase by the store's
+   * `fenceTtlSeconds`; holds a number only.
+   */
+  gone: string;
+  /** Sorted set: commit ids applied, scored by the server time they were applied at. */
+  cids: string;
+  /** The data keys, then gone and cids: the KEYS of the commit and erase scripts. */
+  script: string[];
 }
 
 export class KeySpace {
@@ -57,12 +66,20 @@ export class KeySpace {
   session(tenant: string, session: string): SessionKeys {
     const b = this.sessionBase(tenant, session);
     const k = { meta: `${b}:meta`, slots: `${b}:slots`, events: `${b}:events`, arch: `${b}:arch`, uarch: `${b}:uarch`, alog: `${b}:alog`, ualog: `${b}:ualog` };
-    return { ...k, all: [k.meta, k.slots, k.events, k.arch, k.uarch, k.alog, k.ualog] };
+    const all = [k.meta, k.slots, k.events, k.arch, k.uarch, k.alog, k.ualog];
+    const gone = `${b}:gone`;
+    const cids = `${b}:cids`;
+    return { ...k, all, gone, cids, script: [...all, gone, cids] };
   }
 
   /** Set of the session ids a user has written to. Suffix `:sessions` never ends a session key. */
   userSessions(tenant: string, user: string): string {
     return `${this.prefix}{${escapeId(tenant, true)}:u:${escapeId(user, false)}}:sessions`;
+  }
+
+  /** Time (ms) of the user's latest erase; same hash tag as the user's session set. */
+  userGone(tenant: string, user: string): string {
+    return `${this.prefix}{${escapeId(tenant, true)}:u:${escapeId(user, false)}}:gone`;
   }
 
   /** SCAN MATCH pattern for the meta keys of one tenant. */

@@ -29,29 +29,41 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 `);
 
 /**
- * Commit one turn in one round trip: check the version, apply slot ops, add logbook entries, apply
- * the retention policy to the logbook slice written, append events (capped), bump the version,
- * refresh the idle TTL.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog.
+ * Commit one turn in one round trip: refuse a write fenced before an erase, recognise a commit id
+ * already applied, check the version, apply slot ops, add logbook entries, apply the retention policy
+ * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone (erase tombstone), cids (applied commit ids).
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
  *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 retention: max entries per
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
- *       15 #events, then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
+ *       15 #events, 16 fence: erase time the writer saw ('' = unfenced), 17 '1' when that fence is
+ *       known, '0' when it is the writer's clock, 18 fence ttl seconds (how long ids and tombstones
+ *       live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
  * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
  * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
- * readers keep fetching only the new tail. The commit id is remembered for the session's last 16
- * commits (meta field `rc`).
+ * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
+ * server's time, for ARGV[18] seconds: longer than any write may wait in an outbox, so a resend is
+ * recognised however many commits came between.
  * Reply: {1, version, epoch, dropped by age, dropped by count} applied | {2, version, epoch} this commit
- *        id was already applied at `version` | {0, version, epoch} version mismatch.
+ *        id was already applied | {0, version, epoch} version mismatch | {3, version, epoch} the
+ *        session was erased after the writer's fence.
  */
-export const COMMIT = script('commit', 7, `
+export const COMMIT = script('commit', 9, `
 local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
 local v = tonumber(m[1] or '0')
-local rc = m[5] or ''
+if ARGV[16] ~= '' then
+  local gone, f = tonumber(redis.call('GET', KEYS[8]) or '0'), tonumber(ARGV[16])
+  if gone > f or (ARGV[17] == '0' and gone >= f) then return {3, v, m[2] or ''} end
+end
+local t = redis.call('TIME')
+local nowms = tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000)
+local keepfor = tonumber(ARGV[18])
 -- A commit id already applied (its reply lost in a disconnect, then sent again — even re-planned on
--- top of its own result) is reported as applied and not applied a second time.
-local _, hit = string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true)
-if hit then return {2, tonumber(string.match(' ' .. rc, '^%d+', hit + 1)), m[2] or ''} end
+-- top of its own result, after any number of other commits) is reported as applied, not applied again.
+if redis.call('ZSCORE', KEYS[9], ARGV[2]) then return {2, v, m[2] or ''} end
+-- Sessions written before ids moved to their own set kept the last 16 in meta field rc.
+local rc = m[5] or ''
+if string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true) then return {2, v, m[2] or ''} end
 if v ~= tonumber(ARGV[1]) then return {0, v, m[2] or ''} end
 local ep = m[2]
 if not m[1] then
@@ -69,7 +81,7 @@ if m[1] then
   end
 end
 local nops, nlb, nev = tonumber(ARGV[13]), tonumber(ARGV[14]), tonumber(ARGV[15])
-local a = 16
+local a = 19
 for i = 1, nops do
   if ARGV[a + 1] == '' then redis.call('HDEL', KEYS[2], ARGV[a]) else redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1]) end
   a = a + 2
@@ -126,14 +138,10 @@ for i = 1, nev do
   if maxe > 0 then redis.call('XADD', KEYS[3], 'MAXLEN', '~', maxe, '*', 'e', ARGV[a]) end
   a = a + 1
 end
-local keep, n = {ARGV[2] .. '=' .. (v + 1)}, 1
-for tok in string.gmatch(rc, '%S+') do
-  if n >= 16 then break end
-  n = n + 1
-  keep[n] = tok
-end
-fields[#fields + 1] = 'rc'
-fields[#fields + 1] = table.concat(keep, ' ')
+redis.call('ZREMRANGEBYSCORE', KEYS[9], '-inf', nowms - keepfor * 1000)
+redis.call('ZADD', KEYS[9], nowms, ARGV[2])
+redis.call('EXPIRE', KEYS[9], keepfor)
+if rc ~= '' then redis.call('HDEL', KEYS[1], 'rc') end
 redis.call('HSET', KEYS[1], unpack(fields))
 local ttl = tonumber(ARGV[9])
 for i = 1, 7 do
@@ -203,15 +211,52 @@ return n
 `);
 
 /**
- * Erase one session: count, then delete every key.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog. Reply: {existed, slots, logbook entries, events, user or ''}.
+ * Erase one session: move its tombstone forward (so no write fenced before now can land), count,
+ * then delete every key.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone, cids. ARGV: 1 tombstone ttl seconds,
+ * 2 the time of the user erase this is part of (ms; 0 for a session erase).
+ * Reply: {existed, slots, logbook entries, events, user or '', tombstone time}.
  */
-export const ERASE = script('erase', 7, `
+export const ERASE = script('erase', 9, `
+local t = redis.call('TIME')
+local at = math.max(tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000), tonumber(ARGV[2]), tonumber(redis.call('GET', KEYS[8]) or '0') + 1)
+redis.call('SET', KEYS[8], at, 'EX', tonumber(ARGV[1]))
 local existed = redis.call('EXISTS', KEYS[1])
 local user = redis.call('HGET', KEYS[1], 'u') or ''
 local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
-redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7])
-return {existed, slots, items, events, user}
+redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9])
+return {existed, slots, items, events, user, tostring(at)}
 `);
+
+/**
+ * Link a session to its user, unless the user was erased after the writer's fence. Runs before every
+ * commit that may be a session's first under its user, on the user's hash tag, so it and a user erase
+ * (USER_ERASE) are atomic with respect to each other: a session is either in the set the erase reads,
+ * or refused here.
+ * KEYS: the user's session set, the user's tombstone. ARGV: session, fence ('' = unfenced), '1' known / '0' writer's clock.
+ * Reply: 1 linked | 0 refused (erased after the fence).
+ */
+export const LINK = script('link', 2, `
+if ARGV[2] ~= '' then
+  local gone, f = tonumber(redis.call('GET', KEYS[2]) or '0'), tonumber(ARGV[2])
+  if gone > f or (ARGV[3] == '0' and gone >= f) then return 0 end
+end
+redis.call('SADD', KEYS[1], ARGV[1])
+return 1
+`);
+
+/**
+ * First step of a user erase: move the user's tombstone forward (from here on LINK refuses writes
+ * fenced before it) and read the sessions to erase.
+ * KEYS: the user's session set, the user's tombstone. ARGV: tombstone ttl seconds.
+ * Reply: {tombstone time, {sessions...}}.
+ */
+export const USER_ERASE = script('user_erase', 2, `
+local t = redis.call('TIME')
+local at = math.max(tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000), tonumber(redis.call('GET', KEYS[2]) or '0') + 1)
+redis.call('SET', KEYS[2], at, 'EX', tonumber(ARGV[1]))
+return {tostring(at), redis.call('SMEMBERS', KEYS[1])}
+`);
+

@@ -11,12 +11,12 @@ import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/er
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { listEntries } from '../../src/store/in-process.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
-import { connectUrl, ensureReady, isCluster, runScript, unavailable, type RedisClient } from './client.js';
+import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LOAD, LOG_DELETE, LOG_FETCH } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, USER_ERASE } from './scripts.js';
 
 export interface RedisStoreOptions {
   /**
@@ -54,6 +54,12 @@ export interface RedisStoreOptions {
   connectTimeoutMs?: number;
   /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
   archive?: ArchiveOptions;
+  /**
+   * Seconds an erase tombstone (a time, no data) and an applied commit id are kept. A write older than
+   * this — waiting in some process's outbox — could no longer be told from a new one, so it must stay
+   * above the middleware's `outbox.maxAgeMs` (1 day by default). @default 604800 (7 days)
+   */
+  fenceTtlSeconds?: number;
 }
 
 export const REDIS_STORE_DEFAULTS = {
@@ -64,6 +70,7 @@ export const REDIS_STORE_DEFAULTS = {
   maxEvents: 1000,
   cacheSessions: 1000,
   connectTimeoutMs: 2000,
+  fenceTtlSeconds: 7 * 24 * 3600,
 } as const satisfies Omit<Required<RedisStoreOptions>, 'archive'>;
 
 type Resolved = Omit<Required<RedisStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
@@ -129,7 +136,9 @@ export class RedisStore implements Store {
   private closed = false;
 
   constructor(options: RedisStoreOptions = {}) {
-    const o = { ...REDIS_STORE_DEFAULTS, ...options };
+    // An option given as undefined means "the default", as documented, not "no value".
+    const given = Object.fromEntries(Object.entries(options).filter(([, v]) => v !== undefined)) as RedisStoreOptions;
+    const o = { ...REDIS_STORE_DEFAULTS, ...given };
     const fail = (name: string, value: unknown, expected: string): never => {
       throw new ConfigError(`redis store: ${name} must be ${expected}, got ${describeValue(value)}`, { details: { option: name } });
     };
@@ -139,11 +148,16 @@ export class RedisStore implements Store {
     if (!Number.isInteger(o.maxEvents) || o.maxEvents < 0) fail('maxEvents', o.maxEvents, 'an integer >= 0');
     if (!Number.isInteger(o.cacheSessions) || o.cacheSessions < 0) fail('cacheSessions', o.cacheSessions, 'an integer >= 0');
     if (!Number.isFinite(o.connectTimeoutMs) || o.connectTimeoutMs <= 0) fail('connectTimeoutMs', o.connectTimeoutMs, 'a number of ms > 0');
+    if (!Number.isInteger(o.fenceTtlSeconds) || o.fenceTtlSeconds < 60) fail('fenceTtlSeconds', o.fenceTtlSeconds, 'an integer >= 60');
     const { redis, ...rest } = o;
     this.o = rest;
     this.keys = new KeySpace(o.prefix);
     if (typeof redis === 'string') {
       if (!/^rediss?:\/\//.test(redis)) fail('redis', redis, 'an ioredis Redis/Cluster instance or a redis:// URL');
+      // Without ioredis every turn would degrade and every write pile up in the outbox: say so now.
+      if (!ioredisInstalled()) {
+        throw new ConfigError('redis store: the ioredis package is not installed; run `npm install ioredis` (or pass a client)', { details: { option: 'redis' } });
+      }
       this.name = 'redis';
       this.ownsClient = true;
       this.clientReady = connectUrl(redis).then((c) => {
@@ -223,6 +237,20 @@ export class RedisStore implements Store {
     return { version, clock, turns, table };
   }
 
+  async fence(ref: SessionRef): Promise<ErasureFence> {
+    try {
+      const c = await this.conn('fence');
+      // Two keys under two hash tags: two commands (one round trip each, side by side).
+      const [s, u] = await Promise.all([
+        c.get(this.keys.session(ref.tenant, ref.session).gone),
+        ref.user ? c.get(this.keys.userGone(ref.tenant, ref.user)) : Promise.resolve(null),
+      ]);
+      return { session: Number(s ?? 0), user: Number(u ?? 0), known: true };
+    } catch (err) {
+      throw unavailable('fence', err);
+    }
+  }
+
   async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
     const k = this.keys.session(ref.tenant, ref.session);
     const { args, keys } = this.commitArgs(ref, req);
@@ -231,17 +259,21 @@ export class RedisStore implements Store {
       const c = await this.conn('commit');
       if (ref.user) {
         // The user's set lives under another hash tag, so it cannot join the commit script on Cluster.
-        // It is added *before* the commit and is idempotent: a crash between the two leaves a set member
-        // without a session (harmless: searches and erase skip it), never a session its user's erase
-        // would miss. A new session (expected version 0, also after an erase) always re-adds it.
+        // LINK adds the session *before* the commit, refusing a write fenced before a user erase; it and
+        // the erase's first step (USER_ERASE) run on the same tag, so a session is either in the set the
+        // erase reads (and erased, its tombstone then refusing the commit) or refused here. A crash
+        // between LINK and COMMIT leaves a set member without a session (harmless). A new session
+        // (expected version 0, also after an erase) always links again.
         const lk = `${k.meta}\u0000${ref.user}`;
-        if (req.expectedVersion === 0 || !this.linked.has(lk)) {
-          await c.sadd(this.keys.userSessions(ref.tenant, ref.user), ref.session);
+        if (req.expectedVersion === 0 || !this.linked.has(lk) || (req.fence && !req.fence.known)) {
+          const f = req.fence;
+          const ok = await runScript(c, LINK, [this.keys.userSessions(ref.tenant, ref.user), this.keys.userGone(ref.tenant, ref.user)], [ref.session, f ? String(f.user) : '', f?.known === false ? '0' : '1']);
+          if (Number(ok) !== 1) return { ok: false, erased: true, version: req.expectedVersion };
           if (this.linked.size > 100_000) this.linked.clear();
           this.linked.add(lk);
         }
       }
-      reply = await runScript(c, COMMIT, k.all, args);
+      reply = await runScript(c, COMMIT, k.script, args);
     } catch (err) {
       throw unavailable('commit', err);
     }
@@ -250,6 +282,10 @@ export class RedisStore implements Store {
     const version = Number(r[1]);
     const epoch = str(r[2]);
     if (status === 0) return { ok: false, conflict: true, version };
+    if (status === 3) {
+      this.cache.delete(k.meta);
+      return { ok: false, erased: true, version };
+    }
     if (status === 2) {
       // Already applied by an earlier send of this same request; this process's copy may be behind.
       this.cache.delete(k.meta);
@@ -312,20 +348,27 @@ export class RedisStore implements Store {
 
   async erase(target: EraseTarget): Promise<EraseReport> {
     const report: EraseReport = { sessions: 0, slots: 0, logbookEntries: 0, events: 0 };
+    const ttl = this.o.fenceTtlSeconds;
     try {
       const c = await this.conn('erase');
       let sessions: string[];
       let userSet: string | undefined;
+      let at = 0;
       if ('user' in target) {
+        // First the user's tombstone (LINK refuses writes fenced before it from here on), then every
+        // session in the set as it stands at that moment: together they cover every session any
+        // process wrote for this user before the erase.
         userSet = this.keys.userSessions(target.tenant, target.user);
-        sessions = await c.smembers(userSet);
+        const r = (await runScript(c, USER_ERASE, [userSet, this.keys.userGone(target.tenant, target.user)], [ttl])) as unknown[];
+        at = Number(str(r[0]));
+        sessions = (r[1] as Buffer[]).map(str);
         this.scopes.delete(scopeKeyOf({ tenant: target.tenant, user: target.user }));
       } else {
         sessions = [target.session];
       }
       for (const s of sessions) {
         const k = this.keys.session(target.tenant, s);
-        const r = (await runScript(c, ERASE, k.all, [])) as unknown[];
+        const r = (await runScript(c, ERASE, k.script, [ttl, at])) as unknown[];
         report.sessions += Number(r[0]);
         report.slots += Number(r[1]);
         report.logbookEntries += Number(r[2]);
@@ -334,7 +377,9 @@ export class RedisStore implements Store {
         this.forget(target.tenant, s, k, user);
         if (user && !userSet) await c.srem(this.keys.userSessions(target.tenant, user), s);
       }
-      if (userSet) await c.del(userSet);
+      // Only the members erased leave the set: a session linked since (a write fenced after the
+      // tombstone, i.e. a new conversation) stays findable by the next erase.
+      if (userSet && sessions.length > 0) await c.srem(userSet, ...sessions);
     } catch (err) {
       throw unavailable('erase', err);
     }
@@ -402,9 +447,11 @@ export class RedisStore implements Store {
     const kf = this.o.keyFormat;
     const policy = req.retention?.policy;
     const cutoff = policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
+    const f = req.fence;
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
       this.o.idleTtlSeconds, this.o.maxEvents, policy?.maxEntries ?? 0, cutoff, req.ops.length, req.logbook.length, req.events.length,
+      f ? String(f.session) : '', f?.known === false ? '0' : '1', this.o.fenceTtlSeconds,
     ];
     const keys: (Float32Array | null)[] = [];
     for (const op of req.ops) {

@@ -193,6 +193,7 @@ export class Admin {
           'commit',
         );
         if (res.ok) return;
+        if ('erased' in res) throw new StoreError(ErrorCodes.STORE_ERASED, 'the session was erased meanwhile');
         await sleep(Math.random() * Math.min(50, 2 ** attempt));
       }
       throw new StoreError(ErrorCodes.STORE_CONFLICT, `session kept changing under ${core.o.commitRetries + 1} attempts`);

@@ -9,8 +9,8 @@ import type { Embedder } from '../embed/embedder.js';
 import { EmbedderError, ErrorCodes, StoreError, TidemarkError, isTidemarkError } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';
 import type { MemoryParams } from '../memory/params.js';
-import type { SessionSnapshot, Store } from '../store/store.js';
-import type { LogbookEntry, SessionRef } from '../types.js';
+import type { ErasureFence, SessionSnapshot, Store } from '../store/store.js';
+import type { LogbookEntry, MemoryContext, SessionRef } from '../types.js';
 import type { TidemarkEvents } from './events.js';
 import type { ResolvedOptions } from './options.js';
 import { validateTurn, type Turn } from './validate.js';
@@ -21,6 +21,11 @@ export const errMessage = (err: unknown): string => (err instanceof Error ? err.
 export const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms).unref?.());
 /** Microseconds since an origin from performance.now(). */
 export const usSince = (t0: number): number => (performance.now() - t0) * 1000;
+
+/** The fence of a turn accepted at `acceptedMs` when the store could not be asked (see ErasureFence). */
+export const unknownFence = (acceptedMs: number): ErasureFence => ({ session: acceptedMs, user: acceptedMs, known: false });
+const sameFence = (a: ErasureFence | undefined, b: ErasureFence | undefined): boolean =>
+  a !== undefined && b !== undefined && a.known && b.known && a.session === b.session && a.user === b.user;
 
 /** Bounded insertion-ordered map: the oldest key goes when full. */
 function remember<K, V>(m: Map<K, V>, k: K, v: V, max: number): void {
@@ -40,6 +45,10 @@ export class Core {
   /** Texts of each session's last written turns, newest first (bounded): context for the next write. */
   private readonly said = new Map<string, string[]>();
   private readonly hashes = new Map<string, string>();
+  /** The erasure fence each read was made under, for the turn's write. */
+  private readonly readFences = new WeakMap<MemoryContext, ErasureFence>();
+  /** The fence of each session's last read, to check that values recalled then may still be promoted (bounded). */
+  private readonly recalledFence = new Map<string, ErasureFence>();
   private readonly secret: string;
   /** Whether turn vectors go into the logbook (and a dense list into reads). */
   readonly dense: boolean;
@@ -110,6 +119,31 @@ export class Core {
     return error;
   }
 
+  /** The session's erasure fence now; unknown (this clock) when the store cannot be asked. */
+  async fenceNow(ref: SessionRef, acceptedMs: number): Promise<ErasureFence | undefined> {
+    if (!this.store.fence) return undefined;
+    try {
+      return await this.store.fence(ref);
+    } catch {
+      return unknownFence(acceptedMs);
+    }
+  }
+
+  /** Records the fence a read was made under (and the session's recalled values with it). */
+  rememberFence(ref: SessionRef, memory: MemoryContext, fence: ErasureFence): void {
+    this.readFences.set(memory, fence);
+    remember(this.recalledFence, keyOf(ref), fence, 10_000);
+  }
+
+  fenceOf(memory: MemoryContext): ErasureFence | undefined {
+    return this.readFences.get(memory);
+  }
+
+  /** Whether values recalled by the session's last read were recalled under `fence` (no erase since). */
+  recalledUnder(ref: SessionRef, fence: ErasureFence | undefined): boolean {
+    return fence === undefined ? !this.store.fence : sameFence(this.recalledFence.get(keyOf(ref)), fence);
+  }
+
   /** Runs `fn` after the session's previous write settles; writes of one session apply in order. */
   chain<T>(key: string, fn: () => Promise<T>): Promise<T> {
     const job = (this.queues.get(key) ?? Promise.resolve()).then(fn);
@@ -171,5 +205,6 @@ export class Core {
     this.recalled.clear();
     this.lastRead.clear();
     this.said.clear();
+    this.recalledFence.clear();
   }
 }

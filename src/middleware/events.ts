@@ -120,8 +120,14 @@ export interface ErrorEvent {
 export interface OutboxEvent {
   /** Pending writes waiting for the store. */
   depth: number;
-  /** `queued`: a failed write was queued; `drained`: one was committed; `overflow`: one was refused. */
-  change: 'queued' | 'drained' | 'overflow';
+  /**
+   * `queued`: a failed write was queued; `drained`: one was committed; `overflow`: one was refused;
+   * `retry`: a conflict or failure left one queued for another pass; `erased`: one was accepted before
+   * an erase of its session or user and is not stored; `expired`: one waited past `outbox.maxAgeMs`;
+   * `failed`: the store refused one for good (reported in an `error` event); `abandoned`: `close()`
+   * ran out of time with it still queued.
+   */
+  change: 'queued' | 'drained' | 'overflow' | 'retry' | 'erased' | 'expired' | 'failed' | 'abandoned';
   sessionHash?: string;
 }
 
@@ -142,6 +148,21 @@ export interface LogbookEvent extends SessionEventBase {
   droppedCount: number;
 }
 
+/**
+ * The store came back empty after an outage (a Redis restart without persistence): sessions this
+ * process knew now read as new. `resets` counts them since start (also `Tidemark.storeResets`).
+ */
+export interface StoreResetEvent {
+  store: string;
+  resets: number;
+  atMs: number;
+}
+
+/** `close()` ran out of time with writes still queued: they are not stored. */
+export interface ClosedEvent {
+  abandoned: number;
+}
+
 /** Event name -> listener signature, for `tidemark.on(name, listener)`. */
 export interface TidemarkEvents {
   read: (e: ReadEvent) => void;
@@ -155,4 +176,6 @@ export interface TidemarkEvents {
   degraded: (e: DegradedEvent) => void;
   outbox: (e: OutboxEvent) => void;
   error: (e: ErrorEvent) => void;
+  storeReset: (e: StoreResetEvent) => void;
+  closed: (e: ClosedEvent) => void;
 }

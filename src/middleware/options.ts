@@ -20,6 +20,12 @@ export interface OutboxOptions {
   maxRetryMs?: number;
   /** Sessions drained at once after an outage (each session's writes stay in order). @default 16 */
   concurrency?: number;
+  /**
+   * A queued write older than this (ms) is given up with a `STORE_OUTBOX_EXPIRED` error and an `outbox`
+   * `expired` event. Stores recognise a resent write and refuse one fenced before an erase only for a
+   * while (the Redis store's `fenceTtlSeconds`, 7 days): keep this below it. @default 86400000 (1 day)
+   */
+  maxAgeMs?: number;
 }
 
 /** The long-term tier: which turns it keeps and for how long. */
@@ -121,7 +127,7 @@ export const TIDEMARK_DEFAULTS: Omit<ResolvedOptions, 'prompt'> = {
   onAbort: 'user',
   readTimeoutMs: 1000,
   commitRetries: 16,
-  outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000, concurrency: 16 },
+  outbox: { max: 10_000, retryMs: 250, maxRetryMs: 10_000, concurrency: 16, maxAgeMs: 86_400_000 },
   embedCacheSize: 10_000,
   useOverlap: 0.5,
   valueMix: 0.5,
@@ -165,6 +171,7 @@ export function resolveOptions(options: TidemarkOptions): ResolvedOptions {
   intOpt('outbox.retryMs', o.outbox.retryMs, 1, 3_600_000);
   intOpt('outbox.maxRetryMs', o.outbox.maxRetryMs, o.outbox.retryMs, 3_600_000);
   intOpt('outbox.concurrency', o.outbox.concurrency, 1, 1024);
+  intOpt('outbox.maxAgeMs', o.outbox.maxAgeMs, 1000, 30 * 86_400_000);
   intOpt('embedCacheSize', o.embedCacheSize, 0, 10_000_000);
   intOpt('prompt.tokenBudget', o.prompt.tokenBudget, 0, 1_000_000);
   intOpt('logbook.maxAgeMs', o.logbook.maxAgeMs, 0, Number.MAX_SAFE_INTEGER);

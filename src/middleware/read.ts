@@ -13,7 +13,7 @@ import { rankTiers, type RankedItem, type SlotCandidate } from '../memory/rank.j
 import { LogbookIndex, searchParamsOf, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
 import { analyseQuery } from '../logbook/query.js';
 import { scopeOf } from '../store/in-process.js';
-import type { SessionSnapshot } from '../store/store.js';
+import type { ErasureFence, SessionSnapshot } from '../store/store.js';
 import type { MemoryContext, ReadTrace, RecallItem, SessionRef } from '../types.js';
 import { Core, errMessage, keyOf, refOf, sleep, usSince } from './core.js';
 import type { Turn } from './validate.js';
@@ -39,6 +39,7 @@ export class ReadPath {
     const analysed = analyseQuery(turn.text, turn.atMs);
     let snap: SessionSnapshot | null;
     let lb: LogbookSearchResult;
+    let fence: ErasureFence | undefined;
     let searchUs = 0;
     try {
       // The load and the search run side by side (one round trip each on Redis), both inside one
@@ -54,11 +55,13 @@ export class ReadPath {
           searchUs = usSince(s0);
           return r;
         };
-        const [s, r] = await Promise.all([core.store.load(ref), search()]);
-        return { s, r };
+        // The erasure fence the turn is accepted under: its write is refused if an erase comes after.
+        const [s, r, f] = await Promise.all([core.store.load(ref), search(), core.store.fence?.(ref)]);
+        return { s, r, f };
       });
       snap = loaded.s;
       lb = loaded.r;
+      fence = loaded.f;
     } catch (err) {
       return this.degraded(turn, err, usSince(t0));
     }
@@ -127,6 +130,7 @@ export class ReadPath {
       searchUs,
     };
     const ctx: MemoryContext = { items, prompt: renderPrompt(items, core.o.prompt), trace, degraded: false };
+    if (fence) core.rememberFence(ref, ctx, fence);
     if (core.events.listenerCount('read') > 0) {
       const slotItems = items.filter((i) => i.source === 'slot').length;
       core.events.emit('read', {

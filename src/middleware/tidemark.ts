@@ -7,7 +7,7 @@
 import { EventEmitter } from 'eventemitter3';
 import type { Embedder } from '../embed/embedder.js';
 import { HashingEmbedder } from '../embed/hashing.js';
-import { ConfigError, ErrorCodes, InputError, describeValue } from '../errors.js';
+import { ConfigError, ErrorCodes, InputError, StoreError, describeValue } from '../errors.js';
 import { RuleExtractor, type Extractor } from '../memory/extract.js';
 import { resolveMemoryParams, type MemoryParams } from '../memory/params.js';
 import { analyze } from '../memory/text.js';
@@ -16,7 +16,7 @@ import { InProcessStore } from '../store/in-process.js';
 import type { EraseReport, Store } from '../store/store.js';
 import type { MemoryContext, RecallItem, TurnInput } from '../types.js';
 import { Admin, type SessionView } from './admin.js';
-import { Core, refOf } from './core.js';
+import { Core, refOf, unknownFence } from './core.js';
 import type { TidemarkEvents } from './events.js';
 import { resolveOptions, type TidemarkOptions } from './options.js';
 import { Outbox } from './outbox.js';
@@ -142,6 +142,9 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
 
   /** Recalls what is relevant to `input.text` for its session. Store failures give `degraded: true`. */
   async read(input: Pick<TurnInput, 'session' | 'text' | 'user' | 'tenant' | 'at'> & { history?: boolean }): Promise<MemoryContext> {
+    this.refuseClosed('read');
+    // Not an object: the same error write() gives, before any field is looked at.
+    if (typeof input !== 'object' || input === null || Array.isArray(input)) this.core.validate(input);
     const turn = this.core.validate({ ...input, role: 'user' });
     return this.reads.read(turn, input.history === true);
   }
@@ -152,6 +155,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
    * unreachable (`committed: false`).
    */
   async write(turns: TurnInput | TurnInput[], options: WriteOptions = {}): Promise<WriteReport> {
+    this.refuseClosed('write');
+    const acceptedMs = Date.now();
     const list = (Array.isArray(turns) ? turns : [turns]).map((t) => this.core.validate(t));
     if (list.length === 0) throw new InputError(ErrorCodes.INPUT_FIELD, 'write needs at least one turn');
     const first = list[0]!;
@@ -160,7 +165,14 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         throw new InputError(ErrorCodes.INPUT_FIELD, 'all turns of one write call must belong to one session; call write once per session', { details: { field: 'session' } });
       }
     }
-    return this.outbox.enqueue(refOf(first), list, [...(options.reinforce ?? [])], [...(options.promote ?? [])]);
+    const ref = refOf(first);
+    // The erasure fence the turns are accepted under: an erase from here on (any process) wins.
+    const fence = await this.core.fenceNow(ref, acceptedMs);
+    return this.outbox.enqueue(ref, list, [...(options.reinforce ?? [])], [...(options.promote ?? [])], fence, acceptedMs);
+  }
+
+  private refuseClosed(op: string): void {
+    if (this.closed) throw new StoreError(ErrorCodes.CLOSED, `${op} after close(): this tidemark instance is closed; create a new one`);
   }
 
   /**
@@ -171,6 +183,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
    */
   wrap<I extends WrapInput, R extends Reply>(handler: (input: I, ctx: WrapContext) => R | Promise<R>): (input: I, options?: { signal?: AbortSignal }) => Promise<R> {
     return async (input: I, options: { signal?: AbortSignal } = {}): Promise<R> => {
+      this.refuseClosed('wrap');
+      const acceptedMs = Date.now();
       const turn = this.core.validate(input);
       const signal = options.signal ?? (input.signal instanceof AbortSignal ? input.signal : undefined);
       let memory: MemoryContext;
@@ -190,8 +204,12 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         }
         // What the turn used is judged by what the reply says, once it is known.
         const said = end === 'done' ? text : undefined;
-        this.outbox.enqueue(ref, turns, this.usedBy(memory, said), this.promotedBy(memory, said)).catch(() => {
-          // Already reported through the error event; a reply is never failed by its memory write.
+        // Fenced as of the read: an erase while the reply streamed wins over this write. A degraded
+        // read could not ask the store, so the fence is this process's clock at acceptance.
+        const fence = this.core.fenceOf(memory) ?? (this.store.fence ? unknownFence(acceptedMs) : undefined);
+        this.outbox.enqueue(ref, turns, this.usedBy(memory, said), this.promotedBy(memory, said), fence, acceptedMs).catch(() => {
+          // Reported through the error event (a conflict or an outage keeps it queued, an erase
+          // refuses it by design); a reply is never failed by its memory write.
         });
       };
       let reply: R;
@@ -237,27 +255,53 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     return this.admin.migrate(session, tenant);
   }
 
-  /** Waits for in-flight writes, then tries to drain the outbox until empty or `timeoutMs` passes. */
+  /**
+   * Waits for in-flight writes, then tries to drain the outbox until empty or `timeoutMs` passes;
+   * settles by the deadline whatever is pending (its own timer keeps the process alive until then).
+   */
   async flush(options: { timeoutMs?: number } = {}): Promise<{ outboxDepth: number }> {
-    const deadline = Date.now() + (options.timeoutMs ?? 10_000);
-    const wait = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
-    while (this.core.queues.size > 0 && Date.now() < deadline) await Promise.race([Promise.all(this.core.queues.values()), wait(50)]);
-    while (this.outbox.depth > 0 && Date.now() < deadline) {
-      await this.outbox.drainNow();
-      if (this.outbox.depth > 0) await wait(Math.min(200, Math.max(1, deadline - Date.now())));
+    const timeoutMs = options.timeoutMs ?? 10_000;
+    const deadline = Date.now() + timeoutMs;
+    let expired = false;
+    let timer: NodeJS.Timeout | undefined;
+    const out = new Promise<void>((resolve) => {
+      timer = setTimeout(() => {
+        expired = true;
+        resolve();
+      }, Math.max(0, timeoutMs));
+    });
+    const wait = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms).unref?.());
+    const work = (async (): Promise<void> => {
+      while (!expired && this.core.queues.size > 0 && Date.now() < deadline) await Promise.race([Promise.all(this.core.queues.values()), wait(50), out]);
+      while (!expired && this.outbox.depth > 0 && Date.now() < deadline) {
+        await Promise.race([this.outbox.drainNow(), out]);
+        if (!expired && this.outbox.depth > 0) await Promise.race([wait(Math.min(200, Math.max(1, deadline - Date.now()))), out]);
+      }
+    })();
+    try {
+      await Promise.race([work, out]);
+    } finally {
+      clearTimeout(timer);
     }
     return { outboxDepth: this.outbox.depth };
   }
 
-  /** Flushes what it can, stops timers and closes the store. */
-  async close(options: { timeoutMs?: number } = {}): Promise<void> {
-    if (this.closed) return;
+  /**
+   * Flushes what it can (up to `timeoutMs`), stops timers and closes the store. Writes still queued
+   * then are not stored: their count is returned (`abandoned`) and announced in a `closed` event and
+   * one `outbox` `abandoned` event each. Reads and writes after close are refused (`TIDEMARK_E_CLOSED`).
+   */
+  async close(options: { timeoutMs?: number } = {}): Promise<{ abandoned: number }> {
+    if (this.closed) return { abandoned: 0 };
     await this.flush({ timeoutMs: options.timeoutMs ?? 2000 });
     this.closed = true;
-    this.outbox.stop();
+    const abandoned = this.outbox.stop();
+    this.emit('closed', { abandoned });
+    if (abandoned > 0) this.core.emitError('outbox', new StoreError(ErrorCodes.STORE_UNAVAILABLE, `close(): ${abandoned} queued writes were not stored (store ${this.store.name} unreachable until the deadline)`));
     await this.store.close();
     await this.embedder.close?.();
     this.removeAllListeners();
+    return { abandoned };
   }
 }
 

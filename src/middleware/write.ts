@@ -13,7 +13,7 @@ import { SlotTable } from '../memory/slots.js';
 import { textDigest } from '../memory/text.js';
 import { demotedEntry, planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
 import { scopeOf } from '../store/in-process.js';
-import type { CommitRequest, SlotOp } from '../store/store.js';
+import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
 import { Core, sleep, usSince } from './core.js';
 import { retentionOf } from './options.js';
@@ -71,7 +71,7 @@ export class WritePath {
   constructor(private readonly core: Core) {}
 
   /** Extract, embed, plan and commit with reload-and-redo on version conflicts. */
-  async commit(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string = randomUUID(), promote: readonly LogbookEntry[] = []): Promise<WriteReport> {
+  async commit(ref: SessionRef, turns: Turn[], reinforce: string[], commitId: string = randomUUID(), promote: readonly LogbookEntry[] = [], fence?: ErasureFence): Promise<WriteReport> {
     const core = this.core;
     const prepared: Prepared[] = [];
     let previous: string | undefined = core.saidBefore(ref)[0];
@@ -149,10 +149,14 @@ export class WritePath {
       const req: CommitRequest = {
         expectedVersion: snap?.version ?? 0, clock, turns: turnCount, capacity: table.capacity, dim: table.dim, ops,
         logbook: [...entries, ...demoted], retention: { policy: retentionOf(core.o), nowMs: last.atMs }, events: plan.events, commitId,
+        ...(fence ? { fence } : {}),
       };
       planUs += usSince(p0);
       const c0 = performance.now();
       const res = await core.storeCall(() => core.store.commit(ref, req), 'commit');
+      if (!res.ok && 'erased' in res) {
+        throw new StoreError(ErrorCodes.STORE_ERASED, `session #${core.hashSession(ref.tenant, ref.session)} or its user was erased after this write was accepted; it was not stored`);
+      }
       if (!res.ok) {
         // Another writer won. Back off a random, growing moment (capped) so contending writers of one
         // session stop colliding in lockstep (randomised exponential backoff, common practice).

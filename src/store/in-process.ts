@@ -10,7 +10,7 @@ import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type Logbook
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
 
 export interface InProcessStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
@@ -67,6 +67,8 @@ export class InProcessStore implements Store {
   private readonly logbooks = new Map<string, LogbookIndex>();
   private readonly userSessions = new Map<string, Set<string>>();
   private readonly o: InProcessStoreOptions & typeof IN_PROCESS_STORE_DEFAULTS;
+  /** Erase tombstones: key -> time (ms) of the latest erase of a session (`s` + key) or user (`u` + key). */
+  private readonly tombstones = new Map<string, number>();
   private dirty = false;
   private timer: NodeJS.Timeout | undefined;
 
@@ -92,10 +94,19 @@ export class InProcessStore implements Store {
     return { version: e.version, clock: e.clock, turns: e.turns, table: e.table };
   }
 
+  async fence(ref: SessionRef): Promise<ErasureFence> {
+    return {
+      session: this.tombstones.get(`s${sessionKey(ref.tenant, ref.session)}`) ?? 0,
+      user: ref.user ? this.tombstones.get(`u${userKey(ref.tenant, ref.user)}`) ?? 0 : 0,
+      known: true,
+    };
+  }
+
   async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
     const key = sessionKey(ref.tenant, ref.session);
     let e = this.sessions.get(key);
     const current = e?.version ?? 0;
+    if (req.fence && fencedOut(req.fence, await this.fence(ref))) return { ok: false, erased: true, version: current };
     if (req.commitId && e?.commitIds?.includes(req.commitId)) return { ok: true, version: current };
     if (current !== req.expectedVersion) return { ok: false, conflict: true, version: current };
     for (const op of req.ops) {
@@ -166,6 +177,7 @@ export class InProcessStore implements Store {
   async erase(target: EraseTarget): Promise<EraseReport> {
     const report: EraseReport = { sessions: 0, slots: 0, logbookEntries: 0, events: 0 };
     const sessions: string[] = [];
+    const at = this.tombstone('user' in target ? `u${userKey(target.tenant, target.user)}` : `s${sessionKey(target.tenant, target.session)}`, 0);
     if ('user' in target) {
       const uk = userKey(target.tenant, target.user);
       sessions.push(...(this.userSessions.get(uk) ?? []));
@@ -176,6 +188,7 @@ export class InProcessStore implements Store {
     }
     for (const s of sessions) {
       const key = sessionKey(target.tenant, s);
+      this.tombstone(`s${key}`, at);
       const e = this.sessions.get(key);
       if (e) {
         report.sessions++;
@@ -200,6 +213,16 @@ export class InProcessStore implements Store {
     // Erasure must reach the snapshot file at once, not at the next interval.
     if (this.o.snapshotPath) this.save();
     return report;
+  }
+
+  /** Moves a tombstone to max(now, at, previous + 1) and returns it. */
+  private tombstone(key: string, at: number): number {
+    const t = Math.max(Date.now(), at, (this.tombstones.get(key) ?? 0) + 1);
+    this.tombstones.delete(key);
+    this.tombstones.set(key, t);
+    // Bounded: past the cap the oldest tombstones go (the Redis store keeps them for fenceTtlSeconds).
+    if (this.tombstones.size > 100_000) this.tombstones.delete(this.tombstones.keys().next().value!);
+    return t;
   }
 
   async listSessions(tenant: string, limit = 1000): Promise<string[]> {
@@ -305,6 +328,16 @@ export class InProcessStore implements Store {
 }
 
 const EMPTY = new LogbookIndex();
+
+/**
+ * Whether an erase happened after a writer's fence: a known fence is refused when a tombstone is
+ * newer than the one it saw; an unknown one (the writer's clock at acceptance) when a tombstone is at
+ * or after it.
+ */
+export function fencedOut(fence: ErasureFence, now: ErasureFence): boolean {
+  if (fence.known) return now.session > fence.session || now.user > fence.user;
+  return now.session >= fence.session || now.user >= fence.user;
+}
 
 /** The default store (see InProcessStoreOptions). */
 export function inProcessStore(options?: InProcessStoreOptions): InProcessStore {

@@ -61,6 +61,25 @@ export interface CommitRequest {
    * never applied twice. Up to 128 chars, no spaces.
    */
   commitId?: string;
+  /**
+   * The erasure fence the turn was accepted under (from `Store.fence`, taken when the turn was
+   * read or accepted). A store refuses the commit with `{ ok: false, erased: true }` when the session
+   * or its user was erased after that fence, so no write planned before an erase — a reply still
+   * streaming, a retry from any process's outbox, a promotion of an erased value — lands after it.
+   * Unset: the commit is not fenced (admin operations on a live session).
+   */
+  fence?: ErasureFence;
+}
+
+/**
+ * What a writer knew of erasures when its turn was accepted: the time (ms, store clock) of the
+ * latest erase of the session and of the user it had seen, or, when the store could not be asked,
+ * the writer's own clock at acceptance (`known: false`).
+ */
+export interface ErasureFence {
+  session: number;
+  user: number;
+  known: boolean;
 }
 
 /**
@@ -82,7 +101,8 @@ export interface RetentionDropped {
 
 export type CommitResult =
   | { ok: true; version: number; dropped?: RetentionDropped }
-  | { ok: false; conflict: true; version: number };
+  | { ok: false; conflict: true; version: number }
+  | { ok: false; erased: true; version: number };
 
 /** What to erase: a whole session, or everything of one user (all their sessions and logbook). */
 export type EraseTarget = { tenant: string; session: string } | { tenant: string; user: string };
@@ -137,6 +157,13 @@ export interface Store {
   erase(target: EraseTarget): Promise<EraseReport>;
   /** Session ids of a tenant that currently hold state (for inspect and the dashboard). */
   listSessions(tenant: string, limit?: number): Promise<string[]>;
+  /**
+   * The erasure fence of a session now (see `CommitRequest.fence`): the time of the latest erase of
+   * the session and of `ref.user`, as the store keeps them (tombstones). Optional for stores of
+   * your own: without it the middleware sends no fence and erasure is only as strong as one
+   * process's write chain.
+   */
+  fence?(ref: SessionRef): Promise<ErasureFence>;
   /** Releases connections, timers and files. */
   close(): Promise<void>;
 }

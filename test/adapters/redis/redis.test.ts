@@ -4,7 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
-import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { REDIS_STORE_DEFAULTS, RedisStore, redisStore } from '../../../adapters/redis/index.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
@@ -252,7 +252,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       await forever.erase({ tenant: 'acme', user: 'u-ttl' });
     });
 
-    it('erasure leaves no key of the session or of the user (SCAN proves it)', async () => {
+    it('erasure leaves no data key of the session or of the user, only tombstones holding a time (SCAN proves it)', async () => {
       const store = redisStore({ redis: client, prefix });
       const a = { tenant: 'acme', session: 'gone-1', user: 'u-gone' };
       const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
@@ -260,12 +260,19 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       for (const ref of [a, b, c]) {
         await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
-      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(5 * 3); // meta, slots, events, (u)arch, (u)alog
+      // meta, slots, events, (u)arch, (u)alog, plus the applied commit ids
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(6 * 3);
       expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
       expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, logbookEntries: 2, events: 2 });
       expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, logbookEntries: 1, events: 1 });
-      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toEqual([]);
-      expect(await scanKeys(client, `${prefix}{acme:u:u-gone}*`)).toEqual([]);
+      // What is left: one tombstone per session and one for the user, each a bare time in ms with a TTL.
+      const left = [...(await scanKeys(client, `${prefix}{acme:gone-*`)), ...(await scanKeys(client, `${prefix}{acme:u:u-gone}*`))].sort();
+      expect(left).toEqual([`${prefix}{acme:gone-1}:gone`, `${prefix}{acme:gone-2}:gone`, `${prefix}{acme:gone-3}:gone`, `${prefix}{acme:u:u-gone}:gone`]);
+      for (const key of left) {
+        expect(await client.get(key)).toMatch(/^\d{13}$/);
+        expect(await client.ttl(key)).toBeGreaterThan(0);
+        expect(await client.ttl(key)).toBeLessThanOrEqual(REDIS_STORE_DEFAULTS.fenceTtlSeconds);
+      }
       // A store that had them cached returns nothing either.
       expect(await store.load(a)).toBeNull();
       expect((await searchText(store, { tenant: 'acme', user: 'u-gone' }, 'old value')).hits).toEqual([]);
