@@ -36,9 +36,9 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
  *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 retention: max entries per
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
- *       15 #events, 16 fence: erase time the writer saw ('' = unfenced), 17 '1' when that fence is
- *       known, '0' when it is the writer's clock, 18 fence ttl seconds (how long ids and tombstones
- *       live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
+ *       15 #events, 16 fence: the session's erase time the writer saw ('' = none), 17 fence: the
+ *       writer's clock when it accepted the turn ('' = unfenced), 18 fence ttl seconds (how long
+ *       ids and tombstones live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
  * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
  * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
  * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
@@ -51,10 +51,9 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 export const COMMIT = script('commit', 9, `
 local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
 local v = tonumber(m[1] or '0')
-if ARGV[16] ~= '' then
-  local gone, f = tonumber(redis.call('GET', KEYS[8]) or '0'), tonumber(ARGV[16])
-  if gone > f or (ARGV[17] == '0' and gone >= f) then return {3, v, m[2] or ''} end
-end
+-- Fenced: refused when the session was erased after the writer looked, or not before it accepted the turn.
+local gone = tonumber(redis.call('GET', KEYS[8]) or '0')
+if (ARGV[16] ~= '' and gone > tonumber(ARGV[16])) or (ARGV[17] ~= '' and gone >= tonumber(ARGV[17])) then return {3, v, m[2] or ''} end
 local t = redis.call('TIME')
 local nowms = tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000)
 local keepfor = tonumber(ARGV[18])
@@ -235,14 +234,13 @@ return {existed, slots, items, events, user, tostring(at)}
  * commit that may be a session's first under its user, on the user's hash tag, so it and a user erase
  * (USER_ERASE) are atomic with respect to each other: a session is either in the set the erase reads,
  * or refused here.
- * KEYS: the user's session set, the user's tombstone. ARGV: session, fence ('' = unfenced), '1' known / '0' writer's clock.
+ * KEYS: the user's session set, the user's tombstone. ARGV: session, the user's erase time the writer
+ * saw ('' = none), the writer's clock when it accepted the turn ('' = unfenced).
  * Reply: 1 linked | 0 refused (erased after the fence).
  */
 export const LINK = script('link', 2, `
-if ARGV[2] ~= '' then
-  local gone, f = tonumber(redis.call('GET', KEYS[2]) or '0'), tonumber(ARGV[2])
-  if gone > f or (ARGV[3] == '0' and gone >= f) then return 0 end
-end
+local gone = tonumber(redis.call('GET', KEYS[2]) or '0')
+if (ARGV[2] ~= '' and gone > tonumber(ARGV[2])) or (ARGV[3] ~= '' and gone >= tonumber(ARGV[3])) then return 0 end
 redis.call('SADD', KEYS[1], ARGV[1])
 return 1
 `);

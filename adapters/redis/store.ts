@@ -11,7 +11,7 @@ import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/er
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { listEntries } from '../../src/store/in-process.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
@@ -237,7 +237,7 @@ export class RedisStore implements Store {
     return { version, clock, turns, table };
   }
 
-  async fence(ref: SessionRef): Promise<ErasureFence> {
+  async fence(ref: SessionRef): Promise<ErasureMarks> {
     try {
       const c = await this.conn('fence');
       // Two keys under two hash tags: two commands (one round trip each, side by side).
@@ -245,7 +245,7 @@ export class RedisStore implements Store {
         c.get(this.keys.session(ref.tenant, ref.session).gone),
         ref.user ? c.get(this.keys.userGone(ref.tenant, ref.user)) : Promise.resolve(null),
       ]);
-      return { session: Number(s ?? 0), user: Number(u ?? 0), known: true };
+      return { session: Number(s ?? 0), user: Number(u ?? 0) };
     } catch (err) {
       throw unavailable('fence', err);
     }
@@ -265,9 +265,9 @@ export class RedisStore implements Store {
         // between LINK and COMMIT leaves a set member without a session (harmless). A new session
         // (expected version 0, also after an erase) always links again.
         const lk = `${k.meta}\u0000${ref.user}`;
-        if (req.expectedVersion === 0 || !this.linked.has(lk) || (req.fence && !req.fence.known)) {
-          const f = req.fence;
-          const ok = await runScript(c, LINK, [this.keys.userSessions(ref.tenant, ref.user), this.keys.userGone(ref.tenant, ref.user)], [ref.session, f ? String(f.user) : '', f?.known === false ? '0' : '1']);
+        const f = req.fence;
+        if (req.expectedVersion === 0 || !this.linked.has(lk) || (f && !f.seen)) {
+          const ok = await runScript(c, LINK, [this.keys.userSessions(ref.tenant, ref.user), this.keys.userGone(ref.tenant, ref.user)], [ref.session, f?.seen ? f.seen.user : '', f ? f.acceptedMs : '']);
           if (Number(ok) !== 1) return { ok: false, erased: true, version: req.expectedVersion };
           if (this.linked.size > 100_000) this.linked.clear();
           this.linked.add(lk);
@@ -451,7 +451,7 @@ export class RedisStore implements Store {
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
       this.o.idleTtlSeconds, this.o.maxEvents, policy?.maxEntries ?? 0, cutoff, req.ops.length, req.logbook.length, req.events.length,
-      f ? String(f.session) : '', f?.known === false ? '0' : '1', this.o.fenceTtlSeconds,
+      f?.seen ? f.seen.session : '', f ? Math.floor(f.acceptedMs) : '', this.o.fenceTtlSeconds,
     ];
     const keys: (Float32Array | null)[] = [];
     for (const op of req.ops) {

@@ -9,7 +9,7 @@ import type { Embedder } from '../embed/embedder.js';
 import { EmbedderError, ErrorCodes, StoreError, TidemarkError, isTidemarkError } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';
 import type { MemoryParams } from '../memory/params.js';
-import type { ErasureFence, SessionSnapshot, Store } from '../store/store.js';
+import type { ErasureFence, ErasureMarks, SessionSnapshot, Store } from '../store/store.js';
 import type { LogbookEntry, MemoryContext, SessionRef } from '../types.js';
 import type { TidemarkEvents } from './events.js';
 import type { ResolvedOptions } from './options.js';
@@ -22,10 +22,8 @@ export const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeou
 /** Microseconds since an origin from performance.now(). */
 export const usSince = (t0: number): number => (performance.now() - t0) * 1000;
 
-/** The fence of a turn accepted at `acceptedMs` when the store could not be asked (see ErasureFence). */
-export const unknownFence = (acceptedMs: number): ErasureFence => ({ session: acceptedMs, user: acceptedMs, known: false });
-const sameFence = (a: ErasureFence | undefined, b: ErasureFence | undefined): boolean =>
-  a !== undefined && b !== undefined && a.known && b.known && a.session === b.session && a.user === b.user;
+const sameMarks = (a: ErasureMarks | undefined, b: ErasureMarks | undefined): boolean =>
+  a !== undefined && b !== undefined && a.session === b.session && a.user === b.user;
 
 /** Bounded insertion-ordered map: the oldest key goes when full. */
 function remember<K, V>(m: Map<K, V>, k: K, v: V, max: number): void {
@@ -119,13 +117,13 @@ export class Core {
     return error;
   }
 
-  /** The session's erasure fence now; unknown (this clock) when the store cannot be asked. */
+  /** The fence of a turn accepted at `acceptedMs`: the store's erasure marks now, when it answers. */
   async fenceNow(ref: SessionRef, acceptedMs: number): Promise<ErasureFence | undefined> {
     if (!this.store.fence) return undefined;
     try {
-      return await this.store.fence(ref);
+      return { seen: await this.store.fence(ref), acceptedMs };
     } catch {
-      return unknownFence(acceptedMs);
+      return { acceptedMs };
     }
   }
 
@@ -141,7 +139,7 @@ export class Core {
 
   /** Whether values recalled by the session's last read were recalled under `fence` (no erase since). */
   recalledUnder(ref: SessionRef, fence: ErasureFence | undefined): boolean {
-    return fence === undefined ? !this.store.fence : sameFence(this.recalledFence.get(keyOf(ref)), fence);
+    return fence === undefined ? !this.store.fence : sameMarks(this.recalledFence.get(keyOf(ref))?.seen, fence.seen);
   }
 
   /** Runs `fn` after the session's previous write settles; writes of one session apply in order. */

@@ -31,6 +31,7 @@ export class ReadPath {
   async read(turn: Turn, history: boolean): Promise<MemoryContext> {
     const core = this.core;
     const t0 = performance.now();
+    const acceptedMs = Date.now();
     const ref = refOf(turn);
     const p = core.params.read;
     const e0 = performance.now();
@@ -57,7 +58,7 @@ export class ReadPath {
         };
         // The erasure fence the turn is accepted under: its write is refused if an erase comes after.
         const [s, r, f] = await Promise.all([core.store.load(ref), search(), core.store.fence?.(ref)]);
-        return { s, r, f };
+        return { s, r, f: f ? { seen: f, acceptedMs } : undefined };
       });
       snap = loaded.s;
       lb = loaded.r;

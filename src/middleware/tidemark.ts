@@ -16,7 +16,7 @@ import { InProcessStore } from '../store/in-process.js';
 import type { EraseReport, Store } from '../store/store.js';
 import type { MemoryContext, RecallItem, TurnInput } from '../types.js';
 import { Admin, type SessionView } from './admin.js';
-import { Core, refOf, unknownFence } from './core.js';
+import { Core, refOf } from './core.js';
 import type { TidemarkEvents } from './events.js';
 import { resolveOptions, type TidemarkOptions } from './options.js';
 import { Outbox } from './outbox.js';
@@ -206,7 +206,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
         const said = end === 'done' ? text : undefined;
         // Fenced as of the read: an erase while the reply streamed wins over this write. A degraded
         // read could not ask the store, so the fence is this process's clock at acceptance.
-        const fence = this.core.fenceOf(memory) ?? (this.store.fence ? unknownFence(acceptedMs) : undefined);
+        const fence = this.core.fenceOf(memory) ?? (this.store.fence ? { acceptedMs } : undefined);
         this.outbox.enqueue(ref, turns, this.usedBy(memory, said), this.promotedBy(memory, said), fence, acceptedMs).catch(() => {
           // Reported through the error event (a conflict or an outage keeps it queued, an erase
           // refuses it by design); a reply is never failed by its memory write.

@@ -10,7 +10,7 @@ import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type Logbook
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
 
 export interface InProcessStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
@@ -94,11 +94,10 @@ export class InProcessStore implements Store {
     return { version: e.version, clock: e.clock, turns: e.turns, table: e.table };
   }
 
-  async fence(ref: SessionRef): Promise<ErasureFence> {
+  async fence(ref: SessionRef): Promise<ErasureMarks> {
     return {
       session: this.tombstones.get(`s${sessionKey(ref.tenant, ref.session)}`) ?? 0,
       user: ref.user ? this.tombstones.get(`u${userKey(ref.tenant, ref.user)}`) ?? 0 : 0,
-      known: true,
     };
   }
 
@@ -329,14 +328,11 @@ export class InProcessStore implements Store {
 
 const EMPTY = new LogbookIndex();
 
-/**
- * Whether an erase happened after a writer's fence: a known fence is refused when a tombstone is
- * newer than the one it saw; an unknown one (the writer's clock at acceptance) when a tombstone is at
- * or after it.
- */
-export function fencedOut(fence: ErasureFence, now: ErasureFence): boolean {
-  if (fence.known) return now.session > fence.session || now.user > fence.user;
-  return now.session >= fence.session || now.user >= fence.user;
+/** Whether an erase happened after a writer's fence (see ErasureFence). */
+export function fencedOut(fence: ErasureFence, now: ErasureMarks): boolean {
+  const s = fence.seen;
+  if (s && (now.session > s.session || now.user > s.user)) return true;
+  return now.session >= fence.acceptedMs || now.user >= fence.acceptedMs;
 }
 
 /** The default store (see InProcessStoreOptions). */

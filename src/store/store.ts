@@ -71,15 +71,22 @@ export interface CommitRequest {
   fence?: ErasureFence;
 }
 
-/**
- * What a writer knew of erasures when its turn was accepted: the time (ms, store clock) of the
- * latest erase of the session and of the user it had seen, or, when the store could not be asked,
- * the writer's own clock at acceptance (`known: false`).
- */
-export interface ErasureFence {
+/** Times (ms, the store's clock; 0 = never) of the latest erase of a session and of its user. */
+export interface ErasureMarks {
   session: number;
   user: number;
-  known: boolean;
+}
+
+/**
+ * What a writer knew of erasures when its turn was accepted. A store refuses the write when a
+ * tombstone of the session or user is newer than the one the writer saw (`seen`), or not older than
+ * the moment the turn was accepted (`acceptedMs`, the writer's clock: it covers an erase between
+ * acceptance and the look, and a look that could not be made). Clocks of the bot and the store are
+ * assumed to agree within the skew NTP keeps.
+ */
+export interface ErasureFence {
+  seen?: ErasureMarks;
+  acceptedMs: number;
 }
 
 /**
@@ -158,12 +165,12 @@ export interface Store {
   /** Session ids of a tenant that currently hold state (for inspect and the dashboard). */
   listSessions(tenant: string, limit?: number): Promise<string[]>;
   /**
-   * The erasure fence of a session now (see `CommitRequest.fence`): the time of the latest erase of
+   * The erasure marks of a session now (see `CommitRequest.fence`): the time of the latest erase of
    * the session and of `ref.user`, as the store keeps them (tombstones). Optional for stores of
    * your own: without it the middleware sends no fence and erasure is only as strong as one
    * process's write chain.
    */
-  fence?(ref: SessionRef): Promise<ErasureFence>;
+  fence?(ref: SessionRef): Promise<ErasureMarks>;
   /** Releases connections, timers and files. */
   close(): Promise<void>;
 }
