@@ -54,7 +54,7 @@ program
   .command('serve')
   .description('serve the demo bot over HTTP: POST /chat (SSE), /metrics, /dashboard')
   .option('--port <n>', 'port to listen on', int('--port'), 8787)
-  .option('--host <host>', 'address to bind (127.0.0.1 unless a token is set)')
+  .option('--host <host>', 'address to bind (default 127.0.0.1; another needs --token, and /chat then still answers loopback callers only: bind callers with resolveIdentity in code)')
   .option('--redis <url>', 'keep memory in Redis at this URL instead of in-process')
   .option('--token <token>', 'bearer token for the admin endpoints and dashboard (also TIDEMARK_TOKEN)')
   .action(async (o: { port: number; host?: string; redis?: string; token?: string }) => {

@@ -1,10 +1,11 @@
 // `tidemark serve`: the demo bike-workshop bot behind the HTTP adapter, on the in-process store or on
-// Redis, with /chat (SSE), /metrics and /dashboard in one command. Binds to loopback unless a token is
-// set, since the admin endpoints are then open to any local client only.
+// Redis, with /chat (SSE), /metrics and /dashboard in one command. Binds to loopback unless told
+// otherwise (another address needs a token for the admin endpoints), and its URL is the address it
+// bound. /chat binds turns to callers through `resolveIdentity`; without it, loopback callers only.
 
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
-import { createHttpAdapter, isLoopback, type ChatHandler } from '../adapters/http/index.js';
+import { createHttpAdapter, isLoopback, type ChatHandler, type ResolveIdentity } from '../adapters/http/index.js';
 import { ConfigError, describeValue } from '../src/errors.js';
 import { createTidemark, type Tidemark, type TidemarkOptions } from '../src/middleware/tidemark.js';
 import { demoHandler } from './demo-bot.js';
@@ -12,7 +13,7 @@ import { demoHandler } from './demo-bot.js';
 export interface ServeOptions {
   /** TCP port; 0 picks a free one. @default 8787 */
   port?: number;
-  /** Address to bind. @default '127.0.0.1', or '0.0.0.0' when a token is set */
+  /** Address to bind; any other than loopback needs `token`. @default '127.0.0.1' */
   host?: string;
   /** Redis URL for the store (`redis://…`); without it memory lives in this process. @default undefined */
   redis?: string;
@@ -24,6 +25,11 @@ export interface ServeOptions {
   tidemark?: Omit<TidemarkOptions, 'store'>;
   /** Dashboard feed period. @default 1000 */
   feedIntervalMs?: number;
+  /**
+   * Who a /chat request is (see the HTTP adapter's `resolveIdentity`). Required for /chat to answer
+   * anyone but loopback clients. @default undefined
+   */
+  resolveIdentity?: ResolveIdentity;
 }
 
 export const SERVE_DEFAULTS = { port: 8787, feedIntervalMs: 1000 } as const;
@@ -42,7 +48,7 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
   if (!Number.isInteger(port) || port < 0 || port > 65535) {
     throw new ConfigError(`serve: port must be an integer in [0, 65535], got ${describeValue(port)}`, { details: { option: 'port' } });
   }
-  const host = options.host ?? (options.token ? '0.0.0.0' : '127.0.0.1');
+  const host = options.host ?? '127.0.0.1';
   if (!options.token && !isLoopback(host) && host !== 'localhost') {
     throw new ConfigError(`serve: binding to ${host} exposes the admin endpoints; set a token or bind to 127.0.0.1`, { details: { option: 'host' } });
   }
@@ -59,6 +65,7 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
     tidemark: tm,
     handler: options.handler ?? demoHandler,
     ...(options.token ? { token: options.token } : {}),
+    ...(options.resolveIdentity ? { resolveIdentity: options.resolveIdentity } : {}),
     feedIntervalMs: options.feedIntervalMs ?? SERVE_DEFAULTS.feedIntervalMs,
   });
   const server = createServer(adapter.listener);
@@ -70,7 +77,8 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
     });
   });
   const addr = server.address() as AddressInfo;
-  const shownHost = addr.family === 'IPv6' ? `[${addr.address}]` : addr.address === '0.0.0.0' ? '127.0.0.1' : addr.address;
+  // Exactly the address bound: 0.0.0.0 is shown as 0.0.0.0 (every interface), never as loopback.
+  const shownHost = addr.family === 'IPv6' ? `[${addr.address}]` : addr.address;
   let closing: Promise<void> | null = null;
   return {
     url: `http://${shownHost}:${addr.port}`,

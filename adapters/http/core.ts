@@ -2,7 +2,7 @@
 // admin endpoints, body limits, JSON errors with TidemarkError codes, and the streaming chat reply as
 // Server-Sent Events. Front-ends only translate their request/response types to and from this core.
 
-import { createHash, timingSafeEqual } from 'node:crypto';
+import { createHash, createHmac, timingSafeEqual } from 'node:crypto';
 import { ConfigError, ErrorCodes, TidemarkError, describeValue, isTidemarkError } from '../../src/errors.js';
 import { DashboardCollector } from '../../src/metrics/collector.js';
 import { prometheusMetrics, type PrometheusMetrics } from '../../src/metrics/prometheus.js';
@@ -56,7 +56,35 @@ export interface HttpAdapterOptions {
   revealSessionIds?: boolean;
   /** Path prefix the routes live under, e.g. `/memory`. @default '' */
   basePath?: string;
+  /**
+   * Who a `/chat` request is: binds the memory a turn reads and writes to your authenticated caller
+   * (a verified session cookie, a signed token, headers set by your authenticating proxy). Return
+   * null to refuse the request (401). **Required when `/chat` is reachable by anyone but you**: without
+   * it, the session and user come from the request body — any caller could name another's — so
+   * `/chat` then answers loopback clients only. The body's `session`/`user` are ignored when it is set.
+   * @default undefined
+   */
+  resolveIdentity?: ResolveIdentity;
 }
+
+/** What `resolveIdentity` sees of a `/chat` request: its headers, peer and the parsed JSON body. */
+export interface IdentityRequest {
+  method: string;
+  url: string;
+  header(name: string): string | undefined;
+  remoteAddress: string | undefined;
+  /** The parsed JSON body (its `text` is the turn). */
+  body: Record<string, unknown>;
+}
+
+/** Whose memory a turn uses. `tenant` defaults to the tidemark instance's. */
+export interface ChatIdentity {
+  session: string;
+  user?: string;
+  tenant?: string;
+}
+
+export type ResolveIdentity = (request: IdentityRequest) => ChatIdentity | null | undefined | Promise<ChatIdentity | null | undefined>;
 
 export const HTTP_ADAPTER_DEFAULTS = {
   maxBodyBytes: 64 * 1024,
@@ -161,6 +189,9 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
   if (o.token !== undefined && (typeof o.token !== 'string' || o.token.length < 16 || /\s/.test(o.token))) {
     throw new ConfigError('http: option token must be a string of at least 16 characters without spaces', { details: { option: 'token' } });
   }
+  if (o.resolveIdentity !== undefined && typeof o.resolveIdentity !== 'function') {
+    throw new ConfigError(`http: option resolveIdentity must be a function (request) => { session, user?, tenant? } | null, got ${describeValue(o.resolveIdentity)}`, { details: { option: 'resolveIdentity' } });
+  }
   if (!Number.isInteger(o.maxBodyBytes) || o.maxBodyBytes < 64) {
     throw new ConfigError(`http: option maxBodyBytes must be an integer >= 64, got ${describeValue(o.maxBodyBytes)}`, { details: { option: 'maxBodyBytes' } });
   }
@@ -229,13 +260,27 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     if (!tokenDigest || !candidate) return false;
     return timingSafeEqual(createHash('sha256').update(candidate).digest(), tokenDigest);
   };
+  /**
+   * The dashboard cookie holds a value derived from the token (HMAC), never the token itself, so a
+   * leaked cookie does not give the bearer token for /metrics scrapers and other tools.
+   */
+  const cookieValue = o.token ? createHmac('sha256', o.token).update('tidemark dashboard cookie v1').digest('hex') : undefined;
+  const cookieMatches = (candidate: string | undefined): boolean => {
+    if (!cookieValue || !candidate || candidate.length !== cookieValue.length) return false;
+    return timingSafeEqual(Buffer.from(candidate), Buffer.from(cookieValue));
+  };
 
   const cookieToken = (req: CoreRequest): string | undefined => {
     const raw = req.header('cookie');
     if (!raw) return undefined;
     for (const part of raw.split(';')) {
       const [k, ...v] = part.trim().split('=');
-      if (k === COOKIE) return decodeURIComponent(v.join('='));
+      if (k !== COOKIE) continue;
+      try {
+        return decodeURIComponent(v.join('='));
+      } catch {
+        return undefined; // A malformed cookie is no token (401), not a server error.
+      }
     }
     return undefined;
   };
@@ -245,7 +290,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     if (tokenDigest) {
       const auth = req.header('authorization');
       const bearer = auth && /^Bearer\s+/i.test(auth) ? auth.replace(/^Bearer\s+/i, '').trim() : undefined;
-      if (tokenMatches(bearer) || tokenMatches(cookieToken(req))) return;
+      if (tokenMatches(bearer) || cookieMatches(cookieToken(req))) return;
       throw new HttpError(401, ErrorCodes.HTTP_UNAUTHORIZED, 'this endpoint needs the admin token: send "Authorization: Bearer <token>"', {}, {
         'www-authenticate': 'Bearer realm="tidemark"',
       });
@@ -289,19 +334,46 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     }
   };
 
+  const badId = (field: string, v: unknown): HttpError =>
+    new HttpError(400, ErrorCodes.INPUT_ID, `${field} must be 1-128 characters of letters, digits and . _ : @ -, got ${describeValue(v)}`, { field });
+
+  /**
+   * The session and user of a `/chat` turn: from `resolveIdentity` when set (the body's ids ignored),
+   * else from the body — and then only for loopback peers, since any caller could name anyone's.
+   */
+  const identify = async (req: CoreRequest, body: Record<string, unknown>): Promise<{ session: string; text: unknown; user?: string; tenant?: string }> => {
+    const { text } = body;
+    if (!o.resolveIdentity) {
+      if (!isLoopback(req.remoteAddress)) {
+        throw new HttpError(401, ErrorCodes.HTTP_UNAUTHORIZED, '/chat takes the session from the request body, so it answers loopback clients only; set resolveIdentity to bind turns to your authenticated callers');
+      }
+      const { session, user } = body;
+      if (typeof session !== 'string' || !ID_PATTERN.test(session)) throw badId('session', session);
+      if (user !== undefined && (typeof user !== 'string' || !ID_PATTERN.test(user))) throw badId('user', user);
+      return { session, text, ...(user !== undefined ? { user } : {}) };
+    }
+    let id: ChatIdentity | null | undefined;
+    try {
+      id = await o.resolveIdentity({ method: req.method, url: req.url, header: (n) => req.header(n), remoteAddress: req.remoteAddress, body });
+    } catch (err) {
+      if (err instanceof HttpError) throw err;
+      // The hook's own message may name the caller: not echoed.
+      throw new HttpError(401, ErrorCodes.HTTP_UNAUTHORIZED, 'resolveIdentity refused this request');
+    }
+    if (id === null || id === undefined) throw new HttpError(401, ErrorCodes.HTTP_UNAUTHORIZED, 'resolveIdentity found no caller for this request');
+    if (typeof id !== 'object' || typeof id.session !== 'string' || !ID_PATTERN.test(id.session)) throw new HttpError(500, ErrorCodes.CONFIG, 'resolveIdentity returned no valid session id');
+    if (id.user !== undefined && (typeof id.user !== 'string' || !ID_PATTERN.test(id.user))) throw new HttpError(500, ErrorCodes.CONFIG, 'resolveIdentity returned an invalid user id');
+    if (id.tenant !== undefined && (typeof id.tenant !== 'string' || !ID_PATTERN.test(id.tenant))) throw new HttpError(500, ErrorCodes.CONFIG, 'resolveIdentity returned an invalid tenant id');
+    return { session: id.session, text, ...(id.user !== undefined ? { user: id.user } : {}), ...(id.tenant !== undefined ? { tenant: id.tenant } : {}) };
+  };
+
   const chat = async (req: CoreRequest, cors: Record<string, string>): Promise<CoreResponse> => {
     const t0 = performance.now();
     const body = await readJson(req);
     if (typeof body !== 'object' || body === null || Array.isArray(body)) {
       throw new HttpError(400, ErrorCodes.HTTP_BAD_REQUEST, `the body must be a JSON object { "session", "text", "user"? }, got ${describeValue(body)}`);
     }
-    const { session, text, user } = body as Record<string, unknown>;
-    if (typeof session !== 'string' || !ID_PATTERN.test(session)) {
-      throw new HttpError(400, ErrorCodes.INPUT_ID, `session must be 1-128 characters of letters, digits and . _ : @ -, got ${describeValue(session)}`, { field: 'session' });
-    }
-    if (user !== undefined && (typeof user !== 'string' || !ID_PATTERN.test(user))) {
-      throw new HttpError(400, ErrorCodes.INPUT_ID, `user must be 1-128 characters of letters, digits and . _ : @ -, got ${describeValue(user)}`, { field: 'user' });
-    }
+    const { session, text, user, tenant } = await identify(req, body as Record<string, unknown>);
     if (o.revealSessionIds) {
       const hash = tm.hashSession(tm.tenant, session);
       revealed.delete(hash);
@@ -309,7 +381,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
       if (revealed.size > 10_000) revealed.delete(revealed.keys().next().value!);
     }
     let memory: MemoryContext | undefined;
-    const input = { session, text, ...(user !== undefined ? { user } : {}) } as WrapInput;
+    const input = { session, text, ...(user !== undefined ? { user } : {}), ...(tenant !== undefined ? { tenant } : {}) } as WrapInput;
     // Validation errors (empty text, oversized text) reject here, before any byte of the stream is sent.
     const reply = await wrapFor((m) => (memory = m))(input, { signal: req.signal });
     const memoryEvent = o.memoryEvent;
@@ -428,7 +500,8 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
                 status: 303,
                 headers: {
                   location: path.replace(/\/$/, ''),
-                  'set-cookie': `${COOKIE}=${encodeURIComponent(given)}; HttpOnly; SameSite=Strict; Path=${o.basePath || '/'}`,
+                  // Secure except to a loopback peer (a browser on this machine over plain http).
+                  'set-cookie': `${COOKIE}=${cookieValue}; HttpOnly; SameSite=Strict; Path=${o.basePath || '/'}${isLoopback(req.remoteAddress) ? '' : '; Secure'}`,
                   'cache-control': 'no-store',
                 },
                 body: '',

@@ -7,7 +7,7 @@ import { ErrorCodes } from '../../src/errors.js';
 import { createHttpCore, errorResponse, HttpError, type CoreRequest, type CoreResponse, type HttpAdapterOptions, type HttpCore } from './core.js';
 
 export { createHttpCore, HttpError, HTTP_ADAPTER_DEFAULTS, isLoopback, memorySummary } from './core.js';
-export type { ChatHandler, CoreRequest, CoreResponse, CorsOptions, HttpAdapterOptions, HttpCore } from './core.js';
+export type { ChatHandler, ChatIdentity, CoreRequest, CoreResponse, CorsOptions, HttpAdapterOptions, HttpCore, IdentityRequest, ResolveIdentity } from './core.js';
 export { sseFrame, sseComment, sseRetry, SSE_HEADERS } from './sse.js';
 export type { SseMessage } from './sse.js';
 

@@ -244,8 +244,8 @@ describe('admin endpoints', () => {
       expect(cookie).toMatch(/HttpOnly; SameSite=Strict/);
       const data = await a.fetch(new Request('http://h/dashboard/data', { headers: { cookie: cookie.split(';')[0]! } }));
       expect(data.status).toBe(200);
-      // The chat endpoint itself is not an admin endpoint.
-      const chat = await a.fetch(new Request('http://h/chat', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ session: 'f1', text: 'hello' }) }));
+      // The chat endpoint itself is not an admin endpoint (ids from the body: loopback callers only).
+      const chat = await a.fetch(new Request('http://h/chat', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ session: 'f1', text: 'hello' }) }), loopback);
       expect(chat.status).toBe(200);
       const events = parseSse(await chat.text());
       expect(events.filter((e) => e.event === undefined).map((e) => e.data).join('')).toBe(BOT_TEXT('hello', 0));
