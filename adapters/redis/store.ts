@@ -134,6 +134,12 @@ export class RedisStore implements Store {
   /** One id per CommitRequest object, so a re-sent commit is recognised as already applied. */
   private readonly commitIds = new WeakMap<CommitRequest, string>();
   private closed = false;
+  /** This store's mark in Redis (see watchResets); '' until first connected. */
+  private marker = '';
+  private readonly resetListeners: Array<(e: { atMs: number }) => void> = [];
+  private readonly watched = new WeakSet<object>();
+  /** Times the server was found empty after an outage (its marker key gone). */
+  resets = 0;
 
   constructor(options: RedisStoreOptions = {}) {
     // An option given as undefined means "the default", as documented, not "no value".
@@ -429,7 +435,38 @@ export class RedisStore implements Store {
     if (this.closed) throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `redis store: ${op} after close()`);
     const c = this.client ?? (await this.clientReady);
     await ensureReady(c, this.o.connectTimeoutMs);
+    if (!this.watched.has(c)) {
+      this.watched.add(c);
+      await this.checkMarker(c);
+      c.on('ready', () => void this.checkMarker(c).catch(() => undefined));
+    }
     return c;
+  }
+
+  watchResets(listener: (e: { atMs: number }) => void): void {
+    this.resetListeners.push(listener);
+  }
+
+  /**
+   * A server that comes back without the marker key this store set when it first connected has lost
+   * its data (a restart without persistence, a flush): reported to `watchResets` listeners, counted
+   * in `resets`, and the marker set again. Processes sharing a prefix share the marker.
+   */
+  private async checkMarker(c: RedisClient): Promise<void> {
+    const key = `${this.o.prefix}marker`;
+    const mine = this.marker || token();
+    const set = await c.set(key, mine, 'NX');
+    if (!this.marker) {
+      this.marker = set === 'OK' ? mine : ((await c.get(key)) ?? mine);
+      return;
+    }
+    if (set === 'OK') {
+      this.resets++;
+      this.cache.clear();
+      this.scopes.clear();
+      this.linked.clear();
+      for (const l of this.resetListeners) l({ atMs: Date.now() });
+    }
   }
 
   private commitArgs(ref: SessionRef, req: CommitRequest): { args: (string | Buffer | number)[]; keys: (Float32Array | null)[] } {

@@ -62,6 +62,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   private readonly outbox: Outbox;
   private readonly admin: Admin;
   private closed = false;
+  /** Times the store was found empty after an outage (a `storeReset` event each; a counter for metrics). */
+  storeResets = 0;
 
   constructor(options: TidemarkOptions = {}) {
     super();
@@ -80,6 +82,11 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     this.outbox = new Outbox(this.core, this.writes);
     this.admin = new Admin(this.core, this.outbox);
     this.retentionTracker.attach(this);
+    this.store.watchResets?.(({ atMs }) => {
+      this.storeResets++;
+      this.core.clearMemos();
+      this.emit('storeReset', { store: this.store.name, resets: this.storeResets, atMs });
+    });
   }
 
   /**

@@ -171,6 +171,11 @@ export interface Store {
    * process's write chain.
    */
   fence?(ref: SessionRef): Promise<ErasureMarks>;
+  /**
+   * Calls `listener` whenever the store is found to have come back empty after an outage (a Redis
+   * restart without persistence): sessions it held now read as new. Optional.
+   */
+  watchResets?(listener: (e: { atMs: number }) => void): void;
   /** Releases connections, timers and files. */
   close(): Promise<void>;
 }

@@ -79,12 +79,13 @@ export async function freePort(): Promise<number> {
 
 /**
  * A redis-server of our own on `port`, with an append-only file fsynced on every write
- * (`appendfsync always`), so a SIGKILL loses no acknowledged write.
+ * (`appendfsync always`), so a SIGKILL loses no acknowledged write — or, with `persist: false`, with
+ * no persistence at all, so a restart comes back empty.
  */
 export class ThrowawayRedis {
   readonly dir = mkdtempSync(join(tmpdir(), 'tidemark-redis-'));
   private proc: ChildProcess | undefined;
-  constructor(readonly port: number) {}
+  constructor(readonly port: number, readonly persist = true) {}
 
   get url(): string {
     return `redis://127.0.0.1:${this.port}`;
@@ -93,7 +94,7 @@ export class ThrowawayRedis {
   async start(): Promise<void> {
     this.proc = spawn('redis-server', [
       '--port', String(this.port), '--bind', '127.0.0.1', '--dir', this.dir, '--save', '',
-      '--appendonly', 'yes', '--appendfsync', 'always',
+      ...(this.persist ? ['--appendonly', 'yes', '--appendfsync', 'always'] : ['--appendonly', 'no']),
     ], { stdio: 'ignore' });
     const probe = new Redis(this.url, { lazyConnect: true, retryStrategy: () => null, enableOfflineQueue: false });
     probe.on('error', () => undefined);
