@@ -5,6 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Cluster } from 'ioredis';
 import { redisStore } from '../../../adapters/redis/index.js';
+import { createTidemark } from '../../../src/index.js';
 import { archived, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
 import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
 
@@ -18,6 +19,8 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   let admin: Cluster;
   const prefix = uniquePrefix('cluster');
   const clients: Cluster[] = [];
+  /** Keys holding data under the prefix: not erase tombstones (a time each) nor the store's marker. */
+  const dataKeys = async (): Promise<string[]> => (await scanKeys(admin, `${prefix}*`)).filter((k) => !k.endsWith(':gone') && !k.endsWith(':marker'));
 
   beforeAll(async () => {
     ({ ports, started } = startCluster());
@@ -51,7 +54,7 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref, { id: `a-${n}`, value: `kayak note ${n}` })], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', ref.session);
       const slots = new Set<number>();
-      for (const key of k.all) slots.add(Number(await admin.cluster('KEYSLOT', key)));
+      for (const key of k.script) slots.add(Number(await admin.cluster('KEYSLOT', key)));
       expect(slots.size, ref.session).toBe(1);
       slotsSeen.add([...slots][0]!);
     }
@@ -69,16 +72,42 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
     expect((await store.listLogbook({ tenant: 'acme', user: 'u-ks' }, { limit: 100 })).map((e) => e.id).sort()).toEqual(Array.from({ length: 24 }, (_, n) => `a-${n}`).sort());
     const report = await store.erase({ tenant: 'acme', user: 'u-ks' });
     expect(report).toEqual({ sessions: 24, slots: 24, logbookEntries: 24, events: 24 });
-    expect(await scanKeys(admin, `${prefix}*`)).toEqual([]);
+    expect(await dataKeys()).toEqual([]);
   });
 
   it('erasing a session leaves no key of it on any master', async () => {
     const store = redisStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
     await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
-    expect((await scanKeys(admin, `${prefix}*`)).length).toBe(6); // meta, slots, events, uarch, ualog + the user's set
+    // meta, slots, events, uarch, ualog, applied commit ids + the user's set
+    expect((await dataKeys()).length).toBe(7);
     await store.erase({ tenant: 'acme', session: 'bye' });
     // The session's keys are gone; the user's set no longer names it (it is empty, so Redis dropped it).
-    expect(await scanKeys(admin, `${prefix}*`)).toEqual([]);
+    expect(await dataKeys()).toEqual([]);
+  });
+
+  it('a user erase while another process opens sessions for that user on all three masters leaves none accepted before it', async () => {
+    const a = createTidemark({ store: redisStore({ redis: admin, prefix }), tenant: 'acme' });
+    const bClient = newCluster(ports);
+    clients.push(bClient);
+    const b = createTidemark({ store: redisStore({ redis: bClient, prefix }), tenant: 'acme' });
+    try {
+      await b.write({ session: 'race-warm', user: 'u-race', text: 'My lesson is on Friday.' });
+      await a.read({ session: 'race-warm', user: 'u-race', text: 'When is my lesson?' });
+      const writes = Array.from({ length: 30 }, (_, i) =>
+        b.write({ session: `race-${i}`, user: 'u-race', text: `My locker number is ${100 + i}.` }).then(
+          (r) => (r.committed ? 'stored' : 'queued'),
+          (e: { code?: string }) => e.code ?? 'error',
+        ),
+      );
+      await a.erase({ user: 'u-race' });
+      const outcomes = await Promise.all(writes);
+      expect(outcomes.filter((o) => o !== 'stored' && o !== 'TIDEMARK_E_STORE_ERASED')).toEqual([]);
+      expect(await dataKeys()).toEqual([]);
+      expect(await a.erase({ user: 'u-race' })).toEqual({ sessions: 0, slots: 0, logbookEntries: 0, events: 0 });
+    } finally {
+      await a.close();
+      await b.close();
+    }
   });
 });
