@@ -5,7 +5,7 @@
 
 import { execFileSync } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
-import { describe, expect, it } from 'vitest';
+import { describe, expect, it, vi } from 'vitest';
 import { createTidemark } from '../../src/index.js';
 import { ControlledStore } from './helpers.js';
 
@@ -41,6 +41,30 @@ describe('lifecycle', () => {
     expect(await tm.close({ timeoutMs: 30 })).toEqual({ abandoned: 2 });
     expect(closed).toEqual([2]);
     expect(abandoned).toHaveLength(2);
+  });
+
+  it('a write queued longer than outbox.maxAgeMs is given up with TIDEMARK_E_STORE_OUTBOX_EXPIRED and an expired event', async () => {
+    const store = new ControlledStore();
+    const tm = createTidemark({ store, outbox: { maxAgeMs: 60_000, retryMs: 60_000, maxRetryMs: 60_000 } });
+    const changes: string[] = [];
+    const codes: string[] = [];
+    tm.on('outbox', (e) => changes.push(e.change));
+    tm.on('error', (e) => codes.push(e.error.code));
+    store.failCommit = true;
+    expect((await tm.write({ session: 's', text: 'My name is Ola.' })).committed).toBe(false);
+    store.failCommit = false;
+    // Only the clock moves (no timer runs early): the entry is now two minutes old.
+    vi.useFakeTimers({ toFake: ['Date'] });
+    try {
+      vi.setSystemTime(Date.now() + 120_000);
+      expect(await tm.flush({ timeoutMs: 1000 })).toEqual({ outboxDepth: 0 });
+    } finally {
+      vi.useRealTimers();
+    }
+    expect(changes).toEqual(['queued', 'expired']);
+    expect(codes).toContain('TIDEMARK_E_STORE_OUTBOX_EXPIRED');
+    expect(store.commits).toBe(1);
+    await tm.close();
   });
 
   it('flush({ timeoutMs }) settles by its deadline when the only pending timer is unref\'d', () => {
