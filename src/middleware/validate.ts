@@ -45,7 +45,8 @@ export function checkText(v: unknown, maxBytes: number, truncate: boolean): stri
   if (typeof v !== 'string') {
     throw new InputError(ErrorCodes.INPUT_TEXT, `text must be a string, got ${describeValue(v)}`, { details: { field: 'text' } });
   }
-  if (v.trim().length === 0) {
+  // Whitespace and invisible format characters (zero-width space, joiners, BOM...) say nothing.
+  if (v.replace(/[\p{White_Space}\p{Cf}]/gu, '').length === 0) {
     throw new InputError(ErrorCodes.INPUT_TEXT, 'text must not be empty', { details: { field: 'text' } });
   }
   const bytes = Buffer.byteLength(v, 'utf8');
@@ -60,11 +61,21 @@ export function checkText(v: unknown, maxBytes: number, truncate: boolean): stri
   return v;
 }
 
+/**
+ * How far ahead of this process's clock a turn's `at` may be. A later one is a unit mistake (seconds
+ * for ms) or a broken clock: in seconds mode it would age every slot out and leave the session clock
+ * in the future, so it is refused.
+ */
+export const MAX_AT_AHEAD_MS = 24 * 3600 * 1000;
+
 function checkAt(v: unknown, now: number): number {
   if (v === undefined) return now;
   const ms = v instanceof Date ? v.getTime() : typeof v === 'number' ? v : typeof v === 'string' ? Date.parse(v) : NaN;
   if (!Number.isFinite(ms)) {
     throw new InputError(ErrorCodes.INPUT_FIELD, `at must be an ISO-8601 string, epoch ms or Date, got ${describeValue(v)}`, { details: { field: 'at' } });
+  }
+  if (ms < 0 || ms > now + MAX_AT_AHEAD_MS) {
+    throw new InputError(ErrorCodes.INPUT_FIELD, `at must be a time from 1970 up to one day ahead of now (epoch ms, not seconds), got ${describeValue(v)}`, { details: { field: 'at' } });
   }
   return ms;
 }
@@ -94,6 +105,11 @@ export function validateTurn(input: unknown, defaults: { tenant: string; maxText
     }
     out.turn = t.turn;
   }
-  if (t.speaker !== undefined) out.speaker = String(t.speaker).slice(0, 128);
+  if (t.speaker !== undefined) {
+    if (typeof t.speaker !== 'string') {
+      throw new InputError(ErrorCodes.INPUT_FIELD, `speaker must be a string, got ${describeValue(t.speaker)}`, { details: { field: 'speaker' } });
+    }
+    out.speaker = t.speaker.slice(0, 128);
+  }
   return out;
 }

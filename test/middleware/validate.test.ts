@@ -57,7 +57,7 @@ describe('validateTurn', () => {
   });
 
   it('parses at as ISO-8601, epoch ms or Date', () => {
-    expect(validateTurn({ session: 's', text: 'x', at: '2024-05-01T00:00:00Z' }, defaults).atMs).toBe(Date.UTC(2024, 4, 1));
+    expect(validateTurn({ session: 's', text: 'x', at: '2024-05-01T00:00:00Z' }, { ...defaults, now: Date.UTC(2026, 0, 1) }).atMs).toBe(Date.UTC(2024, 4, 1));
     expect(validateTurn({ session: 's', text: 'x', at: 5 }, defaults).atMs).toBe(5);
     expect(validateTurn({ session: 's', text: 'x', at: new Date(7) }, defaults).atMs).toBe(7);
   });
@@ -76,5 +76,32 @@ describe('validateTurn', () => {
     expect(() => validateTurn({ session: 'bad id', text: 'x' }, defaults)).toThrow(id);
     expect(() => validateTurn({ session: 's', text: 'x', tenant: '' }, defaults)).toThrow(id);
     expect(() => validateTurn({ session: 's', text: 'x', user: 'a/b' }, defaults)).toThrow(id);
+  });
+});
+
+describe('guards found by probing', () => {
+  const now = Date.parse('2026-06-01T12:00:00Z');
+  const d = { ...defaults, maxTextBytes: 1024, now };
+
+  it('refuses an `at` more than a day ahead (a seconds/ms mix-up or a broken clock) and before 1970', () => {
+    expect(validateTurn({ session: 's', text: 'hi', at: now + 3600_000 }, d).atMs).toBe(now + 3600_000);
+    for (const at of [now + 2 * 86_400_000, 8.64e15, -1]) {
+      expect(() => validateTurn({ session: 's', text: 'hi', at }, d)).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_INPUT_FIELD', details: { field: 'at' } }));
+    }
+    // Old transcripts replayed with their own times stay fine.
+    expect(validateTurn({ session: 's', text: 'hi', at: '2019-03-01T09:00:00Z' }, d).atMs).toBe(Date.parse('2019-03-01T09:00:00Z'));
+  });
+
+  it('a speaker that is not a string is a coded error, not a raw TypeError', () => {
+    for (const speaker of [Object.create(null), 42, { name: 'x' }]) {
+      expect(() => validateTurn({ session: 's', text: 'hi', speaker }, d)).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_INPUT_FIELD', details: { field: 'speaker' } }));
+    }
+  });
+
+  it('text of only zero-width and format characters is empty', () => {
+    for (const text of ['\u200b', '\u200b\u200c\u200d', ' \u2060 \ufeff ', '\u00ad']) {
+      expect(() => checkText(text, 1024, false)).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_INPUT_TEXT' }));
+    }
+    expect(checkText('a\u200bb', 1024, false)).toBe('a\u200bb');
   });
 });
