@@ -25,6 +25,23 @@ export const usSince = (t0: number): number => (performance.now() - t0) * 1000;
 const sameMarks = (a: ErasureMarks | undefined, b: ErasureMarks | undefined): boolean =>
   a !== undefined && b !== undefined && a.session === b.session && a.user === b.user;
 
+/**
+ * The error as events carry it: same class, code, message and details, without `cause` — a driver's
+ * error there can hold the command it failed, with keys naming raw session and user ids.
+ */
+function withoutCause(err: TidemarkError): TidemarkError {
+  if (err.cause === undefined) return err;
+  const copy = Object.create(Object.getPrototypeOf(err) as object) as TidemarkError;
+  Object.defineProperties(copy, {
+    name: { value: err.name, writable: true, configurable: true },
+    message: { value: err.message, writable: true, configurable: true },
+    stack: { value: err.stack, writable: true, configurable: true },
+    code: { value: err.code, enumerable: true },
+    details: { value: err.details, enumerable: true },
+  });
+  return copy;
+}
+
 /** Bounded insertion-ordered map: the oldest key goes when full. */
 function remember<K, V>(m: Map<K, V>, k: K, v: V, max: number): void {
   m.delete(k);
@@ -78,7 +95,12 @@ export class Core {
   }
 
   base(ref: SessionRef): { sessionHash: string; tenant: string; atMs: number } {
-    return { sessionHash: this.hashSession(ref.tenant, ref.session), tenant: ref.tenant, atMs: Date.now() };
+    return { sessionHash: this.hashSession(ref.tenant, ref.session), tenant: this.hashTenant(ref.tenant), atMs: Date.now() };
+  }
+
+  /** Keyed hash of a tenant id as it appears in events (12 hex chars). */
+  hashTenant(tenant: string): string {
+    return this.hashSession(tenant, '\u0000tenant');
   }
 
   validate(input: unknown): Turn {
@@ -112,7 +134,7 @@ export class Core {
   emitError(stage: 'read' | 'write' | 'handler' | 'outbox' | 'store', err: unknown, ref?: SessionRef): TidemarkError {
     const error = isTidemarkError(err) ? (err as TidemarkError) : new StoreError(ErrorCodes.STORE_UNAVAILABLE, errMessage(err), { cause: err });
     if (this.events.listenerCount('error') > 0) {
-      this.events.emit('error', { stage, error, ...(ref ? { sessionHash: this.hashSession(ref.tenant, ref.session) } : {}) });
+      this.events.emit('error', { stage, error: withoutCause(error), ...(ref ? { sessionHash: this.hashSession(ref.tenant, ref.session) } : {}) });
     }
     return error;
   }

@@ -9,6 +9,7 @@ import type { ArchiveReason, EvictReason, ReadResult, WriteOutcome } from '../ty
 export interface SessionEventBase {
   /** Keyed hash of tenant + session id (see `Tidemark.hashSession`); stable within one instance secret. */
   sessionHash: string;
+  /** Keyed hash of the tenant id (12 hex chars, same key as `sessionHash`): events never carry raw ids. */
   tenant: string;
   /** Wall-clock ms. */
   atMs: number;
