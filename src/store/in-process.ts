@@ -279,7 +279,22 @@ export class InProcessStore implements Store {
         `snapshot ${path} has format ${String(doc?.format)} v${String(doc?.version)}, expected ${SNAPSHOT_FORMAT} v${SNAPSHOT_VERSION}`,
       );
     }
+    try {
+      this.restoreDoc(doc);
+    } catch (cause) {
+      // A file of the right format but the wrong shape (hand-edited, truncated by another tool):
+      // nothing half-restored is kept.
+      this.sessions.clear();
+      this.logbooks.clear();
+      this.userSessions.clear();
+      throw new StoreError(ErrorCodes.STORE_CORRUPT, `snapshot ${path} has the right format but a malformed body (${cause instanceof Error ? cause.message : String(cause)}); move it aside to start empty`, { cause });
+    }
+  }
+
+  private restoreDoc(doc: any): void {
+    if (!Array.isArray(doc.sessions) || !Array.isArray(doc.logbook)) throw new Error('sessions and logbook must be arrays');
     const vec = (s: string): Float32Array => {
+      if (typeof s !== 'string') throw new Error('a vector is not a base64 string');
       const buf = Buffer.from(s, 'base64');
       return new Float32Array(buf.buffer.slice(buf.byteOffset, buf.byteOffset + buf.byteLength));
     };

@@ -58,4 +58,19 @@ describe('InProcessStore snapshot', () => {
     writeFileSync(path, JSON.stringify({ format: 'something-else', version: 1 }));
     expect(() => new InProcessStore({ snapshotPath: path })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_STORE_CORRUPT' }));
   });
+
+  it('rejects a snapshot of the right format but a malformed body with a coded error, not a TypeError', async () => {
+    const { writeFileSync } = await import('node:fs');
+    const bodies = [
+      { sessions: 'nope', logbook: [] },
+      { sessions: [{ tenant: 't', session: 's', capacity: 4, dim: 4, slots: [{ index: 0, key: 12 }] }], logbook: [] },
+      { sessions: [{ tenant: 't', session: 's', capacity: 4, dim: 4, slots: null }], logbook: [] },
+      { sessions: [], logbook: [null] },
+    ];
+    bodies.forEach((body, n) => {
+      const path = join(dir, `malformed-${n}.json`);
+      writeFileSync(path, JSON.stringify({ format: 'tidemark-memory-snapshot', version: 2, ...body }));
+      expect(() => new InProcessStore({ snapshotPath: path }), `body ${n}`).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_STORE_CORRUPT' }));
+    });
+  });
 });
