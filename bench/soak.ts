@@ -1,8 +1,9 @@
 // `npm run bench -- soak [--seconds S] [--rate OPS] [--sessions N] [--concurrency C] [--json]`: bounded mixed load
 // (turns, plain reads, erasures) on a throwaway redis-server that this benchmark starts on a free
-// port and SIGKILLs and restarts on the same port half-way through. It reports errors, degraded
-// reads, the outbox peak and lost writes, which must be 0: every write the core acknowledged
-// (committed, or queued in the outbox) is checked afterwards in the store.
+// port and SIGKILLs and restarts on the same port half-way through, and erases 5% of the sessions at
+// three quarters. It reports errors, degraded reads, the outbox peak, and lost, duplicated and
+// resurrected writes, which must be 0: every write the core acknowledged (committed, or queued in the
+// outbox) is checked afterwards in the store, and no write accepted before an erase may survive it.
 
 import { spawn, type ChildProcess } from 'node:child_process';
 import { mkdtempSync, rmSync } from 'node:fs';
@@ -134,6 +135,11 @@ interface SoakFigures {
   outbox_after_flush: number;
   lost_writes: number;
   duplicated_writes: number;
+  /** Sessions erased mid-run (after the restart), and messages of theirs accepted before the erase found stored afterwards (must be 0). */
+  erased_sessions: number;
+  /** Erasures that never got through (the store unreachable for 20 s); their sessions count as not erased. */
+  erase_failed: number;
+  resurrected_writes: number;
   restart_at_s: number;
   down_ms: number;
   offered_ops_per_s: number;
@@ -220,7 +226,16 @@ export default async function main(argv: string[]): Promise<void> {
 
   const counts = { turns: 0, reads: 0, batches: 0, direct: 0, queued: 0, refused: 0 };
   /** Messages (user + assistant turns) each session's acknowledged writes carry. */
-  const ack = (session: string, a: Ack, messages: number): void => {
+  // Erasures: at three quarters of the run, the first 5% of sessions are erased one after another;
+  // workers leave a session alone while it is being erased. A message whose write started before its
+  // session's erase ended is the erase's (erased, or refused with STORE_ERASED), never acknowledged.
+  const erasedCount = Math.max(1, Math.floor(sessions / 20));
+  const erasing = new Set<string>();
+  const erasedAt = new Map<string, number>();
+  let eraseFailed = 0;
+  const ack = (session: string, a: Ack, messages: number, startedAt: number): void => {
+    const e = erasedAt.get(session);
+    if (e !== undefined && startedAt < e) return;
     if (a === 'commit' || a === 'queued') {
       acked.set(session, (acked.get(session) ?? 0) + messages);
       if (a === 'commit') counts.direct++;
@@ -239,6 +254,31 @@ export default async function main(argv: string[]): Promise<void> {
     await new Promise((res) => setTimeout(res, downMs));
     await redis.restart();
     restarted = true;
+  })();
+  const erasures = (async () => {
+    await new Promise((res) => setTimeout(res, seconds * 750));
+    for (const s of names.slice(0, erasedCount)) {
+      erasing.add(s);
+      erasedAt.set(s, Number.POSITIVE_INFINITY);
+      // The store may still be reconnecting after the restart: try again until it answers (bounded).
+      let done = false;
+      for (let attempt = 0; attempt < 200 && !done; attempt++) {
+        try {
+          await tm.erase({ session: s });
+          done = true;
+        } catch {
+          await new Promise((res) => setTimeout(res, 100));
+        }
+      }
+      if (done) {
+        erasedAt.set(s, performance.now());
+        acked.delete(s);
+      } else {
+        erasedAt.delete(s);
+        eraseFailed++;
+      }
+      erasing.delete(s);
+    }
   })();
   // A timeline every 250 ms: outbox depth, and writes acknowledged / reads degraded per second.
   const timeline: Array<{ t: number; outbox: number; acked_per_s: number; degraded_per_s: number }> = [];
@@ -266,6 +306,8 @@ export default async function main(argv: string[]): Promise<void> {
           if (wait > 0) await new Promise((res) => setTimeout(res, wait));
           if (performance.now() >= end) break;
           const session = names[i]!;
+          if (erasing.has(session)) continue;
+          const startedAt = performance.now();
           const hash = tm.hashSession('soak', session);
           const sc = convo[i]!;
           const text = sc.user[round % sc.user.length]!;
@@ -296,7 +338,7 @@ export default async function main(argv: string[]): Promise<void> {
           // Bounded: a write that produced none of the events above within 30 s counts as an error.
           const a = await Promise.race([done, new Promise<Ack>((res) => setTimeout(() => res('error'), 30_000).unref())]);
           pending.delete(hash);
-          ack(session, a, 2);
+          ack(session, a, 2, startedAt);
         }
         round++;
       }
@@ -307,6 +349,7 @@ export default async function main(argv: string[]): Promise<void> {
   bar.done();
   const elapsed = (performance.now() - t0) / 1000;
   await restart;
+  await erasures;
   // Let the outbox drain against the restarted server.
   const flushed = await tm.flush({ timeoutMs: 30_000 });
   await tm.close();
@@ -315,12 +358,17 @@ export default async function main(argv: string[]): Promise<void> {
   const check = new RedisStore({ redis: redis.url, prefix, cacheSessions: 0 });
   let lost = droppedFromOutbox * 2;
   let duplicated = 0;
+  let resurrected = 0;
   for (const s of names) {
     const snap = await check.load({ tenant: 'soak', session: s });
     const stored = snap?.turns ?? 0;
     const expected = acked.get(s) ?? 0;
     if (stored < expected) lost += expected - stored;
-    if (stored > expected) duplicated += stored - expected;
+    // In an erased session, a surplus is a write accepted before the erase that landed after it.
+    if (stored > expected) {
+      if (erasedAt.has(s)) resurrected += stored - expected;
+      else duplicated += stored - expected;
+    }
   }
   await check.close();
   await redis.stop();
@@ -344,6 +392,9 @@ export default async function main(argv: string[]): Promise<void> {
     outbox_after_flush: flushed.outboxDepth,
     lost_writes: lost,
     duplicated_writes: duplicated,
+    erased_sessions: erasedAt.size,
+    erase_failed: eraseFailed,
+    resurrected_writes: resurrected,
     restart_at_s: restartAt,
     down_ms: downMs,
     offered_ops_per_s: rate,
@@ -360,7 +411,8 @@ export default async function main(argv: string[]): Promise<void> {
     ['degraded reads', f.degraded_reads],
     ['outbox peak / after flush', `${f.outbox_peak} / ${f.outbox_after_flush}`],
     ['lost writes (messages; must be 0)', f.lost_writes],
-    ['duplicated writes (messages)', f.duplicated_writes],
+    ['duplicated writes (messages; must be 0)', f.duplicated_writes],
+    [`resurrected after erase (messages, ${f.erased_sessions} sessions erased, ${f.erase_failed} failed; must be 0)`, f.resurrected_writes],
   ]));
   const svg = lineChart({
     title: `soak: Redis SIGKILL at ${restartAt} s, back after ${downMs} ms; lost writes ${f.lost_writes}`, xLabel: 'seconds', yLabel: 'count', markers: false,
