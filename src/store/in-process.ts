@@ -21,11 +21,24 @@ export interface InProcessStoreOptions {
   maxEvents?: number;
   /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
   archive?: ArchiveOptions;
+  /**
+   * Sessions held at most; past it the least recently used one is dropped with its logbook entries
+   * (counted in `evicted.cap`). A session of 64 slots × 384 dims is about 100 KB. @default 10000
+   */
+  maxSessions?: number;
+  /**
+   * A session neither read nor written for this long (ms) is dropped with its logbook entries, by a
+   * sweep every minute (counted in `evicted.idle`); the Redis store's `idleTtlSeconds` does the same.
+   * 0 keeps sessions until erased. @default 2592000000 (30 days)
+   */
+  idleTtlMs?: number;
 }
 
-export const IN_PROCESS_STORE_DEFAULTS: Required<Pick<InProcessStoreOptions, 'snapshotIntervalMs' | 'maxEvents'>> = {
+export const IN_PROCESS_STORE_DEFAULTS: Required<Pick<InProcessStoreOptions, 'snapshotIntervalMs' | 'maxEvents' | 'maxSessions' | 'idleTtlMs'>> = {
   snapshotIntervalMs: 5000,
   maxEvents: 1000,
+  maxSessions: 10_000,
+  idleTtlMs: 30 * 24 * 3600 * 1000,
 };
 
 interface SessionEntry {
@@ -35,6 +48,8 @@ interface SessionEntry {
   table: SlotTable;
   events: StoredEvent[];
   user?: string;
+  /** Last read or write (Date.now()), for idle eviction. */
+  usedMs: number;
   /** Ids of the last commits applied, to recognise a resend. */
   commitIds?: string[];
 }
@@ -71,11 +86,24 @@ export class InProcessStore implements Store {
   private readonly tombstones = new Map<string, number>();
   private dirty = false;
   private timer: NodeJS.Timeout | undefined;
+  private sweeper: NodeJS.Timeout | undefined;
+  /** Sessions dropped by the bounds, by reason (for metrics): over `maxSessions`, idle past `idleTtlMs`. */
+  readonly evicted = { cap: 0, idle: 0 };
 
   constructor(options: InProcessStoreOptions = {}) {
     this.o = { ...IN_PROCESS_STORE_DEFAULTS, ...options };
     if (!Number.isInteger(this.o.maxEvents) || this.o.maxEvents < 0) {
       throw new ConfigError(`in-process store: maxEvents must be an integer >= 0, got ${String(this.o.maxEvents)}`);
+    }
+    if (!Number.isInteger(this.o.maxSessions) || this.o.maxSessions < 1) {
+      throw new ConfigError(`in-process store: maxSessions must be an integer >= 1, got ${String(this.o.maxSessions)}`, { details: { option: 'maxSessions' } });
+    }
+    if (!Number.isFinite(this.o.idleTtlMs) || this.o.idleTtlMs < 0) {
+      throw new ConfigError(`in-process store: idleTtlMs must be a number of ms >= 0 (0 = none), got ${String(this.o.idleTtlMs)}`, { details: { option: 'idleTtlMs' } });
+    }
+    if (this.o.idleTtlMs > 0) {
+      this.sweeper = setInterval(() => this.sweep(), Math.min(60_000, this.o.idleTtlMs));
+      this.sweeper.unref();
     }
     if (this.o.snapshotPath) {
       this.restore(this.o.snapshotPath);
@@ -89,7 +117,7 @@ export class InProcessStore implements Store {
   }
 
   async load(ref: SessionRef): Promise<SessionSnapshot | null> {
-    const e = this.sessions.get(sessionKey(ref.tenant, ref.session));
+    const e = this.use(ref.tenant, ref.session);
     if (!e) return null;
     return { version: e.version, clock: e.clock, turns: e.turns, table: e.table };
   }
@@ -103,7 +131,7 @@ export class InProcessStore implements Store {
 
   async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
     const key = sessionKey(ref.tenant, ref.session);
-    let e = this.sessions.get(key);
+    let e = this.use(ref.tenant, ref.session);
     const current = e?.version ?? 0;
     if (req.fence && fencedOut(req.fence, await this.fence(ref))) return { ok: false, erased: true, version: current };
     if (req.commitId && e?.commitIds?.includes(req.commitId)) return { ok: true, version: current };
@@ -114,8 +142,13 @@ export class InProcessStore implements Store {
       }
     }
     if (!e) {
-      e = { version: 0, clock: 0, turns: 0, table: new SlotTable(req.capacity, req.dim), events: [] };
+      e = { version: 0, clock: 0, turns: 0, table: new SlotTable(req.capacity, req.dim), events: [], usedMs: Date.now() };
       this.sessions.set(key, e);
+      while (this.sessions.size > this.o.maxSessions) {
+        const [oldest] = this.sessions.keys();
+        this.drop(oldest!);
+        this.evicted.cap++;
+      }
     } else if (e.table.capacity !== req.capacity || e.table.dim !== req.dim) {
       e.table = e.table.dim === req.dim ? e.table.clone(req.capacity) : new SlotTable(req.capacity, req.dim);
     }
@@ -188,30 +221,72 @@ export class InProcessStore implements Store {
     for (const s of sessions) {
       const key = sessionKey(target.tenant, s);
       this.tombstone(`s${key}`, at);
-      const e = this.sessions.get(key);
-      if (e) {
-        report.sessions++;
-        report.slots += e.table.count();
-        report.events += e.events.length;
-        // Zero the vectors and text before letting go, so nothing lingers in a shared buffer.
-        for (let i = 0; i < e.table.capacity; i++) e.table.clear(i);
-        this.sessions.delete(key);
-        if (e.user) this.userSessions.get(userKey(target.tenant, e.user))?.delete(s);
-        // Entries this session put into its user's logbook go too.
-        if (e.user && !('user' in target)) {
-          const index = this.logbook({ tenant: target.tenant, user: e.user }, false);
-          if (index) {
-            const ids = [...index.all()].filter((x) => x.session === s).map((x) => x.id);
-            for (const id of ids) if (index.remove(id)) report.logbookEntries++;
-          }
-        }
-      }
-      report.logbookEntries += this.dropLogbook({ tenant: target.tenant, session: s });
+      const d = this.drop(key);
+      report.sessions += d.sessions;
+      report.slots += d.slots;
+      report.events += d.events;
+      report.logbookEntries += d.logbookEntries;
     }
     this.dirty = true;
     // Erasure must reach the snapshot file at once, not at the next interval.
     if (this.o.snapshotPath) this.save();
     return report;
+  }
+
+  /** A session's entry, marked as just used (most recent in the LRU order); an idle-expired one is dropped. */
+  private use(tenant: string, session: string): SessionEntry | undefined {
+    const key = sessionKey(tenant, session);
+    const e = this.sessions.get(key);
+    if (!e) return undefined;
+    const now = Date.now();
+    if (this.o.idleTtlMs > 0 && now - e.usedMs > this.o.idleTtlMs) {
+      this.drop(key);
+      this.evicted.idle++;
+      return undefined;
+    }
+    e.usedMs = now;
+    this.sessions.delete(key);
+    this.sessions.set(key, e);
+    return e;
+  }
+
+  /** Drops sessions idle past `idleTtlMs` (oldest first in the LRU order, so it stops at the first live one). */
+  private sweep(): void {
+    const cutoff = Date.now() - this.o.idleTtlMs;
+    for (const [key, e] of this.sessions) {
+      if (e.usedMs > cutoff) break;
+      this.drop(key);
+      this.evicted.idle++;
+    }
+  }
+
+  /**
+   * Removes a session: slots (zeroed first), events, its logbook scope and the entries it put in its
+   * user's logbook. Used by erase and by the bounds.
+   */
+  private drop(key: string): EraseReport {
+    const [tenant, session] = key.split('\u0000') as [string, string];
+    const out: EraseReport = { sessions: 0, slots: 0, logbookEntries: 0, events: 0 };
+    const e = this.sessions.get(key);
+    if (e) {
+      out.sessions = 1;
+      out.slots = e.table.count();
+      out.events = e.events.length;
+      // Zero the vectors and text before letting go, so nothing lingers in a shared buffer.
+      for (let i = 0; i < e.table.capacity; i++) e.table.clear(i);
+      this.sessions.delete(key);
+      if (e.user) {
+        this.userSessions.get(userKey(tenant, e.user))?.delete(session);
+        const index = this.logbook({ tenant, user: e.user }, false);
+        if (index) {
+          const ids = [...index.all()].filter((x) => x.session === session).map((x) => x.id);
+          for (const id of ids) if (index.remove(id)) out.logbookEntries++;
+        }
+      }
+    }
+    out.logbookEntries += this.dropLogbook({ tenant, session });
+    this.dirty = true;
+    return out;
   }
 
   /** Moves a tombstone to max(now, at, previous + 1) and returns it. */
@@ -236,7 +311,9 @@ export class InProcessStore implements Store {
 
   async close(): Promise<void> {
     if (this.timer) clearInterval(this.timer);
+    if (this.sweeper) clearInterval(this.sweeper);
     this.timer = undefined;
+    this.sweeper = undefined;
     if (this.o.snapshotPath && this.dirty) this.save();
   }
 
@@ -302,7 +379,7 @@ export class InProcessStore implements Store {
       const table = new SlotTable(s.capacity, s.dim);
       for (const rec of s.slots) table.set(rec.index, { ...rec, key: vec(rec.key) });
       this.sessions.set(sessionKey(s.tenant, s.session), {
-        version: s.version, clock: s.clock, turns: s.turns, table, events: s.events ?? [], user: s.user,
+        version: s.version, clock: s.clock, turns: s.turns, table, events: s.events ?? [], user: s.user, usedMs: Date.now(),
       });
       if (s.user) {
         const uk = userKey(s.tenant, s.user);

@@ -1,7 +1,7 @@
 import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { afterAll, describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it, vi } from 'vitest';
 import { InProcessStore } from '../../src/store/in-process.js';
 import { MemoryStore } from '../../src/store/memory.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
@@ -72,5 +72,43 @@ describe('InProcessStore snapshot', () => {
       writeFileSync(path, JSON.stringify({ format: 'tidemark-memory-snapshot', version: 2, ...body }));
       expect(() => new InProcessStore({ snapshotPath: path }), `body ${n}`).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_STORE_CORRUPT' }));
     });
+  });
+});
+
+describe('InProcessStore bounds', () => {
+  it('holds at most maxSessions: the least recently used goes, with its logbook entries, and is counted', async () => {
+    const store = new InProcessStore({ maxSessions: 3, idleTtlMs: 0 });
+    const refs = ['a', 'b', 'c'].map((session) => ({ tenant: 't', session, user: 'u' }));
+    for (const ref of refs) await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [turnEntry(1, ref, `bell note ${ref.session}`, { id: `e-${ref.session}` })] }));
+    await store.load(refs[0]!); // a is now the most recently used; b the least
+    const d = { tenant: 't', session: 'd', user: 'u' };
+    await store.commit(d, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+    expect(store.evicted).toEqual({ cap: 1, idle: 0 });
+    expect(await store.load({ tenant: 't', session: 'b' })).toBeNull();
+    expect(await store.load(refs[0]!)).not.toBeNull();
+    expect((await store.listLogbook({ tenant: 't', user: 'u' })).map((e) => e.id).sort()).toEqual(['e-a', 'e-c']);
+    expect((await store.listSessions('t')).sort()).toEqual(['a', 'c', 'd']);
+    await store.close();
+  });
+
+  it('drops a session idle past idleTtlMs by a timer, without waiting for its next turn, and counts it', async () => {
+    vi.useFakeTimers();
+    try {
+      const store = new InProcessStore({ idleTtlMs: 10_000 });
+      const ref = { tenant: 't', session: 'idle', user: 'u' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [turnEntry(1, ref, 'my phone number is 07700 900111', { id: 'p1' })] }));
+      const live = { tenant: 't', session: 'live' };
+      await store.commit(live, commitOf({}));
+      vi.advanceTimersByTime(6_000);
+      await store.load(live);
+      vi.advanceTimersByTime(6_000);
+      // The sweep ran: the idle session and its user-logbook entries are gone; the live one stays.
+      expect(store.evicted).toEqual({ cap: 0, idle: 1 });
+      expect(await store.listSessions('t')).toEqual(['live']);
+      expect(await store.listLogbook({ tenant: 't', user: 'u' })).toEqual([]);
+      await store.close();
+    } finally {
+      vi.useRealTimers();
+    }
   });
 });
