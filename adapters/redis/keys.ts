@@ -51,7 +51,9 @@ export interface SessionKeys {
   gone: string;
   /** Sorted set: commit ids applied, scored by the server time they were applied at. */
   cids: string;
-  /** The data keys, then gone and cids: the KEYS of the commit and erase scripts. */
+  /** Hash: slot payloads that failed their check, kept aside (`index@seconds` -> payload). */
+  quarantine: string;
+  /** The data keys, then gone and cids: the KEYS of the commit script (erase adds quarantine). */
   script: string[];
 }
 
@@ -69,7 +71,7 @@ export class KeySpace {
     const all = [k.meta, k.slots, k.events, k.arch, k.uarch, k.alog, k.ualog];
     const gone = `${b}:gone`;
     const cids = `${b}:cids`;
-    return { ...k, all, gone, cids, script: [...all, gone, cids] };
+    return { ...k, all, gone, cids, quarantine: `${b}:quarantine`, script: [...all, gone, cids] };
   }
 
   /** Set of the session ids a user has written to. Suffix `:sessions` never ends a session key. */

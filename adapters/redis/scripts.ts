@@ -212,11 +212,11 @@ return n
 /**
  * Erase one session: move its tombstone forward (so no write fenced before now can land), count,
  * then delete every key.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone, cids. ARGV: 1 tombstone ttl seconds,
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone, cids, quarantine. ARGV: 1 tombstone ttl seconds,
  * 2 the time of the user erase this is part of (ms; 0 for a session erase).
  * Reply: {existed, slots, logbook entries, events, user or '', tombstone time}.
  */
-export const ERASE = script('erase', 9, `
+export const ERASE = script('erase', 10, `
 local t = redis.call('TIME')
 local at = math.max(tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000), tonumber(ARGV[2]), tonumber(redis.call('GET', KEYS[8]) or '0') + 1)
 redis.call('SET', KEYS[8], at, 'EX', tonumber(ARGV[1]))
@@ -225,7 +225,7 @@ local user = redis.call('HGET', KEYS[1], 'u') or ''
 local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
-redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9])
+redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9], KEYS[10])
 return {existed, slots, items, events, user, tostring(at)}
 `);
 
@@ -258,3 +258,28 @@ redis.call('SET', KEYS[2], at, 'EX', tonumber(ARGV[1]))
 return {tostring(at), redis.call('SMEMBERS', KEYS[1])}
 `);
 
+
+/**
+ * Move slot payloads that failed their check aside, so the session keeps working: each one still equal
+ * to what the reader saw goes from the slots hash to the quarantine hash (field `index@seconds`), and
+ * the version moves on, so every process's cached copy and every plan made on it are refreshed.
+ * KEYS: meta, slots, quarantine. ARGV: 1 ttl seconds for the quarantine (0 = none), then field, payload pairs.
+ * Reply: the number moved.
+ */
+export const QUARANTINE = script('quarantine', 3, `
+local moved = 0
+local t = redis.call('TIME')
+for i = 2, #ARGV, 2 do
+  local cur = redis.call('HGET', KEYS[2], ARGV[i])
+  if cur and cur == ARGV[i + 1] then
+    redis.call('HSET', KEYS[3], ARGV[i] .. '@' .. t[1], cur)
+    redis.call('HDEL', KEYS[2], ARGV[i])
+    moved = moved + 1
+  end
+end
+if moved > 0 then
+  if redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HINCRBY', KEYS[1], 'v', 1) end
+  if tonumber(ARGV[1]) > 0 then redis.call('EXPIRE', KEYS[3], tonumber(ARGV[1])) end
+end
+return moved
+`);

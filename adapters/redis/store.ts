@@ -16,7 +16,7 @@ import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, USER_ERASE } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE } from './scripts.js';
 
 export interface RedisStoreOptions {
   /**
@@ -140,6 +140,8 @@ export class RedisStore implements Store {
   private readonly watched = new WeakSet<object>();
   /** Times the server was found empty after an outage (its marker key gone). */
   resets = 0;
+  /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
+  quarantined = 0;
 
   constructor(options: RedisStoreOptions = {}) {
     // An option given as undefined means "the default", as documented, not "no value".
@@ -201,7 +203,7 @@ export class RedisStore implements Store {
     return this.conn('connect');
   }
 
-  async load(ref: SessionRef): Promise<SessionSnapshot | null> {
+  async load(ref: SessionRef, retried = false): Promise<SessionSnapshot | null> {
     const k = this.keys.session(ref.tenant, ref.session);
     const cached = this.cache.get(k.meta);
     let reply: unknown;
@@ -231,12 +233,33 @@ export class RedisStore implements Store {
     if (capacity < 1 || capacity > 1 << 16 || dim < 1 || dim > 1 << 16) throw corrupt('session shape', `capacity ${capacity}, dim ${dim}`);
     const table = new SlotTable(capacity, dim);
     const flat = r[6] as Buffer[];
+    const bad: Buffer[] = [];
     for (let i = 0; i + 1 < flat.length; i += 2) {
-      const index = num(flat[i], 'slot index', true);
-      if (index >= capacity) throw corrupt(`slot ${index}`, `index beyond capacity ${capacity}`);
-      const rec = decodeSlot(flat[i + 1]!, `slot ${index} payload`);
-      if (rec.key.length !== dim) throw corrupt(`slot ${index} payload`, `key has ${rec.key.length} dims, session has ${dim}`);
-      table.set(index, rec);
+      try {
+        const index = num(flat[i], 'slot index', true);
+        if (index >= capacity) throw corrupt(`slot ${index}`, `index beyond capacity ${capacity}`);
+        const rec = decodeSlot(flat[i + 1]!, `slot ${index} payload`);
+        if (rec.key.length !== dim) throw corrupt(`slot ${index} payload`, `key has ${rec.key.length} dims, session has ${dim}`);
+        table.set(index, rec);
+      } catch (err) {
+        if (!(err instanceof StoreError) || err.code !== ErrorCodes.STORE_CORRUPT) throw err;
+        bad.push(flat[i]!, flat[i + 1]!);
+      }
+    }
+    if (bad.length > 0) {
+      // Kept aside, not trusted and not fatal: the session goes on with its good slots.
+      if (retried) throw corrupt('session slots', 'payloads still failing after being moved aside');
+      let moved: number;
+      try {
+        const c = await this.conn('quarantine');
+        moved = Number(await runScript(c, QUARANTINE, [k.meta, k.slots, k.quarantine], [Math.max(this.o.idleTtlSeconds, this.o.fenceTtlSeconds), ...bad]));
+      } catch (err) {
+        throw unavailable('quarantine', err);
+      }
+      this.quarantined += moved;
+      this.cache.delete(k.meta);
+      const snap = await this.load(ref, true);
+      return snap ? { ...snap, quarantined: bad.length / 2 } : null;
     }
     const entry: CachedSession = { epoch, version, clock, turns, table };
     if (this.o.cacheSessions > 0) this.touch(k.meta, entry);
@@ -374,7 +397,7 @@ export class RedisStore implements Store {
       }
       for (const s of sessions) {
         const k = this.keys.session(target.tenant, s);
-        const r = (await runScript(c, ERASE, k.script, [ttl, at])) as unknown[];
+        const r = (await runScript(c, ERASE, [...k.script, k.quarantine], [ttl, at])) as unknown[];
         report.sessions += Number(r[0]);
         report.slots += Number(r[1]);
         report.logbookEntries += Number(r[2]);

@@ -164,6 +164,12 @@ export class Core {
     return fence === undefined ? !this.store.fence : sameMarks(this.recalledFence.get(keyOf(ref))?.seen, fence.seen);
   }
 
+  /** Reports slots a load moved aside (corrupt payloads): an `error` event, the session goes on. */
+  noteQuarantine(ref: SessionRef, snap: SessionSnapshot | null): void {
+    if (!snap?.quarantined) return;
+    this.emitError('store', new StoreError(ErrorCodes.STORE_CORRUPT, `store ${this.store.name}: ${snap.quarantined} slot payloads of this session failed their check and were moved aside; the session continues without them`, { details: { quarantined: snap.quarantined } }), ref);
+  }
+
   /** Runs `fn` after the session's previous write settles; writes of one session apply in order. */
   chain<T>(key: string, fn: () => Promise<T>): Promise<T> {
     const job = (this.queues.get(key) ?? Promise.resolve()).then(fn);

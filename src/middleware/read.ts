@@ -66,6 +66,7 @@ export class ReadPath {
     } catch (err) {
       return this.degraded(turn, err, usSince(t0));
     }
+    core.noteQuarantine(ref, snap);
     if (snap) core.rememberSnapshot(ref, snap);
     const table = snap?.table;
     if (table && table.dim !== core.embedder.dim) throw core.dimError(ref, table.dim);

@@ -102,6 +102,7 @@ export class WritePath {
       // commit's version check makes a stale one harmless (a conflict reloads and plans again).
       const cached = attempt === 0 ? core.takeSnapshot(ref) : undefined;
       const snap = cached ?? (await core.storeCall(() => core.store.load(ref), 'load'));
+      if (!cached) core.noteQuarantine(ref, snap);
       if (snap && snap.table.dim !== core.embedder.dim) throw core.dimError(ref, snap.table.dim);
       const p0 = performance.now();
       let table = snap?.table ?? new SlotTable(core.params.capacity, core.embedder.dim);

@@ -20,6 +20,11 @@ export interface SessionSnapshot {
    * in-process store does) and a later commit may change it in place.
    */
   table: SlotTable;
+  /**
+   * Slots whose stored payload failed its check on this load and were moved aside (kept, not used):
+   * the session goes on with the rest. The middleware reports them (`error` event, STORE_CORRUPT).
+   */
+  quarantined?: number;
 }
 
 /** Sets slot `index` to `slot`, or frees it when `slot` is null. */

@@ -5,6 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_STORE_DEFAULTS, RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { createTidemark } from '../../../src/index.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
@@ -59,23 +60,60 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(Math.sqrt(norm)).toBeCloseTo(1, 6);
     });
 
-    it('a tampered slot payload is reported as corrupt, never decoded', async () => {
+    it('a tampered slot payload is never decoded: it is moved aside (kept, reported) and the session keeps working', async () => {
       const ref = { tenant: 't', session: 'tamper' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 1, slot: slot(2) }] }));
       const k = store.sessionKeys('t', 'tamper');
       const raw = (await admin.hgetBuffer(k.slots, '0'))!;
       raw[raw.length - 1] ^= 0x01; // one bit of the key
       await admin.hset(k.slots, '0', raw);
       const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
-      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'checksum mismatch' } });
-      // An unknown format version byte is refused too.
-      raw[raw.length - 1] ^= 0x01;
-      raw[0] = 9;
-      await admin.hset(k.slots, '0', raw);
-      await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'format version 9, expected 2' } });
-      // A garbage version in the meta hash as well.
+      const snap = await fresh.load(ref);
+      expect(snap?.quarantined).toBe(1);
+      expect(snap?.version).toBe(2); // moved on, so every cached copy and plan refreshes
+      expect(snap?.table.get(0)).toBeNull();
+      expect(snap?.table.get(1)?.id).toBe(slot(2).id);
+      expect(fresh.quarantined).toBe(1);
+      const kept = await admin.hgetallBuffer(k.quarantine);
+      expect(Object.keys(kept)).toHaveLength(1);
+      expect(Object.values(kept)[0]!.equals(raw)).toBe(true);
+      // Writes go on.
+      expect(await fresh.commit(ref, commitOf({ expectedVersion: 2, ops: [{ index: 0, slot: slot(3) }] }))).toMatchObject({ ok: true, version: 3 });
+      // An unknown format version byte is moved aside too.
+      const raw3 = (await admin.hgetBuffer(k.slots, '0'))!;
+      raw3[0] = 9;
+      await admin.hset(k.slots, '0', raw3);
+      expect((await fresh.load(ref))?.quarantined).toBe(1);
+      // A garbage version in the meta hash concerns the whole session: refused, coded.
       await admin.hset(k.meta, 'v', 'banana');
       await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
+      // Erase removes what was kept aside as well.
+      await fresh.erase(ref);
+      expect(await admin.exists(k.quarantine)).toBe(0);
+    });
+
+    it('under the middleware a corrupt slot is reported and the session keeps reading and writing', async () => {
+      const p2 = `${prefix}mw:`;
+      const tm = createTidemark({ store: redisStore({ redis: await store.redis(), prefix: p2 }) });
+      try {
+        await tm.write({ session: 'kept', text: 'My name is Ola.' });
+        await tm.write({ session: 'kept', text: 'My bike is a green tandem.' });
+        const k = redisStore({ redis: await store.redis(), prefix: p2 }).sessionKeys('default', 'kept');
+        const fields = await admin.hkeys(k.slots);
+        const raw = (await admin.hgetBuffer(k.slots, fields[0]!))!;
+        raw[raw.length - 1] ^= 0x01;
+        await admin.hset(k.slots, fields[0]!, raw);
+        const other = createTidemark({ store: redisStore({ redis: await store.redis(), prefix: p2 }) });
+        const codes: string[] = [];
+        other.on('error', (e) => codes.push(e.error.code));
+        const ctx = await other.read({ session: 'kept', text: 'What is my bike?' });
+        expect(ctx.degraded).toBe(false);
+        expect(codes).toEqual(['TIDEMARK_E_STORE_CORRUPT']);
+        expect((await other.write({ session: 'kept', text: 'My phone number is 07700 900222.' })).committed).toBe(true);
+        await other.close();
+      } finally {
+        await tm.close();
+      }
     });
 
     it('a tampered logbook payload is reported as corrupt by search', async () => {
@@ -127,7 +165,9 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const cold = redisStore({ redis: client, prefix });
       expect((await cold.load(ref))!.table.count()).toBe(2);
       cmds = await settle();
-      expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
+      // A store's first call on a connection also checks the prefix's marker key (an empty comeback).
+      expect(cmds.filter((c) => c.args[1] === `${prefix}marker`).map((c) => c.args[0]!.toLowerCase())).toEqual(['set', 'get']);
+      expect(cmds.filter((c) => c.args[1] !== `${prefix}marker`).map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
       // A session search is one round trip too, and a repeat transfers only that nothing is new.
       expect((await searchText(store, { tenant: 'acme', session: 'rt1' }, 'old value 1')).hits).toHaveLength(1);
       expect((await settle()).map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
