@@ -146,7 +146,10 @@ export class WritePath {
         plan.events.unshift(...resize.evictions.map((e) => ({ type: 'evict' as const, slot: e.slot, id: e.record.id, clock, atMs: last.atMs, reason: e.reason })));
       }
       const ops = resize ? mergeOps(resize.ops, plan.ops) : plan.ops;
-      const demoted = resize ? [...resize.demote(ref, clock, last.atMs), ...plan.archive] : plan.archive;
+      // A slot past write.maxAgeMs is retention, not forgetting: deleted, not demoted to the logbook.
+      for (const e of plan.evictions) if (e.reason === 'expired') e.archived = false;
+      const kept = plan.archive.filter((x) => x.kind !== 'expired');
+      const demoted = resize ? [...resize.demote(ref, clock, last.atMs), ...kept] : kept;
       const req: CommitRequest = {
         expectedVersion: snap?.version ?? 0, clock, turns: turnCount, capacity: table.capacity, dim: table.dim, ops,
         logbook: [...entries, ...demoted], retention: { policy: retentionOf(core.o), nowMs: last.atMs }, events: plan.events, commitId,
