@@ -1,9 +1,10 @@
-// The chaos test: 3 bot processes × 30 turns on one shared session, on one user's sessions and on a
+// The chaos test: 3 bot processes × 20 turns on one shared session, on one user's sessions and on a
 // second user's sessions, through a proxy that cuts replies, against a redis-server of our own
 // (`appendfsync always`) that is SIGKILLed and restarted mid-run, while the second user is erased.
 // Phases follow the bots' progress, not the clock. Afterwards, read straight from Redis:
 // 0 acknowledged writes lost, 0 applied twice (turn counters and logbook ids), 0 written after the
-// erase that were accepted before it. Bounded: each bot flushes for at most 20 s; the test has 60 s.
+// erase that were accepted before it. Bounded: each bot flushes for at most 20 s; the test has 90 s
+// (about 15 s on an idle machine; the bound leaves room for a loaded one).
 
 import { spawn, type ChildProcess } from 'node:child_process';
 import { join } from 'node:path';
@@ -15,7 +16,7 @@ import { FaultProxy } from '../adapters/redis/proxy.js';
 import { ThrowawayRedis, freePort, repoRoot } from '../adapters/redis/helpers.js';
 
 const PROCS = 3;
-const M = 30;
+const M = 20;
 const PREFIX = 'tidemark-chaos:';
 
 interface Done {
@@ -138,5 +139,5 @@ describe.skipIf(!hasRedisServer)(`chaos${hasRedisServer ? '' : ' (skipped: redis
     // Refusals are by design only: the erase, never another error.
     expect(done.filter((d) => !acknowledged(d)).every((d) => d.outcome === 'TIDEMARK_E_STORE_ERASED' && d.user === 'leaver')).toBe(true);
     console.log(`chaos: ${done.length} writes, ${proxy.cuts} replies cut, ${done.filter((d) => d.outcome === 'queued').length} queued, ${done.filter((d) => !acknowledged(d)).length} refused after the erase; lost 0, duplicated 0, resurrected 0`);
-  }, 60_000);
+  }, 90_000);
 });
