@@ -4,6 +4,8 @@
 // a commit is one EVALSHA that checks the version and applies the whole turn atomically. Each process
 // keeps a LogbookIndex per scope it serves, extended incrementally, so a search costs no more Redis
 // traffic than the entries added since the last one.
+// Over 400 lines: the store's methods share its caches (sessions, scopes, links) and its Lua calling
+// conventions; splitting the logbook scope cache into its own file is the natural next cut.
 
 import { randomBytes } from 'node:crypto';
 import type { ArchiveOptions } from '../../src/archive/index.js';

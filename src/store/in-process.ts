@@ -1,6 +1,8 @@
 // The in-process store, tidemark's default: sessions, logbooks and event streams in this process's
 // memory, with an optional snapshot file so a restart loses nothing. Commits are synchronous under
 // the hood, so version checks are exact within one process. Each logbook scope is one LogbookIndex.
+// Over 400 lines: sessions, logbooks, tombstones, bounds and the snapshot file share one set of maps;
+// the snapshot file code is the natural next cut.
 
 import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';

@@ -56,7 +56,9 @@ describe.skipIf(!hasRedisServer)(`chaos${hasRedisServer ? '' : ' (skipped: redis
     const child = join(repoRoot, 'test', 'chaos', 'bot-child.ts');
     let answered = 0;
     const waiters: Array<{ at: number; resolve: () => void }> = [];
-    const progress = (at: number): Promise<void> => new Promise((resolve) => waiters.push({ at, resolve }));
+    // Resolves once `at` writes were answered — at once if they already were (a loaded machine can let
+    // the bots run ahead of this process).
+    const progress = (at: number): Promise<void> => new Promise((resolve) => (answered >= at ? resolve() : waiters.push({ at, resolve })));
     const bots = Array.from({ length: PROCS }, (_, p) => {
       const cp: ChildProcess = spawn(process.execPath, ['--import', 'tsx', child, proxy.url, PREFIX, String(p), String(M)], { cwd: repoRoot, stdio: ['pipe', 'pipe', 'inherit'] });
       cleanup.push(async () => void cp.kill('SIGKILL'));
