@@ -10,7 +10,7 @@ import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { STOPWORDS, contentWords, tokenize } from './text.js';
-import { dot, pushTopK } from './vector.js';
+import { dot, dotSparse, pushTopK, sparseOf } from './vector.js';
 
 /** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
 export interface AttentionResult {
@@ -91,8 +91,10 @@ export function softmaxMasked(z: Float64Array, mask: (i: number) => boolean, tau
 }
 
 /**
- * One read over the table at clock `now`. `q` must be unit length. Costs one pass over
- * capacity x dim floats plus BM25 over the query terms.
+ * One read over the table at clock `now`. `q` must be unit length. A query with few non-zero entries
+ * (the hashing embedder's) is scored against the keys at those entries only; a dense one (a model's)
+ * costs one pass over capacity x dim floats. Both give the same cosines bit for bit. Plus BM25 over
+ * the query terms.
  */
 export function attend(table: SlotTable, now: number, q: Float32Array, terms: readonly string[], p: ReadParams): AttentionResult {
   const cap = table.capacity;
@@ -104,6 +106,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   const weight = new Float64Array(cap);
   const lexicalRaw = new Float64Array(cap);
   const lexical = new Float64Array(cap);
+  const sq = sparseOf(q);
   bm25Scores(terms, slotDocStats(table), lexicalRaw);
   let maxLex = 0;
   for (let i = 0; i < cap; i++) if (lexicalRaw[i]! > maxLex) maxLex = lexicalRaw[i]!;
@@ -112,7 +115,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   for (let i = 0; i < cap; i++) {
     if (!table.isUsed(i)) continue;
     used++;
-    const d = dot(q, keys, i * dim, dim);
+    const d = sq ? dotSparse(sq, keys, i * dim) : dot(q, keys, i * dim, dim);
     cosine[i] = d;
     if (d > topCosine) topCosine = d;
     const s = table.isPinned(i) ? Math.max(table.strength[i]!, 1e-9) : Math.max(decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now), 1e-9);
