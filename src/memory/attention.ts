@@ -5,7 +5,7 @@
 // cut. lexical_i is Okapi BM25 over slot text normalised by the best score of this read. Optional
 // multi-hop reads follow End-To-End Memory Networks (Sukhbaatar et al. 2015): q' = normalize(q + sum a_i v_i).
 
-import { bm25Scores, docStats, type DocStats } from './bm25.js';
+import { bm25ScoresFrom, docStats, postingsOf, type DocStats, type Postings } from './bm25.js';
 import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
@@ -47,31 +47,60 @@ export function textStats(keyText: string, value: string): DocStats {
 interface LexEntry {
   ids: string[];
   stats: Array<DocStats | null>;
+  /** Built from `stats` on the first read after a slot changed. */
+  postings: Postings | null;
 }
 
 // Token statistics per slot, cached per table and validated by revision id, so a read tokenises only
-// slots written since the last read. Held weakly: an erased or dropped table takes its text with it.
+// slots written since the last read, and the term postings are rebuilt only after a write. Held
+// weakly: an erased or dropped table takes its text with it.
 const lexCache = new WeakMap<SlotTable, LexEntry>();
 
-/** BM25 document statistics of every slot (null for free slots), from the cache when still valid. */
-export function slotDocStats(table: SlotTable): Array<DocStats | null> {
+// A store that decodes a fresh table per load (Redis) misses the cache above on every read; the
+// statistics of a revision are kept here too, checked against its text (bounded, cleared when full).
+const byRevision = new Map<string, { keyText: string; value: string; stats: DocStats }>();
+const BY_REVISION_MAX = 20_000;
+
+function revisionStats(id: string, keyText: string, value: string): DocStats {
+  const hit = byRevision.get(id);
+  if (hit && hit.keyText === keyText && hit.value === value) return hit.stats;
+  const stats = textStats(keyText, value);
+  if (byRevision.size >= BY_REVISION_MAX) byRevision.clear();
+  byRevision.set(id, { keyText, value, stats });
+  return stats;
+}
+
+function lexEntry(table: SlotTable): LexEntry {
   let e = lexCache.get(table);
   if (!e) {
-    e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null) };
+    e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null), postings: null };
     lexCache.set(table, e);
   }
   for (let i = 0; i < table.capacity; i++) {
     if (!table.isUsed(i)) {
+      if (e.stats[i] !== null) e.postings = null;
       e.stats[i] = null;
       e.ids[i] = '';
       continue;
     }
     if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
       e.ids[i] = table.ids[i]!;
-      e.stats[i] = textStats(table.keyText[i]!, table.value[i]!);
+      e.stats[i] = revisionStats(table.ids[i]!, table.keyText[i]!, table.value[i]!);
+      e.postings = null;
     }
   }
-  return e.stats;
+  return e;
+}
+
+/** BM25 document statistics of every slot (null for free slots), from the cache when still valid. */
+export function slotDocStats(table: SlotTable): Array<DocStats | null> {
+  return lexEntry(table).stats;
+}
+
+/** Term postings over the slots' statistics, rebuilt only when a slot changed since the last read. */
+export function slotPostings(table: SlotTable): Postings {
+  const e = lexEntry(table);
+  return (e.postings ??= postingsOf(e.stats));
 }
 
 /** Numerically stable softmax of `z / tau` over the entries where `mask[i]` is true. */
@@ -107,7 +136,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   const lexicalRaw = new Float64Array(cap);
   const lexical = new Float64Array(cap);
   const sq = sparseOf(q);
-  bm25Scores(terms, slotDocStats(table), lexicalRaw);
+  bm25ScoresFrom(terms, slotPostings(table), lexicalRaw);
   let maxLex = 0;
   for (let i = 0; i < cap; i++) if (lexicalRaw[i]! > maxLex) maxLex = lexicalRaw[i]!;
   let used = 0;

@@ -2,7 +2,7 @@
 // top-k / minWeight / maxMass selection, hit and miss, and the multi-hop query update.
 
 import { describe, expect, it } from 'vitest';
-import { attend, nextQuery, queryTerms, slotDocStats, softmaxMasked } from '../../src/memory/attention.js';
+import { attend, nextQuery, queryTerms, slotDocStats, slotPostings, softmaxMasked } from '../../src/memory/attention.js';
 import { basis, readParams, rec, softmaxRef, table, vec } from './helpers.js';
 
 describe('softmaxMasked', () => {
@@ -163,6 +163,31 @@ describe('queryTerms and slotDocStats', () => {
     expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'red', 'tarrant']);
     t.clear(0);
     expect(slotDocStats(t)[0]).toBeNull();
+  });
+
+  it('keeps term postings until a slot changes, then rebuilds them', () => {
+    const t = table(3, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Quenby' }), null, rec('b', basis(3, 1), { keyText: 'my fern', value: 'a green fern' })]);
+    const first = slotPostings(t);
+    expect(first.byTerm.get('green')).toEqual([0, 2]);
+    expect(first.byTerm.get('fern')).toEqual([2]);
+    expect([first.n, first.total]).toEqual([2, 6]);
+    expect(slotPostings(t)).toBe(first);
+    t.set(1, rec('c', basis(3, 2), { keyText: 'my pot', value: 'a green pot' }));
+    const second = slotPostings(t);
+    expect(second).not.toBe(first);
+    expect(second.byTerm.get('green')).toEqual([0, 1, 2]);
+    t.clear(0);
+    expect(slotPostings(t).byTerm.get('quenby')).toBeUndefined();
+    expect(slotPostings(t).n).toBe(2);
+  });
+
+  it('gives a table decoded afresh (as a store that decodes per load does) the same statistics', () => {
+    const a = table(1, 3, [rec('r7', basis(3, 0), { keyText: 'my saddle', value: 'a brown saddle' })]);
+    const b = table(1, 3, [rec('r7', basis(3, 0), { keyText: 'my saddle', value: 'a brown saddle' })]);
+    expect(slotDocStats(b)[0]).toBe(slotDocStats(a)[0]);
+    // Same revision id, other text (never happens in a store; a test table may do it): not shared.
+    const c = table(1, 3, [rec('r7', basis(3, 0), { keyText: 'my saddle', value: 'a black saddle' })]);
+    expect([...slotDocStats(c)[0]!.tf.keys()]).toEqual(['saddle', 'black']);
   });
 });
 
