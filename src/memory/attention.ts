@@ -56,20 +56,6 @@ interface LexEntry {
 // weakly: an erased or dropped table takes its text with it.
 const lexCache = new WeakMap<SlotTable, LexEntry>();
 
-// A store that decodes a fresh table per load (Redis) misses the cache above on every read; the
-// statistics of a revision are kept here too, checked against its text (bounded, cleared when full).
-const byRevision = new Map<string, { keyText: string; value: string; stats: DocStats }>();
-const BY_REVISION_MAX = 20_000;
-
-function revisionStats(id: string, keyText: string, value: string): DocStats {
-  const hit = byRevision.get(id);
-  if (hit && hit.keyText === keyText && hit.value === value) return hit.stats;
-  const stats = textStats(keyText, value);
-  if (byRevision.size >= BY_REVISION_MAX) byRevision.clear();
-  byRevision.set(id, { keyText, value, stats });
-  return stats;
-}
-
 function lexEntry(table: SlotTable): LexEntry {
   let e = lexCache.get(table);
   if (!e) {
@@ -85,7 +71,7 @@ function lexEntry(table: SlotTable): LexEntry {
     }
     if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
       e.ids[i] = table.ids[i]!;
-      e.stats[i] = revisionStats(table.ids[i]!, table.keyText[i]!, table.value[i]!);
+      e.stats[i] = textStats(table.keyText[i]!, table.value[i]!);
       e.postings = null;
     }
   }
