@@ -34,9 +34,13 @@ export interface AttentionResult {
 
 /** Query terms for BM25: content words of the query (all words when it has none). */
 export function queryTerms(text: string): string[] {
-  const words = tokenize(text);
+  return queryTermsOf(tokenize(text));
+}
+
+/** `queryTerms` of a text already tokenised (`tokenize`). */
+export function queryTermsOf(words: readonly string[]): string[] {
   const content = words.filter((w) => !STOPWORDS.has(w));
-  return content.length > 0 ? content : words;
+  return content.length > 0 ? content : words.slice();
 }
 
 /** BM25 statistics of a slot's (or archive item's) text: the content words of its key and value. */

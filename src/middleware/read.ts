@@ -5,7 +5,7 @@
 
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, StoreError, isTidemarkError } from '../errors.js';
-import { attend, nextQuery, queryTerms, type AttentionResult } from '../memory/attention.js';
+import { attend, nextQuery, queryTermsOf, type AttentionResult } from '../memory/attention.js';
 import { resolveDates } from '../memory/dates.js';
 import { decayed } from '../memory/decay.js';
 import { renderPrompt } from '../memory/prompt.js';
@@ -72,7 +72,7 @@ export class ReadPath {
     let hops = 0;
     const slots: SlotCandidate[] = [];
     if (table && table.count() > 0 && p.tiers !== 'logbook') {
-      const terms = queryTerms(turn.text);
+      const terms = queryTermsOf(analysed.tokens);
       att = attend(table, now, q!, terms, p);
       hops = 1;
       for (let h = 1; h < p.hops && att.selected.length > 0; h++) {
