@@ -5,7 +5,7 @@
 // cut. lexical_i is Okapi BM25 over slot text normalised by the best score of this read. Optional
 // multi-hop reads follow End-To-End Memory Networks (Sukhbaatar et al. 2015): q' = normalize(q + sum a_i v_i).
 
-import { bm25ScoresFrom, docStats, postingsOf, type DocStats, type Postings } from './bm25.js';
+import { bm25ScoresFrom, docStats, postingsInsert, postingsOf, postingsRemove, type DocStats, type Postings } from './bm25.js';
 import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
@@ -51,12 +51,12 @@ export function textStats(keyText: string, value: string): DocStats {
 interface LexEntry {
   ids: string[];
   stats: Array<DocStats | null>;
-  /** Built from `stats` on the first read after a slot changed. */
+  /** Built from `stats` on the first read, then kept in step slot by slot. */
   postings: Postings | null;
 }
 
 // Token statistics per slot, cached per table and validated by revision id, so a read tokenises only
-// slots written since the last read, and the term postings are rebuilt only after a write. Held
+// slots written since the last read, and the term postings move only the slots that changed. Held
 // weakly: an erased or dropped table takes its text with it.
 const lexCache = new WeakMap<SlotTable, LexEntry>();
 
@@ -66,17 +66,24 @@ function lexEntry(table: SlotTable): LexEntry {
     e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null), postings: null };
     lexCache.set(table, e);
   }
+  // A slot that changed since the last read moves in the postings (when they are built) by itself.
+  const post = e.postings;
   for (let i = 0; i < table.capacity; i++) {
+    const old = e.stats[i] ?? null;
     if (!table.isUsed(i)) {
-      if (e.stats[i] !== null) e.postings = null;
+      if (old !== null && post) postingsRemove(post, i, old);
       e.stats[i] = null;
       e.ids[i] = '';
       continue;
     }
-    if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
+    if (e.ids[i] !== table.ids[i] || old === null) {
       e.ids[i] = table.ids[i]!;
-      e.stats[i] = textStats(table.keyText[i]!, table.value[i]!);
-      e.postings = null;
+      const d = textStats(table.keyText[i]!, table.value[i]!);
+      e.stats[i] = d;
+      if (post) {
+        if (old !== null) postingsRemove(post, i, old);
+        postingsInsert(post, i, d);
+      }
     }
   }
   return e;
@@ -87,7 +94,7 @@ export function slotDocStats(table: SlotTable): Array<DocStats | null> {
   return lexEntry(table).stats;
 }
 
-/** Term postings over the slots' statistics, rebuilt only when a slot changed since the last read. */
+/** Term postings over the slots' statistics, kept in step with the slots. */
 export function slotPostings(table: SlotTable): Postings {
   const e = lexEntry(table);
   return (e.postings ??= postingsOf(e.stats));

@@ -101,6 +101,33 @@ export function postingsOf(docs: ReadonlyArray<DocStats | null>): Postings {
   return { docs, byTerm, n, total };
 }
 
+/** Takes document `i` (with statistics `d`) out of the postings. */
+export function postingsRemove(post: Postings, i: number, d: DocStats): void {
+  post.n--;
+  post.total -= d.len;
+  for (const t of d.tf.keys()) {
+    const list = post.byTerm.get(t)!;
+    list.splice(list.indexOf(i), 1);
+    if (list.length === 0) post.byTerm.delete(t);
+  }
+}
+
+/** Puts document `i` (with statistics `d`) into the postings, keeping each list ascending. */
+export function postingsInsert(post: Postings, i: number, d: DocStats): void {
+  post.n++;
+  post.total += d.len;
+  for (const t of d.tf.keys()) {
+    const list = post.byTerm.get(t);
+    if (!list) {
+      post.byTerm.set(t, [i]);
+      continue;
+    }
+    let at = list.length;
+    while (at > 0 && list[at - 1]! > i) at--;
+    list.splice(at, 0, i);
+  }
+}
+
 /** `bm25Scores` over postings: the same sums in the same order, so the same bits. */
 export function bm25ScoresFrom(queryTerms: readonly string[], post: Postings, out: Float64Array, p: Bm25Params = BM25_DEFAULTS): void {
   out.fill(0);

@@ -118,6 +118,14 @@ function termsOf(c: SlotCandidate): SlotTerms {
   return t;
 }
 
+// A turn's text normalised, per entry (an entry's text never changes), held only as long as the entry.
+const normalized = new WeakMap<LogbookEntry, string>();
+function normalizedValue(e: LogbookEntry): string {
+  let v = normalized.get(e);
+  if (v === undefined) normalized.set(e, (v = normalizeText(e.value)));
+  return v;
+}
+
 /**
  * BM25 of slot texts with the logbook's statistics (its N, average length and IDF), so a slot and a
  * turn that share the query's words score alike. With an empty logbook the slots are their own corpus.
@@ -183,10 +191,10 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   // The question asked again is not its own answer. Normalising drops only punctuation and spacing,
   // so a text over twice the query's length would have to be mostly punctuation to equal it: those
   // skip the regex.
-  const isRepeat = (text: string): boolean => same !== null && text.length <= 2 * p.query!.length + 8 && normalizeText(text) === same;
+  const isRepeat = (e: LogbookEntry): boolean => same !== null && e.value.length <= 2 * p.query!.length + 8 && normalizedValue(e) === same;
   for (const h of lb.hits) {
     if (seen.has(h.entry.id)) continue; // a promoted value still in the logbook: the slot stands for it
-    if (h.entry.kind === 'turn' && isRepeat(h.entry.value)) continue;
+    if (h.entry.kind === 'turn' && isRepeat(h.entry)) continue;
     seen.add(h.entry.id);
     items.push(fromHit(h, maxScore));
   }
