@@ -209,10 +209,14 @@ export function planWrite(input: WritePlanInput): WritePlan {
     if (si !== sj) return si - sj;
     return (ri ? ri.updatedMs : table.updatedMs[i]!) - (rj ? rj.updatedMs : table.updatedMs[j]!);
   };
+  // Strength of each unchanged slot at `now`, computed once per plan (NaN: not yet).
+  const decayedNow = new Float64Array(cap).fill(NaN);
   const strengthNow = (i: number): number => {
     const r = pending.get(i);
     if (r) return r.pinned ? r.strength : decayed(r.strength, r.stamp, r.halfLife, now);
-    return table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now);
+    let s = decayedNow[i]!;
+    if (Number.isNaN(s)) decayedNow[i] = s = table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now);
+    return s;
   };
   // A hashing embedder's key has a few dozen non-zero entries: scored sparse, bit for bit the dense cosine.
   const cosAt = (i: number, k: Float32Array, ks: SparseVector | null): number => {

@@ -90,7 +90,8 @@ export class ReadPath {
           slot: i, id: table.ids[i]!, keyText: table.keyText[i]!, value: table.value[i]!, provenance: table.provenance[i]!,
           ...(table.owner[i] ? { owner: table.owner[i]! } : {}),
           ...(table.subject[i] ? { subject: table.subject[i]! } : {}),
-          strength: table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
+          // The attention's strength is this one unless it was clamped at 1e-9.
+          strength: att.strength[i]! > 1e-9 ? att.strength[i]! : table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
           cosine: att.cosine[i]!, weight: att.weight[i]!, updatedMs: table.updatedMs[i]!, age: Math.max(0, now - table.stamp[i]!),
           ...(table.maybeReplaces[i] ? { maybeReplaces: table.maybeReplaces[i]! } : {}),
         });
