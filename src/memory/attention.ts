@@ -126,12 +126,14 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   const cap = table.capacity;
   const dim = table.dim;
   const keys = table.keys;
-  const cosine = new Float64Array(cap);
-  const strength = new Float64Array(cap);
-  const score = new Float64Array(cap);
-  const weight = new Float64Array(cap);
-  const lexicalRaw = new Float64Array(cap);
-  const lexical = new Float64Array(cap);
+  // Six per-slot arrays in one allocation (an array this size lives off the V8 heap: one backing store, not six).
+  const buf = new Float64Array(6 * cap);
+  const cosine = buf.subarray(0, cap);
+  const strength = buf.subarray(cap, 2 * cap);
+  const score = buf.subarray(2 * cap, 3 * cap);
+  const weight = buf.subarray(3 * cap, 4 * cap);
+  const lexicalRaw = buf.subarray(4 * cap, 5 * cap);
+  const lexical = buf.subarray(5 * cap, 6 * cap);
   const sq = sparseOf(q);
   bm25ScoresFrom(terms, slotPostings(table), lexicalRaw);
   let maxLex = 0;
