@@ -1,4 +1,5 @@
-// `npm run bench -- growth [--lengths 100,1000,10000] [--window 200] [--block 20] [--repeat R] [--json]`: the cost
+// `npm run bench -- growth [--lengths 100,1000,10000,100000] [--window 200] [--block 20] [--repeat R]
+// [--baseline-max 10000] [--vectors] [--json]`: the cost
 // of one turn against the length of a session's history, for tidemark and for the full-history
 // baseline (`flat` from cli/baselines.ts: every turn kept and ranked exhaustively with the same
 // embedder, cosine + BM25), measured side by side in one run on one growing session each.
@@ -6,7 +7,11 @@
 // query with the built-in embedder behind a cache (tidemark's own; a memo for the baseline), so the
 // curves differ by how each searches. Both keep every turn; tidemark's logbook answers from an
 // inverted index (cost grows with the postings of the query's words, not with the history), the
-// baseline scans every turn.
+// baseline scans every turn. The baseline's scan makes a turn at 100,000 exchanges cost ~1 s, so past
+// `--baseline-max` it is no longer grown or timed (its column reads null). `--vectors` keeps every
+// turn's vector in the logbook too (the dense list: exact scan while small, HNSW past a size, both
+// added to per turn), so the vector side is timed with the lexical one. The logbook keeps every turn
+// (no entry cap) at every length.
 
 import type { Embedder } from '../src/embed/embedder.js';
 import { HashingEmbedder } from '../src/embed/hashing.js';
@@ -83,11 +88,11 @@ async function baselineTurn(b: TurnBaseline, emb: ReturnType<typeof memoized>, n
 }
 
 /** Grows both to each length in turn and times `window` turns there, alternating tidemark and baseline turns. */
-async function measure(lengths: readonly number[], window: number, block: number, seed: number): Promise<Point[]> {
+async function measure(lengths: readonly number[], window: number, block: number, seed: number, baselineMax: number, vectors: boolean): Promise<Point[]> {
   const convo = conversation(lengths[lengths.length - 1]! + window * lengths.length + 10, seed);
   const embedder = new HashingEmbedder({ dim: 384 });
   const store = new InProcessStore();
-  const tm = createTidemark({ store, embedder, secret: 'growth-bench' });
+  const tm = createTidemark({ store, embedder, secret: 'growth-bench', logbook: { maxEntries: 0, vectors } });
   const emb = memoized(embedder);
   const base = new TurnBaseline({ kind: 'flat' }, { embedder: emb });
   // Warm the JIT on a session of its own before anything is timed (common practice).
@@ -106,7 +111,7 @@ async function measure(lengths: readonly number[], window: number, block: number
     while (n < length) {
       const x = convo[n]!;
       await tidemarkTurn(tm, n, x);
-      await baselineTurn(base, emb, n, x);
+      if (length <= baselineMax) await baselineTurn(base, emb, n, x);
       n++;
     }
     // Snapshot the history's size where the window starts.
@@ -123,7 +128,8 @@ async function measure(lengths: readonly number[], window: number, block: number
       // exchanges) does not evict its caches before every turn. --block 1 alternates single turns.
       const end = Math.min(window, w0 + block);
       const order = (w0 / block) % 2 === 0;
-      for (const which of order ? ['t', 'b'] : ['b', 't']) {
+      const sides = length <= baselineMax ? (order ? ['t', 'b'] : ['b', 't']) : ['t'];
+      for (const which of sides) {
         for (let w = w0; w < end; w++) {
           const x = convo[n + w]!;
           const t0 = performance.now();
@@ -140,9 +146,9 @@ async function measure(lengths: readonly number[], window: number, block: number
     points.push({
       length,
       tidemark_us: round(percentile(tUs, 50), 1),
-      baseline_us: round(percentile(bUs, 50), 1),
+      baseline_us: length <= baselineMax ? round(percentile(bUs, 50), 1) : NaN,
       tidemark_p95_us: round(percentile(tUs, 95), 1),
-      baseline_p95_us: round(percentile(bUs, 95), 1),
+      baseline_p95_us: length <= baselineMax ? round(percentile(bUs, 95), 1) : NaN,
       tidemark_read_us: round(percentile(rUs, 50), 1),
       tidemark_search_us: round(percentile(sUs, 50), 1),
       slots_in_use: snap?.table.count() ?? 0,
@@ -156,7 +162,7 @@ async function measure(lengths: readonly number[], window: number, block: number
 
 export default async function main(argv: string[]): Promise<void> {
   const args = parseArgs(argv);
-  const lengths = (args.values.get('lengths') ?? '100,1000,10000').split(',').map(Number);
+  const lengths = (args.values.get('lengths') ?? '100,1000,10000,100000').split(',').map(Number);
   if (lengths.length < 2 || lengths.some((l, i) => !Number.isInteger(l) || l < 1 || (i > 0 && l <= lengths[i - 1]!))) {
     throw new RangeError(`--lengths must be increasing integers >= 1, comma-separated, got ${args.values.get('lengths')}`);
   }
@@ -166,30 +172,37 @@ export default async function main(argv: string[]): Promise<void> {
   if (!Number.isInteger(repeat) || repeat < 1) throw new RangeError(`--repeat must be an integer >= 1, got ${repeat}`);
   const block = Number(args.values.get('block') ?? 20);
   if (!Number.isInteger(block) || block < 1 || block > window) throw new RangeError(`--block must be an integer from 1 to --window, got ${block}`);
+  const baselineMax = Number(args.values.get('baseline-max') ?? 10_000);
+  if (!Number.isInteger(baselineMax) || baselineMax < lengths[0]!) throw new RangeError(`--baseline-max must be an integer >= the first length, got ${args.values.get('baseline-max')}`);
+  const vectors = args.flags.has('vectors');
   const runs: Point[][] = [];
-  for (let r = 0; r < repeat; r++) runs.push(await measure(lengths, window, block, 7 + r));
+  for (let r = 0; r < repeat; r++) runs.push(await measure(lengths, window, block, 7 + r, baselineMax, vectors));
   const med = (f: (p: Point) => number): number[] => lengths.map((_, i) => percentile(runs.map((run) => f(run[i]!)), 50));
   const tidemark = med((p) => p.tidemark_us);
   const baseline = med((p) => p.baseline_us);
   const last = lengths.length - 1;
   const ratio = round(tidemark[last]! / tidemark[0]!, 2);
-  const baselineRatio = round(baseline[last]! / baseline[0]!, 2);
+  // The baseline's ratio over the longest length it ran at.
+  const bLast = lengths.reduce((k, l, i) => (l <= baselineMax ? i : k), 0);
+  const baselineRatio = round(baseline[bLast]! / baseline[0]!, 2);
+  const at10k = lengths.indexOf(10_000);
   const p = runs[0]!;
-  console.log(`per-turn cost against history length (one session, built-in embedder, median of ${window} turns in alternating blocks of ${block}${repeat > 1 ? `, median of ${repeat} runs` : ''})`);
+  console.log(`per-turn cost against history length (one session, built-in embedder${vectors ? ', turn vectors in the logbook' : ''}, median of ${window} turns in alternating blocks of ${block}${repeat > 1 ? `, median of ${repeat} runs` : ''}; baseline up to ${baselineMax})`);
   console.log(asciiTable(
     ['history (exchanges)', 'tidemark µs', 'p95', 'of which read', 'of which search', 'flat baseline µs', 'p95', 'slots', 'logbook entries', 'baseline turns'],
     lengths.map((l, i) => [
-      l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, med((x) => x.tidemark_read_us)[i]!, med((x) => x.tidemark_search_us)[i]!, baseline[i]!,
-      med((x) => x.baseline_p95_us)[i]!, p[i]!.slots_in_use, p[i]!.logbook_entries, p[i]!.baseline_items,
+      l, tidemark[i]!, med((x) => x.tidemark_p95_us)[i]!, med((x) => x.tidemark_read_us)[i]!, med((x) => x.tidemark_search_us)[i]!, l <= baselineMax ? baseline[i]! : '-',
+      l <= baselineMax ? med((x) => x.baseline_p95_us)[i]! : '-', p[i]!.slots_in_use, p[i]!.logbook_entries, l <= baselineMax ? p[i]!.baseline_items : '-',
     ]),
   ));
-  console.log(`ratio ${lengths[last]} / ${lengths[0]}: tidemark ${ratio} (target <= 1.5), flat baseline ${baselineRatio}`);
+  if (at10k > 0) console.log(`ratio 10000 / ${lengths[0]}: tidemark ${round(tidemark[at10k]! / tidemark[0]!, 2)} (target <= 1.5)`);
+  console.log(`ratio ${lengths[last]} / ${lengths[0]}: tidemark ${ratio}; flat baseline ${lengths[bLast]} / ${lengths[0]}: ${baselineRatio}`);
   const svg = lineChart({
     title: 'Per-turn cost against history length', xLabel: 'history length (exchanges, log scale)', yLabel: 'µs per turn (median, log scale)',
     logX: true, logY: true,
-    series: [{ name: 'tidemark', x: lengths, y: tidemark }, { name: 'flat baseline', x: lengths, y: baseline }],
+    series: [{ name: 'tidemark', x: lengths, y: tidemark }, { name: 'flat baseline', x: lengths.slice(0, bLast + 1), y: baseline.slice(0, bLast + 1) }],
   });
-  const out = { lengths, tidemark_us: tidemark, baseline_us: baseline, ratio, baseline_ratio: baselineRatio, window, block, repeat, points: runs, load: loadAverage(), machine: machine() };
+  const out = { lengths, tidemark_us: tidemark, baseline_us: baseline.map((x, i) => (lengths[i]! <= baselineMax ? x : null)), ratio, ratio_10000: at10k > 0 ? round(tidemark[at10k]! / tidemark[0]!, 2) : null, baseline_ratio: baselineRatio, baseline_max: baselineMax, vectors, window, block, repeat, points: runs, load: loadAverage(), machine: machine() };
   const paths = writeResult('growth', out, svg, ['growth', ...argv]);
   console.log(`wrote ${paths.json} and ${paths.svg}`);
   if (args.flags.has('json')) console.log(JSON.stringify(out));

@@ -2,6 +2,8 @@
 // machine notes. Figures are printed, never asserted.
 
 import { cpus } from 'node:os';
+import { setFlagsFromString } from 'node:v8';
+import { runInNewContext } from 'node:vm';
 
 /** Percentile by nearest rank (the definition used by most latency tooling; common practice). */
 export function percentile(samples: ArrayLike<number>, p: number): number {
@@ -46,4 +48,22 @@ export function rng(seed: number): () => number {
     t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
     return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
   };
+}
+
+let gc: (() => void) | undefined;
+
+/**
+ * Heap used plus array buffers after a full GC: what the process holds, for bytes-per-thing figures.
+ * Exposes V8's gc() at run time (the --expose-gc flag set late, read back through a fresh context;
+ * a documented V8 flag, used this way by common practice when the command line cannot be changed).
+ */
+export function heapBytes(): number {
+  if (!gc) {
+    setFlagsFromString('--expose-gc');
+    gc = runInNewContext('gc') as () => void;
+  }
+  gc();
+  gc();
+  const m = process.memoryUsage();
+  return m.heapUsed + m.arrayBuffers;
 }

@@ -3,14 +3,15 @@
 // asks "when".
 
 import { asksWhen, dateTerms, resolveDates } from '../memory/dates.js';
-import { analyze, tokenize } from '../memory/text.js';
+import { analyzeTokens, tokenize } from '../memory/text.js';
 import type { LogbookQuery } from './index.js';
 
 /** Analyses a query text asked at `atMs`. */
 export function analyseQuery(text: string, atMs: number): Omit<LogbookQuery, 'vector' | 'denseK'> {
+  const tokens = tokenize(text);
   return {
-    terms: analyze(text),
-    tokens: tokenize(text),
+    terms: analyzeTokens(tokens),
+    tokens,
     dateTerms: dateTerms(resolveDates(text, atMs)),
     temporal: asksWhen(text),
   };

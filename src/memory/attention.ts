@@ -5,12 +5,12 @@
 // cut. lexical_i is Okapi BM25 over slot text normalised by the best score of this read. Optional
 // multi-hop reads follow End-To-End Memory Networks (Sukhbaatar et al. 2015): q' = normalize(q + sum a_i v_i).
 
-import { bm25Scores, docStats, type DocStats } from './bm25.js';
+import { bm25ScoresFrom, docStats, postingsInsert, postingsOf, postingsRemove, type DocStats, type Postings } from './bm25.js';
 import { decayed } from './decay.js';
 import type { ReadParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { STOPWORDS, contentWords, tokenize } from './text.js';
-import { dot, pushTopK } from './vector.js';
+import { dot, dotSparse, pushTopK, sparseOf } from './vector.js';
 
 /** Per-slot results of one read; arrays are indexed by slot (length = capacity). */
 export interface AttentionResult {
@@ -34,9 +34,13 @@ export interface AttentionResult {
 
 /** Query terms for BM25: content words of the query (all words when it has none). */
 export function queryTerms(text: string): string[] {
-  const words = tokenize(text);
+  return queryTermsOf(tokenize(text));
+}
+
+/** `queryTerms` of a text already tokenised (`tokenize`). */
+export function queryTermsOf(words: readonly string[]): string[] {
   const content = words.filter((w) => !STOPWORDS.has(w));
-  return content.length > 0 ? content : words;
+  return content.length > 0 ? content : words.slice();
 }
 
 /** BM25 statistics of a slot's (or archive item's) text: the content words of its key and value. */
@@ -47,31 +51,53 @@ export function textStats(keyText: string, value: string): DocStats {
 interface LexEntry {
   ids: string[];
   stats: Array<DocStats | null>;
+  /** Built from `stats` on the first read, then kept in step slot by slot. */
+  postings: Postings | null;
 }
 
 // Token statistics per slot, cached per table and validated by revision id, so a read tokenises only
-// slots written since the last read. Held weakly: an erased or dropped table takes its text with it.
+// slots written since the last read, and the term postings move only the slots that changed. Held
+// weakly: an erased or dropped table takes its text with it.
 const lexCache = new WeakMap<SlotTable, LexEntry>();
 
-/** BM25 document statistics of every slot (null for free slots), from the cache when still valid. */
-export function slotDocStats(table: SlotTable): Array<DocStats | null> {
+function lexEntry(table: SlotTable): LexEntry {
   let e = lexCache.get(table);
   if (!e) {
-    e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null) };
+    e = { ids: new Array<string>(table.capacity).fill(''), stats: new Array<DocStats | null>(table.capacity).fill(null), postings: null };
     lexCache.set(table, e);
   }
+  // A slot that changed since the last read moves in the postings (when they are built) by itself.
+  const post = e.postings;
   for (let i = 0; i < table.capacity; i++) {
+    const old = e.stats[i] ?? null;
     if (!table.isUsed(i)) {
+      if (old !== null && post) postingsRemove(post, i, old);
       e.stats[i] = null;
       e.ids[i] = '';
       continue;
     }
-    if (e.ids[i] !== table.ids[i] || e.stats[i] === null) {
+    if (e.ids[i] !== table.ids[i] || old === null) {
       e.ids[i] = table.ids[i]!;
-      e.stats[i] = textStats(table.keyText[i]!, table.value[i]!);
+      const d = textStats(table.keyText[i]!, table.value[i]!);
+      e.stats[i] = d;
+      if (post) {
+        if (old !== null) postingsRemove(post, i, old);
+        postingsInsert(post, i, d);
+      }
     }
   }
-  return e.stats;
+  return e;
+}
+
+/** BM25 document statistics of every slot (null for free slots), from the cache when still valid. */
+export function slotDocStats(table: SlotTable): Array<DocStats | null> {
+  return lexEntry(table).stats;
+}
+
+/** Term postings over the slots' statistics, kept in step with the slots. */
+export function slotPostings(table: SlotTable): Postings {
+  const e = lexEntry(table);
+  return (e.postings ??= postingsOf(e.stats));
 }
 
 /** Numerically stable softmax of `z / tau` over the entries where `mask[i]` is true. */
@@ -91,20 +117,25 @@ export function softmaxMasked(z: Float64Array, mask: (i: number) => boolean, tau
 }
 
 /**
- * One read over the table at clock `now`. `q` must be unit length. Costs one pass over
- * capacity x dim floats plus BM25 over the query terms.
+ * One read over the table at clock `now`. `q` must be unit length. A query with few non-zero entries
+ * (the hashing embedder's) is scored against the keys at those entries only; a dense one (a model's)
+ * costs one pass over capacity x dim floats. Both give the same cosines bit for bit. Plus BM25 over
+ * the query terms.
  */
 export function attend(table: SlotTable, now: number, q: Float32Array, terms: readonly string[], p: ReadParams): AttentionResult {
   const cap = table.capacity;
   const dim = table.dim;
   const keys = table.keys;
-  const cosine = new Float64Array(cap);
-  const strength = new Float64Array(cap);
-  const score = new Float64Array(cap);
-  const weight = new Float64Array(cap);
-  const lexicalRaw = new Float64Array(cap);
-  const lexical = new Float64Array(cap);
-  bm25Scores(terms, slotDocStats(table), lexicalRaw);
+  // Six per-slot arrays in one allocation (an array this size lives off the V8 heap: one backing store, not six).
+  const buf = new Float64Array(6 * cap);
+  const cosine = buf.subarray(0, cap);
+  const strength = buf.subarray(cap, 2 * cap);
+  const score = buf.subarray(2 * cap, 3 * cap);
+  const weight = buf.subarray(3 * cap, 4 * cap);
+  const lexicalRaw = buf.subarray(4 * cap, 5 * cap);
+  const lexical = buf.subarray(5 * cap, 6 * cap);
+  const sq = sparseOf(q);
+  bm25ScoresFrom(terms, slotPostings(table), lexicalRaw);
   let maxLex = 0;
   for (let i = 0; i < cap; i++) if (lexicalRaw[i]! > maxLex) maxLex = lexicalRaw[i]!;
   let used = 0;
@@ -112,7 +143,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   for (let i = 0; i < cap; i++) {
     if (!table.isUsed(i)) continue;
     used++;
-    const d = dot(q, keys, i * dim, dim);
+    const d = sq ? dotSparse(sq, keys, i * dim) : dot(q, keys, i * dim, dim);
     cosine[i] = d;
     if (d > topCosine) topCosine = d;
     const s = table.isPinned(i) ? Math.max(table.strength[i]!, 1e-9) : Math.max(decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now), 1e-9);

@@ -5,6 +5,7 @@
 // gives the same answer on every machine.
 
 import { casual, type ParsedResult } from 'chrono-node/en';
+import { textDigest } from './text.js';
 
 /** How precise a resolved mention is. */
 export type DateGrain = 'day' | 'week' | 'month' | 'year';
@@ -65,6 +66,24 @@ function grainOf(r: ParsedResult): DateGrain | null {
  */
 export function resolveDates(text: string, atMs: number): DateMention[] {
   if (!HINT.test(text) || !Number.isFinite(atMs)) return [];
+  // One parse per (text, moment): a turn's text is resolved by its read and again by its write, and a
+  // slot's value on every read that returns it. Keyed by a digest: it keeps the date expressions found
+  // ("last Saturday"), not the texts.
+  const key = `${atMs}:${textDigest(text)}`;
+  let found = resolved.get(key);
+  if (!found) {
+    found = parseDates(text, atMs);
+    if (resolved.size >= RESOLVED_MAX) resolved.clear();
+    resolved.set(key, found);
+  }
+  return found.map((m) => ({ ...m }));
+}
+
+/** Resolved mentions by `${atMs}:${digest}` (bounded; cleared when full). */
+const resolved = new Map<string, readonly DateMention[]>();
+const RESOLVED_MAX = 10_000;
+
+function parseDates(text: string, atMs: number): DateMention[] {
   let results: ParsedResult[];
   try {
     results = casual.parse(text, { instant: new Date(atMs), timezone: 'UTC' });

@@ -98,16 +98,32 @@ export interface RankResult {
   hit: boolean;
 }
 
-// Analysed terms of a slot's text, per revision id (bounded; a revision's text never changes).
-const slotTerms = new Map<string, string[]>();
-function termsOf(c: SlotCandidate): string[] {
+// Analysed terms of a slot's text and their counts, per revision id (bounded; a revision's text never
+// changes), so a read does not re-count every slot's words.
+interface SlotTerms {
+  len: number;
+  tf: Map<string, number>;
+}
+const slotTerms = new Map<string, SlotTerms>();
+function termsOf(c: SlotCandidate): SlotTerms {
   let t = slotTerms.get(c.id);
   if (!t) {
-    t = analyze(c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value);
+    const terms = analyze(c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value);
+    const tf = new Map<string, number>();
+    for (const w of terms) tf.set(w, (tf.get(w) ?? 0) + 1);
+    t = { len: terms.length, tf };
     if (slotTerms.size >= 20_000) slotTerms.clear();
     slotTerms.set(c.id, t);
   }
   return t;
+}
+
+// A turn's text normalised, per entry (an entry's text never changes), held only as long as the entry.
+const normalized = new WeakMap<LogbookEntry, string>();
+function normalizedValue(e: LogbookEntry): string {
+  let v = normalized.get(e);
+  if (v === undefined) normalized.set(e, (v = normalizeText(e.value)));
+  return v;
 }
 
 /**
@@ -123,22 +139,20 @@ export function scoreSlots(slots: readonly SlotCandidate[], lb: LogbookSearchRes
   let maxScore = 0;
   for (const [t, w] of lb.weight) {
     let df = lb.df.get(t) ?? 0;
-    for (const ts of terms) if (ts.includes(t)) df++;
+    for (const ts of terms) if (ts.tf.has(t)) df++;
     const v = bm25Idf(n, df);
     idf.set(t, v);
     maxScore += w * v;
   }
-  const avg = lb.size > 0 ? lb.avgLength : terms.reduce((a, ts) => a + ts.length, 0) / Math.max(1, slots.length);
+  const avg = lb.size > 0 ? lb.avgLength : terms.reduce((a, ts) => a + ts.len, 0) / Math.max(1, slots.length);
   const named = new Set(lb.speakers);
   const scores = slots.map((c, i) => {
     const ts = terms[i]!;
-    const tf = new Map<string, number>();
-    for (const t of ts) tf.set(t, (tf.get(t) ?? 0) + 1);
     let lexical = 0;
     for (const [t, w] of lb.weight) {
-      const f = tf.get(t);
+      const f = ts.tf.get(t);
       const v = idf.get(t) ?? 0;
-      if (f && v > 0) lexical += w * bm25Term(v, f, ts.length, avg, p.k1, p.b);
+      if (f && v > 0) lexical += w * bm25Term(v, f, ts.len, avg, p.k1, p.b);
     }
     const speakerMatch = c.owner !== undefined && named.has(c.owner.toLowerCase());
     const score = speakerMatch ? lexical * (1 + p.speakerBoost) : lexical;
@@ -177,10 +191,10 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   // The question asked again is not its own answer. Normalising drops only punctuation and spacing,
   // so a text over twice the query's length would have to be mostly punctuation to equal it: those
   // skip the regex.
-  const isRepeat = (text: string): boolean => same !== null && text.length <= 2 * p.query!.length + 8 && normalizeText(text) === same;
+  const isRepeat = (e: LogbookEntry): boolean => same !== null && e.value.length <= 2 * p.query!.length + 8 && normalizedValue(e) === same;
   for (const h of lb.hits) {
     if (seen.has(h.entry.id)) continue; // a promoted value still in the logbook: the slot stands for it
-    if (h.entry.kind === 'turn' && isRepeat(h.entry.value)) continue;
+    if (h.entry.kind === 'turn' && isRepeat(h.entry)) continue;
     seen.add(h.entry.id);
     items.push(fromHit(h, maxScore));
   }

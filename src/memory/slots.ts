@@ -166,3 +166,20 @@ export class SlotTable {
     return t;
   }
 }
+
+// One empty table per shape, shared: planning a new session's first write only reads it.
+const empties = new Map<string, SlotTable>();
+
+/**
+ * An empty table of this shape to plan against, shared and never to be written (a store allocates the
+ * session's own table when it commits). Spares a capacity x dim allocation per new session.
+ */
+export function emptyTable(capacity: number, dim: number): SlotTable {
+  const key = `${capacity}x${dim}`;
+  let t = empties.get(key);
+  if (!t) {
+    if (empties.size >= 16) empties.clear();
+    empties.set(key, (t = new SlotTable(capacity, dim)));
+  }
+  return t;
+}

@@ -82,7 +82,11 @@ export function stem(word: string): string {
 
 /** Index and query terms of a text: its content words, stemmed (all words stemmed when it has none). */
 export function analyze(text: string): string[] {
-  const words = tokenize(text);
+  return analyzeTokens(tokenize(text));
+}
+
+/** `analyze` of a text already tokenised (`tokenize`), so a turn's text is split once. */
+export function analyzeTokens(words: readonly string[]): string[] {
   const out: string[] = [];
   for (const w of words) if (!STOPWORDS.has(w)) out.push(stem(w));
   if (out.length === 0) for (const w of words) out.push(stem(w));

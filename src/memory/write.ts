@@ -21,7 +21,7 @@ import type { WriteParams } from './params.js';
 import type { SlotTable } from './slots.js';
 import { analyze, normalizeText } from './text.js';
 import { findAll, type ValueKind } from './values.js';
-import { dot } from './vector.js';
+import { dot, dotSparse, sparseOf, type SparseVector } from './vector.js';
 
 /** A candidate with its embedded key and where it came from. */
 export interface KeyedCandidate {
@@ -209,13 +209,19 @@ export function planWrite(input: WritePlanInput): WritePlan {
     if (si !== sj) return si - sj;
     return (ri ? ri.updatedMs : table.updatedMs[i]!) - (rj ? rj.updatedMs : table.updatedMs[j]!);
   };
+  // Strength of each unchanged slot at `now`, computed once per plan (NaN: not yet).
+  const decayedNow = new Float64Array(cap).fill(NaN);
   const strengthNow = (i: number): number => {
     const r = pending.get(i);
     if (r) return r.pinned ? r.strength : decayed(r.strength, r.stamp, r.halfLife, now);
-    return table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now);
+    let s = decayedNow[i]!;
+    if (Number.isNaN(s)) decayedNow[i] = s = table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now);
+    return s;
   };
-  const cosAt = (i: number, k: Float32Array): number => {
+  // A hashing embedder's key has a few dozen non-zero entries: scored sparse, bit for bit the dense cosine.
+  const cosAt = (i: number, k: Float32Array, ks: SparseVector | null): number => {
     const r = pending.get(i);
+    if (ks) return r ? dotSparse(ks, r.key, 0) : dotSparse(ks, table.keys, i * dim);
     return r ? dot(k, r.key, 0, dim) : dot(k, table.keys, i * dim, dim);
   };
   const set = (i: number, rec: SlotRecord | null): void => {
@@ -302,9 +308,10 @@ export function planWrite(input: WritePlanInput): WritePlan {
     const c = kc.candidate;
     let best = -1;
     let bestCos = -1;
+    const ks = sparseOf(kc.key);
     for (let i = 0; i < cap; i++) {
       if (!open(i, kc)) continue;
-      const d = cosAt(i, kc.key);
+      const d = cosAt(i, kc.key, ks);
       if (d > bestCos) {
         bestCos = d;
         best = i;

@@ -5,7 +5,7 @@
 
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, StoreError, isTidemarkError } from '../errors.js';
-import { attend, nextQuery, queryTerms, type AttentionResult } from '../memory/attention.js';
+import { attend, nextQuery, queryTermsOf, type AttentionResult } from '../memory/attention.js';
 import { resolveDates } from '../memory/dates.js';
 import { decayed } from '../memory/decay.js';
 import { renderPrompt } from '../memory/prompt.js';
@@ -77,7 +77,7 @@ export class ReadPath {
     let hops = 0;
     const slots: SlotCandidate[] = [];
     if (table && table.count() > 0 && p.tiers !== 'logbook') {
-      const terms = queryTerms(turn.text);
+      const terms = queryTermsOf(analysed.tokens);
       att = attend(table, now, q!, terms, p);
       hops = 1;
       for (let h = 1; h < p.hops && att.selected.length > 0; h++) {
@@ -95,7 +95,8 @@ export class ReadPath {
           slot: i, id: table.ids[i]!, keyText: table.keyText[i]!, value: table.value[i]!, provenance: table.provenance[i]!,
           ...(table.owner[i] ? { owner: table.owner[i]! } : {}),
           ...(table.subject[i] ? { subject: table.subject[i]! } : {}),
-          strength: table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
+          // The attention's strength is this one unless it was clamped at 1e-9.
+          strength: att.strength[i]! > 1e-9 ? att.strength[i]! : table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
           cosine: att.cosine[i]!, weight: att.weight[i]!, updatedMs: table.updatedMs[i]!, age: Math.max(0, now - table.stamp[i]!),
           ...(table.maybeReplaces[i] ? { maybeReplaces: table.maybeReplaces[i]! } : {}),
         });

@@ -9,7 +9,7 @@ import { ErrorCodes, StoreError } from '../errors.js';
 import { resolveDates } from '../memory/dates.js';
 import { decayed } from '../memory/decay.js';
 import type { Candidate } from '../memory/extract.js';
-import { SlotTable } from '../memory/slots.js';
+import { SlotTable, emptyTable } from '../memory/slots.js';
 import { textDigest } from '../memory/text.js';
 import { demotedEntry, planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
 import { scopeOf } from '../store/in-process.js';
@@ -105,7 +105,7 @@ export class WritePath {
       if (!cached) core.noteQuarantine(ref, snap);
       if (snap && snap.table.dim !== core.embedder.dim) throw core.dimError(ref, snap.table.dim);
       const p0 = performance.now();
-      let table = snap?.table ?? new SlotTable(core.params.capacity, core.embedder.dim);
+      let table = snap?.table ?? emptyTable(core.params.capacity, core.embedder.dim);
       const resize = table.capacity !== core.params.capacity ? resizeTable(table, core.params.capacity, snap?.clock ?? 0) : null;
       if (resize) table = resize.table;
       // Assign turn ids and advance the clock.

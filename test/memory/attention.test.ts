@@ -1,8 +1,10 @@
 // The attention read: softmax, scores z = beta*cos + gamma*lex + delta*ln s on hand-made unit vectors,
 // top-k / minWeight / maxMass selection, hit and miss, and the multi-hop query update.
 
+import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { attend, nextQuery, queryTerms, slotDocStats, softmaxMasked } from '../../src/memory/attention.js';
+import { postingsOf } from '../../src/memory/bm25.js';
+import { attend, nextQuery, queryTerms, slotDocStats, slotPostings, softmaxMasked } from '../../src/memory/attention.js';
 import { basis, readParams, rec, softmaxRef, table, vec } from './helpers.js';
 
 describe('softmaxMasked', () => {
@@ -163,6 +165,41 @@ describe('queryTerms and slotDocStats', () => {
     expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'red', 'tarrant']);
     t.clear(0);
     expect(slotDocStats(t)[0]).toBeNull();
+  });
+
+  it('keeps term postings in step with the slots, one changed slot at a time', () => {
+    const t = table(3, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Quenby' }), null, rec('b', basis(3, 1), { keyText: 'my fern', value: 'a green fern' })]);
+    const first = slotPostings(t);
+    expect(first.byTerm.get('green')).toEqual([0, 2]);
+    expect(first.byTerm.get('fern')).toEqual([2]);
+    expect([first.n, first.total]).toEqual([2, 6]);
+    t.set(1, rec('c', basis(3, 2), { keyText: 'my pot', value: 'a green pot' }));
+    expect(slotPostings(t).byTerm.get('green')).toEqual([0, 1, 2]);
+    t.clear(0);
+    expect(slotPostings(t).byTerm.get('quenby')).toBeUndefined();
+    expect(slotPostings(t).byTerm.get('green')).toEqual([1, 2]);
+    expect([slotPostings(t).n, slotPostings(t).total]).toEqual([2, 6]);
+  });
+
+  it('ends where postings built afresh would, over random writes and clears (fast-check, seed 5)', () => {
+    const values = ['a green Quenby', 'a green fern', 'Friday at 9', 'the blue pot', 'blue chain wax', 'a fern and a pot'];
+    console.log('fast-check seed 5');
+    fc.assert(
+      fc.property(fc.array(fc.tuple(fc.nat(5), fc.option(fc.nat(5), { nil: null })), { maxLength: 40 }), (steps) => {
+        const t = table(6, 3, [null, null, null, null, null, null]);
+        let rev = 0;
+        for (const [slot, value] of steps) {
+          if (value === null) t.clear(slot);
+          else t.set(slot, rec(`v${rev++}`, basis(3, 0), { keyText: 'my thing', value: values[value]! }));
+          slotPostings(t);
+        }
+        const fresh = postingsOf(slotDocStats(t));
+        const kept = slotPostings(t);
+        expect([kept.n, kept.total]).toEqual([fresh.n, fresh.total]);
+        expect(new Map([...kept.byTerm].sort())).toEqual(new Map([...fresh.byTerm].sort()));
+      }),
+      { seed: 5, numRuns: 300 },
+    );
   });
 });
 

@@ -4,7 +4,8 @@
 import * as okapi from 'okapibm25';
 import winkBm25 from 'wink-bm25-text-search';
 import { describe, expect, it } from 'vitest';
-import { BM25_DEFAULTS, bm25Scores, docStats } from '../../src/memory/bm25.js';
+import fc from 'fast-check';
+import { BM25_DEFAULTS, bm25Scores, bm25ScoresFrom, docStats, postingsOf } from '../../src/memory/bm25.js';
 import { contentWords } from '../../src/memory/text.js';
 
 const score = (query: string[], docs: Array<string[] | null>, p = BM25_DEFAULTS): number[] => {
@@ -116,5 +117,23 @@ describe('bm25Scores against independent implementations', () => {
       const ourRank = ours.map((s, i) => [i, s] as const).filter(([, s]) => s > 0).sort((a, b) => b[1] - a[1]).map(([i]) => String(i));
       expect(theirs.map(([id]) => id)).toEqual(ourRank);
     }
+  });
+});
+
+describe('bm25ScoresFrom (postings built once per set of documents)', () => {
+  it('equals bm25Scores bit for bit on random documents and queries (fast-check, seed 21)', () => {
+    const words = fc.constantFrom('bike', 'chain', 'fern', 'pot', 'friday', 'lesson', 'saddle', 'green');
+    console.log('fast-check seed 21');
+    fc.assert(
+      fc.property(fc.array(fc.option(fc.array(words, { minLength: 1, maxLength: 8 }), { nil: null }), { maxLength: 12 }), fc.array(words, { maxLength: 5 }), (docs, query) => {
+        const stats = docs.map((d) => (d ? docStats(d) : null));
+        const want = new Float64Array(docs.length);
+        const got = new Float64Array(docs.length);
+        bm25Scores(query, stats, want);
+        bm25ScoresFrom(query, postingsOf(stats), got);
+        expect([...got]).toEqual([...want]);
+      }),
+      { seed: 21, numRuns: 500 },
+    );
   });
 });

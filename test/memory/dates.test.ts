@@ -65,3 +65,17 @@ describe('dateTerms, formatMention, asksWhen', () => {
     for (const t of ['Where does Kofi work?', 'What did Ana paint?']) expect(asksWhen(t), t).toBe(false);
   });
 });
+
+describe('resolveDates, parsed once per text and moment', () => {
+  it('answers a repeated text as the first time, with copies a caller may change', () => {
+    const first = resolveDates('I ran my first 10k last Saturday', SAID);
+    expect(first).toEqual([{ text: 'last Saturday', index: 19, day: '2023-05-06', grain: 'day' }]);
+    first[0]!.day = '1999-01-01';
+    expect(resolveDates('I ran my first 10k last Saturday', SAID)[0]!.day).toBe('2023-05-06');
+  });
+
+  it('resolves the same text said at another moment against that moment', () => {
+    expect(resolveDates('I saw the fern yesterday', SAID)[0]!.day).toBe('2023-05-07');
+    expect(resolveDates('I saw the fern yesterday', SAID + 3 * DAY)[0]!.day).toBe('2023-05-10');
+  });
+});

@@ -1,7 +1,7 @@
 // The struct-of-arrays slot table, the vector helpers and the shared text helpers.
 
 import { describe, expect, it } from 'vitest';
-import { SlotTable } from '../../src/memory/slots.js';
+import { SlotTable, emptyTable } from '../../src/memory/slots.js';
 import { contentWords, fnv1a, textDigest, tokenize } from '../../src/memory/text.js';
 import { cosine, dot, normalizeInPlace, pushTopK } from '../../src/memory/vector.js';
 import { basis, rec, vec } from './helpers.js';
@@ -105,5 +105,17 @@ describe('text helpers', () => {
     expect(d).toMatch(/^[0-9a-f]{16}$/);
     expect(textDigest('my name is Dana')).toBe(d);
     expect(textDigest('my name is Dan')).not.toBe(d);
+  });
+});
+
+describe('emptyTable', () => {
+  it('hands out one empty table per shape, to plan a new session against', () => {
+    const a = emptyTable(64, 384);
+    expect(emptyTable(64, 384)).toBe(a);
+    expect(a.count()).toBe(0);
+    expect([a.capacity, a.dim]).toEqual([64, 384]);
+    const b = emptyTable(16, 384);
+    expect(b).not.toBe(a);
+    expect([b.capacity, b.dim]).toEqual([16, 384]);
   });
 });
