@@ -187,8 +187,20 @@ function routeScriptsForAutoPipelining(client: RedisClient): void {
   };
 }
 
+/** Limits and targets of a backend that used to be fixed in code. */
+export interface BackendOptions {
+  /** `host:port,...` of any Redis Cluster (default: the repo's own, started if need be). */
+  clusterSeeds?: string;
+  /** The store's per-process cache of sessions and logbook scopes (RedisStore `cacheSessions`). */
+  cacheSessions?: number;
+  /** ioredis `commandTimeout` in ms (the store's default is 1,000); 0 waits for ever. */
+  commandTimeoutMs?: number;
+  /** A key prefix to share (a fleet's processes use one key space); default: a fresh one per run. */
+  prefix?: string;
+}
+
 /** `autoPipeline` turns on ioredis `enableAutoPipelining` (commands of one tick share one socket write). */
-export async function openBackend(kind: StoreKind, redisUrl: string, autoPipeline = false): Promise<Backend> {
+export async function openBackend(kind: StoreKind, redisUrl: string, autoPipeline = false, extra: BackendOptions = {}): Promise<Backend> {
   if (kind === 'memory') {
     return {
       kind,
@@ -216,18 +228,24 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
   let client: RedisClient;
   let stopCluster = false;
   const clusterScript = new URL('../scripts/redis-cluster.sh', import.meta.url).pathname;
+  const nodeOptions = { ...REDIS_CLIENT_OPTIONS, ...(extra.commandTimeoutMs !== undefined ? { commandTimeout: extra.commandTimeoutMs || undefined } : {}) };
   if (kind === 'redis') {
-    client = new Redis(redisUrl, { ...REDIS_CLIENT_OPTIONS, enableAutoPipelining: autoPipeline });
+    client = new Redis(redisUrl, { ...nodeOptions, enableAutoPipelining: autoPipeline });
   } else {
-    let ports: string;
-    try {
-      ports = execFileSync('bash', [clusterScript, 'status'], { encoding: 'utf8' });
-    } catch {
-      ports = execFileSync('bash', [clusterScript, 'start'], { encoding: 'utf8' });
-      stopCluster = true;
+    let seeds: Array<{ host: string; port: number }>;
+    if (extra.clusterSeeds) {
+      seeds = parseSeeds(extra.clusterSeeds);
+    } else {
+      let ports: string;
+      try {
+        ports = execFileSync('bash', [clusterScript, 'status'], { encoding: 'utf8' });
+      } catch {
+        ports = execFileSync('bash', [clusterScript, 'start'], { encoding: 'utf8' });
+        stopCluster = true;
+      }
+      seeds = ports.trim().split(/\s+/).filter(Boolean).map((p) => ({ host: '127.0.0.1', port: Number(p) }));
     }
-    const seeds = ports.trim().split(/\s+/).filter(Boolean).map((p) => ({ host: '127.0.0.1', port: Number(p) }));
-    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, enableAutoPipelining: autoPipeline });
+    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, redisOptions: nodeOptions, enableAutoPipelining: autoPipeline });
   }
   client.on('error', () => undefined);
   if (autoPipeline) routeScriptsForAutoPipelining(client);
@@ -237,8 +255,8 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     kind,
     client: c,
     async open() {
-      const prefix = `tidemark-bench:${runId()}:`;
-      return { store: new RedisStore({ redis: c, prefix }), prefix };
+      const prefix = extra.prefix ?? `tidemark-bench:${runId()}:`;
+      return { store: new RedisStore({ redis: c, prefix, ...(extra.cacheSessions !== undefined ? { cacheSessions: extra.cacheSessions } : {}) }), prefix };
     },
     async bytesOf(store, sessions) {
       const rs = store as RedisStore;
@@ -257,6 +275,15 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
       if (stopCluster) execFileSync('bash', [clusterScript, 'stop'], { stdio: 'ignore' });
     },
   };
+}
+
+/** `host:port,host:port` -> seed list; a bad entry names itself. */
+export function parseSeeds(text: string): Array<{ host: string; port: number }> {
+  return text.split(',').map((hp) => {
+    const m = /^\[?([^\]]+?)\]?:(\d{1,5})$/.exec(hp.trim());
+    if (!m || Number(m[2]) < 1 || Number(m[2]) > 65535) throw new RangeError(`--cluster-seeds expects host:port,host:port,..., got ${JSON.stringify(hp)}`);
+    return { host: m[1]!, port: Number(m[2]) };
+  });
 }
 
 // ------------------------------------------------------------------ one load run
@@ -530,6 +557,10 @@ export default async function main(argv: string[]): Promise<void> {
   };
   const kind = (args.values.get('store') ?? 'memory') as StoreKind;
   if (!['memory', 'redis', 'cluster'].includes(kind)) throw new RangeError(`--store must be memory, redis or cluster, got ${kind}`);
+  if (args.values.has('rate')) {
+    const { loadAtRate } = await import('./lib/load-rate.js');
+    return loadAtRate(argv, args, num);
+  }
   const json = args.flags.has('json');
   const redisUrl = args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
   const capacity = num('capacity', 64);
