@@ -104,6 +104,8 @@ export async function loadAtRate(argv: string[], args: Args, num: (name: string,
       store: kind, own_redis: own !== undefined, processes, capacity, ...run, index: undefined, of: undefined,
       cache_sessions: backendOpts.cacheSessions ?? null,
       ...m,
+      // Windows are repeats of one measurement in time: `bench compare` takes its noise band from them.
+      runs: m.windows.map((w) => ({ achieved_per_s: w.achieved_per_s, p50_ms: w.p50_ms, p99_ms: w.p99_ms, p999_ms: w.p999_ms })),
       per_process: parts.map((p) => ({ completed: p.completed, achieved_per_s: p.achieved_per_s, conflict_retries: p.conflict_retries, errors: p.errors })),
       redis_info: deltas,
       redis_per_turn: deltas.length ? totalPerTurn(deltas) : null,
