@@ -24,6 +24,7 @@ import type { SlotTable } from '../src/memory/slots.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import type { CommitRequest, Store } from '../src/store/store.js';
 import type { RedisClient, RedisStore } from '../adapters/redis/index.js';
+import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
 import { generateScenario } from './lib/scenario.js';
 import { machine, parseArgs, percentile, round } from './lib/stats.js';
@@ -58,6 +59,9 @@ interface LoadFigures {
   rss_mb: number;
   bytes_per_session: number;
   bytes_method: string;
+  /** INFO deltas per master over the timed part (Redis runs). */
+  redis_info: InfoDelta[];
+  redis_per_turn: InfoDelta['per_turn'] | null;
 }
 
 // ------------------------------------------------------------------ histograms
@@ -389,6 +393,7 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   outboxQueued = 0;
 
   const names = Array.from({ length: o.sessions }, (_, i) => `user-${i}`);
+  const info0 = backend.client ? await snapshot(backend.client) : [];
   const convo = scripts(o.sessions, o.turns);
   let rss = process.memoryUsage().rss;
   const sampler = setInterval(() => (rss = Math.max(rss, process.memoryUsage().rss)), 200);
@@ -400,6 +405,7 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   clearInterval(sampler);
   rss = Math.max(rss, process.memoryUsage().rss);
   await tm.flush();
+  const redisInfo = backend.client ? deltaOf(info0, await snapshot(backend.client), o.sessions * o.turns) : [];
   const sample = names.filter((_, i) => i % Math.max(1, Math.floor(names.length / 200)) === 0).slice(0, 200);
   const bytes = await backend.bytesOf(store, sample);
   await tm.close();
@@ -421,6 +427,8 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
     rss_mb: round(rss / 2 ** 20, 1),
     bytes_per_session: bytes.bytes,
     bytes_method: bytes.method,
+    redis_info: redisInfo,
+    redis_per_turn: redisInfo.length > 0 ? totalPerTurn(redisInfo) : null,
   };
 }
 
@@ -615,6 +623,10 @@ export default async function main(argv: string[]): Promise<void> {
       outbox_queued: runs.reduce((a, x) => a + x.outbox_queued, 0),
       rss_mb: Math.max(...runs.map((x) => x.rss_mb)),
       bytes_per_session: median(runs.map((x) => x.bytes_per_session)),
+      redis_per_turn: runs[0]!.redis_per_turn ? {
+        commands: median(runs.map((x) => x.redis_per_turn!.commands)), cpu_us: median(runs.map((x) => x.redis_per_turn!.cpu_us)),
+        net_in_bytes: median(runs.map((x) => x.redis_per_turn!.net_in_bytes)), net_out_bytes: median(runs.map((x) => x.redis_per_turn!.net_out_bytes)),
+      } : null,
     };
     console.log(`load on ${kind}: ${f.sessions} sessions x ${f.turns_per_session} turns, concurrency ${f.concurrency}, capacity ${capacity}${repeat > 1 ? `, median of ${repeat} runs` : ''}`);
     console.log(asciiTable(['µs', 'p50', 'p95', 'p99', 'max'], [
@@ -624,13 +636,15 @@ export default async function main(argv: string[]): Promise<void> {
     ]));
     console.log(`turns/s ${f.turns_per_s}${repeat > 1 ? ` (runs: ${runs.map((x) => x.turns_per_s).join(', ')})` : ''}; errors ${f.errors}; degraded reads ${f.degraded_reads}; outbox queued ${f.outbox_queued}`);
     console.log(`peak RSS ${f.rss_mb} MB; ${f.bytes_per_session} bytes per session in the store (${f.bytes_method})`);
+    if (f.redis_info.length > 0) console.log(describeDeltas(f.redis_info));
     const svg = barChart({
       title: `load on ${kind}: ${f.turns_per_s} turns/s at concurrency ${f.concurrency}`, yLabel: 'latency (µs, log scale)', logY: true,
       groups: ['read', 'write', 'turn'],
       series: (['p50', 'p95', 'p99'] as const).map((p) => ({ name: p, values: [f.read_us[p], f.write_us[p], f.turn_us[p]] })),
     });
-    const out = { ...f, auto_pipeline: autoPipeline, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99 })), load: loadAverage(), machine: machine() };
-    const paths = writeResult(`load-${kind}${autoPipeline ? '-autopipeline' : ''}`, out, svg, ['load', ...argv]);
+    const out = { ...f, auto_pipeline: autoPipeline, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99, ...(x.redis_per_turn ?? {}) })), load: loadAverage(), machine: machine() };
+    const versions = backend.client ? await redisVersions(backend.client) : [];
+    const paths = writeResult(`load-${kind}${autoPipeline ? '-autopipeline' : ''}`, out, svg, ['load', ...argv], { redis: versions });
     console.log(`wrote ${paths.json} and ${paths.svg}`);
     if (json) console.log(JSON.stringify(out));
   } finally {
