@@ -65,6 +65,8 @@ export interface WriteOptions {
   /** Also write to the committed folder; defaults to `--save` being among the arguments. */
   save?: boolean;
   date?: Date;
+  /** The committed folder (its `runs/` holds plain runs); tests point it elsewhere. @default bench/results */
+  dir?: string;
 }
 
 /**
@@ -81,7 +83,8 @@ export function writeResult(name: string, figures: Record<string, unknown>, svg:
   const doc = { name, date: date.toISOString(), command: `npm run bench -- ${argv.join(' ')}`.trim(), meta: runMeta(o.redis), ...figures };
   const text = `${JSON.stringify(doc, null, 2)}\n`;
   let out = { json: '', svg: '' };
-  for (const dir of save ? [RUNS_DIR, RESULTS_DIR] : [RUNS_DIR]) {
+  const root = o.dir ?? RESULTS_DIR;
+  for (const dir of save ? [join(root, 'runs'), root] : [join(root, 'runs')]) {
     mkdirSync(dir, { recursive: true });
     const base = join(dir, file);
     // 'wx': fail rather than replace, should a name ever repeat.

@@ -63,7 +63,7 @@ run('bench report in a real browser', () => {
       els.map((el) => {
         const svg = el.querySelector('svg');
         const box = svg?.getBoundingClientRect();
-        const points = [...el.querySelectorAll('polyline')].reduce((n, p) => n + (p.getAttribute('points') ?? '').trim().split(/\s+/).filter(Boolean).length, 0);
+        const points = Array.from(el.querySelectorAll('polyline')).reduce((n: number, p: Element) => n + (p.getAttribute('points') ?? '').trim().split(/\s+/).filter(Boolean).length, 0);
         return { id: el.id, width: box?.width ?? 0, height: box?.height ?? 0, points, markers: el.querySelectorAll('circle').length };
       }),
     );
