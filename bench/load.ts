@@ -467,7 +467,7 @@ async function usedMemory(client: RedisClient): Promise<number> {
  * event stream as the core left them), committed through the store with many commits in flight
  * (ioredis pipelines them on its connection). Afterwards every key is deleted.
  */
-async function idleRun(backend: Backend, count: number, turns: number, capacity: number, progress: boolean): Promise<IdleFigures> {
+async function idleRun(backend: Backend, count: number, turns: number, capacity: number, progress: boolean, inFlight: number): Promise<IdleFigures> {
   if (!backend.client) throw new Error('--idle needs --store redis or --store cluster');
   // Templates: real conversations on the in-process store.
   const tmpl = new InProcessStore();
@@ -506,7 +506,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const t0 = performance.now();
   let next = 0;
   await Promise.all(
-    Array.from({ length: 256 }, async () => {
+    Array.from({ length: inFlight }, async () => {
       while (next < count) {
         const i = next++;
         const r = reqs[i % reqs.length]!;
@@ -574,10 +574,15 @@ export default async function main(argv: string[]): Promise<void> {
   const capacity = num('capacity', 64);
   const progress = process.stderr.isTTY === true && !json;
   const autoPipeline = args.flags.has('auto-pipeline');
-  const backend = await openBackend(kind, redisUrl, autoPipeline);
+  const extra: BackendOptions = {};
+  if (args.values.has('cache-sessions')) extra.cacheSessions = num('cache-sessions', 1000, 0);
+  if (args.values.has('cluster-seeds')) extra.clusterSeeds = args.values.get('cluster-seeds')!;
+  // Filling idle sessions is not an outage: commands wait as long as Redis needs unless told otherwise.
+  if (args.values.has('command-timeout') || args.values.has('idle')) extra.commandTimeoutMs = num('command-timeout', 0, 0);
+  const backend = await openBackend(kind, redisUrl, autoPipeline, extra);
   try {
     if (args.values.has('idle')) {
-      const f = await idleRun(backend, num('idle', 100_000), num('idle-turns', 10), capacity, progress);
+      const f = await idleRun(backend, num('idle', 100_000), num('idle-turns', 10), capacity, progress, num('in-flight', 64));
       console.log(`idle sessions on ${kind}: ${f.idle_sessions} sessions of ${f.turns_per_session} exchanges (${f.slots_per_session} slots each on average)`);
       console.log(asciiTable(['figure', 'value'], [
         ['created in (s)', f.create_seconds],
