@@ -1,7 +1,12 @@
 // `npm run bench -- load --store memory|redis|cluster --sessions N --turns M --concurrency C [--json]`:
 // simulated users on many sessions, each turn read -> streamed reply -> write, through `tm.wrap()`.
 // `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).
-// `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun).
+// `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun;
+// `--in-flight N` commits at once, default 64; commands wait for Redis unless `--command-timeout MS`).
+// `--rate R --seconds S` is fixed-rate (open-loop) load instead, optionally by a fleet of processes
+// (`--processes N`); see lib/load-rate.ts. Every mode: `--cache-sessions N` (the store's per-process
+// cache), `--cluster-seeds host:port,...` (any Cluster), `--own-redis` (a redis-server of the run's
+// own, so Redis INFO deltas are the run's alone), `--save` (also write to the committed results).
 // Figures: turns/s, read/write/turn p50/p95/p99 (HDR-style histograms), errors, RSS, bytes per session.
 //
 // How a turn is timed. `wrap()` starts the memory write after the reply stream ends and returns no
@@ -570,7 +575,9 @@ export default async function main(argv: string[]): Promise<void> {
     return loadAtRate(argv, args, num);
   }
   const json = args.flags.has('json');
-  const redisUrl = args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
+  // --own-redis: a redis-server of the run's own on a free port, so its INFO deltas are the run's alone.
+  const own = args.flags.has('own-redis') && !args.values.has('rate') ? await (await import('./soak.js')).throwawayRedis() : undefined;
+  const redisUrl = own?.url ?? args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
   const capacity = num('capacity', 64);
   const progress = process.stderr.isTTY === true && !json;
   const autoPipeline = args.flags.has('auto-pipeline');
@@ -654,6 +661,7 @@ export default async function main(argv: string[]): Promise<void> {
     if (json) console.log(JSON.stringify(out));
   } finally {
     await backend.close();
+    await own?.stop();
   }
 }
 
