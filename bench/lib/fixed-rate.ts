@@ -64,6 +64,8 @@ export interface FixedRateResult {
   scheduled: number;
   completed: number;
   errors: number;
+  /** Error events by stage and code (a turn may raise more than one). */
+  error_codes: Record<string, number>;
   conflict_retries: number;
   seconds: number;
   /** Completed turns over the time from the first due turn to the last commit. */
@@ -90,7 +92,10 @@ export async function runFixedRate(tm: Tidemark, o: FixedRateOptions): Promise<F
     retries += e.retries;
     settle(e.sessionHash, true);
   };
-  const onError = (e: { stage: string; sessionHash?: string }): void => {
+  const errorCodes: Record<string, number> = {};
+  const onError = (e: { stage: string; sessionHash?: string; error: { code: string; message: string } }): void => {
+    const k = `${e.stage} ${e.error.code}${/timed out/i.test(e.error.message) ? ' (timed out)' : ''}`;
+    errorCodes[k] = (errorCodes[k] ?? 0) + 1;
     if (e.stage === 'write' || e.stage === 'outbox') settle(e.sessionHash, false);
   };
   const settle = (hash: string | undefined, ok: boolean): void => {
@@ -190,6 +195,7 @@ export async function runFixedRate(tm: Tidemark, o: FixedRateOptions): Promise<F
     scheduled,
     completed,
     errors,
+    error_codes: errorCodes,
     conflict_retries: retries,
     seconds: Math.round(seconds * 1000) / 1000,
     achieved_per_s: Math.round(completed / seconds),
@@ -205,6 +211,7 @@ export function mergeResults(parts: readonly FixedRateResult[], windowSeconds: n
   scheduled: number;
   completed: number;
   errors: number;
+  error_codes: Record<string, number>;
   conflict_retries: number;
   achieved_per_s: number;
   max_start_lag_ms: number;
@@ -226,6 +233,10 @@ export function mergeResults(parts: readonly FixedRateResult[], windowSeconds: n
     scheduled: parts.reduce((a, p) => a + p.scheduled, 0),
     completed,
     errors: parts.reduce((a, p) => a + p.errors, 0),
+    error_codes: parts.reduce<Record<string, number>>((a, p) => {
+      for (const [k, v] of Object.entries(p.error_codes ?? {})) a[k] = (a[k] ?? 0) + v;
+      return a;
+    }, {}),
     conflict_retries: parts.reduce((a, p) => a + p.conflict_retries, 0),
     achieved_per_s: Math.round(completed / seconds),
     max_start_lag_ms: Math.max(...parts.map((p) => p.max_start_lag_ms)),

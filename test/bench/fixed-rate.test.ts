@@ -12,7 +12,7 @@ const part = (values: number[], windows: number[][]): FixedRateResult => {
   const h = newHistogram();
   for (const v of values) h.recordValue(v);
   return {
-    offered_per_s: 10, scheduled: values.length, completed: values.length, errors: 0, conflict_retries: 1, seconds: 1, achieved_per_s: values.length, max_start_lag_ms: 0,
+    offered_per_s: 10, scheduled: values.length, completed: values.length, errors: 0, error_codes: {}, conflict_retries: 1, seconds: 1, achieved_per_s: values.length, max_start_lag_ms: 0,
     histogram: encodeHistogram(h),
     windows: windows.map((w) => {
       const x = newHistogram();
