@@ -3,8 +3,8 @@
 // foreign value is reported as corrupt instead of being decoded into wrong memories. Format 2 (0.2)
 // adds owners, reply flags, ambiguous-update links and logbook turn entries; format 1 payloads written
 // by 0.1 still decode. Logbook entries are now written compact (kind 4): whole-millisecond times and
-// integer clocks as varints, and no tenant or session when they are those of the key the entry is
-// stored under (the reader passes them back); kind 3 entries written before still decode.
+// integer clocks as varints, and no id, tenant or session when they are the hash field and the key
+// the entry is stored under (the reader passes them back); kind 3 entries written before still decode.
 
 import * as zlib from 'node:zlib';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
@@ -326,11 +326,14 @@ const LB2_AT_F64 = 4;
 const LB2_CREATED = 8;
 const LB2_CREATED_F64 = 16;
 const LB2_CLOCK_F64 = 32;
+const LB2_NO_ID = 64;
 
-/** Where an entry is stored: its tenant and session are not written when they are these. */
+/** Where an entry is stored: its tenant, session and id are not written when they are these. */
 export interface LogbookHome {
   tenant: string;
   session: string;
+  /** The hash field the entry is stored under (its id), when the reader knows it. */
+  id?: string;
 }
 
 /** Written as a varint: a safe non-negative integer (not -0, which a varint would turn into 0). */
@@ -338,9 +341,9 @@ const wholeMs = (v: number): boolean => Number.isSafeInteger(v) && v >= 0 && !Ob
 
 /**
  * Encodes a logbook entry; `user` is the scope it was committed in (overrides `entry.user`). Compact
- * layout: two flag bytes, kind, times and clock as varints when whole (float64 otherwise), seq, id,
- * then tenant and session only when they differ from `home`. A turn entry costs its text plus about
- * 35 bytes (id 17, times 7, seq, provenance); a vector is kept only when the entry carries one
+ * layout: two flag bytes, kind, times and clock as varints when whole (float64 otherwise), seq, then
+ * id, tenant and session only when they differ from `home`. A turn entry stored under its id costs its
+ * text plus about 24 bytes (header 6, flags, times 7, seq, role, provenance); a vector is kept only when the entry carries one
  * (demoted slot values, and turns when the logbook keeps turn vectors).
  */
 export function encodeLogbook(e: LogbookEntry, user: string | undefined, format: KeyFormat, home?: LogbookHome): Buffer {
@@ -357,8 +360,9 @@ export function encodeLogbook(e: LogbookEntry, user: string | undefined, format:
   const clockVar = wholeMs(e.clock);
   const tenant = home?.tenant !== e.tenant;
   const session = home?.session !== e.session;
+  const noId = home?.id === e.id;
   w.u8(
-    (tenant ? LB2_TENANT : 0) | (session ? LB2_SESSION : 0) | (atVar ? 0 : LB2_AT_F64) | (created ? LB2_CREATED : 0) |
+    (noId ? LB2_NO_ID : 0) | (tenant ? LB2_TENANT : 0) | (session ? LB2_SESSION : 0) | (atVar ? 0 : LB2_AT_F64) | (created ? LB2_CREATED : 0) |
       (created && !createdVar ? LB2_CREATED_F64 : 0) | (clockVar ? 0 : LB2_CLOCK_F64),
   );
   w.u8(LOGBOOK_KINDS.indexOf(e.kind));
@@ -370,7 +374,7 @@ export function encodeLogbook(e: LogbookEntry, user: string | undefined, format:
     w.f64(e.strength ?? 0);
     w.f64(e.halfLife ?? 0);
   }
-  w.str(e.id);
+  if (!noId) w.str(e.id);
   if (tenant) w.str(e.tenant);
   if (session) w.str(e.session);
   if (user !== undefined) w.str(user);
@@ -414,7 +418,8 @@ export function decodeLogbook(buf: Buffer, what: string, home?: LogbookHome): Lo
   const demoted = (flags & LB_DEMOTED) !== 0;
   const strength = demoted ? r.f64() : undefined;
   const halfLife = demoted ? r.f64() : undefined;
-  const id = r.str();
+  if (flags2 & LB2_NO_ID && home?.id === undefined) r.fail('compact entry read without its id');
+  const id = flags2 & LB2_NO_ID ? home!.id! : r.str();
   if ((!(flags2 & LB2_TENANT) || !(flags2 & LB2_SESSION)) && !home) r.fail('compact entry read without its session');
   const tenant = flags2 & LB2_TENANT ? r.str() : home!.tenant;
   const session = flags2 & LB2_SESSION ? r.str() : home!.session;

@@ -14,7 +14,7 @@ const turn: LogbookEntry = {
 };
 
 describe('compact logbook entries', () => {
-  it('costs a turn its text plus 42 bytes, against 74 in the kind 3 layout', () => {
+  it('costs a turn its text plus 42 bytes (24 stored under its id), against 74 in the kind 3 layout', () => {
     const buf = encodeLogbook(turn, undefined, 'int8', home);
     expect(buf[1]).toBe(KIND_LOGBOOK_COMPACT);
     // header 6 + flags 2 + kind 1 + atMs varint 6 (41 bits) + clock 1 + seq 1 + id 1+17 + keyText 1
@@ -23,6 +23,11 @@ describe('compact logbook entries', () => {
     expect(decodeLogbook(buf, 'test', home)).toEqual(turn);
     // The same entry without a home writes tenant and session: 1+7 and 1+7 more.
     expect(encodeLogbook(turn, undefined, 'int8').length).toBe(62 + 16);
+    // Stored under its id (the hash field), the id is left out too: 1+17 fewer.
+    const stored = encodeLogbook(turn, undefined, 'int8', { ...home, id: turn.id });
+    expect(stored.length).toBe(62 - 18);
+    expect(decodeLogbook(stored, 'test', { ...home, id: turn.id })).toEqual(turn);
+    expect(() => decodeLogbook(stored, 'test', home)).toThrow(/without its id/);
   });
 
   it('round-trips arbitrary entries, with and without the home they are stored under (seed 4242)', () => {
@@ -48,7 +53,7 @@ describe('compact logbook entries', () => {
           e.strength = 0.5;
           e.halfLife = 30;
         }
-        const h = same ? { tenant: e.tenant, session: e.session } : home;
+        const h = same ? { tenant: e.tenant, session: e.session, id: e.id } : home;
         expect(decodeLogbook(encodeLogbook(e, undefined, 'float32', h), 'test', h)).toEqual(e);
       }),
       { seed: 4242, numRuns: 300 },
