@@ -73,7 +73,10 @@ export interface FixedRateResult {
   /** Latest start of a turn after its due time (ms): how far the driver itself fell behind. */
   max_start_lag_ms: number;
   histogram: string;
+  /** Latency of the turns due in each window. */
   windows: string[];
+  /** Turns committed in each window (by commit time; may run past the schedule's end). */
+  done_per_window: number[];
 }
 
 /**
@@ -116,6 +119,7 @@ export async function runFixedRate(tm: Tidemark, o: FixedRateOptions): Promise<F
   let completed = 0;
   let lastDone = 0;
   let maxLag = 0;
+  const donePerWindow: number[] = [];
   const warm = o.warmup ?? 0;
   if (warm > 0) {
     let next = 0;
@@ -167,6 +171,8 @@ export async function runFixedRate(tm: Tidemark, o: FixedRateOptions): Promise<F
       return;
     }
     completed++;
+    const dw = Math.floor((end - t0) / 1000 / o.windowSeconds);
+    if (dw >= 0) donePerWindow[dw] = (donePerWindow[dw] ?? 0) + 1;
     lastDone = Math.max(lastDone, end);
     const us = Math.max(1, (end - due) * 1000);
     overall.recordValue(us);
@@ -202,6 +208,7 @@ export async function runFixedRate(tm: Tidemark, o: FixedRateOptions): Promise<F
     max_start_lag_ms: Math.round(maxLag * 10) / 10,
     histogram: encodeHistogram(overall),
     windows: windows.map(encodeHistogram),
+    done_per_window: Array.from(donePerWindow, (x) => x ?? 0),
   };
 }
 
@@ -216,6 +223,7 @@ export function mergeResults(parts: readonly FixedRateResult[], windowSeconds: n
   achieved_per_s: number;
   max_start_lag_ms: number;
   latency: Percentiles;
+  /** Per window: latency of the turns due in it, and turns committed in it over the window's length. */
   windows: Array<{ t_s: number } & Percentiles & { achieved_per_s: number }>;
 } {
   const overall = newHistogram();
@@ -224,7 +232,8 @@ export function mergeResults(parts: readonly FixedRateResult[], windowSeconds: n
   const windows = Array.from({ length: n }, (_, w) => {
     const h = newHistogram();
     for (const p of parts) if (p.windows[w]) h.add(decodeHistogram(p.windows[w]!));
-    return { t_s: w * windowSeconds, ...percentiles(h), achieved_per_s: Math.round(h.totalCount / windowSeconds) };
+    const done = parts.reduce((a, p) => a + (p.done_per_window?.[w] ?? 0), 0);
+    return { t_s: w * windowSeconds, ...percentiles(h), achieved_per_s: Math.round(done / windowSeconds) };
   });
   const completed = parts.reduce((a, p) => a + p.completed, 0);
   const seconds = Math.max(...parts.map((p) => p.seconds));

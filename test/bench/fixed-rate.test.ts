@@ -14,6 +14,7 @@ const part = (values: number[], windows: number[][]): FixedRateResult => {
   return {
     offered_per_s: 10, scheduled: values.length, completed: values.length, errors: 0, error_codes: {}, conflict_retries: 1, seconds: 1, achieved_per_s: values.length, max_start_lag_ms: 0,
     histogram: encodeHistogram(h),
+    done_per_window: windows.map((w) => w.length),
     windows: windows.map((w) => {
       const x = newHistogram();
       for (const v of w) x.recordValue(v);
@@ -37,7 +38,7 @@ describe('fixed-rate results', () => {
     expect({ ...m.latency, max_ms: 0 }).toEqual({ ...whole, max_ms: 0 });
     // An encoded histogram reports its max at the top of the max's bucket: equal to 3 significant digits.
     expect(Math.abs(m.latency.max_ms - whole.max_ms) / whole.max_ms).toBeLessThan(1e-3);
-    expect(m.windows[0]).toMatchObject({ t_s: 0, count: 10_000, p99_ms: percentiles(all).p99_ms });
+    expect(m.windows[0]).toMatchObject({ t_s: 0, count: 10_000, p99_ms: percentiles(all).p99_ms, achieved_per_s: 2_000 });
     expect(m.completed).toBe(10_000);
     expect(m.conflict_retries).toBe(2);
     const meanOfP99 = (percentiles(newFrom(fast)).p99_ms + percentiles(newFrom(slow)).p99_ms) / 2;
