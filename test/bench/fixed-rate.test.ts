@@ -2,7 +2,9 @@
 // values recorded in one histogram, not an average of percentiles), and a fleet's processes split the
 // schedule between them without gaps or overlaps, on one shared store.
 
-import { describe, expect, it } from 'vitest';
+import { EventEmitter } from 'node:events';
+import { describe, expect, it, vi } from 'vitest';
+import type { Tidemark } from '../../src/middleware/tidemark.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 import { encodeHistogram, mergeResults, newHistogram, percentiles, runFixedRate, type FixedRateResult } from '../../bench/lib/fixed-rate.js';
@@ -77,3 +79,46 @@ function newFrom(values: number[]) {
   for (const v of values) h.recordValue(v);
   return h;
 }
+
+describe('fixed-rate timing (fake clock)', () => {
+  // A stand-in for the middleware that commits each turn after a set service time on the fake clock:
+  // the driver's own arithmetic is under test here, not tidemark's speed.
+  function fakeMiddleware(serviceMs: (n: number) => number) {
+    const em = new EventEmitter();
+    let n = 0;
+    return {
+      on: (e: string, f: (...a: unknown[]) => void) => em.on(e, f),
+      off: (e: string, f: (...a: unknown[]) => void) => em.off(e, f),
+      hashSession: (_t: string, s: string) => `h-${s}`,
+      flush: async () => undefined,
+      wrap: () => async (input: { session: string }) => {
+        const ms = serviceMs(n++);
+        setTimeout(() => em.emit('commit', { sessionHash: `h-${input.session}`, retries: 0 }), ms);
+        return (async function* () {
+          yield 'ok';
+        })();
+      },
+    } as unknown as Tidemark;
+  }
+
+  it('times each turn from its due time, so one stall shows in every turn queued behind it', async () => {
+    vi.useFakeTimers({ toFake: ['setTimeout', 'clearTimeout', 'setImmediate', 'performance', 'Date'] });
+    try {
+      // 100 turns/s for 1 s = one turn due every 10 ms; each takes 10 ms, the first 500 ms; one in flight.
+      const run = runFixedRate(fakeMiddleware((n) => (n === 0 ? 500 : 10)), {
+        rate: 100, seconds: 1, activeSessions: 100, userSessions: 0, windowSeconds: 1, maxInFlight: 1, index: 0, of: 1, tenant: 't',
+      });
+      await vi.advanceTimersByTimeAsync(5_000);
+      const r = await run;
+      const m = mergeResults([r], 1);
+      expect(r.completed).toBe(100);
+      // Turn k (k >= 1) is due at 10k ms, starts when turn k-1 ends and ends at 500 + 10k: every turn
+      // waits 500 ms. Timing from the start of service instead would report 10 ms for 99 of 100 turns.
+      expect(m.latency.p50_ms).toBeGreaterThanOrEqual(499);
+      expect(m.latency.p50_ms).toBeLessThanOrEqual(501);
+      expect(m.latency.count).toBe(100);
+    } finally {
+      vi.useRealTimers();
+    }
+  });
+});
