@@ -9,7 +9,7 @@
 import { createTidemark } from '../src/middleware/tidemark.js';
 import type { RedisStore } from '../adapters/redis/index.js';
 import { loadAverage, openBackend, scripts, type StoreKind } from './load.js';
-import { redisVersions } from './lib/redis-info.js';
+import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';
 import { parseArgs, percentile, round } from './lib/stats.js';
 
@@ -62,6 +62,8 @@ export default async function main(argv: string[]): Promise<void> {
   process.once('SIGTERM', onSignal);
   const points: MemoryPoint[] = [];
   let leftover = -1;
+  const info0 = await snapshot(client);
+  let info: InfoDelta[] = [];
   try {
     for (const n of lengths) {
       const count = n >= longFrom ? longSessions : sessions;
@@ -116,6 +118,8 @@ export default async function main(argv: string[]): Promise<void> {
     leftover = 0;
     for (const p of used) leftover += await countPrefix(client, p);
   }
+  // Over the whole sweep, per exchange written (writes only: this run never reads).
+  info = deltaOf(info0, await snapshot(client), points.reduce((a, p) => a + p.exchanges * p.sessions, 0));
   const versions = await redisVersions(client);
   await backend.close();
 
@@ -126,7 +130,8 @@ export default async function main(argv: string[]): Promise<void> {
   ));
   const mean = percentile(points.map((p) => p.raw_text_bytes / Math.max(1, p.messages_kept)), 50);
   console.log(`keys deleted afterwards: ${cleaned}, keys left: ${leftover}; mean text per kept message ≈ ${round(mean, 1)} B; target logbook / raw ≤ 1.5`);
-  const out = { store: kind, capacity, points, keys_deleted: cleaned, keys_left: leftover, load: loadAverage() };
+  console.log(describeDeltas(info));
+  const out = { store: kind, capacity, points, keys_deleted: cleaned, keys_left: leftover, redis_info: info, redis_per_write: totalPerTurn(info), load: loadAverage() };
   const xs = points.map((p) => p.exchanges);
   const svg = lineChart({
     title: `Redis bytes per session by length (${kind})`, xLabel: 'exchanges per session', yLabel: 'bytes per session', logX: true, logY: true,

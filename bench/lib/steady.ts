@@ -10,7 +10,7 @@ import { createTidemark } from '../../src/middleware/tidemark.js';
 import { loadAverage, openBackend } from '../load.js';
 import { throwawayRedis, type ThrowawayRedis } from '../soak.js';
 import { mergeResults, runFixedRate } from './fixed-rate.js';
-import { parseInfo, redisVersions } from './redis-info.js';
+import { deltaOf, describeDeltas, parseInfo, redisVersions, snapshot, totalPerTurn } from './redis-info.js';
 import { asciiTable, lineChart, writeResult } from './results.js';
 import type { parseArgs } from './stats.js';
 import { round } from './stats.js';
@@ -62,6 +62,7 @@ export async function steadySoak(argv: string[], args: ReturnType<typeof parseAr
       const used = Number(parseInfo(String(await client.info('memory'))).get('used_memory') ?? 0);
       samples.push({ t: round((performance.now() - t0) / 1000, 1), rss_mb: round(mu.rss / 2 ** 20, 1), heap_mb: round(mu.heapUsed / 2 ** 20, 1), redis_used_mb: round(used / 2 ** 20, 2), turns });
     };
+    const info0 = await snapshot(client);
     let timer: NodeJS.Timeout | undefined;
     const result = await runFixedRate(tm, {
       rate, seconds, windowSeconds, activeSessions: num('active-sessions', 500), userSessions: 0, maxInFlight: num('max-in-flight', 4096), index: 0, of: 1, tenant: 'bench', warmup: num('warmup', 500, 0),
@@ -79,14 +80,18 @@ export async function steadySoak(argv: string[], args: ReturnType<typeof parseAr
     await sample();
     await tm.close();
     const m = mergeResults([result], windowSeconds);
+    const info = deltaOf(info0, await snapshot(client), turns);
     await backend.cleanup(prefix);
     const versions = await redisVersions(client);
     const x = samples.map((s) => s.t);
     const wx = m.windows.map((w) => w.t_s);
+    // The first window is the process settling (JIT, pools, caches filling): left out of the fits
+    // when there are 4 or more (common practice for steady-state checks).
+    const skip = <T,>(a: readonly T[]): T[] => (a.length >= 4 ? a.slice(1) : [...a]);
     const verdict = {
-      p99_ms: driftOf(wx, m.windows.map((w) => w.p99_ms)),
-      rss_mb: driftOf(x, samples.map((s) => s.rss_mb)),
-      heap_mb: driftOf(x, samples.map((s) => s.heap_mb)),
+      p99_ms: driftOf(skip(wx), skip(m.windows.map((w) => w.p99_ms))),
+      rss_mb: driftOf(skip(x), skip(samples.map((s) => s.rss_mb))),
+      heap_mb: driftOf(skip(x), skip(samples.map((s) => s.heap_mb))),
     };
     const redisPerTurn = fitLine(samples.map((s) => s.turns), samples.map((s) => s.redis_used_mb * 2 ** 20)).slope;
     const steady = !verdict.p99_ms.drifts && !verdict.rss_mb.drifts && !verdict.heap_mb.drifts;
@@ -95,8 +100,9 @@ export async function steadySoak(argv: string[], args: ReturnType<typeof parseAr
     console.log(asciiTable(['t (s)', 'RSS MB', 'heap MB', 'Redis used MB', 'turns'], samples.map((s) => [s.t, s.rss_mb, s.heap_mb, s.redis_used_mb, s.turns])));
     for (const [k, v] of Object.entries(verdict)) console.log(`${k}: slope ${round(v.slope_per_hour, 2)} per hour, fitted rise ${round(v.rise_fraction * 100, 1)} % of the mean -> ${v.drifts ? 'DRIFTS' : 'steady'}`);
     console.log(`Redis used_memory grows ${Math.round(redisPerTurn)} B per turn (the logbook keeps every turn; expected)`);
+    console.log(describeDeltas(info));
     console.log(`verdict: ${steady ? 'steady' : 'drifts'}; overall p99 ${m.latency.p99_ms} ms, achieved ${m.achieved_per_s} turns/s of ${rate}`);
-    const out = { steady, verdict, rate, seconds, window_s: windowSeconds, own_redis: own !== undefined, latency: m.latency, achieved_per_s: m.achieved_per_s, errors: m.errors, windows: m.windows, samples, redis_bytes_per_turn: Math.round(redisPerTurn), runs: m.windows.map((w) => ({ p99_ms: w.p99_ms, p50_ms: w.p50_ms })), load: loadAverage() };
+    const out = { steady, verdict, rate, seconds, window_s: windowSeconds, own_redis: own !== undefined, latency: m.latency, achieved_per_s: m.achieved_per_s, errors: m.errors, windows: m.windows, samples, redis_bytes_per_turn: Math.round(redisPerTurn), redis_info: info, redis_per_turn: totalPerTurn(info), runs: m.windows.map((w) => ({ p99_ms: w.p99_ms, p50_ms: w.p50_ms })), load: loadAverage() };
     const svg = lineChart({
       title: `steady soak at ${rate} turns/s: ${steady ? 'steady' : 'drifts'}`, xLabel: 'seconds', yLabel: 'MB / ms', markers: false,
       series: [
