@@ -1,3 +1,5 @@
+// Over 400 lines: the closed-loop driver, the store backends (shared by every bench) and the idle fill
+// share their helpers here; the fixed-rate driver lives in lib/fixed-rate.ts and lib/load-rate.ts.
 // `npm run bench -- load --store memory|redis|cluster --sessions N --turns M --concurrency C [--json]`:
 // simulated users on many sessions, each turn read -> streamed reply -> write, through `tm.wrap()`.
 // `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).

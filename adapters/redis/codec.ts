@@ -1,6 +1,7 @@
 // Binary payloads of the Redis store: one slot record or one logbook entry per hash field. Each payload
 // opens with a format version byte, a kind byte and a CRC32 of the rest, so a truncated, tampered or
-// foreign value is reported as corrupt instead of being decoded into wrong memories. Format 2 (0.2)
+// foreign value is reported as corrupt instead of being decoded into wrong memories. Over 400 lines
+// on purpose: every stored layout and its reader, old ones included, sit side by side in one file. Format 2 (0.2)
 // adds owners, reply flags, ambiguous-update links and logbook turn entries; format 1 payloads written
 // by 0.1 still decode. Logbook entries are now written compact (kind 4): whole-millisecond times and
 // integer clocks as varints, and no id, tenant or session when they are the hash field and the key
