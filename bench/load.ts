@@ -1,7 +1,14 @@
+// Over 400 lines: the closed-loop driver, the store backends (shared by every bench) and the idle fill
+// share their helpers here; the fixed-rate driver lives in lib/fixed-rate.ts and lib/load-rate.ts.
 // `npm run bench -- load --store memory|redis|cluster --sessions N --turns M --concurrency C [--json]`:
 // simulated users on many sessions, each turn read -> streamed reply -> write, through `tm.wrap()`.
 // `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).
-// `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun).
+// `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun;
+// `--in-flight N` commits at once, default 64; commands wait for Redis unless `--command-timeout MS`).
+// `--rate R --seconds S` is fixed-rate (open-loop) load instead, optionally by a fleet of processes
+// (`--processes N`); see lib/load-rate.ts. Every mode: `--cache-sessions N` (the store's per-process
+// cache), `--cluster-seeds host:port,...` (any Cluster), `--own-redis` (a redis-server of the run's
+// own, so Redis INFO deltas are the run's alone), `--save` (also write to the committed results).
 // Figures: turns/s, read/write/turn p50/p95/p99 (HDR-style histograms), errors, RSS, bytes per session.
 //
 // How a turn is timed. `wrap()` starts the memory write after the reply stream ends and returns no
@@ -24,6 +31,7 @@ import type { SlotTable } from '../src/memory/slots.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import type { CommitRequest, Store } from '../src/store/store.js';
 import type { RedisClient, RedisStore } from '../adapters/redis/index.js';
+import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
 import { generateScenario } from './lib/scenario.js';
 import { machine, parseArgs, percentile, round } from './lib/stats.js';
@@ -58,6 +66,9 @@ interface LoadFigures {
   rss_mb: number;
   bytes_per_session: number;
   bytes_method: string;
+  /** INFO deltas per master over the timed part (Redis runs). */
+  redis_info: InfoDelta[];
+  redis_per_turn: InfoDelta['per_turn'] | null;
 }
 
 // ------------------------------------------------------------------ histograms
@@ -187,8 +198,20 @@ function routeScriptsForAutoPipelining(client: RedisClient): void {
   };
 }
 
+/** Limits and targets of a backend that used to be fixed in code. */
+export interface BackendOptions {
+  /** `host:port,...` of any Redis Cluster (default: the repo's own, started if need be). */
+  clusterSeeds?: string;
+  /** The store's per-process cache of sessions and logbook scopes (RedisStore `cacheSessions`). */
+  cacheSessions?: number;
+  /** ioredis `commandTimeout` in ms (the store's default is 1,000); 0 waits for ever. */
+  commandTimeoutMs?: number;
+  /** A key prefix to share (a fleet's processes use one key space); default: a fresh one per run. */
+  prefix?: string;
+}
+
 /** `autoPipeline` turns on ioredis `enableAutoPipelining` (commands of one tick share one socket write). */
-export async function openBackend(kind: StoreKind, redisUrl: string, autoPipeline = false): Promise<Backend> {
+export async function openBackend(kind: StoreKind, redisUrl: string, autoPipeline = false, extra: BackendOptions = {}): Promise<Backend> {
   if (kind === 'memory') {
     return {
       kind,
@@ -216,18 +239,24 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
   let client: RedisClient;
   let stopCluster = false;
   const clusterScript = new URL('../scripts/redis-cluster.sh', import.meta.url).pathname;
+  const nodeOptions = { ...REDIS_CLIENT_OPTIONS, ...(extra.commandTimeoutMs !== undefined ? { commandTimeout: extra.commandTimeoutMs || undefined } : {}) };
   if (kind === 'redis') {
-    client = new Redis(redisUrl, { ...REDIS_CLIENT_OPTIONS, enableAutoPipelining: autoPipeline });
+    client = new Redis(redisUrl, { ...nodeOptions, enableAutoPipelining: autoPipeline });
   } else {
-    let ports: string;
-    try {
-      ports = execFileSync('bash', [clusterScript, 'status'], { encoding: 'utf8' });
-    } catch {
-      ports = execFileSync('bash', [clusterScript, 'start'], { encoding: 'utf8' });
-      stopCluster = true;
+    let seeds: Array<{ host: string; port: number }>;
+    if (extra.clusterSeeds) {
+      seeds = parseSeeds(extra.clusterSeeds);
+    } else {
+      let ports: string;
+      try {
+        ports = execFileSync('bash', [clusterScript, 'status'], { encoding: 'utf8' });
+      } catch {
+        ports = execFileSync('bash', [clusterScript, 'start'], { encoding: 'utf8' });
+        stopCluster = true;
+      }
+      seeds = ports.trim().split(/\s+/).filter(Boolean).map((p) => ({ host: '127.0.0.1', port: Number(p) }));
     }
-    const seeds = ports.trim().split(/\s+/).filter(Boolean).map((p) => ({ host: '127.0.0.1', port: Number(p) }));
-    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, enableAutoPipelining: autoPipeline });
+    client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, redisOptions: nodeOptions, enableAutoPipelining: autoPipeline });
   }
   client.on('error', () => undefined);
   if (autoPipeline) routeScriptsForAutoPipelining(client);
@@ -237,8 +266,8 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     kind,
     client: c,
     async open() {
-      const prefix = `tidemark-bench:${runId()}:`;
-      return { store: new RedisStore({ redis: c, prefix }), prefix };
+      const prefix = extra.prefix ?? `tidemark-bench:${runId()}:`;
+      return { store: new RedisStore({ redis: c, prefix, ...(extra.cacheSessions !== undefined ? { cacheSessions: extra.cacheSessions } : {}) }), prefix };
     },
     async bytesOf(store, sessions) {
       const rs = store as RedisStore;
@@ -257,6 +286,15 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
       if (stopCluster) execFileSync('bash', [clusterScript, 'stop'], { stdio: 'ignore' });
     },
   };
+}
+
+/** `host:port,host:port` -> seed list; a bad entry names itself. */
+export function parseSeeds(text: string): Array<{ host: string; port: number }> {
+  return text.split(',').map((hp) => {
+    const m = /^\[?([^\]]+?)\]?:(\d{1,5})$/.exec(hp.trim());
+    if (!m || Number(m[2]) < 1 || Number(m[2]) > 65535) throw new RangeError(`--cluster-seeds expects host:port,host:port,..., got ${JSON.stringify(hp)}`);
+    return { host: m[1]!, port: Number(m[2]) };
+  });
 }
 
 // ------------------------------------------------------------------ one load run
@@ -362,6 +400,7 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   outboxQueued = 0;
 
   const names = Array.from({ length: o.sessions }, (_, i) => `user-${i}`);
+  const info0 = backend.client ? await snapshot(backend.client) : [];
   const convo = scripts(o.sessions, o.turns);
   let rss = process.memoryUsage().rss;
   const sampler = setInterval(() => (rss = Math.max(rss, process.memoryUsage().rss)), 200);
@@ -373,6 +412,7 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   clearInterval(sampler);
   rss = Math.max(rss, process.memoryUsage().rss);
   await tm.flush();
+  const redisInfo = backend.client ? deltaOf(info0, await snapshot(backend.client), o.sessions * o.turns) : [];
   const sample = names.filter((_, i) => i % Math.max(1, Math.floor(names.length / 200)) === 0).slice(0, 200);
   const bytes = await backend.bytesOf(store, sample);
   await tm.close();
@@ -394,6 +434,8 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
     rss_mb: round(rss / 2 ** 20, 1),
     bytes_per_session: bytes.bytes,
     bytes_method: bytes.method,
+    redis_info: redisInfo,
+    redis_per_turn: redisInfo.length > 0 ? totalPerTurn(redisInfo) : null,
   };
 }
 
@@ -432,7 +474,7 @@ async function usedMemory(client: RedisClient): Promise<number> {
  * event stream as the core left them), committed through the store with many commits in flight
  * (ioredis pipelines them on its connection). Afterwards every key is deleted.
  */
-async function idleRun(backend: Backend, count: number, turns: number, capacity: number, progress: boolean): Promise<IdleFigures> {
+async function idleRun(backend: Backend, count: number, turns: number, capacity: number, progress: boolean, inFlight: number): Promise<IdleFigures> {
   if (!backend.client) throw new Error('--idle needs --store redis or --store cluster');
   // Templates: real conversations on the in-process store.
   const tmpl = new InProcessStore();
@@ -471,7 +513,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const t0 = performance.now();
   let next = 0;
   await Promise.all(
-    Array.from({ length: 256 }, async () => {
+    Array.from({ length: inFlight }, async () => {
       while (next < count) {
         const i = next++;
         const r = reqs[i % reqs.length]!;
@@ -530,15 +572,26 @@ export default async function main(argv: string[]): Promise<void> {
   };
   const kind = (args.values.get('store') ?? 'memory') as StoreKind;
   if (!['memory', 'redis', 'cluster'].includes(kind)) throw new RangeError(`--store must be memory, redis or cluster, got ${kind}`);
+  if (args.values.has('rate')) {
+    const { loadAtRate } = await import('./lib/load-rate.js');
+    return loadAtRate(argv, args, num);
+  }
   const json = args.flags.has('json');
-  const redisUrl = args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
+  // --own-redis: a redis-server of the run's own on a free port, so its INFO deltas are the run's alone.
+  const own = args.flags.has('own-redis') && !args.values.has('rate') ? await (await import('./soak.js')).throwawayRedis() : undefined;
+  const redisUrl = own?.url ?? args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
   const capacity = num('capacity', 64);
   const progress = process.stderr.isTTY === true && !json;
   const autoPipeline = args.flags.has('auto-pipeline');
-  const backend = await openBackend(kind, redisUrl, autoPipeline);
+  const extra: BackendOptions = {};
+  if (args.values.has('cache-sessions')) extra.cacheSessions = num('cache-sessions', 1000, 0);
+  if (args.values.has('cluster-seeds')) extra.clusterSeeds = args.values.get('cluster-seeds')!;
+  // Filling idle sessions is not an outage: commands wait as long as Redis needs unless told otherwise.
+  if (args.values.has('command-timeout') || args.values.has('idle')) extra.commandTimeoutMs = num('command-timeout', 0, 0);
+  const backend = await openBackend(kind, redisUrl, autoPipeline, extra);
   try {
     if (args.values.has('idle')) {
-      const f = await idleRun(backend, num('idle', 100_000), num('idle-turns', 10), capacity, progress);
+      const f = await idleRun(backend, num('idle', 100_000), num('idle-turns', 10), capacity, progress, num('in-flight', 64));
       console.log(`idle sessions on ${kind}: ${f.idle_sessions} sessions of ${f.turns_per_session} exchanges (${f.slots_per_session} slots each on average)`);
       console.log(asciiTable(['figure', 'value'], [
         ['created in (s)', f.create_seconds],
@@ -584,6 +637,10 @@ export default async function main(argv: string[]): Promise<void> {
       outbox_queued: runs.reduce((a, x) => a + x.outbox_queued, 0),
       rss_mb: Math.max(...runs.map((x) => x.rss_mb)),
       bytes_per_session: median(runs.map((x) => x.bytes_per_session)),
+      redis_per_turn: runs[0]!.redis_per_turn ? {
+        commands: median(runs.map((x) => x.redis_per_turn!.commands)), cpu_us: median(runs.map((x) => x.redis_per_turn!.cpu_us)),
+        net_in_bytes: median(runs.map((x) => x.redis_per_turn!.net_in_bytes)), net_out_bytes: median(runs.map((x) => x.redis_per_turn!.net_out_bytes)),
+      } : null,
     };
     console.log(`load on ${kind}: ${f.sessions} sessions x ${f.turns_per_session} turns, concurrency ${f.concurrency}, capacity ${capacity}${repeat > 1 ? `, median of ${repeat} runs` : ''}`);
     console.log(asciiTable(['µs', 'p50', 'p95', 'p99', 'max'], [
@@ -593,17 +650,20 @@ export default async function main(argv: string[]): Promise<void> {
     ]));
     console.log(`turns/s ${f.turns_per_s}${repeat > 1 ? ` (runs: ${runs.map((x) => x.turns_per_s).join(', ')})` : ''}; errors ${f.errors}; degraded reads ${f.degraded_reads}; outbox queued ${f.outbox_queued}`);
     console.log(`peak RSS ${f.rss_mb} MB; ${f.bytes_per_session} bytes per session in the store (${f.bytes_method})`);
+    if (f.redis_info.length > 0) console.log(describeDeltas(f.redis_info));
     const svg = barChart({
       title: `load on ${kind}: ${f.turns_per_s} turns/s at concurrency ${f.concurrency}`, yLabel: 'latency (µs, log scale)', logY: true,
       groups: ['read', 'write', 'turn'],
       series: (['p50', 'p95', 'p99'] as const).map((p) => ({ name: p, values: [f.read_us[p], f.write_us[p], f.turn_us[p]] })),
     });
-    const out = { ...f, auto_pipeline: autoPipeline, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99 })), load: loadAverage(), machine: machine() };
-    const paths = writeResult(`load-${kind}${autoPipeline ? '-autopipeline' : ''}`, out, svg, ['load', ...argv]);
+    const out = { ...f, auto_pipeline: autoPipeline, runs: runs.map((x) => ({ turns_per_s: x.turns_per_s, turn_us_p50: x.turn_us.p50, turn_us_p99: x.turn_us.p99, ...(x.redis_per_turn ?? {}) })), load: loadAverage(), machine: machine() };
+    const versions = backend.client ? await redisVersions(backend.client) : [];
+    const paths = writeResult(`load-${kind}${autoPipeline ? '-autopipeline' : ''}`, out, svg, ['load', ...argv], { redis: versions });
     console.log(`wrote ${paths.json} and ${paths.svg}`);
     if (json) console.log(JSON.stringify(out));
   } finally {
     await backend.close();
+    await own?.stop();
   }
 }
 

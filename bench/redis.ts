@@ -12,6 +12,7 @@ import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS, RedisStore, redisStore } f
 import { encodeLogbook, encodeSlot } from '../adapters/redis/codec.js';
 import { createTidemark } from '../src/index.js';
 import type { Store } from '../src/store/store.js';
+import { barChart, writeResult } from './lib/results.js';
 
 const CONCURRENCY = 64;
 const CAPACITY = 64;
@@ -291,6 +292,16 @@ export default async function main(argv: string[]): Promise<void> {
     targets: { turns_per_s: 10_000, commit_ms_p99: 2, bytes_per_session: 40_960 },
     note: 'loopback Redis 7 on a 2-core machine shared with other work; client, server and embedder share the cores',
   };
-  if (json) console.log(JSON.stringify(out));
-  else console.log(JSON.stringify(out, null, 2));
+  const svg = barChart({
+    title: 'Redis store, one session at a time (ms)', yLabel: 'ms', groups: ['read p50', 'read p99', 'commit p50', 'commit p99'],
+    series: [{ name: 'sequential', values: [seq.read_ms_p50, seq.read_ms_p99, seq.commit_ms_p50, seq.commit_ms_p99] }],
+  });
+  const paths = writeResult('redis', out, svg, ['redis', ...argv]);
+  if (json) {
+    console.error(`wrote ${paths.json}`);
+    console.log(JSON.stringify(out));
+  } else {
+    console.log(JSON.stringify(out, null, 2));
+    console.log(`wrote ${paths.json} and ${paths.svg}`);
+  }
 }

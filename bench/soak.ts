@@ -1,3 +1,4 @@
+// `npm run bench -- soak --steady ...` is the drift soak (no faults; see lib/steady.ts). Without it:
 // `npm run bench -- soak [--seconds S] [--rate OPS] [--sessions N] [--concurrency C] [--json]`: bounded mixed load
 // (turns, plain reads, erasures) on a throwaway redis-server that this benchmark starts on a free
 // port and SIGKILLs and restarts on the same port half-way through, and erases 5% of the sessions at
@@ -151,6 +152,16 @@ type Ack = 'commit' | 'queued' | 'refused' | 'error';
 
 export default async function main(argv: string[]): Promise<void> {
   const args = parseArgs(argv);
+  if (args.flags.has('steady')) {
+    const { steadySoak } = await import('./lib/steady.js');
+    const num = (name: string, def: number, min = 1): number => {
+      const raw = args.values.get(name);
+      const v = raw === undefined ? def : Number(raw);
+      if (!Number.isInteger(v) || v < min) throw new RangeError(`--${name} must be an integer >= ${min}, got ${raw}`);
+      return v;
+    };
+    return steadySoak(argv, args, num);
+  }
   const int = (name: string, def: number, min: number, max: number): number => {
     const raw = args.values.get(name);
     const v = raw === undefined ? def : Number(raw);

@@ -95,7 +95,20 @@ export async function ensureReady(client: RedisClient, timeoutMs: number): Promi
     throw unavailable('connect', new Error(`connection is ${client.status}`));
   }
   if (startFailed.has(client)) throw unavailable('connect', new Error(`never connected (status ${client.status}); retrying in the background`));
-  await new Promise<void>((resolve, reject) => {
+  // Callers that arrive while the first connection is pending share one wait (one pair of
+  // listeners): a listener pair per caller tripped Node's MaxListenersExceededWarning past 10.
+  let wait = firstWait.get(client);
+  if (!wait) {
+    wait = firstConnection(client, timeoutMs).finally(() => firstWait.delete(client));
+    firstWait.set(client, wait);
+  }
+  return wait;
+}
+
+const firstWait = new WeakMap<RedisClient, Promise<void>>();
+
+function firstConnection(client: RedisClient, timeoutMs: number): Promise<void> {
+  return new Promise<void>((resolve, reject) => {
     const done = (err?: Error): void => {
       clearTimeout(timer);
       client.off('ready', onReady);

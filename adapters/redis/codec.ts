@@ -1,8 +1,11 @@
 // Binary payloads of the Redis store: one slot record or one logbook entry per hash field. Each payload
 // opens with a format version byte, a kind byte and a CRC32 of the rest, so a truncated, tampered or
-// foreign value is reported as corrupt instead of being decoded into wrong memories. Format 2 (0.2)
+// foreign value is reported as corrupt instead of being decoded into wrong memories. Over 400 lines
+// on purpose: every stored layout and its reader, old ones included, sit side by side in one file. Format 2 (0.2)
 // adds owners, reply flags, ambiguous-update links and logbook turn entries; format 1 payloads written
-// by 0.1 still decode.
+// by 0.1 still decode. Logbook entries are now written compact (kind 4): whole-millisecond times and
+// integer clocks as varints, and no id, tenant or session when they are the hash field and the key
+// the entry is stored under (the reader passes them back); kind 3 entries written before still decode.
 
 import * as zlib from 'node:zlib';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
@@ -16,6 +19,8 @@ export const KIND_SLOT = 1;
 /** A 0.1 archive item (read only). */
 export const KIND_ARCHIVE = 2;
 export const KIND_LOGBOOK = 3;
+/** A logbook entry in the compact layout (see encodeLogbook). */
+export const KIND_LOGBOOK_COMPACT = 4;
 const HEADER = 6; // format(1) kind(1) crc32(4)
 
 export type KeyFormat = 'int8' | 'float32';
@@ -72,6 +77,15 @@ class Writer {
     }
     this.buf[this.pos++] = v;
   }
+  /** Unsigned LEB128 for integers up to 2^53 (millisecond times need 41 bits; `>>>` stops at 32). */
+  uvar(v: number): void {
+    this.need(8);
+    while (v >= 0x80) {
+      this.buf[this.pos++] = (v % 0x80) | 0x80;
+      v = Math.floor(v / 0x80);
+    }
+    this.buf[this.pos++] = v;
+  }
   f64(v: number): void {
     this.need(8);
     this.buf.writeDoubleLE(v, this.pos);
@@ -115,6 +129,11 @@ class Writer {
     this.pos += v.length;
     return dequantise(q, scale);
   }
+  /** A time or clock: a varint when it is a safe non-negative integer, else a float64 (the caller sets a flag). */
+  num(v: number, asVarint: boolean): void {
+    if (asVarint) this.uvar(v);
+    else this.f64(v);
+  }
   finish(kind: number): Buffer {
     const out = this.buf.subarray(0, this.pos);
     out[0] = PAYLOAD_FORMAT;
@@ -154,7 +173,7 @@ class Reader {
   }
   varint(): number {
     let v = 0;
-    for (let shift = 0; shift < 35; shift += 7) {
+    for (let shift = 0; shift < 56; shift += 7) {
       const b = this.u8();
       v += (b & 0x7f) * 2 ** shift;
       if ((b & 0x80) === 0) return v;
@@ -301,12 +320,34 @@ const LB_DATES = 32;
 const LB_ROLE = 64;
 const LB_DEMOTED = 128;
 
+// Second flag byte of the compact layout.
+const LB2_TENANT = 1;
+const LB2_SESSION = 2;
+const LB2_AT_F64 = 4;
+const LB2_CREATED = 8;
+const LB2_CREATED_F64 = 16;
+const LB2_CLOCK_F64 = 32;
+const LB2_NO_ID = 64;
+
+/** Where an entry is stored: its tenant, session and id are not written when they are these. */
+export interface LogbookHome {
+  tenant: string;
+  session: string;
+  /** The hash field the entry is stored under (its id), when the reader knows it. */
+  id?: string;
+}
+
+/** Written as a varint: a safe non-negative integer (not -0, which a varint would turn into 0). */
+const wholeMs = (v: number): boolean => Number.isSafeInteger(v) && v >= 0 && !Object.is(v, -0);
+
 /**
- * Encodes a logbook entry; `user` is the scope it was committed in (overrides `entry.user`). A turn
- * entry costs its text plus about 40 bytes (ids, times, seq); a vector is kept only when the entry
- * carries one (demoted slot values, and turns when the logbook keeps turn vectors).
+ * Encodes a logbook entry; `user` is the scope it was committed in (overrides `entry.user`). Compact
+ * layout: two flag bytes, kind, times and clock as varints when whole (float64 otherwise), seq, then
+ * id, tenant and session only when they differ from `home`. A turn entry stored under its id costs its
+ * text plus about 24 bytes (header 6, flags, times 7, seq, role, provenance); a vector is kept only when the entry carries one
+ * (demoted slot values, and turns when the logbook keeps turn vectors).
  */
-export function encodeLogbook(e: LogbookEntry, user: string | undefined, format: KeyFormat): Buffer {
+export function encodeLogbook(e: LogbookEntry, user: string | undefined, format: KeyFormat, home?: LogbookHome): Buffer {
   const w = new Writer(HEADER + 64 + (e.key ? e.key.length * (format === 'int8' ? 1 : 4) : 0) + 4 * (e.keyText.length + e.value.length) + 64);
   const demoted = e.kind !== 'turn';
   const dates = e.dates ?? [];
@@ -314,18 +355,29 @@ export function encodeLogbook(e: LogbookEntry, user: string | undefined, format:
     (user !== undefined ? LB_USER : 0) | (e.successor !== undefined ? LB_SUCCESSOR : 0) | (e.speaker !== undefined ? LB_SPEAKER : 0) |
       (e.owner !== undefined ? LB_OWNER : 0) | (e.key ? LB_KEY : 0) | (dates.length > 0 ? LB_DATES : 0) | (e.role ? LB_ROLE : 0) | (demoted ? LB_DEMOTED : 0),
   );
+  const atVar = wholeMs(e.atMs);
+  const created = !Object.is(e.createdMs, e.atMs);
+  const createdVar = wholeMs(e.createdMs);
+  const clockVar = wholeMs(e.clock);
+  const tenant = home?.tenant !== e.tenant;
+  const session = home?.session !== e.session;
+  const noId = home?.id === e.id;
+  w.u8(
+    (noId ? LB2_NO_ID : 0) | (tenant ? LB2_TENANT : 0) | (session ? LB2_SESSION : 0) | (atVar ? 0 : LB2_AT_F64) | (created ? LB2_CREATED : 0) |
+      (created && !createdVar ? LB2_CREATED_F64 : 0) | (clockVar ? 0 : LB2_CLOCK_F64),
+  );
   w.u8(LOGBOOK_KINDS.indexOf(e.kind));
-  w.f64(e.atMs);
-  w.f64(e.createdMs);
-  w.f64(e.clock);
+  w.num(e.atMs, atVar);
+  if (created) w.num(e.createdMs, createdVar);
+  w.num(e.clock, clockVar);
   w.varint(e.seq);
   if (demoted) {
     w.f64(e.strength ?? 0);
     w.f64(e.halfLife ?? 0);
   }
-  w.str(e.id);
-  w.str(e.tenant);
-  w.str(e.session);
+  if (!noId) w.str(e.id);
+  if (tenant) w.str(e.tenant);
+  if (session) w.str(e.session);
   if (user !== undefined) w.str(user);
   w.str(e.keyText);
   w.str(e.value);
@@ -344,26 +396,34 @@ export function encodeLogbook(e: LogbookEntry, user: string | undefined, format:
     }
   }
   if (e.key) w.key(e.key, format);
-  return w.finish(KIND_LOGBOOK);
+  return w.finish(KIND_LOGBOOK_COMPACT);
 }
 
-/** Decodes a logbook entry, or a 0.1 archive item as the demoted entry it now is. */
-export function decodeLogbook(buf: Buffer, what: string): LogbookEntry {
-  const r = open(buf, KIND_LOGBOOK, what, [KIND_LOGBOOK, KIND_ARCHIVE]);
+/**
+ * Decodes a logbook entry (compact, or the kind 3 layout written before), or a 0.1 archive item as
+ * the demoted entry it now is. `home` is where it was stored: a compact entry leaves out a tenant and
+ * session equal to it, so one read without `home` is corrupt.
+ */
+export function decodeLogbook(buf: Buffer, what: string, home?: LogbookHome): LogbookEntry {
+  const r = open(buf, KIND_LOGBOOK, what, [KIND_LOGBOOK, KIND_ARCHIVE, KIND_LOGBOOK_COMPACT]);
   if (buf[1] === KIND_ARCHIVE) return decodeArchiveV1(r);
+  const compact = buf[1] === KIND_LOGBOOK_COMPACT;
   const flags = r.u8();
+  const flags2 = compact ? r.u8() : LB2_TENANT | LB2_SESSION | LB2_AT_F64 | LB2_CREATED | LB2_CREATED_F64 | LB2_CLOCK_F64;
   const kind = LOGBOOK_KINDS[r.u8()];
   if (kind === undefined) r.fail('unknown logbook kind');
-  const atMs = r.f64();
-  const createdMs = r.f64();
-  const clock = r.f64();
+  const atMs = flags2 & LB2_AT_F64 ? r.f64() : r.varint();
+  const createdMs = flags2 & LB2_CREATED ? (flags2 & LB2_CREATED_F64 ? r.f64() : r.varint()) : atMs;
+  const clock = flags2 & LB2_CLOCK_F64 ? r.f64() : r.varint();
   const seq = r.varint();
   const demoted = (flags & LB_DEMOTED) !== 0;
   const strength = demoted ? r.f64() : undefined;
   const halfLife = demoted ? r.f64() : undefined;
-  const id = r.str();
-  const tenant = r.str();
-  const session = r.str();
+  if (flags2 & LB2_NO_ID && home?.id === undefined) r.fail('compact entry read without its id');
+  const id = flags2 & LB2_NO_ID ? home!.id! : r.str();
+  if ((!(flags2 & LB2_TENANT) || !(flags2 & LB2_SESSION)) && !home) r.fail('compact entry read without its session');
+  const tenant = flags2 & LB2_TENANT ? r.str() : home!.tenant;
+  const session = flags2 & LB2_SESSION ? r.str() : home!.session;
   const user = flags & LB_USER ? r.str() : undefined;
   const keyText = r.str();
   const value = r.str();

@@ -530,7 +530,8 @@ export class RedisStore implements Store {
         keys.push(null);
       }
     }
-    for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf));
+    const home = { tenant: ref.tenant, session: ref.session };
+    for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf, { ...home, id: e.id }));
     for (const ev of req.events) args.push(JSON.stringify(ev));
     return { args, keys };
   }
@@ -648,7 +649,7 @@ export class RedisStore implements Store {
           entry.ids.push('');
           return;
         }
-        const e = decodeLogbook(v as Buffer, 'logbook entry payload');
+        const e = decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id });
         if (user !== undefined && e.user !== user) {
           entry.ids.push('');
           return;

@@ -1,30 +1,98 @@
-// Where benchmark runs leave their figures: `bench/results/NAME-DATE.json` (the figures plus the
-// machine and the command) and `bench/results/NAME-DATE.svg` (a plot drawn by hand as plain SVG, so
-// no plotting dependency is needed). A later run on the same day replaces that day's files.
+// Where benchmark runs leave their figures. A plain run writes `bench/results/runs/NAME-STAMP-ID.json`
+// (and `.svg`) — a folder git ignores, one unique name per run (UTC date-time plus a random short id),
+// so two runs never overwrite each other. `--save` also writes the same files to `bench/results/`, the
+// committed reference results; nothing ever rewrites a file there. Each file records what it was
+// measured on: git commit, package version, Node and Redis versions, machine and load average.
 
-import { mkdirSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
+import { randomBytes } from 'node:crypto';
+import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { loadavg } from 'node:os';
 import { dirname, join, relative } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { machine } from './stats.js';
 
 /** bench/results, relative to this file (never an absolute machine path in what is written). */
 export const RESULTS_DIR = join(dirname(fileURLToPath(import.meta.url)), '..', 'results');
+/** Plain runs land here (git-ignored). */
+export const RUNS_DIR = join(RESULTS_DIR, 'runs');
 const REPO_ROOT = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
 
 /** `YYYY-MM-DD` in UTC. */
 export const dateStamp = (d: Date = new Date()): string => d.toISOString().slice(0, 10);
 
+/** `YYYY-MM-DDTHH-MM-SSZ` in UTC: sortable, and legal in file names everywhere. */
+export const timeStamp = (d: Date = new Date()): string => `${d.toISOString().slice(0, 19).replace(/:/g, '-')}Z`;
+
+/** What a figure was measured on; every results file carries one under `meta`. */
+export interface RunMeta {
+  git_commit: string;
+  /** True when the work tree had uncommitted changes: the commit alone does not say what ran. */
+  git_dirty: boolean;
+  package_version: string;
+  node: string;
+  /** `redis_version` of each server the run used (one per master on a Cluster); empty without Redis. */
+  redis: string[];
+  machine: ReturnType<typeof machine>;
+  /** 1, 5 and 15-minute load averages when the run ended: other work on the machine skews figures. */
+  load: number[];
+}
+
+function git(args: string[]): string {
+  try {
+    return execFileSync('git', args, { cwd: REPO_ROOT, encoding: 'utf8', stdio: ['ignore', 'pipe', 'ignore'] }).trim();
+  } catch {
+    return '';
+  }
+}
+
+export function runMeta(redis: readonly string[] = []): RunMeta {
+  const pkg = JSON.parse(readFileSync(join(REPO_ROOT, 'package.json'), 'utf8')) as { version: string };
+  return {
+    git_commit: git(['rev-parse', '--short=12', 'HEAD']) || 'unknown',
+    git_dirty: git(['status', '--porcelain', '--untracked-files=no']) !== '',
+    package_version: pkg.version,
+    node: process.version,
+    redis: [...redis],
+    machine: machine(),
+    load: loadavg().map((x) => Math.round(x * 100) / 100),
+  };
+}
+
+export interface WriteOptions {
+  /** Redis versions to record (see redisVersions in ./redis-info.ts). */
+  redis?: readonly string[];
+  /** Also write to the committed folder; defaults to `--save` being among the arguments. */
+  save?: boolean;
+  date?: Date;
+  /** The committed folder (its `runs/` holds plain runs); tests point it elsewhere. @default bench/results */
+  dir?: string;
+}
+
 /**
- * Writes NAME-DATE.json (with `command` and `date` added) and NAME-DATE.svg; returns both paths
- * relative to the repository root, for printing.
+ * Writes NAME-STAMP-ID.json (with `name`, `date`, `command` and `meta` added) and .svg to the runs
+ * folder, and with `save` to bench/results/ as well; returns the paths relative to the repository
+ * root, for printing (`json` is the committed copy when saved).
  */
-export function writeResult(name: string, figures: Record<string, unknown>, svg: string, argv: readonly string[], date = new Date()): { json: string; svg: string } {
+export function writeResult(name: string, figures: Record<string, unknown>, svg: string, argv: readonly string[], opts: WriteOptions | Date = {}): { json: string; svg: string } {
+  const o: WriteOptions = opts instanceof Date ? { date: opts } : opts;
   if (!/^[a-z0-9][a-z0-9.-]*$/.test(name)) throw new RangeError(`result name must be lowercase letters, digits, dots and dashes, got ${JSON.stringify(name)}`);
-  mkdirSync(RESULTS_DIR, { recursive: true });
-  const base = join(RESULTS_DIR, `${name}-${dateStamp(date)}`);
-  const doc = { name, date: date.toISOString(), command: `npm run bench -- ${argv.join(' ')}`.trim(), ...figures };
-  writeFileSync(`${base}.json`, `${JSON.stringify(doc, null, 2)}\n`);
-  writeFileSync(`${base}.svg`, svg);
-  return { json: relative(REPO_ROOT, `${base}.json`), svg: relative(REPO_ROOT, `${base}.svg`) };
+  const date = o.date ?? new Date();
+  const save = o.save ?? argv.includes('--save');
+  const file = `${name}-${timeStamp(date)}-${randomBytes(3).toString('hex')}`;
+  const doc = { name, date: date.toISOString(), command: `npm run bench -- ${argv.join(' ')}`.trim(), meta: runMeta(o.redis), ...figures };
+  const text = `${JSON.stringify(doc, null, 2)}\n`;
+  let out = { json: '', svg: '' };
+  const root = o.dir ?? RESULTS_DIR;
+  for (const dir of save ? [join(root, 'runs'), root] : [join(root, 'runs')]) {
+    mkdirSync(dir, { recursive: true });
+    const base = join(dir, file);
+    // 'wx': fail rather than replace, should a name ever repeat.
+    writeFileSync(`${base}.json`, text, { flag: 'wx' });
+    writeFileSync(`${base}.svg`, svg, { flag: 'wx' });
+    out = { json: relative(REPO_ROOT, `${base}.json`), svg: relative(REPO_ROOT, `${base}.svg`) };
+  }
+  return out;
 }
 
 // ------------------------------------------------------------------ SVG plots

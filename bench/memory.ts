@@ -1,0 +1,157 @@
+// `npm run bench -- memory [--lengths 10,200,1000,2000,5000] [--sessions 4] [--long-sessions 1] [--store redis|cluster] [--json]`:
+// Redis bytes per session by conversation length and by tier. Each session gets its exchanges (a user
+// message and the bot's reply) through tidemark's own write path on the Redis store, then MEMORY USAGE
+// is read per key: meta, slots (working memory), events, logbook entries (every turn kept, plus
+// demoted values) and the logbook's index (the arrival log readers fetch by). The logbook is set
+// beside the raw UTF-8 bytes of the turns it keeps. Commands never time out here (a 5,000-exchange
+// session is a long run, not an outage), and every key is deleted afterwards, on error or Ctrl-C too.
+
+import { createTidemark } from '../src/middleware/tidemark.js';
+import type { RedisStore } from '../adapters/redis/index.js';
+import { loadAverage, openBackend, scripts, type StoreKind } from './load.js';
+import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
+import { asciiTable, lineChart, writeResult } from './lib/results.js';
+import { parseArgs, percentile, round } from './lib/stats.js';
+
+/** Per key, mean bytes per session (MEMORY USAGE, SAMPLES 0 = every element). */
+export interface MemoryPoint {
+  exchanges: number;
+  sessions: number;
+  messages_kept: number;
+  raw_text_bytes: number;
+  bytes: { meta: number; slots: number; events: number; logbook_entries: number; logbook_index: number; total: number };
+  /** (logbook entries + index) / raw UTF-8 bytes of the turns kept; the target is ≤ 1.5. */
+  logbook_ratio: number;
+  seconds: number;
+}
+
+const MEMORY_OF = `local s = 0
+for i = 1, #KEYS do
+  local m = redis.call('MEMORY', 'USAGE', KEYS[i], 'SAMPLES', '0')
+  if m then s = s + m end
+end
+return s`;
+
+export default async function main(argv: string[]): Promise<void> {
+  const args = parseArgs(argv);
+  const kind = (args.values.get('store') ?? 'redis') as StoreKind;
+  if (kind !== 'redis' && kind !== 'cluster') throw new RangeError(`--store must be redis or cluster, got ${kind}`);
+  const lengths = (args.values.get('lengths') ?? '10,200,1000,2000,5000').split(',').map(Number);
+  if (lengths.some((n) => !Number.isInteger(n) || n < 1)) throw new RangeError(`--lengths must be positive integers, got ${args.values.get('lengths')}`);
+  const sessions = Number(args.values.get('sessions') ?? 4);
+  const longSessions = Number(args.values.get('long-sessions') ?? 1);
+  const longFrom = Number(args.values.get('long-from') ?? 2000);
+  const capacity = Number(args.values.get('capacity') ?? 64);
+  const json = args.flags.has('json');
+  const redisUrl = args.values.get('redis') ?? process.env.REDIS_URL ?? 'redis://127.0.0.1:6379';
+  const backend = await openBackend(kind, redisUrl, false, {
+    commandTimeoutMs: 0,
+    ...(args.values.has('cluster-seeds') ? { clusterSeeds: args.values.get('cluster-seeds')! } : {}),
+  });
+  const client = backend.client!;
+  const prefixes: string[] = [];
+  const used: string[] = [];
+  let cleaned = 0;
+  const cleanup = async (): Promise<void> => {
+    for (const p of prefixes.splice(0)) cleaned += await backend.cleanup(p);
+  };
+  const onSignal = (): void => {
+    void cleanup().finally(() => process.exit(130));
+  };
+  process.once('SIGINT', onSignal);
+  process.once('SIGTERM', onSignal);
+  const points: MemoryPoint[] = [];
+  let leftover = -1;
+  const info0 = await snapshot(client);
+  let info: InfoDelta[] = [];
+  try {
+    for (const n of lengths) {
+      const count = n >= longFrom ? longSessions : sessions;
+      const { store, prefix } = await backend.open();
+      prefixes.push(prefix!);
+      used.push(prefix!);
+      const tm = createTidemark({ store, tenant: 'bench', capacity, secret: 'memory-bench' });
+      const convo = scripts(count, n, 31);
+      let raw = 0;
+      const t0 = performance.now();
+      await Promise.all(
+        convo.map(async (sc, i) => {
+          for (let t = 0; t < n; t++) {
+            const user = sc.user[t % sc.user.length]!;
+            const reply = sc.reply[t % sc.reply.length]!;
+            raw += Buffer.byteLength(user) + Buffer.byteLength(reply);
+            await tm.write([{ session: `m${i}`, text: user }, { session: `m${i}`, text: reply, role: 'assistant' }]);
+          }
+        }),
+      );
+      await tm.flush();
+      const seconds = (performance.now() - t0) / 1000;
+      const rs = store as RedisStore;
+      const sum = { meta: 0, slots: 0, events: 0, logbook_entries: 0, logbook_index: 0 };
+      let kept = 0;
+      for (let i = 0; i < count; i++) {
+        const k = rs.sessionKeys('bench', `m${i}`);
+        const usage = async (...keys: string[]): Promise<number> => Number(await client.eval(MEMORY_OF, keys.length, ...keys));
+        sum.meta += await usage(k.meta);
+        sum.slots += await usage(k.slots);
+        sum.events += await usage(k.events);
+        sum.logbook_entries += await usage(k.arch, k.uarch);
+        sum.logbook_index += await usage(k.alog, k.ualog);
+        kept += (await client.hlen(k.arch)) + (await client.hlen(k.uarch));
+      }
+      await tm.close();
+      const per = (x: number): number => Math.round(x / count);
+      const bytes = { meta: per(sum.meta), slots: per(sum.slots), events: per(sum.events), logbook_entries: per(sum.logbook_entries), logbook_index: per(sum.logbook_index), total: 0 };
+      bytes.total = bytes.meta + bytes.slots + bytes.events + bytes.logbook_entries + bytes.logbook_index;
+      points.push({
+        exchanges: n, sessions: count, messages_kept: per(kept), raw_text_bytes: per(raw), bytes,
+        logbook_ratio: round((bytes.logbook_entries + bytes.logbook_index) / Math.max(1, per(raw)), 2), seconds: round(seconds, 1),
+      });
+      await cleanup();
+      if (!json) console.error(`  ${n} exchanges x ${count} sessions: ${round(bytes.total / 1024, 1)} KB per session (${round(seconds, 1)} s)`);
+    }
+  } finally {
+    process.off('SIGINT', onSignal);
+    process.off('SIGTERM', onSignal);
+    await cleanup();
+    // What is left under the run's prefixes (must be 0).
+    leftover = 0;
+    for (const p of used) leftover += await countPrefix(client, p);
+  }
+  // Over the whole sweep, per exchange written (writes only: this run never reads).
+  info = deltaOf(info0, await snapshot(client), points.reduce((a, p) => a + p.exchanges * p.sessions, 0));
+  const versions = await redisVersions(client);
+  await backend.close();
+
+  console.log(`Redis bytes per session by length (${kind}, ${capacity} slots; MEMORY USAGE per key, mean over the sessions of each point; an exchange = a user message + the reply)`);
+  console.log(asciiTable(
+    ['exchanges', 'sessions', 'kept', 'raw text B', 'meta', 'slots', 'events', 'logbook entries', 'logbook index', 'total KB', 'logbook / raw'],
+    points.map((p) => [p.exchanges, p.sessions, p.messages_kept, p.raw_text_bytes, p.bytes.meta, p.bytes.slots, p.bytes.events, p.bytes.logbook_entries, p.bytes.logbook_index, round(p.bytes.total / 1024, 1), p.logbook_ratio]),
+  ));
+  const mean = percentile(points.map((p) => p.raw_text_bytes / Math.max(1, p.messages_kept)), 50);
+  console.log(`keys deleted afterwards: ${cleaned}, keys left: ${leftover}; mean text per kept message ≈ ${round(mean, 1)} B; target logbook / raw ≤ 1.5`);
+  console.log(describeDeltas(info));
+  const out = { store: kind, capacity, points, keys_deleted: cleaned, keys_left: leftover, redis_info: info, redis_per_write: totalPerTurn(info), load: loadAverage() };
+  const xs = points.map((p) => p.exchanges);
+  const svg = lineChart({
+    title: `Redis bytes per session by length (${kind})`, xLabel: 'exchanges per session', yLabel: 'bytes per session', logX: true, logY: true,
+    series: (['slots', 'events', 'logbook_entries', 'logbook_index', 'total'] as const).map((k) => ({ name: k.replace('_', ' '), x: xs, y: points.map((p) => Math.max(1, p.bytes[k])) })),
+  });
+  const paths = writeResult(`memory-${kind}`, out, svg, ['memory', ...argv], { redis: versions });
+  console.log(`wrote ${paths.json} and ${paths.svg}`);
+  if (json) console.log(JSON.stringify(out));
+}
+
+async function countPrefix(client: NonNullable<Awaited<ReturnType<typeof openBackend>>['client']>, prefix: string): Promise<number> {
+  const nodes = client.isCluster ? (client as import('ioredis').Cluster).nodes('master') : [client as import('ioredis').Redis];
+  let n = 0;
+  for (const node of nodes) {
+    let cursor = '0';
+    do {
+      const [next, keys] = await node.scan(cursor, 'MATCH', `${prefix}*`, 'COUNT', 1000);
+      cursor = next;
+      n += keys.length;
+    } while (cursor !== '0');
+  }
+  return n;
+}
