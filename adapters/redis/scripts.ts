@@ -32,7 +32,7 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  * Commit one turn in one round trip: check the version, apply slot ops, add logbook entries, apply
  * the retention policy to the logbook slice written, append events (capped), bump the version,
  * refresh the idle TTL.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, [stats] (the store-wide counters; standalone only).
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
  *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 retention: max entries per
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
@@ -53,6 +53,7 @@ local rc = m[5] or ''
 local _, hit = string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true)
 if hit then return {2, tonumber(string.match(' ' .. rc, '^%d+', hit + 1)), m[2] or ''} end
 if v ~= tonumber(ARGV[1]) then return {0, v, m[2] or ''} end
+local statS0 = m[1] and redis.call('HLEN', KEYS[2]) or 0 -- [stats] slots before this commit
 local ep = m[2]
 if not m[1] then
   -- A new session (or one erased or expired) starts from nothing, whatever a partial state left behind.
@@ -85,6 +86,7 @@ if ARGV[8] ~= '' then
 end
 local h, log, headf = KEYS[4], KEYS[6], 'ah'
 if ARGV[8] ~= '' then h, log, headf = KEYS[5], KEYS[7], 'auh' end
+local statL0 = redis.call('HLEN', h) -- [stats] logbook entries of the slice before this commit
 for i = 1, nlb do
   -- An id already present is replaced in place (a resent turn); only a new one joins the log.
   if redis.call('HSET', h, ARGV[a], ARGV[a + 2]) == 1 then redis.call('RPUSH', log, ARGV[a + 1] .. ':' .. ARGV[a]) end
@@ -139,6 +141,12 @@ local ttl = tonumber(ARGV[9])
 for i = 1, 7 do
   if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
 end
+-- [stats] Store-wide counters (KEYS[8], standalone Redis only: on Cluster it would cross hash slots).
+if KEYS[8] then
+  if not m[1] then redis.call('HINCRBY', KEYS[8], 'sessions', 1) end
+  redis.call('HINCRBY', KEYS[8], 'slots', redis.call('HLEN', KEYS[2]) - statS0)
+  redis.call('HINCRBY', KEYS[8], 'logbook', redis.call('HLEN', h) - statL0)
+end
 return {1, v + 1, ep, dropAge, dropCount}
 `);
 
@@ -183,7 +191,7 @@ return {ep, head, stop, mode, els, vals}
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
  * O(log length): deletes are rare (a promotion, an edit), never per turn.
- * KEYS: meta, hash, log. ARGV: epoch field, new epoch, ids... Reply: number removed.
+ * KEYS: meta, hash, log, [stats]. ARGV: epoch field, new epoch, ids... Reply: number removed.
  */
 export const LOG_DELETE = script('log_delete', 3, `
 local want, n = {}, 0
@@ -194,6 +202,7 @@ for i = 3, #ARGV do
   end
 end
 if n == 0 then return 0 end
+if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', -n) end -- [stats]
 for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
   local id = string.match(e, '^%-?%d+:(.*)$') or e
   if want[id] then redis.call('LREM', KEYS[3], 1, e) end
@@ -204,7 +213,7 @@ return n
 
 /**
  * Erase one session: count, then delete every key.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog. Reply: {existed, slots, logbook entries, events, user or ''}.
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, [stats]. Reply: {existed, slots, logbook entries, events, user or ''}.
  */
 export const ERASE = script('erase', 7, `
 local existed = redis.call('EXISTS', KEYS[1])
@@ -213,5 +222,10 @@ local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
 redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7])
+if KEYS[8] then -- [stats]
+  redis.call('HINCRBY', KEYS[8], 'sessions', -existed)
+  redis.call('HINCRBY', KEYS[8], 'slots', -slots)
+  redis.call('HINCRBY', KEYS[8], 'logbook', -items)
+end
 return {existed, slots, items, events, user}
 `);

@@ -10,7 +10,7 @@ import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type Logbook
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from './store.js';
 
 export interface InProcessStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
@@ -69,6 +69,8 @@ export class InProcessStore implements Store {
   private readonly o: InProcessStoreOptions & typeof IN_PROCESS_STORE_DEFAULTS;
   private dirty = false;
   private timer: NodeJS.Timeout | undefined;
+  /** Published dashboard buckets by instance (one process: usually one entry). */
+  private readonly fleet = new Map<string, FleetRecord & { expiresMs: number }>();
 
   constructor(options: InProcessStoreOptions = {}) {
     this.o = { ...IN_PROCESS_STORE_DEFAULTS, ...options };
@@ -208,6 +210,32 @@ export class InProcessStore implements Store {
     for (const key of this.sessions.keys()) {
       if (key.startsWith(prefix)) out.push(key.slice(prefix.length));
       if (out.length >= limit) break;
+    }
+    return out;
+  }
+
+  async ping(): Promise<void> {}
+
+  /** Exact: counted from the maps under the same single thread that commits. */
+  async stats(): Promise<StoreStats> {
+    let slots = 0;
+    for (const e of this.sessions.values()) slots += e.table.count();
+    let logbookEntries = 0;
+    for (const index of this.logbooks.values()) logbookEntries += index.size;
+    return { sessions: this.sessions.size, slots, logbookEntries, source: 'counters' };
+  }
+
+  async putFleet(instance: string, payload: string, ttlMs: number): Promise<void> {
+    const atMs = Date.now();
+    this.fleet.set(instance, { instance, atMs, payload, expiresMs: atMs + ttlMs });
+  }
+
+  async listFleet(): Promise<FleetRecord[]> {
+    const now = Date.now();
+    const out: FleetRecord[] = [];
+    for (const [k, r] of this.fleet) {
+      if (r.expiresMs < now) this.fleet.delete(k);
+      else out.push({ instance: r.instance, atMs: r.atMs, payload: r.payload });
     }
     return out;
   }
