@@ -115,7 +115,7 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
   let closing: Promise<void> | null = null;
   const url = `http://${shownHost}:${addr.port}`;
   // Startup says whether the store answered, and never carries a secret, a token or a password.
-  await Promise.race([firstAnswer, new Promise((r) => setTimeout(r, 1500).unref())]);
+  await Promise.race([firstAnswer, new Promise((r) => setTimeout(r, 3500).unref())]);
   const h = health.state;
   log?.({
     level: h.up ? 'info' : 'warn',

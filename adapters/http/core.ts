@@ -206,6 +206,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
   const instance = options.instance ?? `${hostname()}:${process.pid}`;
   const startedMs = Date.now();
   const fleet = new FleetView({ instance, store: tm.store, collector, ...(health ? { health } : {}), outboxDepth: () => tm.outboxDepth });
+  fleet.start(o.feedIntervalMs);
   const metricsPromise: Promise<PrometheusMetrics> | null = options.metrics ? Promise.resolve(options.metrics) : ownMetrics ? prometheusMetrics(tm, health ? { health } : {}) : null;
   metricsPromise?.catch(() => undefined);
   const feeds = new Set<AbortController>();
@@ -525,6 +526,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     close() {
       for (const f of feeds) f.abort();
       if (ownHealth) health?.stop();
+      fleet.stop();
       detachCollector();
       if (ownMetrics && metricsPromise) void metricsPromise.then((m) => m.stop(), () => undefined);
     },

@@ -49,8 +49,48 @@ export class FleetView {
     this.o = { liveMs: 10_000, ...options };
   }
 
+  private timer: NodeJS.Timeout | undefined;
+
   get instance(): string {
     return this.o.instance;
+  }
+
+  /**
+   * Publishes this process's buckets every `intervalMs` whether or not anyone watches, so the other
+   * processes' dashboards (and this one's after a restart) have them.
+   */
+  start(intervalMs: number): void {
+    if (this.timer) return;
+    this.timer = setInterval(() => void this.publish().catch(() => undefined), intervalMs);
+    this.timer.unref();
+  }
+
+  stop(): void {
+    if (this.timer) clearInterval(this.timer);
+    this.timer = undefined;
+  }
+
+  /** Writes this process's record to the store (skipped while the store is known to be down). */
+  async publish(nowMs = Date.now()): Promise<FleetPayload> {
+    const { store, collector, instance } = this.o;
+    const health = this.o.health?.state ?? null;
+    await this.seed();
+    const own: FleetPayload = { v: 1, bucketMs: collector.bucketMs, rows: collector.exportBuckets(nowMs), outboxDepth: this.o.outboxDepth?.() ?? 0, storeUp: health?.up ?? null };
+    if (health?.up !== false && store.putFleet) await store.putFleet(instance, JSON.stringify(own), collector.windowMs);
+    return own;
+  }
+
+  /** Takes back what this instance published before a restart (once). */
+  private async seed(): Promise<void> {
+    const { store, collector, instance } = this.o;
+    if (this.seeded || this.o.health?.state.up === false || !store.listFleet) return;
+    try {
+      const mine = (await store.listFleet()).find((r) => r.instance === instance);
+      if (mine) collector.importBuckets((JSON.parse(mine.payload) as FleetPayload).rows ?? []);
+      this.seeded = true;
+    } catch {
+      // The store is not answering; try again next time.
+    }
   }
 
   /**
@@ -58,7 +98,9 @@ export class FleetView {
    * tab, `/dashboard/data`) share one build.
    */
   shared(maxAgeMs: number, nowMs = Date.now()): Promise<DashboardSnapshot> {
-    if (this.latest && nowMs - this.latest.atMs < maxAgeMs) return Promise.resolve(this.latest);
+    // A change of store health since the last build is news the page must not wait a tick for.
+    const changed = this.o.health !== undefined && this.latest !== null && this.o.health.state.sinceMs > this.latest.atMs;
+    if (this.latest && nowMs - this.latest.atMs < maxAgeMs && !changed) return Promise.resolve(this.latest);
     return (this.building ??= this.build(nowMs).finally(() => (this.building = null)));
   }
 
@@ -67,21 +109,12 @@ export class FleetView {
     const { store, collector, instance } = this.o;
     const health = this.o.health?.state ?? null;
     const reachable = health?.up !== false;
-    if (!this.seeded && reachable && store.listFleet) {
-      // Take back what this instance published before a restart.
-      try {
-        const mine = (await store.listFleet()).find((r) => r.instance === instance);
-        if (mine) collector.importBuckets((JSON.parse(mine.payload) as FleetPayload).rows ?? []);
-        this.seeded = true;
-      } catch {
-        // The store is not answering; try again next tick.
-      }
-    }
+    await this.seed();
     const snap = collector.snapshot(nowMs);
-    const own: FleetPayload = { v: 1, bucketMs: collector.bucketMs, rows: collector.exportBuckets(nowMs), outboxDepth: this.o.outboxDepth?.() ?? 0, storeUp: health?.up ?? null };
+    let own: FleetPayload = { v: 1, bucketMs: collector.bucketMs, rows: collector.exportBuckets(nowMs), outboxDepth: this.o.outboxDepth?.() ?? 0, storeUp: health?.up ?? null };
     if (reachable && store.putFleet && store.listFleet) {
       try {
-        await store.putFleet(instance, JSON.stringify(own), collector.windowMs);
+        own = await this.publish(nowMs);
         const records = await store.listFleet();
         this.last = [];
         for (const r of records) {

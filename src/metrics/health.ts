@@ -12,11 +12,16 @@ export interface StoreHealthOptions {
   intervalMs?: number;
   /** A probe slower than this counts as a failure. @default 500 */
   timeoutMs?: number;
+  /**
+   * The first probe's limit: it may have to wait for the connection itself (Redis: `connectTimeout`,
+   * 1 s, plus a slow start). A refused connection still fails it at once. @default 3000
+   */
+  firstTimeoutMs?: number;
   /** Clock, for tests. @default Date.now */
   now?: () => number;
 }
 
-export const STORE_HEALTH_DEFAULTS = { intervalMs: 250, timeoutMs: 500 } as const;
+export const STORE_HEALTH_DEFAULTS = { intervalMs: 250, timeoutMs: 500, firstTimeoutMs: 3000 } as const;
 
 export interface StoreHealthState {
   /** The store's short name (`memory`, `redis`, `cluster`). */
@@ -58,12 +63,12 @@ export class StoreHealth {
 
   constructor(store: Store, options: StoreHealthOptions = {}) {
     const o = { ...STORE_HEALTH_DEFAULTS, ...options };
-    for (const name of ['intervalMs', 'timeoutMs'] as const) {
+    for (const name of ['intervalMs', 'timeoutMs', 'firstTimeoutMs'] as const) {
       if (!Number.isFinite(o[name]) || o[name] <= 0) {
         throw new ConfigError(`store health: ${name} must be a positive number of ms, got ${String(o[name])}`, { details: { option: name, value: o[name] } });
       }
     }
-    this.o = { intervalMs: o.intervalMs, timeoutMs: o.timeoutMs };
+    this.o = { intervalMs: o.intervalMs, timeoutMs: o.timeoutMs, firstTimeoutMs: o.firstTimeoutMs };
     this.now = options.now ?? Date.now;
     this.probe = probeOf(store);
     this.s = { store: store.name, up: null, sinceMs: this.now(), lastSuccessMs: null, cause: null };
@@ -109,11 +114,12 @@ export class StoreHealth {
     if (this.inFlight) return;
     this.inFlight = true;
     let timer: NodeJS.Timeout | undefined;
+    const limit = this.s.up === null ? this.o.firstTimeoutMs : this.o.timeoutMs;
     try {
       await Promise.race([
         this.probe(),
         new Promise((_, reject) => {
-          timer = setTimeout(() => reject(new Error(`no answer within ${this.o.timeoutMs} ms`)), this.o.timeoutMs);
+          timer = setTimeout(() => reject(new Error(`no answer within ${limit} ms`)), limit);
         }),
       ]);
       this.succeeded();
