@@ -142,6 +142,18 @@ interface Bucket {
   latency: Record<LatencyKind, RecordableHistogram | null>;
 }
 
+/** Latencies are kept up to 10 min in µs; longer ones are recorded as 10 min. */
+const HIST_HIGHEST_US = 600_000_000;
+
+/**
+ * A latency histogram sized for what it holds: 1 µs to 10 min at 3 significant digits. Node's default
+ * range (up to 2^53) allocates and walks a counts array of about 90,000 cells per histogram, which
+ * made every snapshot cost milliseconds (bench/feed.ts).
+ */
+function newHistogram(): RecordableHistogram {
+  return createHistogram({ lowest: 1, highest: HIST_HIGHEST_US, figures: 3 });
+}
+
 function zeros<K extends string>(keys: readonly K[]): Record<K, number> {
   const o = {} as Record<K, number>;
   for (const k of keys) o[k] = 0;
@@ -240,7 +252,7 @@ export class DashboardCollector {
       LATENCY_KINDS.map((k) => [k, { p50: [] as Array<number | null>, p95: [] as Array<number | null>, p99: [] as Array<number | null> }]),
     ) as DashboardSnapshot['latency'];
     const totals = { reads: zeros(READ_RESULTS), writes: zeros(WRITE_OUTCOMES), evictions: zeros(EVICT_REASONS), outbox: zeros(OUTBOX_CHANGES) };
-    const merged = Object.fromEntries(LATENCY_KINDS.map((k) => [k, createHistogram()])) as Record<LatencyKind, RecordableHistogram>;
+    const merged = Object.fromEntries(LATENCY_KINDS.map((k) => [k, newHistogram()])) as Record<LatencyKind, RecordableHistogram>;
 
     for (let k = first; k <= last; k++) {
       t.push(k * bucketMs);
@@ -377,9 +389,9 @@ export class DashboardCollector {
 
   private latency(b: Bucket, kind: LatencyKind, durationUs: number): void {
     if (!Number.isFinite(durationUs) || durationUs < 0) return;
-    const h = (b.latency[kind] ??= createHistogram());
-    // RecordableHistogram takes integers ≥ 1.
-    h.record(Math.max(1, Math.round(durationUs)));
+    const h = (b.latency[kind] ??= newHistogram());
+    // RecordableHistogram takes integers in [1, highest].
+    h.record(Math.min(HIST_HIGHEST_US, Math.max(1, Math.round(durationUs))));
   }
 
   private session(hash: string, atMs: number, slotsInUse: number, capacity: number): SessionActivity {
