@@ -203,6 +203,11 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
   const ownHealth = options.health === undefined;
   const health = options.health === false ? null : (options.health ?? new StoreHealth(tm.store));
   if (ownHealth && health) void health.start(tm);
+  // The store is back: drain the outbox now rather than at its next backoff retry (up to tens of
+  // seconds away after a long outage), so readers of those sessions see their writes sooner.
+  const offDrain = health?.onChange((now, before) => {
+    if (now.up === true && before.up === false) void tm.flush({ timeoutMs: 60_000 }).catch(() => undefined);
+  });
   const instance = options.instance ?? `${hostname()}:${process.pid}`;
   const startedMs = Date.now();
   const fleet = new FleetView({ instance, store: tm.store, collector, ...(health ? { health } : {}), outboxDepth: () => tm.outboxDepth });
@@ -526,6 +531,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     close() {
       for (const f of feeds) f.abort();
       if (ownHealth) health?.stop();
+      offDrain?.();
       fleet.stop();
       detachCollector();
       if (ownMetrics && metricsPromise) void metricsPromise.then((m) => m.stop(), () => undefined);
