@@ -202,7 +202,7 @@ for i = 3, #ARGV do
   end
 end
 if n == 0 then return 0 end
-if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', -n) end -- [stats]
+if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', 0 - n) end -- [stats]
 for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
   local id = string.match(e, '^%-?%d+:(.*)$') or e
   if want[id] then redis.call('LREM', KEYS[3], 1, e) end
@@ -222,10 +222,10 @@ local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
 redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7])
-if KEYS[8] then -- [stats]
-  redis.call('HINCRBY', KEYS[8], 'sessions', -existed)
-  redis.call('HINCRBY', KEYS[8], 'slots', -slots)
-  redis.call('HINCRBY', KEYS[8], 'logbook', -items)
+if KEYS[8] then -- [stats] (0 - x, not -x: Lua's -0 reaches Redis as "-0", which HINCRBY refuses)
+  redis.call('HINCRBY', KEYS[8], 'sessions', 0 - existed)
+  redis.call('HINCRBY', KEYS[8], 'slots', 0 - slots)
+  redis.call('HINCRBY', KEYS[8], 'logbook', 0 - items)
 end
 return {existed, slots, items, events, user}
 `);

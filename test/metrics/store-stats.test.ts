@@ -35,6 +35,8 @@ async function drive(store: Store): Promise<string[]> {
     await tm.write({ session, text: FACTS[i % FACTS.length]!, role: 'user' });
   }
   await tm.erase({ session: 'bk-2' });
+  // Erasing a session that holds nothing must leave the figures alone (and not fail).
+  await tm.erase({ session: 'bk-never-seen' });
   await tm.flush();
   return sessions;
 }
