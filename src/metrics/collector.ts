@@ -302,7 +302,9 @@ export class DashboardCollector {
       .sort((a, b) => b.reads + b.writes - (a.reads + a.writes) || b.lastMs - a.lastMs)
       .slice(0, this.o.topSessions)
       .map((s) => ({ ...s }));
-    const ret = this.retention.snapshot(nowMs);
+    // Grouped curves: the cost follows distinct lifetimes and live slots, not every slot ever seen.
+    const curves = this.retention.curves(nowMs);
+    const ret = { clock: curves.clock, seconds: curves.seconds, alive: this.retention.aliveCount, halfLife: this.retention.halfLives(nowMs) };
     const curve = (c: RetentionSnapshot['clock']) => ({ steps: downsample(c.steps, CURVE_POINTS), median: c.median, n: c.n, events: c.events, censored: c.censored });
 
     return {
