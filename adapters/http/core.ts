@@ -210,7 +210,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
   });
   const instance = options.instance ?? `${hostname()}:${process.pid}`;
   const startedMs = Date.now();
-  const fleet = new FleetView({ instance, store: tm.store, collector, ...(health ? { health } : {}), outboxDepth: () => tm.outboxDepth });
+  const fleet = new FleetView({ instance, store: tm.store, tenant: tm.tenant, collector, ...(health ? { health } : {}), outboxDepth: () => tm.outboxDepth });
   fleet.start(o.feedIntervalMs);
   const metricsPromise: Promise<PrometheusMetrics> | null = options.metrics ? Promise.resolve(options.metrics) : ownMetrics ? prometheusMetrics(tm, health ? { health } : {}) : null;
   metricsPromise?.catch(() => undefined);

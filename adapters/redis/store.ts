@@ -15,7 +15,7 @@ import type { CommitRequest, CommitResult, EraseReport, EraseTarget, FleetRecord
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
-import { KeySpace, escapeGlob, type SessionKeys } from './keys.js';
+import { KeySpace, type SessionKeys } from './keys.js';
 import { COMMIT, ERASE, LOAD, LOG_DELETE, LOG_FETCH, type LuaScript } from './scripts.js';
 
 export interface RedisStoreOptions {
@@ -241,7 +241,7 @@ export class RedisStore implements Store {
           this.linked.add(lk);
         }
       }
-      reply = await this.counted(c, COMMIT, k.all, args);
+      reply = await this.counted(c, ref.tenant, COMMIT, k.all, args);
     } catch (err) {
       throw unavailable('commit', err);
     }
@@ -279,7 +279,7 @@ export class RedisStore implements Store {
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
-          return this.counted(c, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
+          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
         }),
       );
       return counts.reduce<number>((sum, n) => sum + Number(n), 0);
@@ -325,7 +325,7 @@ export class RedisStore implements Store {
       }
       for (const s of sessions) {
         const k = this.keys.session(target.tenant, s);
-        const r = (await this.counted(c, ERASE, k.all, [])) as unknown[];
+        const r = (await this.counted(c, target.tenant, ERASE, k.all, [])) as unknown[];
         report.sessions += Number(r[0]);
         report.slots += Number(r[1]);
         report.logbookEntries += Number(r[2]);
@@ -366,18 +366,21 @@ export class RedisStore implements Store {
 
   // ---------------------------------------------------------------- operator figures (stats, fleet)
 
-  /** The store-wide counters hash (standalone Redis only) and the fleet hash. */
-  private get statsKey(): string {
-    return `${this.o.prefix}stats`;
+  /**
+   * A tenant's counters hash (standalone Redis only) and fleet hash, under the tenant's own hash tag with
+   * an empty session (`prefix{tenant:}:stats`), which no session key can take (ids are 1+ characters).
+   */
+  private statsKey(tenant: string): string {
+    return `${this.keys.sessionBase(tenant, '')}:stats`;
   }
-  private get fleetKey(): string {
-    return `${this.o.prefix}fleet`;
+  private fleetKey(tenant: string): string {
+    return `${this.keys.sessionBase(tenant, '')}:fleet`;
   }
 
-  /** Runs a script with the counters key appended when the server is a single Redis (see scripts.ts, [stats]). */
-  private counted(c: RedisClient, s: LuaScript, keys: readonly string[], args: readonly (string | Buffer | number)[]): Promise<unknown> {
+  /** Runs a script with the tenant's counters key appended when the server is a single Redis (see scripts.ts, [stats]). */
+  private counted(c: RedisClient, tenant: string, s: LuaScript, keys: readonly string[], args: readonly (string | Buffer | number)[]): Promise<unknown> {
     if (isCluster(c)) return runScript(c, s, keys, args);
-    return runScript(c, { ...s, keys: s.keys + 1 }, [...keys, this.statsKey], args);
+    return runScript(c, { ...s, keys: s.keys + 1 }, [...keys, this.statsKey(tenant)], args);
   }
 
   async ping(): Promise<void> {
@@ -394,18 +397,18 @@ export class RedisStore implements Store {
    * slots, so the figures are counted by SCAN over the masters (O(sessions); `source: 'scan'`).
    * Sessions that expire by `idleTtlSeconds` leave the counters without a script seeing them.
    */
-  async stats(): Promise<StoreStats> {
+  async stats(tenant: string): Promise<StoreStats> {
     try {
       const c = await this.conn('stats');
       if (!isCluster(c)) {
-        const [sessions, slots, logbook] = await c.hmget(this.statsKey, 'sessions', 'slots', 'logbook');
+        const [sessions, slots, logbook] = await c.hmget(this.statsKey(tenant), 'sessions', 'slots', 'logbook');
         return { sessions: Number(sessions ?? 0), slots: Number(slots ?? 0), logbookEntries: Number(logbook ?? 0), source: 'counters' };
       }
       const out: StoreStats = { sessions: 0, slots: 0, logbookEntries: 0, source: 'scan' };
       for (const node of c.nodes('master')) {
         let cursor = '0';
         do {
-          const [next, keys] = await node.scan(cursor, 'MATCH', `${escapeGlob(this.o.prefix)}{*}:meta`, 'COUNT', 1000);
+          const [next, keys] = await node.scan(cursor, 'MATCH', this.keys.metaPattern(tenant), 'COUNT', 1000);
           cursor = next;
           for (const meta of keys) {
             const base = meta.slice(0, -':meta'.length);
@@ -422,20 +425,20 @@ export class RedisStore implements Store {
     }
   }
 
-  async putFleet(instance: string, payload: string, ttlMs: number): Promise<void> {
+  async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
     try {
       const c = await this.conn('putFleet');
       const rec = JSON.stringify({ atMs: Date.now(), ttlMs, payload });
-      await c.hset(this.fleetKey, instance, rec);
+      await c.hset(this.fleetKey(tenant), instance, rec);
     } catch (err) {
       throw unavailable('putFleet', err);
     }
   }
 
-  async listFleet(): Promise<FleetRecord[]> {
+  async listFleet(tenant: string): Promise<FleetRecord[]> {
     try {
       const c = await this.conn('listFleet');
-      const all = await c.hgetall(this.fleetKey);
+      const all = await c.hgetall(this.fleetKey(tenant));
       const now = Date.now();
       const out: FleetRecord[] = [];
       const stale: string[] = [];
@@ -448,7 +451,7 @@ export class RedisStore implements Store {
           stale.push(instance);
         }
       }
-      if (stale.length > 0) await c.hdel(this.fleetKey, ...stale);
+      if (stale.length > 0) await c.hdel(this.fleetKey(tenant), ...stale);
       return out;
     } catch (err) {
       throw unavailable('listFleet', err);

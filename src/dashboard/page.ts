@@ -247,6 +247,7 @@ const SCRIPT = String.raw`
     bt.setAttribute('data-live', String(s.busiest.length));
     bt.querySelector('.chart').innerHTML = s.busiest.length ? '<table><tr><th>session</th><th class="n">reads</th><th class="n">hit</th><th class="n">writes</th><th class="n">slots</th><th class="n">idle</th></tr>' + rows + '</table>' : '<div class="empty">waiting for traffic…</div>';
     document.body.setAttribute('data-updated', String(s.atMs));
+    tick();
   }
   // The outage banner names the store and how long it has been down; a page that stopped updating
   // says so and greys its figures out, so nobody reads old numbers as current.

@@ -12,6 +12,8 @@ export interface FleetViewOptions {
   /** This process's name in the fleet (shown in the page's header); stable across restarts to keep its history. */
   instance: string;
   store: Store;
+  /** The tenant whose figures and fleet records the view reads. @default 'default' */
+  tenant?: string;
   collector: DashboardCollector;
   health?: StoreHealth;
   /** Writes waiting in this process's outbox. */
@@ -46,7 +48,7 @@ export class FleetView {
   private latest: DashboardSnapshot | null = null;
 
   constructor(options: FleetViewOptions) {
-    this.o = { liveMs: 10_000, ...options };
+    this.o = { liveMs: 10_000, tenant: 'default', ...options };
   }
 
   private timer: NodeJS.Timeout | undefined;
@@ -76,7 +78,7 @@ export class FleetView {
     const health = this.o.health?.state ?? null;
     await this.seed();
     const own: FleetPayload = { v: 1, bucketMs: collector.bucketMs, rows: collector.exportBuckets(nowMs), outboxDepth: this.o.outboxDepth?.() ?? 0, storeUp: health?.up ?? null };
-    if (health?.up !== false && store.putFleet) await store.putFleet(instance, JSON.stringify(own), collector.windowMs);
+    if (health?.up !== false && store.putFleet) await store.putFleet(this.o.tenant, instance, JSON.stringify(own), collector.windowMs);
     return own;
   }
 
@@ -85,7 +87,7 @@ export class FleetView {
     const { store, collector, instance } = this.o;
     if (this.seeded || this.o.health?.state.up === false || !store.listFleet) return;
     try {
-      const mine = (await store.listFleet()).find((r) => r.instance === instance);
+      const mine = (await store.listFleet(this.o.tenant)).find((r) => r.instance === instance);
       if (mine) collector.importBuckets((JSON.parse(mine.payload) as FleetPayload).rows ?? []);
       this.seeded = true;
     } catch {
@@ -115,7 +117,7 @@ export class FleetView {
     if (reachable && store.putFleet && store.listFleet) {
       try {
         own = await this.publish(nowMs);
-        const records = await store.listFleet();
+        const records = await store.listFleet(this.o.tenant);
         this.last = [];
         for (const r of records) {
           if (r.instance === instance) continue;
@@ -132,7 +134,7 @@ export class FleetView {
     }
     if (reachable && store.stats) {
       try {
-        this.lastFigures = { ...(await store.stats()), atMs: nowMs };
+        this.lastFigures = { ...(await store.stats(this.o.tenant)), atMs: nowMs };
       } catch {
         // Shown as unknown below.
       }

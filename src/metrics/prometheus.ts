@@ -63,6 +63,7 @@ export const PROMETHEUS_METRICS_DEFAULTS = {
 export type MetricsSource = TidemarkEventSource & {
   readonly outboxDepth?: number;
   readonly store?: Store;
+  readonly tenant?: string;
   readonly params?: { readonly decayUnit?: 'turns' | 'seconds' };
 };
 
@@ -229,7 +230,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     let pending: Promise<void> | null = null;
     let figures: { sessions: number; slots: number; logbookEntries: number } | null = null;
     const refresh = (): Promise<void> =>
-      (pending ??= store.stats!().then(
+      (pending ??= store.stats!(tm.tenant ?? 'default').then(
         (f) => void (figures = f),
         () => void (figures = null),
       ).finally(() => setImmediate(() => (pending = null))));
@@ -244,7 +245,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
           else this.reset();
         },
       }) as unknown as { name: string };
-    all.push(figure('store_sessions', 'Sessions holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
+    all.push(figure('store_sessions', 'Sessions of this tenant holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
     all.push(figure('store_slots', 'Slots in use over every session in the store (the store\'s own count; aggregate with max()).', (f) => f.slots));
     all.push(figure('store_logbook_entries', 'Long-term (logbook) entries over every scope in the store (the store\'s own count; aggregate with max()).', (f) => f.logbookEntries));
   }

@@ -217,25 +217,30 @@ export class InProcessStore implements Store {
   async ping(): Promise<void> {}
 
   /** Exact: counted from the maps under the same single thread that commits. */
-  async stats(): Promise<StoreStats> {
+  async stats(tenant: string): Promise<StoreStats> {
+    let sessions = 0;
     let slots = 0;
-    for (const e of this.sessions.values()) slots += e.table.count();
+    for (const [key, e] of this.sessions) {
+      if (!key.startsWith(`${tenant}\u0000`)) continue;
+      sessions++;
+      slots += e.table.count();
+    }
     let logbookEntries = 0;
-    for (const index of this.logbooks.values()) logbookEntries += index.size;
-    return { sessions: this.sessions.size, slots, logbookEntries, source: 'counters' };
+    for (const [key, index] of this.logbooks) if (key.startsWith(`s\u0000${tenant}\u0000`) || key.startsWith(`u\u0000${tenant}\u0000`)) logbookEntries += index.size;
+    return { sessions, slots, logbookEntries, source: 'counters' };
   }
 
-  async putFleet(instance: string, payload: string, ttlMs: number): Promise<void> {
+  async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
     const atMs = Date.now();
-    this.fleet.set(instance, { instance, atMs, payload, expiresMs: atMs + ttlMs });
+    this.fleet.set(`${tenant}\u0000${instance}`, { instance, atMs, payload, expiresMs: atMs + ttlMs });
   }
 
-  async listFleet(): Promise<FleetRecord[]> {
+  async listFleet(tenant: string): Promise<FleetRecord[]> {
     const now = Date.now();
     const out: FleetRecord[] = [];
     for (const [k, r] of this.fleet) {
       if (r.expiresMs < now) this.fleet.delete(k);
-      else out.push({ instance: r.instance, atMs: r.atMs, payload: r.payload });
+      else if (k.startsWith(`${tenant}\u0000`)) out.push({ instance: r.instance, atMs: r.atMs, payload: r.payload });
     }
     return out;
   }

@@ -105,8 +105,8 @@ export interface ListLogbookOptions {
 }
 
 /**
- * Figures a store keeps atomically with its commits and erasures, so every process of a fleet reads
- * the same truth (not a per-process cache).
+ * Figures a store keeps atomically with its commits and erasures, per tenant, so every process of a
+ * fleet reads the same truth (not a per-process cache).
  */
 export interface StoreStats {
   /** Sessions holding state. */
@@ -166,10 +166,10 @@ export interface Store {
   close(): Promise<void>;
   /** Resolves when the store answers a trivial command; rejects with a `StoreError` otherwise. */
   ping?(): Promise<void>;
-  /** Store-wide truth figures (see `StoreStats`). */
-  stats?(): Promise<StoreStats>;
-  /** Publishes one process's dashboard buckets under `instance`, kept for `ttlMs`. */
-  putFleet?(instance: string, payload: string, ttlMs: number): Promise<void>;
-  /** Every instance's latest published buckets (expired ones left out). */
-  listFleet?(): Promise<FleetRecord[]>;
+  /** A tenant's truth figures over the whole store (see `StoreStats`). */
+  stats?(tenant: string): Promise<StoreStats>;
+  /** Publishes one process's dashboard buckets for a tenant under `instance`, kept for `ttlMs`. */
+  putFleet?(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void>;
+  /** Every instance's latest published buckets for a tenant (expired ones left out). */
+  listFleet?(tenant: string): Promise<FleetRecord[]>;
 }

@@ -105,7 +105,7 @@ describe('prometheusMetrics on the real middleware', () => {
     const tm = createTidemark({ capacity: 4 });
     const m = await prometheusMetrics(tm, { registry: new client.Registry() });
     for (let i = 0; i < 9; i++) await tm.write({ session: `n${i % 3}`, text: FACTS[i % FACTS.length]!, role: 'user' });
-    const stats = await tm.store.stats!();
+    const stats = await tm.store.stats!('default');
     const parsed = parsePrometheusTextFormat(await m.metrics());
     expect(value(parsed, 'tidemark_store_sessions')).toBe(3);
     expect(value(parsed, 'tidemark_store_slots')).toBe(stats.slots);

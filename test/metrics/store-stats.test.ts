@@ -48,7 +48,7 @@ describe('store truth figures', () => {
     const truth = await counted(store, sessions);
     expect(truth.sessions).toBe(3);
     expect(truth.slots).toBeGreaterThan(0);
-    const { source, ...figures } = await store.stats();
+    const { source, ...figures } = await store.stats('default');
     expect(figures).toEqual(truth);
     expect(source).toBe('counters');
   });
@@ -67,25 +67,30 @@ describe.skipIf(down !== null)(`redis store truth figures${down ? ` (skipped: ${
   it('the commit and erase scripts keep the counters equal to the stored state', async () => {
     const store = new RedisStore({ redis: client, prefix });
     const sessions = await drive(store);
+    // Another tenant's turns count for that tenant only.
+    const orchard = createTidemark({ store, tenant: 'orchard' });
+    await orchard.write({ session: 'bk-1', text: 'My name is Ilse.', role: 'user' });
+    expect((await store.stats('orchard')).sessions).toBe(1);
     const truth = await counted(store, sessions);
     expect(truth.sessions).toBe(3);
     expect(truth.logbookEntries).toBeGreaterThan(0);
-    const { source, ...figures } = await store.stats();
+    const { source, ...figures } = await store.stats('default');
     expect(source).toBe('counters');
     expect(figures).toEqual(truth);
     // A logbook delete moves the counter too.
     const [one] = await store.listLogbook({ tenant: 'default', session: 'bk-1' }, { limit: 1 });
     expect(await store.deleteLogbook({ tenant: 'default', session: 'bk-1' }, [one!.id])).toBe(1);
-    expect((await store.stats()).logbookEntries).toBe(truth.logbookEntries - 1);
+    expect((await store.stats('default')).logbookEntries).toBe(truth.logbookEntries - 1);
   });
 
   it('fleet records are shared by every process on the store and expire', async () => {
     const a = new RedisStore({ redis: client, prefix });
     const b = new RedisStore({ redis: client, prefix });
-    await a.putFleet('a', '{"x":1}', 60_000);
+    await a.putFleet('default', 'a', '{"x":1}', 60_000);
+    await a.putFleet('other-tenant', 'c', '{"x":3}', 60_000);
     // A record whose time to live has already run out (no waiting on the clock).
-    await b.putFleet('b', '{"x":2}', -1);
-    const seen = await b.listFleet();
+    await b.putFleet('default', 'b', '{"x":2}', -1);
+    const seen = await b.listFleet('default');
     expect(seen.map((r) => [r.instance, r.payload])).toEqual([['a', '{"x":1}']]);
   });
 });
