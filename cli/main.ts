@@ -57,11 +57,25 @@ program
   .option('--host <host>', 'address to bind (default 127.0.0.1; another needs --token, and /chat then still answers loopback callers only: bind callers with resolveIdentity in code)')
   .option('--redis <url>', 'keep memory in Redis at this URL instead of in-process')
   .option('--token <token>', 'bearer token for the admin endpoints and dashboard (also TIDEMARK_TOKEN)')
-  .action(async (o: { port: number; host?: string; redis?: string; token?: string }) => {
+  .option('--secret <secret>', 'key of the session-id hash, the same on every process of a fleet (also TIDEMARK_SECRET; 16+ chars)')
+  .option('--capacity <n>', 'memory slots per session', int('--capacity'))
+  .option('--config <file>', 'a JSON file of createTidemark options (flags override it)')
+  .option('--instance <name>', "this process's name on the fleet dashboard (default host:port)")
+  .action(async (o: { port: number; host?: string; redis?: string; token?: string; secret?: string; capacity?: number; config?: string; instance?: string }) => {
     const { serve } = await import('./serve.js');
     const token = o.token ?? process.env.TIDEMARK_TOKEN;
-    const s = await serve({ port: o.port, ...(o.host ? { host: o.host } : {}), ...(o.redis ? { redis: o.redis } : {}), ...(token ? { token } : {}) });
-    process.stdout.write(`tidemark serving on ${s.url}  (chat: POST ${s.url}/chat, dashboard: ${s.url}/dashboard, metrics: ${s.url}/metrics)\n`);
+    const secret = o.secret ?? process.env.TIDEMARK_SECRET;
+    // The startup line (JSON, on stdout) names the URL, the store and whether it answered.
+    const s = await serve({
+      port: o.port,
+      ...(o.host ? { host: o.host } : {}),
+      ...(o.redis ? { redis: o.redis } : {}),
+      ...(token ? { token } : {}),
+      ...(secret ? { secret } : {}),
+      ...(o.capacity !== undefined ? { capacity: o.capacity } : {}),
+      ...(o.config ? { config: o.config } : {}),
+      ...(o.instance ? { instance: o.instance } : {}),
+    });
     const stop = (): void => void s.close().then(() => process.exit(0));
     process.once('SIGINT', stop);
     process.once('SIGTERM', stop);

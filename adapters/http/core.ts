@@ -3,14 +3,18 @@
 // Server-Sent Events. Front-ends only translate their request/response types to and from this core.
 
 import { createHash, createHmac, timingSafeEqual } from 'node:crypto';
+import { hostname } from 'node:os';
 import { ConfigError, ErrorCodes, TidemarkError, describeValue, isTidemarkError } from '../../src/errors.js';
 import { DashboardCollector } from '../../src/metrics/collector.js';
+import { FleetView } from '../../src/metrics/fleet.js';
+import { StoreHealth } from '../../src/metrics/health.js';
 import { prometheusMetrics, type PrometheusMetrics } from '../../src/metrics/prometheus.js';
 import type { Reply } from '../../src/middleware/stream.js';
 import type { Tidemark, WrapContext, WrapInput } from '../../src/middleware/tidemark.js';
 import { ID_PATTERN } from '../../src/middleware/validate.js';
 import type { MemoryContext } from '../../src/types.js';
 import { dashboardPage } from '../../src/dashboard/page.js';
+import { healthzResponse, indexResponse, readyzResponse, unauthorizedPage, wantsHtml } from './ops.js';
 import { SSE_HEADERS, sseFrame, sseRetry } from './sse.js';
 
 /** The bot's own message handler, as passed to `tidemark.wrap()`. */
@@ -65,6 +69,16 @@ export interface HttpAdapterOptions {
    * @default undefined
    */
   resolveIdentity?: ResolveIdentity;
+  /**
+   * Store health behind `/readyz`, `tidemark_store_up` and the dashboard's outage banner; `false` turns
+   * it off (`/readyz` then always answers 200). @default a StoreHealth on the instance's store, started here
+   */
+  health?: StoreHealth | false;
+  /**
+   * This process's name in the fleet view (the dashboard's header and per-instance rows); keep it stable
+   * across restarts so the process takes its history back. @default `<hostname>:<pid>`
+   */
+  instance?: string;
 }
 
 /** What `resolveIdentity` sees of a `/chat` request: its headers, peer and the parsed JSON body. */
@@ -168,12 +182,16 @@ export function isLoopback(address: string | undefined): boolean {
 const COOKIE = 'tidemark_admin';
 
 /** Routes the core answers, with their methods; anything else under them is a 405, elsewhere `null`. */
-type Route = 'chat' | 'metrics' | 'dashboard' | 'dashboard-feed' | 'dashboard-data' | 'session';
+type Route = 'chat' | 'metrics' | 'dashboard' | 'dashboard-feed' | 'dashboard-data' | 'session' | 'index' | 'healthz' | 'readyz';
 
 export interface HttpCore {
   /** Answers a request, or returns null when the path is not one of the adapter's routes. */
   handle(req: CoreRequest): Promise<CoreResponse | null>;
   readonly collector: DashboardCollector;
+  /** Store health (null when turned off). */
+  readonly health: StoreHealth | null;
+  /** The fleet view the dashboard draws (one shared snapshot per feed tick). */
+  readonly fleet: FleetView;
   /** Stops feeds, unsubscribes the collector and the metrics this adapter created. */
   close(): void;
 }
@@ -213,7 +231,19 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
   const detachCollector = ownCollector ? collector.attach(tm) : () => undefined;
   // Created now, not at the first scrape, so counters include everything since the adapter started.
   const ownMetrics = options.metrics === undefined;
-  const metricsPromise: Promise<PrometheusMetrics> | null = options.metrics ? Promise.resolve(options.metrics) : ownMetrics ? prometheusMetrics(tm) : null;
+  const ownHealth = options.health === undefined;
+  const health = options.health === false ? null : (options.health ?? new StoreHealth(tm.store));
+  if (ownHealth && health) void health.start(tm);
+  // The store is back: drain the outbox now rather than at its next backoff retry (up to tens of
+  // seconds away after a long outage), so readers of those sessions see their writes sooner.
+  const offDrain = health?.onChange((now, before) => {
+    if (now.up === true && before.up === false) void tm.flush({ timeoutMs: 60_000 }).catch(() => undefined);
+  });
+  const instance = options.instance ?? `${hostname()}:${process.pid}`;
+  const startedMs = Date.now();
+  const fleet = new FleetView({ instance, store: tm.store, tenant: tm.tenant, collector, ...(health ? { health } : {}), outboxDepth: () => tm.outboxDepth });
+  fleet.start(o.feedIntervalMs);
+  const metricsPromise: Promise<PrometheusMetrics> | null = options.metrics ? Promise.resolve(options.metrics) : ownMetrics ? prometheusMetrics(tm, health ? { health } : {}) : null;
   metricsPromise?.catch(() => undefined);
   const feeds = new Set<AbortController>();
   const revealed = new Map<string, string>();
@@ -232,6 +262,12 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
       path = path.slice(o.basePath.length) || '/';
     }
     switch (path) {
+      case '/':
+        return { route: 'index' };
+      case '/healthz':
+        return { route: 'healthz' };
+      case '/readyz':
+        return { route: 'readyz' };
       case '/chat':
         return { route: 'chat' };
       case '/metrics':
@@ -405,17 +441,28 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
           const e = errorResponse(err);
           yield sseFrame({ event: 'error', data: typeof e.body === 'string' ? JSON.stringify(JSON.parse(e.body).error) : '{}' });
         } finally {
-          if (!req.signal.aborted) collector.recordTurn((performance.now() - t0) * 1000);
+          if (!req.signal.aborted) {
+            const us = (performance.now() - t0) * 1000;
+            collector.recordTurn(us);
+            if (metricsPromise) void metricsPromise.then((m) => m.recordTurn(us / 1e6), () => undefined);
+          }
         }
         if (!failed) yield sseFrame({ event: 'done', data: JSON.stringify({ chars, ms: Math.round(performance.now() - t0) }) });
       })(),
     };
   };
 
-  const snapshot = () => {
-    const s = collector.snapshot();
-    if (o.revealSessionIds) for (const row of s.busiest) row.session = revealed.get(row.session) ?? row.session;
-    return s;
+  // One snapshot per feed period, built once and serialised once for every open tab and /dashboard/data.
+  const serialised = new WeakMap<object, string>();
+  const snapshotJson = async (): Promise<string> => {
+    const s = await fleet.shared(o.feedIntervalMs);
+    let text = serialised.get(s);
+    if (text === undefined) {
+      const shown = o.revealSessionIds ? { ...s, busiest: s.busiest.map((row) => ({ ...row, session: revealed.get(row.session) ?? row.session })) } : s;
+      text = JSON.stringify(shown);
+      serialised.set(s, text);
+    }
+    return text;
   };
 
   const feed = (req: CoreRequest, cors: Record<string, string>): CoreResponse => {
@@ -431,7 +478,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
         try {
           yield sseRetry(2000);
           while (!stop.signal.aborted) {
-            yield sseFrame({ event: 'snapshot', data: JSON.stringify(snapshot()) });
+            yield sseFrame({ event: 'snapshot', data: await snapshotJson() });
             await sleep(interval, stop.signal);
           }
         } finally {
@@ -459,6 +506,8 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
 
   return {
     collector,
+    health,
+    fleet,
     async handle(req) {
       const q = req.url.indexOf('?');
       const path = q < 0 ? req.url : req.url.slice(0, q);
@@ -480,6 +529,15 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
           };
         }
         switch (match.route) {
+          case 'index':
+            onlyMethods(req, ['GET', 'HEAD']);
+            return indexResponse(o.basePath, req.header('accept'), { metrics: o.metrics !== false });
+          case 'healthz':
+            onlyMethods(req, ['GET', 'HEAD']);
+            return healthzResponse(instance, startedMs);
+          case 'readyz':
+            onlyMethods(req, ['GET', 'HEAD']);
+            return readyzResponse(health, instance);
           case 'chat':
             onlyMethods(req, ['POST']);
             return await chat(req, cors);
@@ -507,7 +565,13 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
                 body: '',
               };
             }
-            authorize(req);
+            try {
+              authorize(req);
+            } catch (err) {
+              // A browser without the token gets a page that says how to open the dashboard, not raw JSON.
+              if (err instanceof HttpError && err.status === 401 && wantsHtml(req.header('accept'))) return unauthorizedPage(path, err.message, err.headers);
+              throw err;
+            }
             return {
               status: 200,
               headers: {
@@ -527,7 +591,7 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
           case 'dashboard-data':
             onlyMethods(req, ['GET', 'HEAD']);
             authorize(req);
-            return json(200, snapshot(), cors);
+            return { status: 200, headers: { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store', ...cors }, body: await snapshotJson() };
           case 'session':
             onlyMethods(req, ['GET', 'HEAD']);
             authorize(req);
@@ -539,6 +603,9 @@ export function createHttpCore(options: HttpAdapterOptions): HttpCore {
     },
     close() {
       for (const f of feeds) f.abort();
+      if (ownHealth) health?.stop();
+      offDrain?.();
+      fleet.stop();
       detachCollector();
       if (ownMetrics && metricsPromise) void metricsPromise.then((m) => m.stop(), () => undefined);
     },

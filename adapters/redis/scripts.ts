@@ -32,7 +32,8 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  * Commit one turn in one round trip: refuse a write fenced before an erase, recognise a commit id
  * already applied, check the version, apply slot ops, add logbook entries, apply the retention policy
  * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone (erase tombstone), cids (applied commit ids).
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone (erase tombstone), cids (applied commit ids),
+ * [stats] (the store-wide counters; standalone only).
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
  *       7 dim, 8 user or '', 9 ttl seconds (0 = none), 10 max events, 11 retention: max entries per
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
@@ -64,6 +65,7 @@ if redis.call('ZSCORE', KEYS[9], ARGV[2]) then return {2, v, m[2] or ''} end
 local rc = m[5] or ''
 if string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true) then return {2, v, m[2] or ''} end
 if v ~= tonumber(ARGV[1]) then return {0, v, m[2] or ''} end
+local statS0 = m[1] and redis.call('HLEN', KEYS[2]) or 0 -- [stats] slots before this commit
 local ep = m[2]
 if not m[1] then
   -- A new session (or one erased or expired) starts from nothing, whatever a partial state left behind.
@@ -96,6 +98,7 @@ if ARGV[8] ~= '' then
 end
 local h, log, headf = KEYS[4], KEYS[6], 'ah'
 if ARGV[8] ~= '' then h, log, headf = KEYS[5], KEYS[7], 'auh' end
+local statL0 = redis.call('HLEN', h) -- [stats] logbook entries of the slice before this commit
 for i = 1, nlb do
   -- An id already present is replaced in place (a resent turn); only a new one joins the log.
   if redis.call('HSET', h, ARGV[a], ARGV[a + 2]) == 1 then redis.call('RPUSH', log, ARGV[a + 1] .. ':' .. ARGV[a]) end
@@ -146,6 +149,12 @@ local ttl = tonumber(ARGV[9])
 for i = 1, 7 do
   if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
 end
+-- [stats] Store-wide counters (KEYS[10], standalone Redis only: on Cluster it would cross hash slots).
+if KEYS[10] then
+  if not m[1] then redis.call('HINCRBY', KEYS[10], 'sessions', 1) end
+  redis.call('HINCRBY', KEYS[10], 'slots', redis.call('HLEN', KEYS[2]) - statS0)
+  redis.call('HINCRBY', KEYS[10], 'logbook', redis.call('HLEN', h) - statL0)
+end
 return {1, v + 1, ep, dropAge, dropCount}
 `);
 
@@ -190,7 +199,7 @@ return {ep, head, stop, mode, els, vals}
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
  * O(log length): deletes are rare (a promotion, an edit), never per turn.
- * KEYS: meta, hash, log. ARGV: epoch field, new epoch, ids... Reply: number removed.
+ * KEYS: meta, hash, log, [stats]. ARGV: epoch field, new epoch, ids... Reply: number removed.
  */
 export const LOG_DELETE = script('log_delete', 3, `
 local want, n = {}, 0
@@ -201,6 +210,7 @@ for i = 3, #ARGV do
   end
 end
 if n == 0 then return 0 end
+if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', 0 - n) end -- [stats]
 for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
   local id = string.match(e, '^%-?%d+:(.*)$') or e
   if want[id] then redis.call('LREM', KEYS[3], 1, e) end
@@ -212,8 +222,8 @@ return n
 /**
  * Erase one session: move its tombstone forward (so no write fenced before now can land), count,
  * then delete every key.
- * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone, cids, quarantine. ARGV: 1 tombstone ttl seconds,
- * 2 the time of the user erase this is part of (ms; 0 for a session erase).
+ * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone, cids, quarantine, [stats] (standalone only).
+ * ARGV: 1 tombstone ttl seconds, 2 the time of the user erase this is part of (ms; 0 for a session erase).
  * Reply: {existed, slots, logbook entries, events, user or '', tombstone time}.
  */
 export const ERASE = script('erase', 10, `
@@ -226,6 +236,11 @@ local slots = redis.call('HLEN', KEYS[2])
 local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
 local events = redis.call('XLEN', KEYS[3])
 redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9], KEYS[10])
+if KEYS[11] then -- [stats] (0 - x, not -x: Lua's -0 reaches Redis as "-0", which HINCRBY refuses)
+  redis.call('HINCRBY', KEYS[11], 'sessions', 0 - existed)
+  redis.call('HINCRBY', KEYS[11], 'slots', 0 - slots)
+  redis.call('HINCRBY', KEYS[11], 'logbook', 0 - items)
+end
 return {existed, slots, items, events, user, tostring(at)}
 `);
 

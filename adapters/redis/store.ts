@@ -13,12 +13,12 @@ import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/er
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { listEntries } from '../../src/store/in-process.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, ListLogbookOptions, SessionSnapshot, Store } from '../../src/store/store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisStoreOptions {
   /**
@@ -304,7 +304,7 @@ export class RedisStore implements Store {
           this.linked.add(lk);
         }
       }
-      reply = await runScript(c, COMMIT, k.script, args);
+      reply = await this.counted(c, ref.tenant, COMMIT, k.script, args);
     } catch (err) {
       throw unavailable('commit', err);
     }
@@ -346,7 +346,7 @@ export class RedisStore implements Store {
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
-          return runScript(c, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
+          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
         }),
       );
       return counts.reduce<number>((sum, n) => sum + Number(n), 0);
@@ -399,7 +399,7 @@ export class RedisStore implements Store {
       }
       for (const s of sessions) {
         const k = this.keys.session(target.tenant, s);
-        const r = (await runScript(c, ERASE, [...k.script, k.quarantine], [ttl, at])) as unknown[];
+        const r = (await this.counted(c, target.tenant, ERASE, [...k.script, k.quarantine], [ttl, at])) as unknown[];
         report.sessions += Number(r[0]);
         report.slots += Number(r[1]);
         report.logbookEntries += Number(r[2]);
@@ -438,6 +438,100 @@ export class RedisStore implements Store {
       throw unavailable('listSessions', err);
     }
     return out;
+  }
+
+  // ---------------------------------------------------------------- operator figures (stats, fleet)
+
+  /**
+   * A tenant's counters hash (standalone Redis only) and fleet hash, under the tenant's own hash tag with
+   * an empty session (`prefix{tenant:}:stats`), which no session key can take (ids are 1+ characters).
+   */
+  private statsKey(tenant: string): string {
+    return `${this.keys.sessionBase(tenant, '')}:stats`;
+  }
+  private fleetKey(tenant: string): string {
+    return `${this.keys.sessionBase(tenant, '')}:fleet`;
+  }
+
+  /** Runs a script with the tenant's counters key appended when the server is a single Redis (see scripts.ts, [stats]). */
+  private counted(c: RedisClient, tenant: string, s: LuaScript, keys: readonly string[], args: readonly (string | Buffer | number)[]): Promise<unknown> {
+    if (isCluster(c)) return runScript(c, s, keys, args);
+    return runScript(c, { ...s, keys: s.keys + 1 }, [...keys, this.statsKey(tenant)], args);
+  }
+
+  async ping(): Promise<void> {
+    try {
+      const c = await this.conn('ping');
+      await c.ping();
+    } catch (err) {
+      throw unavailable('ping', err);
+    }
+  }
+
+  /**
+   * On a single Redis: the counters the commit and erase scripts keep. On Cluster no key may span hash
+   * slots, so the figures are counted by SCAN over the masters (O(sessions); `source: 'scan'`).
+   * Sessions that expire by `idleTtlSeconds` leave the counters without a script seeing them.
+   */
+  async stats(tenant: string): Promise<StoreStats> {
+    try {
+      const c = await this.conn('stats');
+      if (!isCluster(c)) {
+        const [sessions, slots, logbook] = await c.hmget(this.statsKey(tenant), 'sessions', 'slots', 'logbook');
+        return { sessions: Number(sessions ?? 0), slots: Number(slots ?? 0), logbookEntries: Number(logbook ?? 0), source: 'counters' };
+      }
+      const out: StoreStats = { sessions: 0, slots: 0, logbookEntries: 0, source: 'scan' };
+      for (const node of c.nodes('master')) {
+        let cursor = '0';
+        do {
+          const [next, keys] = await node.scan(cursor, 'MATCH', this.keys.metaPattern(tenant), 'COUNT', 1000);
+          cursor = next;
+          for (const meta of keys) {
+            const base = meta.slice(0, -':meta'.length);
+            const [slots, arch, uarch] = await Promise.all([node.hlen(`${base}:slots`), node.hlen(`${base}:arch`), node.hlen(`${base}:uarch`)]);
+            out.sessions += 1;
+            out.slots += slots;
+            out.logbookEntries += arch + uarch;
+          }
+        } while (cursor !== '0');
+      }
+      return out;
+    } catch (err) {
+      throw unavailable('stats', err);
+    }
+  }
+
+  async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
+    try {
+      const c = await this.conn('putFleet');
+      const rec = JSON.stringify({ atMs: Date.now(), ttlMs, payload });
+      await c.hset(this.fleetKey(tenant), instance, rec);
+    } catch (err) {
+      throw unavailable('putFleet', err);
+    }
+  }
+
+  async listFleet(tenant: string): Promise<FleetRecord[]> {
+    try {
+      const c = await this.conn('listFleet');
+      const all = await c.hgetall(this.fleetKey(tenant));
+      const now = Date.now();
+      const out: FleetRecord[] = [];
+      const stale: string[] = [];
+      for (const [instance, raw] of Object.entries(all)) {
+        try {
+          const r = JSON.parse(raw) as { atMs: number; ttlMs: number; payload: string };
+          if (r.atMs + r.ttlMs < now) stale.push(instance);
+          else out.push({ instance, atMs: r.atMs, payload: r.payload });
+        } catch {
+          stale.push(instance);
+        }
+      }
+      if (stale.length > 0) await c.hdel(this.fleetKey(tenant), ...stale);
+      return out;
+    } catch (err) {
+      throw unavailable('listFleet', err);
+    }
   }
 
   async close(): Promise<void> {

@@ -5,6 +5,7 @@
 import { createHistogram, type RecordableHistogram } from 'node:perf_hooks';
 import { ConfigError } from '../errors.js';
 import type { EvictReason, ReadResult, WriteOutcome } from '../types.js';
+import type { StoreHealthState } from './health.js';
 import { RetentionTracker, type RetentionSnapshot, type SurvivalStep } from './retention.js';
 import { subscribe, type TidemarkEventSource } from './source.js';
 
@@ -29,6 +30,28 @@ export const COLLECTOR_DEFAULTS = {
 } as const;
 
 export type LatencyKind = 'read' | 'write' | 'turn';
+/** A read's result as the dashboard counts it: `degraded` when the store could not be read. */
+export type ReadKind = ReadResult | 'degraded';
+export type OutboxChange = 'queued' | 'drained' | 'overflow';
+
+/** Points a drawn curve keeps at most (the survival panel is a few hundred pixels wide). */
+export const CURVE_POINTS = 120;
+
+/** One process in the fleet view: its totals over the window and how it is doing now. */
+export interface FleetInstance {
+  instance: string;
+  /** Seen within the last few publish periods. */
+  live: boolean;
+  lastSeenMs: number;
+  reads: number;
+  hits: number;
+  degraded: number;
+  writes: number;
+  outboxDepth: number;
+  storeUp: boolean | null;
+  /** p95 of the turn latency over the window (ms), null without turns. */
+  turnP95: number | null;
+}
 
 export interface Percentiles {
   count: number;
@@ -56,25 +79,37 @@ export interface DashboardSnapshot {
   windowMs: number;
   /** Start time (ms) of each bucket, oldest first; every series below has one value per bucket. */
   t: number[];
-  reads: Record<ReadResult, number[]>;
+  reads: Record<ReadKind, number[]>;
   writes: Record<WriteOutcome, number[]>;
   evictions: Record<EvictReason, number[]>;
+  /** Outbox changes per bucket: a drain after an outage shows here, not as a spike of writes. */
+  outbox: Record<OutboxChange, number[]>;
   /** Per-bucket latency percentiles in ms (null where a bucket has no sample). */
   latency: Record<LatencyKind, { p50: Array<number | null>; p95: Array<number | null>; p99: Array<number | null> }>;
   totals: {
-    reads: Record<ReadResult, number>;
+    reads: Record<ReadKind, number>;
     writes: Record<WriteOutcome, number>;
     evictions: Record<EvictReason, number>;
-    /** (slot + logbook) / reads over the window: the share of reads whose top item was relevant; null with no reads. */
+    outbox: Record<OutboxChange, number>;
+    /** (slot + logbook) / all reads, degraded included, over the window; null with no reads. */
     hitRatio: number | null;
     latency: Record<LatencyKind, Percentiles>;
   };
   /** Sessions by fill (slots in use / capacity) in ten bins 0–10 %, …, 90–100 %. */
   occupancy: { bins: Array<{ lo: number; hi: number; count: number }>; sessions: number; meanFill: number | null };
+  /** Sessions this process served in the window (per process; the fleet's figure is `figures.sessions`). */
   activeSessions: number;
   busiest: SessionActivity[];
+  /** The process that built this snapshot (the one the page is served from). */
+  instance?: string;
+  /** Store health as this process sees it; `up: false` is an outage. */
+  store?: StoreHealthState & { downForMs: number | null };
+  /** The store's truth figures (shared by the fleet), null when the store keeps none or is down. */
+  figures?: { sessions: number; slots: number; logbookEntries: number; source: 'counters' | 'scan' } | null;
+  /** Every process publishing to the same store, this one included; series above are their sum. */
+  fleet?: FleetInstance[];
   retention: {
-    /** Kaplan–Meier steps in session clock units (turns by default) and in seconds. */
+    /** Kaplan–Meier steps in session clock units (turns by default) and in seconds, at most CURVE_POINTS each (downsampled). */
     clock: { steps: SurvivalStep[]; median: number | null; n: number; events: number; censored: number };
     seconds: { steps: SurvivalStep[]; median: number | null; n: number; events: number; censored: number };
     alive: number;
@@ -82,17 +117,41 @@ export interface DashboardSnapshot {
   };
 }
 
-const READ_RESULTS: readonly ReadResult[] = ['slot', 'logbook', 'miss'];
+const READ_RESULTS: readonly ReadKind[] = ['slot', 'logbook', 'miss', 'degraded'];
+const OUTBOX_CHANGES: readonly OutboxChange[] = ['queued', 'drained', 'overflow'];
 const WRITE_OUTCOMES: readonly WriteOutcome[] = ['allocated', 'overwritten', 'reinforced', 'gated_out'];
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
 const LATENCY_KINDS: readonly LatencyKind[] = ['read', 'write', 'turn'];
 
+/** Column order of `exportBuckets` rows: the bucket number, the counts, then p95 per latency kind (µs). */
+export const FLEET_COLUMNS: readonly string[] = [
+  'bucket',
+  ...READ_RESULTS.map((r) => `reads.${r}`),
+  ...WRITE_OUTCOMES.map((w) => `writes.${w}`),
+  ...EVICT_REASONS.map((e) => `evictions.${e}`),
+  ...OUTBOX_CHANGES.map((c) => `outbox.${c}`),
+  ...LATENCY_KINDS.map((k) => `p95us.${k}`),
+];
+
 interface Bucket {
-  reads: Record<ReadResult, number>;
+  reads: Record<ReadKind, number>;
   writes: Record<WriteOutcome, number>;
   evictions: Record<EvictReason, number>;
+  outbox: Record<OutboxChange, number>;
   /** Microsecond histograms (perf_hooks, HdrHistogram-style log-linear buckets inside Node). */
   latency: Record<LatencyKind, RecordableHistogram | null>;
+}
+
+/** Latencies are kept up to 10 min in µs; longer ones are recorded as 10 min. */
+const HIST_HIGHEST_US = 600_000_000;
+
+/**
+ * A latency histogram sized for what it holds: 1 µs to 10 min at 3 significant digits. Node's default
+ * range (up to 2^53) allocates and walks a counts array of about 90,000 cells per histogram, which
+ * made every snapshot cost milliseconds (bench/feed.ts).
+ */
+function newHistogram(): RecordableHistogram {
+  return createHistogram({ lowest: 1, highest: HIST_HIGHEST_US, figures: 3 });
 }
 
 function zeros<K extends string>(keys: readonly K[]): Record<K, number> {
@@ -155,6 +214,15 @@ export class DashboardCollector {
         this.latency(this.bucket(e.atMs), 'write', e.durationUs);
         this.session(e.sessionHash, e.atMs, e.slotsInUse, e.capacity);
       },
+      degraded: (e) => {
+        if (e.stage !== 'read') return;
+        this.bucket(e.atMs).reads.degraded += 1;
+        const s = this.sessions.get(e.sessionHash);
+        if (s) s.reads += 1;
+      },
+      outbox: (e) => {
+        if (OUTBOX_CHANGES.includes(e.change)) this.bucket(Date.now()).outbox[e.change] += 1;
+      },
     });
     return () => {
       detach();
@@ -176,14 +244,15 @@ export class DashboardCollector {
     this.pruneSessions(nowMs);
 
     const t: number[] = [];
-    const reads = Object.fromEntries(READ_RESULTS.map((k) => [k, [] as number[]])) as Record<ReadResult, number[]>;
+    const reads = Object.fromEntries(READ_RESULTS.map((k) => [k, [] as number[]])) as Record<ReadKind, number[]>;
     const writes = Object.fromEntries(WRITE_OUTCOMES.map((k) => [k, [] as number[]])) as Record<WriteOutcome, number[]>;
     const evictions = Object.fromEntries(EVICT_REASONS.map((k) => [k, [] as number[]])) as Record<EvictReason, number[]>;
+    const outbox = Object.fromEntries(OUTBOX_CHANGES.map((k) => [k, [] as number[]])) as Record<OutboxChange, number[]>;
     const latency = Object.fromEntries(
       LATENCY_KINDS.map((k) => [k, { p50: [] as Array<number | null>, p95: [] as Array<number | null>, p99: [] as Array<number | null> }]),
     ) as DashboardSnapshot['latency'];
-    const totals = { reads: zeros(READ_RESULTS), writes: zeros(WRITE_OUTCOMES), evictions: zeros(EVICT_REASONS) };
-    const merged = Object.fromEntries(LATENCY_KINDS.map((k) => [k, createHistogram()])) as Record<LatencyKind, RecordableHistogram>;
+    const totals = { reads: zeros(READ_RESULTS), writes: zeros(WRITE_OUTCOMES), evictions: zeros(EVICT_REASONS), outbox: zeros(OUTBOX_CHANGES) };
+    const merged = Object.fromEntries(LATENCY_KINDS.map((k) => [k, newHistogram()])) as Record<LatencyKind, RecordableHistogram>;
 
     for (let k = first; k <= last; k++) {
       t.push(k * bucketMs);
@@ -203,6 +272,11 @@ export class DashboardCollector {
         evictions[e].push(v);
         totals.evictions[e] += v;
       }
+      for (const c of OUTBOX_CHANGES) {
+        const v = b?.outbox[c] ?? 0;
+        outbox[c].push(v);
+        totals.outbox[c] += v;
+      }
       for (const kind of LATENCY_KINDS) {
         const h = b?.latency[kind] ?? null;
         const p = percentiles(h);
@@ -212,7 +286,7 @@ export class DashboardCollector {
         if (h) merged[kind].add(h);
       }
     }
-    const readCount = totals.reads.slot + totals.reads.logbook + totals.reads.miss;
+    const readCount = totals.reads.slot + totals.reads.logbook + totals.reads.miss + totals.reads.degraded;
 
     const bins = Array.from({ length: 10 }, (_, i) => ({ lo: i / 10, hi: (i + 1) / 10, count: 0 }));
     let fillSum = 0;
@@ -228,8 +302,10 @@ export class DashboardCollector {
       .sort((a, b) => b.reads + b.writes - (a.reads + a.writes) || b.lastMs - a.lastMs)
       .slice(0, this.o.topSessions)
       .map((s) => ({ ...s }));
-    const ret = this.retention.snapshot(nowMs);
-    const curve = (c: RetentionSnapshot['clock']) => ({ steps: c.steps, median: c.median, n: c.n, events: c.events, censored: c.censored });
+    // Grouped curves: the cost follows distinct lifetimes and live slots, not every slot ever seen.
+    const curves = this.retention.curves(nowMs);
+    const ret = { clock: curves.clock, seconds: curves.seconds, alive: this.retention.aliveCount, halfLife: this.retention.halfLives(nowMs) };
+    const curve = (c: RetentionSnapshot['clock']) => ({ steps: downsample(c.steps, CURVE_POINTS), median: c.median, n: c.n, events: c.events, censored: c.censored });
 
     return {
       atMs: nowMs,
@@ -239,6 +315,7 @@ export class DashboardCollector {
       reads,
       writes,
       evictions,
+      outbox,
       latency,
       totals: {
         ...totals,
@@ -252,11 +329,56 @@ export class DashboardCollector {
     };
   }
 
+  /**
+   * The window's non-empty buckets as compact rows for the fleet view (see `FLEET_COLUMNS`): counts,
+   * then the read, commit and turn p95 in µs (-1 without samples). About 100 bytes a bucket.
+   */
+  exportBuckets(nowMs = Date.now()): number[][] {
+    const { bucketMs, windowMs } = this.o;
+    const first = Math.floor(nowMs / bucketMs) - windowMs / bucketMs + 1;
+    const rows: number[][] = [];
+    for (const [k, b] of this.buckets) {
+      if (k < first) continue;
+      const row = [k];
+      for (const r of READ_RESULTS) row.push(b.reads[r]);
+      for (const w of WRITE_OUTCOMES) row.push(b.writes[w]);
+      for (const e of EVICT_REASONS) row.push(b.evictions[e]);
+      for (const c of OUTBOX_CHANGES) row.push(b.outbox[c]);
+      for (const kind of LATENCY_KINDS) {
+        const h = b.latency[kind];
+        row.push(h && h.count > 0 ? h.percentile(95) : -1);
+      }
+      rows.push(row);
+    }
+    return rows.sort((x, y) => x[0]! - y[0]!);
+  }
+
+  /** Adds the counts of rows this process published before a restart, for buckets it has not filled since. */
+  importBuckets(rows: readonly number[][]): void {
+    for (const row of rows) {
+      if (!Array.isArray(row) || row.length !== FLEET_COLUMNS.length || this.buckets.has(row[0]!)) continue;
+      const b = this.bucket(row[0]! * this.o.bucketMs);
+      let i = 1;
+      for (const r of READ_RESULTS) b.reads[r] += row[i++]!;
+      for (const w of WRITE_OUTCOMES) b.writes[w] += row[i++]!;
+      for (const e of EVICT_REASONS) b.evictions[e] += row[i++]!;
+      for (const c of OUTBOX_CHANGES) b.outbox[c] += row[i++]!;
+    }
+  }
+
+  get bucketMs(): number {
+    return this.o.bucketMs;
+  }
+
+  get windowMs(): number {
+    return this.o.windowMs;
+  }
+
   private bucket(atMs: number): Bucket {
     const k = Math.floor(atMs / this.o.bucketMs);
     let b = this.buckets.get(k);
     if (!b) {
-      b = { reads: zeros(READ_RESULTS), writes: zeros(WRITE_OUTCOMES), evictions: zeros(EVICT_REASONS), latency: { read: null, write: null, turn: null } };
+      b = { reads: zeros(READ_RESULTS), writes: zeros(WRITE_OUTCOMES), evictions: zeros(EVICT_REASONS), outbox: zeros(OUTBOX_CHANGES), latency: { read: null, write: null, turn: null } };
       this.buckets.set(k, b);
       // Keep the map bounded even if nobody takes snapshots.
       if (this.buckets.size > 2 * (this.o.windowMs / this.o.bucketMs)) {
@@ -269,9 +391,9 @@ export class DashboardCollector {
 
   private latency(b: Bucket, kind: LatencyKind, durationUs: number): void {
     if (!Number.isFinite(durationUs) || durationUs < 0) return;
-    const h = (b.latency[kind] ??= createHistogram());
-    // RecordableHistogram takes integers ≥ 1.
-    h.record(Math.max(1, Math.round(durationUs)));
+    const h = (b.latency[kind] ??= newHistogram());
+    // RecordableHistogram takes integers in [1, highest].
+    h.record(Math.min(HIST_HIGHEST_US, Math.max(1, Math.round(durationUs))));
   }
 
   private session(hash: string, atMs: number, slotsInUse: number, capacity: number): SessionActivity {
@@ -291,4 +413,16 @@ export class DashboardCollector {
     // Not a scan-until-first-recent: events may carry out-of-order times (replays, clock skew).
     for (const [hash, s] of this.sessions) if (s.lastMs < cutoff) this.sessions.delete(hash);
   }
+}
+
+/**
+ * Keeps at most `max` steps of a step curve, evenly spread over its steps, always keeping the last one
+ * (the curve's end) — the page draws a few hundred pixels, so more points only cost bytes.
+ */
+export function downsample<T>(steps: readonly T[], max: number): T[] {
+  if (steps.length <= max) return steps.slice();
+  const out: T[] = [];
+  const stride = (steps.length - 1) / (max - 1);
+  for (let i = 0; i < max; i++) out.push(steps[Math.round(i * stride)]!);
+  return out;
 }

@@ -2,9 +2,12 @@
 // first use). Metrics go to the registry the caller passes — never prom-client's global one. Names follow
 // the Prometheus/OpenMetrics conventions: one prefix, base units (seconds), `_total` on counters.
 
+import { readFileSync } from 'node:fs';
 import type * as PromClient from 'prom-client';
 import { ConfigError, ErrorCodes, type TidemarkError } from '../errors.js';
+import type { Store } from '../store/store.js';
 import type { EvictReason, ReadResult, WriteOutcome } from '../types.js';
+import type { StoreHealth } from './health.js';
 import { subscribe, type TidemarkEventSource } from './source.js';
 
 export interface PrometheusMetricsOptions {
@@ -14,12 +17,18 @@ export interface PrometheusMetricsOptions {
   prefix?: string;
   /** The prom-client module, for callers that bundle their own copy. @default `await import('prom-client')` */
   client?: typeof PromClient;
-  /** A session counts as active for this long after its last event. @default 300000 (5 min) */
+  /** A session counts as active for this long after its last event; the dashboard's window. @default 900000 (15 min) */
   activeWindowMs?: number;
   /** Sessions remembered for the active-sessions gauge; past this the least recent are forgotten. @default 100000 */
   maxTrackedSessions?: number;
   /** Bucket bounds (seconds) of the duration histograms. @default DURATION_BUCKETS_SECONDS */
   durationBuckets?: readonly number[];
+  /** Store health to export as `tidemark_store_up` and its last-success time. @default none (the gauges are left out) */
+  health?: StoreHealth;
+  /** Export the store's truth figures (sessions, slots, logbook entries) read from `store.stats()` at each scrape. @default true */
+  storeFigures?: boolean;
+  /** Also register prom-client's default process metrics (CPU, memory, event-loop lag; `process_*`, `nodejs_*`). @default false */
+  processMetrics?: boolean;
 }
 
 /**
@@ -30,15 +39,46 @@ export const DURATION_BUCKETS_SECONDS: readonly number[] = [
   0.00005, 0.0001, 0.00025, 0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5,
 ];
 
+/**
+ * Embedding with the built-in hashing embedder takes a few microseconds (its cache hits less than one),
+ * a transformer model milliseconds: these buckets start at 1 µs so the fast path is resolved.
+ */
+export const EMBED_BUCKETS_SECONDS: readonly number[] = [
+  0.000001, 0.0000025, 0.000005, 0.00001, 0.000025, 0.00005, 0.0001, 0.00025, 0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25,
+];
+
+/** Turn latency (request in to last byte out) includes the bot's own reply: milliseconds to tens of seconds. */
+export const TURN_BUCKETS_SECONDS: readonly number[] = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60];
+
 export const PROMETHEUS_METRICS_DEFAULTS = {
   prefix: 'tidemark_',
-  activeWindowMs: 300_000,
+  activeWindowMs: 900_000,
   maxTrackedSessions: 100_000,
   durationBuckets: DURATION_BUCKETS_SECONDS,
+  storeFigures: true,
+  processMetrics: false,
 } as const;
 
-/** The instance surface metrics read: events, and the outbox depth when the instance exposes it. */
-export type MetricsSource = TidemarkEventSource & { readonly outboxDepth?: number };
+/** The instance surface metrics read: events, and the outbox depth, store and decay unit when the instance exposes them. */
+export type MetricsSource = TidemarkEventSource & {
+  readonly outboxDepth?: number;
+  readonly store?: Store;
+  readonly tenant?: string;
+  readonly params?: { readonly decayUnit?: 'turns' | 'seconds' };
+};
+
+/** The package version, for `tidemark_build_info` (package.json two levels up from src/ or dist/src/). */
+function packageVersion(): string {
+  for (const rel of ['../../package.json', '../../../package.json']) {
+    try {
+      const pkg = JSON.parse(readFileSync(new URL(rel, import.meta.url), 'utf8')) as { name?: string; version?: string };
+      if (pkg.name === 'tidemark' && typeof pkg.version === 'string') return pkg.version;
+    } catch {
+      // try the next location
+    }
+  }
+  return 'unknown';
+}
 
 export interface PrometheusMetrics {
   readonly registry: PromClient.Registry;
@@ -46,12 +86,16 @@ export interface PrometheusMetrics {
   readonly contentType: string;
   /** The exposition text of the whole registry. */
   metrics(): Promise<string>;
+  /** Records one whole turn (request in to last byte out), measured by the HTTP adapter. */
+  recordTurn(seconds: number): void;
   /** Unsubscribes from the instance and removes these metrics from the registry. */
   stop(): void;
 }
 
 const READ_RESULTS: readonly ReadResult[] = ['slot', 'logbook', 'miss'];
-const WRITE_OUTCOMES: readonly WriteOutcome[] = ['allocated', 'overwritten', 'reinforced', 'gated_out'];
+/** Writes are what changed a slot; a candidate the gate refused is not a write (see candidates_total). */
+const WRITE_OUTCOMES: readonly Exclude<WriteOutcome, 'gated_out'>[] = ['allocated', 'overwritten', 'reinforced'];
+const ERROR_STAGES = ['read', 'write', 'handler', 'outbox', 'store'] as const;
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
 
@@ -93,76 +137,140 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   const registry = options.registry ?? new client.Registry();
   const p = o.prefix;
   const registers = [registry];
+  const store = tm.store;
+  const health = options.health;
 
-  // Sessions by keyed hash with their last event time and slots in use; insertion order = recency.
-  const sessions = new Map<string, { lastMs: number; slots: number }>();
-  const touch = (hash: string, atMs: number, slots?: number): void => {
+  // Sessions by keyed hash with their last event time; insertion order = recency.
+  const sessions = new Map<string, number>();
+  const touch = (hash: string, atMs: number): void => {
     const prev = sessions.get(hash);
-    if (prev) sessions.delete(hash);
-    sessions.set(hash, { lastMs: Math.max(atMs, prev?.lastMs ?? 0), slots: slots ?? prev?.slots ?? 0 });
+    if (prev !== undefined) sessions.delete(hash);
+    sessions.set(hash, Math.max(atMs, prev ?? 0));
     if (sessions.size > o.maxTrackedSessions) sessions.delete(sessions.keys().next().value!);
   };
   const prune = (): void => {
     const cutoff = Date.now() - o.activeWindowMs;
-    for (const [hash, s] of sessions) if (s.lastMs < cutoff) sessions.delete(hash);
+    for (const [hash, last] of sessions) if (last < cutoff) sessions.delete(hash);
   };
   let outboxDepth = 0;
+  const lifetimeUnit = tm.params?.decayUnit ?? 'turns';
 
-  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), or nothing relevant was found (miss).', labelNames: ['result'], registers });
-  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Candidate writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced), refused by the write gate (gated_out).', labelNames: ['outcome'], registers });
+  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: ['result'], registers });
+  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: ['outcome'], registers });
+  const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: ['decision'], registers });
   const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: ['reason'], registers });
   const archived = new client.Counter({ name: `${p}archived_items_total`, help: 'Values that left working memory for the logbook, by reason.', labelNames: ['reason'], registers });
-  const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read, embedding included.', buckets, registers });
-  const writeDuration = new client.Histogram({ name: `${p}write_duration_seconds`, help: 'Time of one memory commit (store time included).', buckets, registers });
-  const embedDuration = new client.Histogram({ name: `${p}embed_duration_seconds`, help: 'Time spent embedding, by stage (read query or write candidates).', labelNames: ['stage'], buckets, registers });
+  const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read (store load and logbook search), embedding included.', buckets, registers });
+  const commitDuration = new client.Histogram({ name: `${p}commit_duration_seconds`, help: 'Time of one commit of a turn\'s memory write: extract, gate, plan and the store\'s commit, conflict retries included.', buckets, registers });
+  const turnDuration = new client.Histogram({ name: `${p}turn_duration_seconds`, help: 'Time of one chat turn over HTTP, request in to last byte of the reply out (the bot\'s own time included).', buckets: [...TURN_BUCKETS_SECONDS], registers });
+  const embedDuration = new client.Histogram({ name: `${p}embed_duration_seconds`, help: 'Time spent embedding, by stage (read query or write candidates).', labelNames: ['stage'], buckets: [...EMBED_BUCKETS_SECONDS], registers });
   const occupancy = new client.Histogram({ name: `${p}slot_occupancy_ratio`, help: 'Fraction of a session\'s slots in use, observed at each read and commit.', buckets: [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1], registers });
   const topWeight = new client.Histogram({ name: `${p}attention_top_weight`, help: 'Largest attention weight of a read (1 = one slot took all the attention).', buckets: [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1], registers });
   // Entropy of k weights is at most ln k; ln 64 ≈ 4.16 for the default capacity.
   const entropy = new client.Histogram({ name: `${p}attention_entropy_nats`, help: 'Shannon entropy (nats) of a read\'s slot attention weights (0 = focused, ln n = uniform).', buckets: [0.05, 0.1, 0.25, 0.5, 0.75, 1, 1.5, 2, 2.5, 3, 3.5, 4, 4.5], registers });
   const gateScore = new client.Histogram({ name: `${p}write_gate_score`, help: 'Write-gate salience score of each candidate.', buckets: [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1], registers });
-  const lifetimeTurns = new client.Histogram({ name: `${p}slot_lifetime_clock`, help: 'Lifetime of evicted slots in session clock units (turns, or seconds with decayUnit "seconds").', buckets: [1, 2, 4, 8, 16, 32, 64, 128, 256, 512, 1024], registers });
-  const lifetimeSeconds = new client.Histogram({ name: `${p}slot_lifetime_seconds`, help: 'Wall-clock lifetime of evicted slots.', buckets: [1, 10, 60, 300, 900, 3600, 14400, 86400, 604800], registers });
+  // The unit is in the name: turns by default, seconds when the instance decays in seconds.
+  const lifetimeClock = new client.Histogram({
+    name: lifetimeUnit === 'turns' ? `${p}evicted_slot_lifetime_turns` : `${p}evicted_slot_lifetime_clock_seconds`,
+    help: `Lifetime of slots that left working memory, in ${lifetimeUnit === 'turns' ? 'turns of their session' : 'seconds of session clock'}. Evicted slots only: live slots are not in it (biased short); see store survival in retention().`,
+    buckets: [1, 2, 4, 8, 16, 32, 64, 128, 256, 512, 1024],
+    registers,
+  });
+  const lifetimeSeconds = new client.Histogram({ name: `${p}evicted_slot_lifetime_seconds`, help: 'Wall-clock lifetime of slots that left working memory (evicted slots only, biased short).', buckets: [1, 10, 60, 300, 900, 3600, 14400, 86400, 604800], registers });
   const retries = new client.Counter({ name: `${p}commit_conflict_retries_total`, help: 'Commits redone because another writer committed first.', registers });
   const storeErrors = new client.Counter({ name: `${p}store_errors_total`, help: 'Store failures and conflicts that surfaced as errors, by error code.', labelNames: ['code'], registers });
   const errors = new client.Counter({ name: `${p}errors_total`, help: 'Errors emitted, by stage and error code.', labelNames: ['stage', 'code'], registers });
-  const degraded = new client.Counter({ name: `${p}degraded_total`, help: 'Reads answered with empty memory and writes queued because the store failed, by stage.', labelNames: ['stage'], registers });
+  const degraded = new client.Counter({ name: `${p}degraded_total`, help: 'Store failures met by a turn, by stage: read (answered with empty memory) and write (queued in the outbox; equals outbox_changes_total{change="queued"}).', labelNames: ['stage'], registers });
   const outboxChanges = new client.Counter({ name: `${p}outbox_changes_total`, help: 'Pending-write outbox changes: queued, drained (committed later) or overflow (refused).', labelNames: ['change'], registers });
   const active = new client.Gauge({
-    name: `${p}active_sessions`,
-    help: `Sessions with an event in the last ${o.activeWindowMs / 1000} s.`,
+    name: `${p}process_active_sessions`,
+    help: `Sessions this process served in the last ${o.activeWindowMs / 1000} s. Per process: behind a load balancer one session reaches several processes, so do not sum it; the fleet's figure is store_sessions.`,
     registers,
     collect() {
       prune();
       this.set(sessions.size);
     },
   });
-  const slotsInUse = new client.Gauge({
-    name: `${p}slots_in_use`,
-    help: 'Slots in use, summed over active sessions (latest value seen per session).',
-    registers,
-    collect() {
-      prune();
-      let sum = 0;
-      for (const s of sessions.values()) sum += s.slots;
-      this.set(sum);
-    },
-  });
   const outbox = new client.Gauge({
     name: `${p}outbox_depth`,
-    help: 'Writes waiting in the outbox for the store.',
+    help: 'Writes waiting in this process\'s outbox for the store (per process; sums across a fleet).',
     registers,
     collect() {
       this.set(typeof tm.outboxDepth === 'number' ? tm.outboxDepth : outboxDepth);
     },
   });
+  const version = packageVersion();
+  const buildInfo = new client.Gauge({ name: `${p}build_info`, help: 'Always 1; labels: the tidemark version and the store kind.', labelNames: ['version', 'store'], registers });
+  buildInfo.set({ version, store: store?.name ?? 'unknown' }, 1);
+  const all: Array<{ name: string }> = [reads, writes, candidates, evictions, archived, readDuration, commitDuration, turnDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeClock, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, outbox, buildInfo] as unknown as Array<{ name: string }>;
 
-  // Zero-initialise every labelled series so dashboards and rate() see them from the first scrape.
-  for (const r of READ_RESULTS) reads.inc({ result: r }, 0);
+  if (health) {
+    all.push(new client.Gauge({
+      name: `${p}store_up`,
+      help: 'Whether the store answers (1) or not (0), from a probe every 250 ms and from the turns themselves. Absent until the first answer.',
+      registers,
+      collect() {
+        const s = health.state;
+        if (s.up !== null) this.set(s.up ? 1 : 0);
+      },
+    }) as unknown as { name: string });
+    all.push(new client.Gauge({
+      name: `${p}store_last_success_timestamp_seconds`,
+      help: 'Unix time the store last answered this process (a probe, a read or a commit).',
+      registers,
+      collect() {
+        const s = health.state;
+        if (s.lastSuccessMs !== null) this.set(s.lastSuccessMs / 1000);
+      },
+    }) as unknown as { name: string });
+  }
+  if (store?.stats && o.storeFigures) {
+    // One stats() call per scrape serves all three gauges; the figure is the store's, the same from
+    // every process: aggregate with max(), never sum.
+    let pending: Promise<void> | null = null;
+    let figures: { sessions: number; slots: number; logbookEntries: number } | null = null;
+    const refresh = (): Promise<void> =>
+      (pending ??= store.stats!(tm.tenant ?? 'default').then(
+        (f) => void (figures = f),
+        () => void (figures = null),
+      ).finally(() => setImmediate(() => (pending = null))));
+    const figure = (name: string, help: string, pick: (f: NonNullable<typeof figures>) => number) =>
+      new client.Gauge({
+        name: `${p}${name}`,
+        help,
+        registers,
+        async collect() {
+          await refresh();
+          if (figures) this.set(pick(figures));
+          else this.reset();
+        },
+      }) as unknown as { name: string };
+    all.push(figure('store_sessions', 'Sessions of this tenant holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
+    all.push(figure('store_slots', 'Slots in use over every session in the store (the store\'s own count; aggregate with max()).', (f) => f.slots));
+    all.push(figure('store_logbook_entries', 'Long-term (logbook) entries over every scope in the store (the store\'s own count; aggregate with max()).', (f) => f.logbookEntries));
+  }
+  if (o.processMetrics) {
+    const before = new Set(registry.getMetricsAsArray().map((m) => m.name));
+    client.collectDefaultMetrics({ register: registry });
+    for (const m of registry.getMetricsAsArray()) {
+      if (before.has(m.name)) continue;
+      // prom-client 15 names three gauges `nodejs_active_*_total`, which `promtool check metrics`
+      // rejects (a `_total` suffix belongs to counters): they are left out.
+      if (m.name.endsWith('_total') && (m as unknown as { type?: string }).type !== 'counter') registry.removeSingleMetric(m.name);
+      else all.push({ name: m.name });
+    }
+  }
+
+  // Zero-initialise every labelled series so dashboards and increase() see them from the first scrape.
+  for (const r of [...READ_RESULTS, 'degraded']) reads.inc({ result: r }, 0);
   for (const w of WRITE_OUTCOMES) writes.inc({ outcome: w }, 0);
+  for (const d of ['passed', 'gated_out']) candidates.inc({ decision: d }, 0);
   for (const r of EVICT_REASONS) evictions.inc({ reason: r }, 0);
   for (const r of ['superseded', 'capacity', 'decayed', 'expired']) archived.inc({ reason: r }, 0);
   for (const s of ['read', 'write']) degraded.inc({ stage: s }, 0);
   for (const c of ['queued', 'drained', 'overflow']) outboxChanges.inc({ change: c }, 0);
+  for (const stage of ERROR_STAGES) for (const code of [...KNOWN_CODES, 'other']) errors.inc({ stage, code }, 0);
+  for (const code of KNOWN_CODES) if (code.startsWith('TIDEMARK_E_STORE_')) storeErrors.inc({ code }, 0);
 
   const unsubscribe = subscribe(tm, {
     read(e) {
@@ -174,54 +282,63 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
         topWeight.observe(e.topWeight);
         entropy.observe(e.entropy);
       }
-      touch(e.sessionHash, e.atMs, e.slotsInUse);
+      touch(e.sessionHash, e.atMs);
     },
     write(e) {
       if (WRITE_OUTCOMES.includes(e.outcome)) writes.inc({ outcome: e.outcome });
-      touch(e.sessionHash, e.atMs, e.slotsInUse);
+      touch(e.sessionHash, e.atMs);
     },
     gate(e) {
       gateScore.observe(e.score);
-      if (!e.passed) writes.inc({ outcome: 'gated_out' });
+      candidates.inc({ decision: e.passed ? 'passed' : 'gated_out' });
     },
     evict(e) {
       if (EVICT_REASONS.includes(e.reason)) evictions.inc({ reason: e.reason });
-      lifetimeTurns.observe(e.lifetime);
+      lifetimeClock.observe(e.lifetime);
       lifetimeSeconds.observe(e.lifetimeMs / 1000);
     },
     archive(e) {
       if (['superseded', 'capacity', 'decayed', 'expired'].includes(e.reason)) archived.inc({ reason: e.reason });
     },
     commit(e) {
-      writeDuration.observe(e.durationUs / 1e6);
+      commitDuration.observe(e.durationUs / 1e6);
       embedDuration.observe({ stage: 'write' }, e.embedUs / 1e6);
       if (e.capacity > 0) occupancy.observe(e.slotsInUse / e.capacity);
       if (e.retries > 0) retries.inc(e.retries);
-      touch(e.sessionHash, e.atMs, e.slotsInUse);
+      touch(e.sessionHash, e.atMs);
     },
     degraded(e) {
-      degraded.inc({ stage: e.stage === 'write' ? 'write' : 'read' });
+      // A degraded read is a read: counted once under reads_total{result="degraded"} and here. A degraded
+      // write is counted from the outbox's `queued` (below), so the two figures cannot drift apart.
+      if (e.stage === 'read') {
+        reads.inc({ result: 'degraded' });
+        degraded.inc({ stage: 'read' });
+        touch(e.sessionHash, e.atMs);
+      }
     },
     outbox(e) {
       outboxDepth = e.depth;
       if (['queued', 'drained', 'overflow'].includes(e.change)) outboxChanges.inc({ change: e.change });
+      if (e.change === 'queued') degraded.inc({ stage: 'write' });
     },
     error(e) {
       const code = codeLabel((e.error as Partial<TidemarkError> | undefined)?.code);
-      const stage = ['read', 'write', 'handler', 'outbox', 'store'].includes(e.stage) ? e.stage : 'other';
+      const stage = (ERROR_STAGES as readonly string[]).includes(e.stage) ? e.stage : 'other';
       errors.inc({ stage, code });
       if (code.startsWith('TIDEMARK_E_STORE_')) storeErrors.inc({ code });
     },
   });
 
-  const all = [reads, writes, evictions, archived, readDuration, writeDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeTurns, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, slotsInUse, outbox];
   return {
     registry,
     contentType: registry.contentType,
     metrics: () => registry.metrics(),
+    recordTurn(seconds) {
+      if (Number.isFinite(seconds) && seconds >= 0) turnDuration.observe(seconds);
+    },
     stop() {
       unsubscribe();
-      for (const m of all) registry.removeSingleMetric((m as unknown as { name: string }).name);
+      for (const m of all) registry.removeSingleMetric(m.name);
     },
   };
 }

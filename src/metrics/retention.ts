@@ -90,6 +90,60 @@ export function kaplanMeier(observations: readonly LifetimeObservation[]): Survi
   return { n, events: totalEvents, censored: n - totalEvents, steps, median };
 }
 
+/** Observations sharing one lifetime: how many ended there and how many were censored there. */
+export interface LifetimeGroup {
+  time: number;
+  events: number;
+  censored: number;
+}
+
+/**
+ * The same Kaplan–Meier estimate over grouped observations (counts per distinct time, in any order):
+ * equal to `kaplanMeier` of the expanded observations, at a cost set by the number of distinct times,
+ * not of observations.
+ */
+export function kaplanMeierGrouped(groups: readonly LifetimeGroup[]): SurvivalCurve {
+  const sorted = groups.filter((g) => Number.isFinite(g.time) && g.time >= 0 && g.events + g.censored > 0).sort((a, b) => a.time - b.time);
+  let n = 0;
+  for (const g of sorted) n += g.events + g.censored;
+  const steps: SurvivalStep[] = [];
+  let atRisk = n;
+  let survival = 1;
+  let greenwoodSum = 0;
+  let totalEvents = 0;
+  let median: number | null = null;
+  for (let i = 0; i < sorted.length; ) {
+    const time = sorted[i]!.time;
+    let events = 0;
+    let censored = 0;
+    for (; i < sorted.length && sorted[i]!.time === time; i++) {
+      events += sorted[i]!.events;
+      censored += sorted[i]!.censored;
+    }
+    if (events > 0) {
+      survival *= 1 - events / atRisk;
+      greenwoodSum = atRisk > events ? greenwoodSum + events / (atRisk * (atRisk - events)) : Number.NaN;
+      steps.push({ time, atRisk, events, censored, survival, variance: survival * survival * greenwoodSum });
+      totalEvents += events;
+      if (median === null && survival <= 0.5) median = time;
+    }
+    atRisk -= events + censored;
+  }
+  return { n, events: totalEvents, censored: n - totalEvents, steps, median };
+}
+
+/**
+ * The group a lifetime falls in for the incremental curves: whole numbers (turns) as they are; other
+ * values (seconds) at the lower edge of log-spaced bins 5 % wide, so the curve's cost is bounded by the
+ * number of bins however many slots it has seen.
+ */
+export function lifetimeGroup(time: number): number {
+  if (!(time > 0)) return 0;
+  if (Number.isInteger(time)) return time;
+  if (time < 0.001) return 0;
+  return Number((1.05 ** Math.floor(Math.log(time) / Math.log(1.05))).toPrecision(4));
+}
+
 /** S(t) read off a curve (right-continuous step function). */
 export function survivalAt(curve: SurvivalCurve, time: number): number {
   let s = 1;
@@ -195,6 +249,9 @@ export class RetentionTracker {
   private readonly finished: Finished[] = [];
   private finishedHead = 0;
   private readonly byReason: Record<EvictReason, number> = { capacity: 0, decayed: 0, expired: 0, erased: 0 };
+  /** Finished lifetimes grouped by `lifetimeGroup`, kept in step with `finished` (time -> [events, censored]). */
+  private readonly grouped = { clock: new Map<number, [number, number]>(), seconds: new Map<number, [number, number]>() };
+  private halfLifeCache: { atMs: number; size: number; value: HalfLifeDistribution } | null = null;
 
   constructor(options: RetentionTrackerOptions = {}) {
     const o = { ...RETENTION_TRACKER_DEFAULTS, ...options };
@@ -246,9 +303,59 @@ export class RetentionTracker {
     };
     if (this.finished.length < this.o.maxFinished) this.finished.push(obs);
     else {
+      this.regroup(this.finished[this.finishedHead]!, -1);
       this.finished[this.finishedHead] = obs;
       this.finishedHead = (this.finishedHead + 1) % this.o.maxFinished;
     }
+    this.regroup(obs, 1);
+  }
+
+  private regroup(f: Finished, delta: number): void {
+    for (const [map, time] of [[this.grouped.clock, f.clock], [this.grouped.seconds, f.seconds]] as const) {
+      const k = lifetimeGroup(time);
+      const g = map.get(k) ?? [0, 0];
+      g[f.event ? 0 : 1] += delta;
+      if (g[0] === 0 && g[1] === 0) map.delete(k);
+      else map.set(k, g);
+    }
+  }
+
+  /**
+   * The survival curves from the grouped lifetimes plus the live slots censored now: what `snapshot()`
+   * gives, at a cost set by the distinct lifetimes and the live slots, not by the slots seen. Seconds are
+   * grouped into 5 %-wide bins (each lifetime at its bin's lower edge), turns are exact. For the feed.
+   */
+  curves(nowMs = Date.now()): { clock: SurvivalCurve; seconds: SurvivalCurve } {
+    const clock = new Map<number, LifetimeGroup>();
+    const seconds = new Map<number, LifetimeGroup>();
+    const add = (m: Map<number, LifetimeGroup>, time: number, events: number, censored: number): void => {
+      const g = m.get(time);
+      if (g) {
+        g.events += events;
+        g.censored += censored;
+      } else m.set(time, { time, events, censored });
+    };
+    for (const [t, [e, c]] of this.grouped.clock) add(clock, t, e, c);
+    for (const [t, [e, c]] of this.grouped.seconds) add(seconds, t, e, c);
+    for (const [key, a] of this.alive) {
+      const sessionClock = this.clocks.get(key.slice(0, key.lastIndexOf('#'))) ?? a.startClock;
+      add(clock, lifetimeGroup(Math.max(0, sessionClock - a.startClock)), 0, 1);
+      add(seconds, lifetimeGroup(Math.max(0, (nowMs - a.startMs) / 1000)), 0, 1);
+    }
+    return { clock: kaplanMeierGrouped([...clock.values()]), seconds: kaplanMeierGrouped([...seconds.values()]) };
+  }
+
+  /** Half-lives as in `snapshot()`; the evicted side is recomputed at most every 10 s (it sorts the finished ring). */
+  halfLives(nowMs = Date.now()): RetentionSnapshot['halfLife'] {
+    const c = this.halfLifeCache;
+    if (!c || nowMs - c.atMs >= 10_000 || (c.size === 0) !== (this.finished.length === 0)) {
+      this.halfLifeCache = { atMs: nowMs, size: this.finished.length, value: halfLifeDistribution(this.finished.map((f) => f.halfLife)) };
+    }
+    return { alive: halfLifeDistribution([...this.alive.values()].map((a) => a.halfLife)), evicted: this.halfLifeCache!.value };
+  }
+
+  get aliveCount(): number {
+    return this.alive.size;
   }
 
   /** Subscribe to an event source; returns the function that unsubscribes. */

@@ -12,7 +12,7 @@ import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type Logbook
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, ListLogbookOptions, SessionSnapshot, Store } from './store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from './store.js';
 
 export interface InProcessStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
@@ -91,6 +91,8 @@ export class InProcessStore implements Store {
   private sweeper: NodeJS.Timeout | undefined;
   /** Sessions dropped by the bounds, by reason (for metrics): over `maxSessions`, idle past `idleTtlMs`. */
   readonly evicted = { cap: 0, idle: 0 };
+  /** Published dashboard buckets by instance (one process: usually one entry). */
+  private readonly fleet = new Map<string, FleetRecord & { expiresMs: number }>();
 
   constructor(options: InProcessStoreOptions = {}) {
     this.o = { ...IN_PROCESS_STORE_DEFAULTS, ...options };
@@ -307,6 +309,37 @@ export class InProcessStore implements Store {
     for (const key of this.sessions.keys()) {
       if (key.startsWith(prefix)) out.push(key.slice(prefix.length));
       if (out.length >= limit) break;
+    }
+    return out;
+  }
+
+  async ping(): Promise<void> {}
+
+  /** Exact: counted from the maps under the same single thread that commits. */
+  async stats(tenant: string): Promise<StoreStats> {
+    let sessions = 0;
+    let slots = 0;
+    for (const [key, e] of this.sessions) {
+      if (!key.startsWith(`${tenant}\u0000`)) continue;
+      sessions++;
+      slots += e.table.count();
+    }
+    let logbookEntries = 0;
+    for (const [key, index] of this.logbooks) if (key.startsWith(`s\u0000${tenant}\u0000`) || key.startsWith(`u\u0000${tenant}\u0000`)) logbookEntries += index.size;
+    return { sessions, slots, logbookEntries, source: 'counters' };
+  }
+
+  async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
+    const atMs = Date.now();
+    this.fleet.set(`${tenant}\u0000${instance}`, { instance, atMs, payload, expiresMs: atMs + ttlMs });
+  }
+
+  async listFleet(tenant: string): Promise<FleetRecord[]> {
+    const now = Date.now();
+    const out: FleetRecord[] = [];
+    for (const [k, r] of this.fleet) {
+      if (r.expiresMs < now) this.fleet.delete(k);
+      else if (k.startsWith(`${tenant}\u0000`)) out.push({ instance: r.instance, atMs: r.atMs, payload: r.payload });
     }
     return out;
   }

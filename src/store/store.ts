@@ -136,6 +136,31 @@ export interface ListLogbookOptions {
   kinds?: readonly LogbookKind[];
 }
 
+/**
+ * Figures a store keeps atomically with its commits and erasures, per tenant, so every process of a
+ * fleet reads the same truth (not a per-process cache).
+ */
+export interface StoreStats {
+  /** Sessions holding state. */
+  sessions: number;
+  /** Slots in use over all sessions. */
+  slots: number;
+  /** Logbook entries over all scopes. */
+  logbookEntries: number;
+  /** `counters`: kept by the commit/erase scripts; `scan`: counted on demand (Redis Cluster, where no key spans hash slots). */
+  source: 'counters' | 'scan';
+}
+
+/** One process's published dashboard buckets (see `putFleet`). */
+export interface FleetRecord {
+  /** The instance name the process publishes under. */
+  instance: string;
+  /** When it was written (ms). */
+  atMs: number;
+  /** Opaque JSON the dashboard wrote. */
+  payload: string;
+}
+
 /** Persistence for sessions. Every implementation passes `test/store/conformance.ts`. */
 export interface Store {
   /** Short name for logs and metrics labels (`memory`, `redis`, `cluster`). */
@@ -183,4 +208,12 @@ export interface Store {
   watchResets?(listener: (e: { atMs: number }) => void): void;
   /** Releases connections, timers and files. */
   close(): Promise<void>;
+  /** Resolves when the store answers a trivial command; rejects with a `StoreError` otherwise. */
+  ping?(): Promise<void>;
+  /** A tenant's truth figures over the whole store (see `StoreStats`). */
+  stats?(tenant: string): Promise<StoreStats>;
+  /** Publishes one process's dashboard buckets for a tenant under `instance`, kept for `ttlMs`. */
+  putFleet?(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void>;
+  /** Every instance's latest published buckets for a tenant (expired ones left out). */
+  listFleet?(tenant: string): Promise<FleetRecord[]>;
 }

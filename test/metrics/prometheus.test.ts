@@ -1,13 +1,24 @@
+// Prometheus metrics driven by the real middleware (createTidemark over a store that can be made to
+// fail), read back with an independent parser and checked with promtool, the Prometheus project's own
+// linter (Debian package `prometheus`, installed by scripts/ensure-prometheus.sh).
+
 import { describe, expect, it } from 'vitest';
+import { execFileSync } from 'node:child_process';
+import { existsSync, readFileSync } from 'node:fs';
 import { EventEmitter } from 'eventemitter3';
 import * as client from 'prom-client';
 // Independent parser of the Prometheus text exposition format (npm: parse-prometheus-text-format 1.1.1,
 // ported from the Prometheus Python client's parser), so the test does not trust prom-client's own output.
 import parsePrometheusTextFormat, { type ParsedFamily } from 'parse-prometheus-text-format';
-import { ErrorCodes, StoreError } from '../../src/errors.js';
+import { ErrorCodes } from '../../src/errors.js';
 import type { TidemarkEvents } from '../../src/middleware/events.js';
+import { createTidemark } from '../../src/middleware/tidemark.js';
+import { StoreHealth } from '../../src/metrics/health.js';
 import { prometheusMetrics } from '../../src/metrics/prometheus.js';
-import { emitTurn } from './synthetic.js';
+import { ControlledStore } from '../middleware/helpers.js';
+
+const PROMTOOL = '/usr/bin/promtool';
+const inCI = process.env.CI === 'true';
 
 function family(parsed: ParsedFamily[], name: string): ParsedFamily {
   const f = parsed.find((x) => x.name === name);
@@ -27,72 +38,111 @@ function seriesCount(parsed: ParsedFamily[]): number {
   return n;
 }
 
-describe('prometheusMetrics', () => {
-  it('counts reads, writes (gated_out from the gate), evictions and durations, in a registry of its own', async () => {
-    const bus = new EventEmitter<TidemarkEvents>();
+const FACTS = ['My name is Dana.', 'My bike is a green tourer.', 'I live in Eastmoor.', 'My saddle height is 74 cm.', 'Can I book a service for Friday?', 'What is my name?'];
+const bot = async (): Promise<string> => 'Noted, thanks.';
+
+describe('prometheusMetrics on the real middleware', () => {
+  it('counts degraded reads as reads, writes apart from gated candidates, the outbox and the store health', async () => {
+    const store = new ControlledStore();
+    const tm = createTidemark({ store, capacity: 4 });
+    const health = new StoreHealth(store);
+    await health.start(tm);
     const registry = new client.Registry();
-    const m = await prometheusMetrics(bus, { registry });
-    emitTurn(bus, { sessionHash: 'h1', result: 'slot', readUs: 1500 });
-    emitTurn(bus, { sessionHash: 'h1', result: 'logbook', outcome: 'overwritten', evict: 'capacity' });
-    emitTurn(bus, { sessionHash: 'h2', result: 'miss', passed: false, evict: 'decayed' });
-    emitTurn(bus, { sessionHash: 'h2', result: 'miss', outcome: 'reinforced', slotsInUse: 8 });
-    bus.emit('outbox', { depth: 3, change: 'queued' });
-    bus.emit('error', { stage: 'write', error: new StoreError(ErrorCodes.STORE_UNAVAILABLE, 'down') });
-    bus.emit('degraded', { sessionHash: 'h2', tenant: 'default', atMs: Date.now(), stage: 'read', code: ErrorCodes.STORE_UNAVAILABLE });
+    const m = await prometheusMetrics(tm, { registry, health });
+    const first = parsePrometheusTextFormat(await m.metrics());
+    // Zero-initialised from the first scrape: every read result, every known error code.
+    expect(value(first, 'tidemark_reads_total', { result: 'degraded' })).toBe(0);
+    expect(value(first, 'tidemark_errors_total', { stage: 'read', code: ErrorCodes.STORE_UNAVAILABLE })).toBe(0);
+    expect(value(first, 'tidemark_store_errors_total', { code: ErrorCodes.STORE_OUTBOX_FULL })).toBe(0);
+    expect(value(first, 'tidemark_store_up')).toBe(1);
 
-    const text = await m.metrics();
-    const parsed = parsePrometheusTextFormat(text);
-    expect(value(parsed, 'tidemark_reads_total', { result: 'slot' })).toBe(1);
-    expect(value(parsed, 'tidemark_reads_total', { result: 'logbook' })).toBe(1);
-    expect(value(parsed, 'tidemark_reads_total', { result: 'miss' })).toBe(2);
-    expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated' })).toBe(1);
-    expect(value(parsed, 'tidemark_writes_total', { outcome: 'overwritten' })).toBe(1);
-    expect(value(parsed, 'tidemark_writes_total', { outcome: 'reinforced' })).toBe(1);
-    expect(value(parsed, 'tidemark_writes_total', { outcome: 'gated_out' })).toBe(1);
-    expect(value(parsed, 'tidemark_evictions_total', { reason: 'capacity' })).toBe(1);
-    expect(value(parsed, 'tidemark_evictions_total', { reason: 'decayed' })).toBe(1);
-    expect(value(parsed, 'tidemark_evictions_total', { reason: 'erased' })).toBe(0);
-    expect(value(parsed, 'tidemark_active_sessions')).toBe(2);
-    expect(value(parsed, 'tidemark_slots_in_use')).toBe(3 + 8);
-    expect(value(parsed, 'tidemark_outbox_depth')).toBe(3);
-    expect(value(parsed, 'tidemark_store_errors_total', { code: 'TIDEMARK_E_STORE_UNAVAILABLE' })).toBe(1);
-    expect(value(parsed, 'tidemark_degraded_total', { stage: 'read' })).toBe(1);
+    let gates = 0;
+    let passed = 0;
+    let commits = 0;
+    tm.on('gate', (e) => {
+      gates++;
+      if (e.passed) passed++;
+    });
+    tm.on('commit', () => commits++);
+    const reply = tm.wrap(bot);
+    for (let i = 0; i < 6; i++) for await (const _ of await reply({ session: `s${i % 2}`, text: FACTS[i]! })) void _;
+    await tm.flush();
+    store.failLoad = true;
+    store.failCommit = true;
+    for (let i = 0; i < 3; i++) for await (const _ of await reply({ session: 's0', text: FACTS[i]! })) void _;
+    await new Promise((r) => setImmediate(r));
 
-    // Durations in seconds: the 1500 µs read lands in the le=0.0025 bucket but not le=0.001.
-    const read = family(parsed, 'tidemark_read_duration_seconds');
-    expect(read.type).toBe('HISTOGRAM');
-    expect(Number(read.metrics[0]!.count)).toBe(4);
-    expect(Number(read.metrics[0]!.sum)).toBeCloseTo(0.0015 + 3 * 0.0004, 9);
-    expect(Number(read.metrics[0]!.buckets!['0.001'])).toBe(3);
-    expect(Number(read.metrics[0]!.buckets!['0.0025'])).toBe(4);
-    expect(Number(family(parsed, 'tidemark_attention_top_weight').metrics[0]!.count)).toBe(4);
+    const down = parsePrometheusTextFormat(await m.metrics());
+    expect(value(down, 'tidemark_reads_total', { result: 'degraded' })).toBe(3);
+    expect(value(down, 'tidemark_reads_total', { result: 'slot' }) + value(down, 'tidemark_reads_total', { result: 'logbook' }) + value(down, 'tidemark_reads_total', { result: 'miss' })).toBe(6);
+    expect(value(down, 'tidemark_degraded_total', { stage: 'read' })).toBe(3);
+    expect(value(down, 'tidemark_degraded_total', { stage: 'write' })).toBe(value(down, 'tidemark_outbox_changes_total', { change: 'queued' }));
+    expect(value(down, 'tidemark_outbox_changes_total', { change: 'queued' })).toBeGreaterThan(0);
+    expect(value(down, 'tidemark_store_up')).toBe(0);
+    // Candidates and writes are separate: no gated_out among writes.
+    expect(family(down, 'tidemark_writes_total').metrics.map((x) => x.labels?.outcome).sort()).toEqual(['allocated', 'overwritten', 'reinforced']);
+    expect(value(down, 'tidemark_candidates_total', { decision: 'passed' })).toBe(passed);
+    expect(value(down, 'tidemark_candidates_total', { decision: 'gated_out' })).toBe(gates - passed);
+    expect(value(down, 'tidemark_commit_duration_seconds')).toBe(commits);
+    // Build info: the package's version and the store's kind.
+    const pkg = JSON.parse(readFileSync(new URL('../../package.json', import.meta.url), 'utf8')) as { version: string };
+    expect(family(down, 'tidemark_build_info').metrics[0]!.labels).toEqual({ version: pkg.version, store: 'controlled' });
 
-    // Conventions: one prefix, counters end in _total, every family has help text.
-    for (const f of parsed) {
-      expect(f.name.startsWith('tidemark_')).toBe(true);
-      expect(f.help.length).toBeGreaterThan(10);
-      if (f.type === 'COUNTER') expect(f.name.endsWith('_total')).toBe(true);
-    }
-    // Nothing went to prom-client's global registry.
-    expect(await client.register.metrics()).not.toContain('tidemark_');
+    store.failLoad = false;
+    store.failCommit = false;
+    await tm.flush();
+    for await (const _ of await reply({ session: 's1', text: 'What is my name?' })) void _;
+    const up = parsePrometheusTextFormat(await m.metrics());
+    expect(value(up, 'tidemark_store_up')).toBe(1);
+    expect(value(up, 'tidemark_outbox_changes_total', { change: 'drained' })).toBe(value(up, 'tidemark_outbox_changes_total', { change: 'queued' }));
+    expect(value(up, 'tidemark_store_last_success_timestamp_seconds')).toBeCloseTo(health.state.lastSuccessMs! / 1000, 3);
+    health.stop();
     m.stop();
-    expect((await registry.metrics()).trim()).toBe('');
+    await tm.close();
   });
 
-  it('keeps series count independent of the number of sessions (10,000 distinct sessions)', async () => {
-    const bus = new EventEmitter<TidemarkEvents>();
-    const m = await prometheusMetrics(bus, { registry: new client.Registry(), prefix: 'tm_' });
-    for (let i = 0; i < 10; i++) emitTurn(bus, { sessionHash: `warm${i}`, evict: 'capacity' });
+  it('reports the store truth figures from the store itself (in-process store)', async () => {
+    const tm = createTidemark({ capacity: 4 });
+    const m = await prometheusMetrics(tm, { registry: new client.Registry() });
+    for (let i = 0; i < 9; i++) await tm.write({ session: `n${i % 3}`, text: FACTS[i % FACTS.length]!, role: 'user' });
+    const stats = await tm.store.stats!('default');
+    const parsed = parsePrometheusTextFormat(await m.metrics());
+    expect(value(parsed, 'tidemark_store_sessions')).toBe(3);
+    expect(value(parsed, 'tidemark_store_slots')).toBe(stats.slots);
+    expect(value(parsed, 'tidemark_store_logbook_entries')).toBe(stats.logbookEntries);
+    m.stop();
+    await tm.close();
+  });
+
+  it('keeps the series count independent of the number of sessions (2,000 distinct sessions)', async () => {
+    const tm = createTidemark({ capacity: 4 });
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), prefix: 'tm_' });
+    for (let i = 0; i < 10; i++) await tm.read({ session: `warm${i}`, text: 'What bike do I ride?' });
     const before = await m.metrics();
-    for (let i = 0; i < 10_000; i++) {
-      emitTurn(bus, { sessionHash: `s${i}`, result: (['slot', 'logbook', 'miss'] as const)[i % 3], evict: i % 7 === 0 ? 'decayed' : undefined });
-    }
+    for (let i = 0; i < 2_000; i++) await tm.read({ session: `s${i}`, text: 'When is my booking?' });
     const after = await m.metrics();
     const parsedAfter = parsePrometheusTextFormat(after);
     expect(seriesCount(parsedAfter)).toBe(seriesCount(parsePrometheusTextFormat(before)));
-    expect(value(parsedAfter, 'tm_active_sessions')).toBe(10_010);
-    expect(after).not.toMatch(/s9999|warm0/);
+    expect(value(parsedAfter, 'tm_process_active_sessions')).toBe(2_010);
+    expect(after).not.toMatch(/s1999|warm0/);
     m.stop();
+    await tm.close();
+  });
+
+  (existsSync(PROMTOOL) || inCI ? it : it.skip)('passes `promtool check metrics` (names, units, help) with process metrics on', async () => {
+    const tm = createTidemark({ capacity: 4 });
+    const health = new StoreHealth(tm.store);
+    await health.start(tm);
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), health, processMetrics: true });
+    await tm.write({ session: 'p1', text: 'My name is Dana.', role: 'user' });
+    const text = await m.metrics();
+    expect(text).toContain('process_cpu_seconds_total');
+    // promtool exits non-zero and prints each problem when the exposition breaks a convention.
+    const out = execFileSync(PROMTOOL, ['check', 'metrics'], { input: text, encoding: 'utf8' });
+    expect(out.trim()).toBe('');
+    health.stop();
+    m.stop();
+    await tm.close();
   });
 
   it('rejects a bad prefix naming the option and value', async () => {
@@ -100,10 +150,13 @@ describe('prometheusMetrics', () => {
   });
 
   it('creates its own registry (not the global one) when none is passed', async () => {
-    const bus = new EventEmitter<TidemarkEvents>();
-    const m = await prometheusMetrics(bus);
+    const tm = createTidemark();
+    const m = await prometheusMetrics(tm);
     expect(m.registry).not.toBe(client.register);
+    expect(await client.register.metrics()).not.toContain('tidemark_');
     expect(m.contentType).toMatch(/^text\/plain/);
     m.stop();
+    expect((await m.registry.metrics()).trim()).toBe('');
+    await tm.close();
   });
 });

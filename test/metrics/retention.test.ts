@@ -5,6 +5,8 @@ import type { TidemarkEvents, WriteEvent, EvictEvent } from '../../src/middlewar
 import {
   halfLifeDistribution,
   kaplanMeier,
+  kaplanMeierGrouped,
+  type LifetimeGroup,
   quantile,
   RetentionTracker,
   survivalAt,
@@ -184,5 +186,47 @@ describe('RetentionTracker', () => {
 
   it('rejects bad options naming the option', () => {
     expect(() => new RetentionTracker({ maxFinished: 0 })).toThrow(/maxFinished must be a positive integer, got 0/);
+  });
+});
+
+describe('grouped Kaplan–Meier for the feed', () => {
+  it('equals kaplanMeier on the expanded observations (6-MP example and random data, fast-check seed 4242)', () => {
+    const group = (obs: readonly LifetimeObservation[]): LifetimeGroup[] => {
+      const m = new Map<number, LifetimeGroup>();
+      for (const o of obs) {
+        const g = m.get(o.time) ?? { time: o.time, events: 0, censored: 0 };
+        if (o.event) g.events++;
+        else g.censored++;
+        m.set(o.time, g);
+      }
+      return [...m.values()].reverse();
+    };
+    expect(kaplanMeierGrouped(group(SIX_MP))).toEqual(kaplanMeier(SIX_MP));
+    const seed = 4242;
+    console.log(`fast-check seed ${seed}`);
+    fc.assert(
+      fc.property(fc.array(fc.record({ time: fc.integer({ min: 0, max: 40 }), event: fc.boolean() }), { maxLength: 200 }), (obs) => {
+        expect(kaplanMeierGrouped(group(obs))).toEqual(kaplanMeier(obs));
+      }),
+      { seed, numRuns: 200 },
+    );
+  });
+
+  it("the tracker's grouped curves equal its exact ones in turns, and stay within one 5 % bin in seconds", () => {
+    const t = new RetentionTracker({ maxFinished: 50 });
+    const bus = new EventEmitter<TidemarkEvents>();
+    t.attach(bus);
+    const base = { tenant: 'default', atMs: 1_000_000 };
+    for (let i = 0; i < 120; i++) {
+      const sessionHash = `s${i % 9}`;
+      bus.emit('write', { ...base, sessionHash, outcome: 'allocated', slot: i % 4, id: `r${i}`, clock: i, gate: 1, strength: 1, halfLife: 20, slotsInUse: 1, capacity: 4 } as WriteEvent);
+      if (i % 3 === 0) bus.emit('evict', { ...base, sessionHash, slot: i % 4, id: `r${i}`, reason: i % 15 === 0 ? 'erased' : 'capacity', archived: true, lifetime: i % 11, lifetimeMs: 1000 + 137 * i, halfLife: 20, strength: 0.1 } as EvictEvent);
+    }
+    const exact = t.snapshot(2_000_000);
+    const grouped = t.curves(2_000_000);
+    expect(grouped.clock).toEqual(exact.clock);
+    expect(grouped.seconds.n).toBe(exact.seconds.n);
+    expect(grouped.seconds.events).toBe(exact.seconds.events);
+    expect(Math.abs(grouped.seconds.median! - exact.seconds.median!) / exact.seconds.median!).toBeLessThanOrEqual(0.05);
   });
 });
