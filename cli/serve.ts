@@ -9,6 +9,7 @@ import type { AddressInfo } from 'node:net';
 import { hostname } from 'node:os';
 import { createHttpAdapter, isLoopback, type ChatHandler, type ResolveIdentity } from '../adapters/http/index.js';
 import { ConfigError, describeValue } from '../src/errors.js';
+import type { OutboxEvent } from '../src/middleware/events.js';
 import { createTidemark, type Tidemark, type TidemarkOptions } from '../src/middleware/tidemark.js';
 import { StoreHealth } from '../src/metrics/health.js';
 import { demoHandler } from './demo-bot.js';
@@ -202,7 +203,7 @@ function logLifecycle(tm: Tidemark, health: StoreHealth, log: (entry: Record<str
   let firstQueuedMs = 0;
   let refused = 0;
   let lastOverflowLog = 0;
-  const onOutbox = (e: { depth: number; change: 'queued' | 'drained' | 'overflow' }): void => {
+  const onOutbox = (e: OutboxEvent): void => {
     if (e.change === 'queued') {
       if (queued === 0) firstQueuedMs = Date.now();
       queued++;

@@ -221,7 +221,7 @@ export class DashboardCollector {
         if (s) s.reads += 1;
       },
       outbox: (e) => {
-        if (OUTBOX_CHANGES.includes(e.change)) this.bucket(Date.now()).outbox[e.change] += 1;
+        if ((OUTBOX_CHANGES as readonly string[]).includes(e.change)) this.bucket(Date.now()).outbox[e.change as OutboxChange] += 1;
       },
     });
     return () => {

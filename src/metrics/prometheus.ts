@@ -96,6 +96,8 @@ const READ_RESULTS: readonly ReadResult[] = ['slot', 'logbook', 'miss'];
 /** Writes are what changed a slot; a candidate the gate refused is not a write (see candidates_total). */
 const WRITE_OUTCOMES: readonly Exclude<WriteOutcome, 'gated_out'>[] = ['allocated', 'overwritten', 'reinforced'];
 const ERROR_STAGES = ['read', 'write', 'handler', 'outbox', 'store'] as const;
+/** Every value of an `outbox` event's `change`, zero-initialised so `increase()` sees the first one. */
+const OUTBOX_CHANGE_LABELS = ['queued', 'drained', 'overflow', 'retry', 'erased', 'expired', 'failed', 'abandoned'] as const;
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
 
@@ -181,7 +183,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   const storeErrors = new client.Counter({ name: `${p}store_errors_total`, help: 'Store failures and conflicts that surfaced as errors, by error code.', labelNames: ['code'], registers });
   const errors = new client.Counter({ name: `${p}errors_total`, help: 'Errors emitted, by stage and error code.', labelNames: ['stage', 'code'], registers });
   const degraded = new client.Counter({ name: `${p}degraded_total`, help: 'Store failures met by a turn, by stage: read (answered with empty memory) and write (queued in the outbox; equals outbox_changes_total{change="queued"}).', labelNames: ['stage'], registers });
-  const outboxChanges = new client.Counter({ name: `${p}outbox_changes_total`, help: 'Pending-write outbox changes: queued, drained (committed later) or overflow (refused).', labelNames: ['change'], registers });
+  const outboxChanges = new client.Counter({ name: `${p}outbox_changes_total`, help: 'Pending-write outbox changes: queued, drained (committed later), overflow (refused), retry (queued again after a conflict or failure), erased (accepted before an erase; not stored), expired (waited past outbox.maxAgeMs), failed (refused for good by the store), abandoned (still queued when close() ran out of time).', labelNames: ['change'], registers });
   const active = new client.Gauge({
     name: `${p}process_active_sessions`,
     help: `Sessions this process served in the last ${o.activeWindowMs / 1000} s. Per process: behind a load balancer one session reaches several processes, so do not sum it; the fleet's figure is store_sessions.`,
@@ -268,7 +270,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   for (const r of EVICT_REASONS) evictions.inc({ reason: r }, 0);
   for (const r of ['superseded', 'capacity', 'decayed', 'expired']) archived.inc({ reason: r }, 0);
   for (const s of ['read', 'write']) degraded.inc({ stage: s }, 0);
-  for (const c of ['queued', 'drained', 'overflow']) outboxChanges.inc({ change: c }, 0);
+  for (const c of OUTBOX_CHANGE_LABELS) outboxChanges.inc({ change: c }, 0);
   for (const stage of ERROR_STAGES) for (const code of [...KNOWN_CODES, 'other']) errors.inc({ stage, code }, 0);
   for (const code of KNOWN_CODES) if (code.startsWith('TIDEMARK_E_STORE_')) storeErrors.inc({ code }, 0);
 
@@ -318,7 +320,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     },
     outbox(e) {
       outboxDepth = e.depth;
-      if (['queued', 'drained', 'overflow'].includes(e.change)) outboxChanges.inc({ change: e.change });
+      outboxChanges.inc({ change: e.change });
       if (e.change === 'queued') degraded.inc({ stage: 'write' });
     },
     error(e) {
