@@ -23,7 +23,7 @@ import { createTidemark, type Tidemark, type WrapContext, type WrapInput } from 
 import type { SlotTable } from '../src/memory/slots.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import type { CommitRequest, Store } from '../src/store/store.js';
-import type { RedisClient, RedisStore } from '../adapters/redis/index.js';
+import type { RedisClient, RedisSlotStore } from '../adapters/redis/index.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
 import { generateScenario } from './lib/scenario.js';
 import { machine, parseArgs, percentile, round } from './lib/stats.js';
@@ -212,7 +212,7 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     };
   }
   const { Redis, Cluster } = await import('ioredis');
-  const { RedisStore, REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS } = await import('../adapters/redis/index.js');
+  const { RedisSlotStore, REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS } = await import('../adapters/redis/index.js');
   let client: RedisClient;
   let stopCluster = false;
   const clusterScript = new URL('../scripts/redis-cluster.sh', import.meta.url).pathname;
@@ -238,10 +238,10 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     client: c,
     async open() {
       const prefix = `tidemark-bench:${runId()}:`;
-      return { store: new RedisStore({ redis: c, prefix }), prefix };
+      return { store: new RedisSlotStore({ redis: c, prefix }), prefix };
     },
     async bytesOf(store, sessions) {
-      const rs = store as RedisStore;
+      const rs = store as RedisSlotStore;
       const each = await Promise.all(
         sessions.map((s) => {
           const keys = rs.sessionKeys(TENANT, s).all;
@@ -275,7 +275,7 @@ type Outcome = 'commit' | 'error';
 /** Drives `sessions` simulated users for `turns` turns each with `concurrency` in flight. */
 async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   const { store, prefix } = await backend.open();
-  const tm = createTidemark({ store, tenant: TENANT, capacity: o.capacity, secret: 'load-bench' });
+  const tm = createTidemark({ store, tenant: TENANT, capacity: o.capacity, hashKey: 'load-bench' });
   const read = histogram();
   const write = histogram();
   const turn = histogram();
@@ -489,7 +489,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const bytes = await backend.bytesOf(store, sample);
   const byKey: Record<string, number> = {};
   for (const part of ['meta', 'slots', 'events', 'arch', 'alog'] as const) {
-    const each = await Promise.all(sample.map((s) => client.eval(MEMORY_OF_KEYS, 1, (store as RedisStore).sessionKeys(TENANT, s)[part])));
+    const each = await Promise.all(sample.map((s) => client.eval(MEMORY_OF_KEYS, 1, (store as RedisSlotStore).sessionKeys(TENANT, s)[part])));
     byKey[part] = Math.round(each.reduce<number>((a, v) => a + Number(v ?? 0), 0) / sample.length);
   }
   await store.close();

@@ -18,7 +18,7 @@ import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type Key
 import { KeySpace, type SessionKeys } from './keys.js';
 import { COMMIT, ERASE, LOAD, LOG_DELETE, LOG_FETCH } from './scripts.js';
 
-export interface RedisStoreOptions {
+export interface RedisSlotStoreOptions {
   /**
    * An ioredis `Redis` or `Cluster` instance, or a `redis://` URL (the store then creates a client with
    * `REDIS_CLIENT_OPTIONS` and closes it on `close()`; a client you pass stays yours to close).
@@ -56,7 +56,7 @@ export interface RedisStoreOptions {
   archive?: ArchiveOptions;
 }
 
-export const REDIS_STORE_DEFAULTS = {
+export const REDIS_SLOT_STORE_DEFAULTS = {
   redis: 'redis://127.0.0.1:6379',
   prefix: 'tidemark:',
   idleTtlSeconds: 30 * 24 * 3600,
@@ -64,9 +64,9 @@ export const REDIS_STORE_DEFAULTS = {
   maxEvents: 1000,
   cacheSessions: 1000,
   connectTimeoutMs: 2000,
-} as const satisfies Omit<Required<RedisStoreOptions>, 'archive'>;
+} as const satisfies Omit<Required<RedisSlotStoreOptions>, 'archive'>;
 
-type Resolved = Omit<Required<RedisStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
+type Resolved = Omit<Required<RedisSlotStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
 
 interface CachedSession {
   epoch: string;
@@ -113,7 +113,7 @@ function scopeKeyOf(scope: LogbookScope): string {
   return 'user' in scope ? `u\u0000${scope.tenant}\u0000${scope.user}` : `s\u0000${scope.tenant}\u0000${scope.session}`;
 }
 
-export class RedisStore implements Store {
+export class RedisSlotStore implements Store {
   readonly name: string;
   private client: RedisClient | undefined;
   private readonly clientReady: Promise<RedisClient>;
@@ -128,8 +128,8 @@ export class RedisStore implements Store {
   private readonly commitIds = new WeakMap<CommitRequest, string>();
   private closed = false;
 
-  constructor(options: RedisStoreOptions = {}) {
-    const o = { ...REDIS_STORE_DEFAULTS, ...options };
+  constructor(options: RedisSlotStoreOptions = {}) {
+    const o = { ...REDIS_SLOT_STORE_DEFAULTS, ...options };
     const fail = (name: string, value: unknown, expected: string): never => {
       throw new ConfigError(`redis store: ${name} must be ${expected}, got ${describeValue(value)}`, { details: { option: name } });
     };
@@ -577,7 +577,7 @@ export class RedisStore implements Store {
   }
 }
 
-/** A Store on Redis or Redis Cluster (see RedisStoreOptions). */
-export function redisStore(options?: RedisStoreOptions): RedisStore {
-  return new RedisStore(options);
+/** A Store on Redis or Redis Cluster (see RedisSlotStoreOptions). */
+export function redisSlotStore(options?: RedisSlotStoreOptions): RedisSlotStore {
+  return new RedisSlotStore(options);
 }

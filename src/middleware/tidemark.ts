@@ -24,6 +24,7 @@ import { ReadPath } from './read.js';
 import { isAsyncIterable, isReadableStream, passIterable, passReadable, type Reply, type ReplyEnd } from './stream.js';
 import type { Turn } from './validate.js';
 import { WritePath, type WriteReport } from './write.js';
+import { hashKeyOf } from '../deprecated.js';
 
 export { TIDEMARK_DEFAULTS, type LogbookOptions, type OutboxOptions, type TidemarkOptions } from './options.js';
 export type { SessionView, SlotView } from './admin.js';
@@ -74,7 +75,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       throw new ConfigError(`embedder ${this.embedder.id} has dim ${describeValue(this.embedder.dim)}; an embedder must know its dimension (call warmup() first)`);
     }
     this.extractor = options.extractor ?? new RuleExtractor();
-    this.core = new Core(this.store, this.embedder, this.extractor, this.params, o, this, options.secret);
+    this.core = new Core(this.store, this.embedder, this.extractor, this.params, o, this, hashKeyOf(options));
     this.reads = new ReadPath(this.core);
     this.writes = new WritePath(this.core);
     this.outbox = new Outbox(this.core, this.writes);

@@ -93,7 +93,7 @@ run('dashboard in a real browser', () => {
       if (m.type() === 'error') errors.push(m.text());
     });
     await page.goto(`${s.url}/dashboard`);
-    const panels = ['recall', 'occupancy', 'writes', 'evictions', 'survival', 'latency', 'sessions'];
+    const panels = ['hit-share', 'occupancy', 'writes', 'evictions', 'survival', 'latency', 'sessions'];
     // Every panel must report data (its data-live count > 0) while turns keep flowing.
     await page.waitForFunction(
       (ids) => ids.every((id) => Number(document.querySelector(`[data-panel="${id}"]`)?.getAttribute('data-live')) > 0),

@@ -24,7 +24,7 @@ describe('memory invariants through the middleware (fast-check)', () => {
     await fc.assert(
       fc.asyncProperty(fc.integer({ min: 1, max: 4 }), fc.array(turnArb, { minLength: 1, maxLength: 14 }), async (capacity, turns) => {
         const store = new InProcessStore();
-        const tm = createTidemark({ store, capacity, secret: 'p', write: { halfLife: 6 } });
+        const tm = createTidemark({ store, capacity, hashKey: 'p', write: { halfLife: 6 } });
         const pinnedIds = new Set<number>();
         for (const t of turns) {
           if (t.kind === 'pin') {

@@ -11,7 +11,7 @@ import { ControlledStore, sleep } from './helpers.js';
 
 const open: Tidemark[] = [];
 function make(options: TidemarkOptions = {}): Tidemark {
-  const tm = createTidemark({ secret: 'test-secret', ...options });
+  const tm = createTidemark({ hashKey: 'test-key', ...options });
   open.push(tm);
   return tm;
 }
@@ -343,7 +343,7 @@ describe('admin', () => {
     await tm.write({ session: 'bike-1', text: 'My name is Dana' });
     const h = tm.hashSession('default', 'bike-1');
     expect(h).toMatch(/^[0-9a-f]{12}$/);
-    expect(createTidemark({ secret: 'another' }).hashSession('default', 'bike-1')).not.toBe(h);
+    expect(createTidemark({ hashKey: 'another' }).hashSession('default', 'bike-1')).not.toBe(h);
     expect(seen.length).toBeGreaterThan(0);
     for (const s of seen) {
       expect(s).toContain(h);

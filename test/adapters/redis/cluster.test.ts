@@ -4,7 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Cluster } from 'ioredis';
-import { redisStore } from '../../../adapters/redis/index.js';
+import { redisSlotStore } from '../../../adapters/redis/index.js';
 import { archived, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
 import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
 
@@ -39,11 +39,11 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   storeConformance('cluster', async () => {
     const c = newCluster(ports);
     clients.push(c);
-    return redisStore({ redis: c, prefix: `${prefix}conf:` });
+    return redisSlotStore({ redis: c, prefix: `${prefix}conf:` });
   }, { keyTolerance: 1e-2 });
 
   it('every key of a session hashes to one slot (CLUSTER KEYSLOT), and sessions spread over the masters', async () => {
-    const store = redisStore({ redis: admin, prefix });
+    const store = redisSlotStore({ redis: admin, prefix });
     const slotsSeen = new Set<number>();
     for (let n = 0; n < 24; n++) {
       const ref = { tenant: 'acme', session: `ks-${n}`, user: 'u-ks' };
@@ -73,7 +73,7 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   });
 
   it('erasing a session leaves no key of it on any master', async () => {
-    const store = redisStore({ redis: admin, prefix });
+    const store = redisSlotStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
     await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
     expect((await scanKeys(admin, `${prefix}*`)).length).toBe(6); // meta, slots, events, uarch, ualog + the user's set

@@ -4,7 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
-import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
@@ -27,16 +27,16 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     admin.disconnect();
   });
 
-  storeConformance('redis-int8', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('int8') }), { keyTolerance: 1e-2 });
-  storeConformance('redis-float32', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
-  storeConformance('redis-nocache', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
+  storeConformance('redis-int8', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('int8') }), { keyTolerance: 1e-2 });
+  storeConformance('redis-float32', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
+  storeConformance('redis-nocache', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
 
   describe('payloads', () => {
-    let store: RedisStore;
+    let store: RedisSlotStore;
     let prefix: string;
     beforeAll(() => {
       prefix = prefixFor('payload');
-      store = redisStore({ redis: newClient(), prefix });
+      store = redisSlotStore({ redis: newClient(), prefix });
     });
     afterAll(async () => {
       (await store.redis()).disconnect();
@@ -47,7 +47,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 't', session: 'int8' };
       const key = unit(42, 384);
       await store.commit(ref, commitOf({ dim: 384, ops: [{ index: 0, slot: slot(1, { key }) }] }));
-      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      const fresh = redisSlotStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
       const got = (await fresh.load(ref))!.table.get(0)!.key;
       let maxErr = 0;
       let norm = 0;
@@ -66,7 +66,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const raw = (await admin.hgetBuffer(k.slots, '0'))!;
       raw[raw.length - 1] ^= 0x01; // one bit of the key
       await admin.hset(k.slots, '0', raw);
-      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      const fresh = redisSlotStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
       await expect(fresh.load(ref)).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT', details: { reason: 'checksum mismatch' } });
       // An unknown format version byte is refused too.
       raw[raw.length - 1] ^= 0x01;
@@ -117,14 +117,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     };
 
     it('a commit is one EVALSHA and a read one EVALSHA', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'rt1' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       await settle();
       await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
       let cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
-      const cold = redisStore({ redis: client, prefix });
+      const cold = redisSlotStore({ redis: client, prefix });
       expect((await cold.load(ref))!.table.count()).toBe(2);
       cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
@@ -136,8 +136,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('an unchanged session is served from the cache; another writer or an erase is seen at once', async () => {
-      const a = redisStore({ redis: client, prefix });
-      const b = redisStore({ redis: client, prefix });
+      const a = redisSlotStore({ redis: client, prefix });
+      const b = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'cache1' };
       await a.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       const s1 = await a.load(ref);
@@ -155,8 +155,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('logbook searches pick up entries appended by another process, its deletes and its retention', async () => {
-      const a = redisStore({ redis: client, prefix });
-      const b = redisStore({ redis: client, prefix });
+      const a = redisSlotStore({ redis: client, prefix });
+      const b = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'arch-delta' };
       const scope = { tenant: 'acme', session: 'arch-delta' };
       await b.commit(ref, commitOf({ logbook: [archived(1, ref), archived(2, ref)] }));
@@ -176,7 +176,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('a re-sent commit is recognised and applied once', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'resend' };
       const req = commitOf({ ops: [{ index: 0, slot: slot(1) }], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] });
       expect(await store.commit(ref, req)).toEqual({ ok: true, version: 1 });
@@ -192,14 +192,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(await store.commit(ref, first)).toEqual({ ok: true, version: 2 });
       const replanned = { ...commitOf({ expectedVersion: 2, ops: [{ index: 2, slot: slot(3) }], events: [ev] }), commitId: 'write-7f3a' };
       expect(await store.commit(ref, replanned)).toEqual({ ok: true, version: 2 });
-      const snap = await redisStore({ redis: client, prefix, cacheSessions: 0 }).load(ref);
+      const snap = await redisSlotStore({ redis: client, prefix, cacheSessions: 0 }).load(ref);
       expect(snap!.version).toBe(2);
       expect(snap!.table.isUsed(2)).toBe(false);
       expect(await store.readEvents(ref)).toHaveLength(2);
     });
 
     it('no call for one tenant names a key of another tenant', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const other = { tenant: 'beta', session: 'shared-id', user: 'u1' };
       await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, other)] }));
       await settle();
@@ -227,7 +227,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('tenant and session ids cannot collide through ":" or braces', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       await store.commit({ tenant: 'a:b', session: 'c' }, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       expect(await store.load({ tenant: 'a', session: 'b:c' })).toBeNull();
       await store.commit({ tenant: 'x', session: 'we{ir}d%' }, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
@@ -237,7 +237,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
-      const store = redisStore({ redis: client, prefix, idleTtlSeconds: 120 });
+      const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
@@ -246,14 +246,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
         expect(ttl, key).toBeGreaterThan(110);
         expect(ttl, key).toBeLessThanOrEqual(120);
       }
-      const forever = redisStore({ redis: client, prefix, idleTtlSeconds: 0 });
+      const forever = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 0 });
       await forever.commit(ref, commitOf({ expectedVersion: 1 }));
       expect(await client.ttl(k.meta)).toBe(-1);
       await forever.erase({ tenant: 'acme', user: 'u-ttl' });
     });
 
     it('erasure leaves no key of the session or of the user (SCAN proves it)', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const a = { tenant: 'acme', session: 'gone-1', user: 'u-gone' };
       const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
       const c = { tenant: 'acme', session: 'gone-3' };
@@ -274,19 +274,19 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
 
   describe('options', () => {
     it('rejects bad options naming the option, the value and what was expected', () => {
-      expect(() => redisStore({ prefix: 'a{b' })).toThrow(/prefix must be a string without \{ or \}, got "a\{b"/);
-      expect(() => redisStore({ idleTtlSeconds: -1 })).toThrow(/idleTtlSeconds must be an integer >= 0 \(0 = no TTL\), got -1/);
-      expect(() => redisStore({ keyFormat: 'int4' as never })).toThrow(/keyFormat must be 'int8' or 'float32', got "int4"/);
-      expect(() => redisStore({ maxEvents: 1.5 })).toThrow(/maxEvents must be an integer >= 0, got 1.5/);
-      expect(() => redisStore({ redis: 'http://x' })).toThrow(/redis must be an ioredis Redis\/Cluster instance or a redis:\/\/ URL/);
-      expect(() => redisStore({ redis: 'http://x' })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_CONFIG' }));
+      expect(() => redisSlotStore({ prefix: 'a{b' })).toThrow(/prefix must be a string without \{ or \}, got "a\{b"/);
+      expect(() => redisSlotStore({ idleTtlSeconds: -1 })).toThrow(/idleTtlSeconds must be an integer >= 0 \(0 = no TTL\), got -1/);
+      expect(() => redisSlotStore({ keyFormat: 'int4' as never })).toThrow(/keyFormat must be 'int8' or 'float32', got "int4"/);
+      expect(() => redisSlotStore({ maxEvents: 1.5 })).toThrow(/maxEvents must be an integer >= 0, got 1.5/);
+      expect(() => redisSlotStore({ redis: 'http://x' })).toThrow(/redis must be an ioredis Redis\/Cluster instance or a redis:\/\/ URL/);
+      expect(() => redisSlotStore({ redis: 'http://x' })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_CONFIG' }));
     });
   });
 
   describe('outages', () => {
     it('fails fast with STORE_UNAVAILABLE when nothing listens', async () => {
       const port = await freePort();
-      const store = redisStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 500 });
+      const store = redisSlotStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 500 });
       const t0 = performance.now();
       const err = await store.load({ tenant: 't', session: 's' }).catch((e: unknown) => e);
       expect(err).toMatchObject({ code: 'TIDEMARK_E_STORE_UNAVAILABLE' });
@@ -298,7 +298,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('a SIGKILLed server: calls fail fast while it is down, then the store reconnects and nothing acknowledged is lost', async () => {
       const server = new ThrowawayRedis(await freePort());
       await server.start();
-      const store = redisStore({ redis: server.url, prefix: 'tidemark:' });
+      const store = redisSlotStore({ redis: server.url, prefix: 'tidemark:' });
       try {
         const acked: number[] = [];
         for (let n = 1; n <= 20; n++) {
@@ -317,7 +317,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
           if (!back) await new Promise((r) => setTimeout(r, 100));
         }
         expect(back).toBe(true);
-        const fresh = redisStore({ redis: server.url, prefix: 'tidemark:', cacheSessions: 0 });
+        const fresh = redisSlotStore({ redis: server.url, prefix: 'tidemark:', cacheSessions: 0 });
         for (const n of acked) expect((await fresh.load({ tenant: 't', session: `s${n}` }))!.table.get(0)!.id).toBe(`r${n}`);
         expect(acked).toHaveLength(20);
         await fresh.close();
