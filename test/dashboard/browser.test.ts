@@ -33,7 +33,7 @@ const QUESTIONS = ['What bike do I ride?', 'When is my booking?', 'Which chain l
 const NAMES = ['Dana', 'Ravi', 'Maren', 'Tomasz', 'Aiko', 'Femi', 'Lucía', 'Jonah'];
 const COLOURS = ['green', 'red', 'teal', 'black', 'orange'];
 const MODELS = ['Quenby', 'tourer', 'gravel bike', 'cargo bike', 'fixie'];
-const TOWNS = ['Didsbury', 'Chorlton', 'Salford', 'Stockport', 'Levenshulme'];
+const TOWNS = ['Wexdale', 'Quarrowby', 'Fennickby', 'Saltwendle', 'Brindlecote'];
 const DAYS = ['Monday', 'Tuesday', 'Wednesday', 'Thursday', 'Friday'];
 
 function fill(template: string, i: number): string {
