@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: every Store method against Redis and its per-process cache, in one place; split after the reliability work lands.
 // The Redis store: sessions, logbooks and event streams in Redis or Redis Cluster, shared by every bot
 // process. A read is one EVALSHA for the slots (answered with just the version when this process's
 // cached copy is current) and one per logbook slice for what is new since this process last looked;

@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: the extraction rules read as one ordered list; splitting them would hide their precedence.
 // Candidate extraction: splits a turn into key/value candidates for the write gate. The default is
 // rule-based, for the common first-person statements bots hear ("my X is Y", "I live in Y", "call me
 // Y", "remember that ..."), dated or counted statements, and updates ("actually, make it Friday").
