@@ -6,7 +6,7 @@
 
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, InputError, describeValue } from '../errors.js';
-import { scopeOf } from '../store/in-process.js';
+import { InProcessStore, scopeOf } from '../store/in-process.js';
 import type { SessionSnapshot } from '../store/store.js';
 import type { LogbookEntry, SessionRef, SlotRecord, StoredEvent } from '../types.js';
 import type { Admin } from './admin.js';
@@ -175,6 +175,8 @@ export class Corrections {
     for (const e of all) if (e.kind === 'turn' && turnIds.has(e.id)) doomed.set(e.id, e);
     const out = [...doomed.keys()];
     if (out.length > 0) await core.storeCall(() => core.store.deleteLogbook(scope, out), 'logbook');
+    // Like erase(): the in-process store's snapshot file must lose the value now, not at its next interval.
+    if (core.store instanceof InProcessStore) core.store.save();
     return out;
   }
 

@@ -3,6 +3,9 @@
 // in-process store and the real Redis (where a SCAN of every key under the test's prefix proves the
 // old value's bytes are gone). Also: WriteReport.detail, and the per-turn history option of wrap.
 
+import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import type { Redis } from 'ioredis';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { redisSlotStore } from '../../adapters/redis/index.js';
@@ -185,6 +188,23 @@ for (const [label, make, skip] of backends) {
     });
   });
 }
+
+describe('forget and the in-process snapshot file', () => {
+  it('rewrites the file at once, so the value is gone from disk before the next snapshot', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tidemark-forget-'));
+    const file = join(dir, 'memory.json');
+    // snapshotIntervalMs 0: the file is written only on save() or close(), so only the forget can have written it.
+    const store = new InProcessStore({ snapshotPath: file, snapshotIntervalMs: 0 });
+    const tm = createTidemark({ store, hashKey: 'snap' });
+    await tm.write({ session: 'snap', turn: 'g1', text: 'My bike is a green Quenby Audax.' });
+    store.save();
+    expect(readFileSync(file, 'utf8').toLowerCase()).toContain('quenb');
+    await tm.forget({ session: 'snap', slot: 0 });
+    expect(readFileSync(file, 'utf8').toLowerCase()).not.toContain('quenb');
+    await tm.close();
+    rmSync(dir, { recursive: true, force: true });
+  });
+});
 
 describe('WriteReport.detail', () => {
   it('lists what was stored and overwritten by id and key, with no text unless asked', async () => {
