@@ -49,6 +49,12 @@ export interface DeprecatedTidemarkOptions {
   secret?: string;
 }
 
+/** Options of both stores under their old names; `InProcessStoreOptions` and `RedisSlotStoreOptions` extend this. */
+export interface DeprecatedStoreOptions {
+  /** @deprecated since 0.2: use `vectorIndex`; when both are set, `vectorIndex` wins. */
+  archive?: VectorIndexOptions;
+}
+
 /** The id-hashing key from the new option or its deprecated name. */
 export function hashKeyOf(options: { hashKey?: string } & DeprecatedTidemarkOptions): string | undefined {
   return options.hashKey ?? options.secret;

@@ -7,7 +7,9 @@
 // traffic than the entries added since the last one.
 
 import { randomBytes } from 'node:crypto';
-import type { ArchiveOptions } from '../../src/archive/index.js';
+import type { VectorIndexOptions } from '../../src/archive/index.js';
+import type { DeprecatedStoreOptions } from '../../src/deprecated.js';
+import { logbookIndexFor } from '../../src/store/in-process.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
@@ -19,7 +21,7 @@ import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type Key
 import { KeySpace, type SessionKeys } from './keys.js';
 import { COMMIT, ERASE, LOAD, LOG_DELETE, LOG_FETCH } from './scripts.js';
 
-export interface RedisSlotStoreOptions {
+export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
    * An ioredis `Redis` or `Cluster` instance, or a `redis://` URL (the store then creates a client with
    * `REDIS_CLIENT_OPTIONS` and closes it on `close()`; a client you pass stays yours to close).
@@ -54,7 +56,7 @@ export interface RedisSlotStoreOptions {
   /** How long the first call waits for the initial connection (ms); later calls never wait. @default 2000 */
   connectTimeoutMs?: number;
   /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
-  archive?: ArchiveOptions;
+  vectorIndex?: VectorIndexOptions;
 }
 
 export const REDIS_SLOT_STORE_DEFAULTS = {
@@ -65,9 +67,9 @@ export const REDIS_SLOT_STORE_DEFAULTS = {
   maxEvents: 1000,
   cacheSessions: 1000,
   connectTimeoutMs: 2000,
-} as const satisfies Omit<Required<RedisSlotStoreOptions>, 'archive'>;
+} as const satisfies Omit<Required<RedisSlotStoreOptions>, 'vectorIndex' | keyof DeprecatedStoreOptions>;
 
-type Resolved = Omit<Required<RedisSlotStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
+type Resolved = Omit<Required<RedisSlotStoreOptions>, 'redis' | 'vectorIndex' | keyof DeprecatedStoreOptions> & { vectorIndex?: VectorIndexOptions } & DeprecatedStoreOptions;
 
 interface CachedSession {
   epoch: string;
@@ -469,7 +471,7 @@ export class RedisSlotStore implements Store {
     const key = scopeKeyOf(scope);
     let sc = this.scopes.get(key);
     if (!sc) {
-      sc = { sessions: new Map(), index: new LogbookIndex(this.o.archive ? { vectorIndex: this.o.archive } : {}), lock: Promise.resolve() };
+      sc = { sessions: new Map(), index: logbookIndexFor(this.o), lock: Promise.resolve() };
       if (this.o.cacheSessions > 0) {
         this.scopes.set(key, sc);
         if (this.scopes.size > this.o.cacheSessions) this.scopes.delete(this.scopes.keys().next().value!);
