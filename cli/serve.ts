@@ -57,8 +57,8 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
     if (typeof options.redis !== 'string' || !/^rediss?:\/\//.test(options.redis)) {
       throw new ConfigError(`serve: redis must be a redis:// or rediss:// URL, got ${describeValue(options.redis)}`, { details: { option: 'redis' } });
     }
-    const { RedisStore } = await import('../adapters/redis/index.js');
-    store = new RedisStore({ redis: options.redis });
+    const { RedisSlotStore } = await import('../adapters/redis/index.js');
+    store = new RedisSlotStore({ redis: options.redis });
   }
   const tm = createTidemark({ ...(options.tidemark ?? {}), ...(store ? { store } : {}) });
   const adapter = createHttpAdapter({

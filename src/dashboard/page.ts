@@ -181,7 +181,7 @@ const SCRIPT = String.raw`
     $('k-median').textContent = s.retention.clock.median === null ? '> ' + fmt(s.retention.clock.steps.length ? s.retention.clock.steps[s.retention.clock.steps.length - 1].time : 0) : fmt(s.retention.clock.median) + ' turns';
     $('k-p95').textContent = ms(tot.latency.turn.p95 !== null ? tot.latency.turn.p95 : tot.latency.read.p95);
 
-    setPanel('recall', reads, stacked(widthOf('recall'), s.t, ['slot', 'logbook', 'miss'], s.reads, true, s.atMs), legend(['slot', 'logbook', 'miss'], tot.reads));
+    setPanel('hit-share', reads, stacked(widthOf('hit-share'), s.t, ['slot', 'logbook', 'miss'], s.reads, true, s.atMs), legend(['slot', 'logbook', 'miss'], tot.reads));
     var nw = sum(Object.keys(tot.writes).map(function (k) { return tot.writes[k]; }));
     setPanel('writes', nw, stacked(widthOf('writes'), s.t, ['allocated', 'overwritten', 'reinforced', 'gated_out'], s.writes, false, s.atMs), legend(['allocated', 'overwritten', 'reinforced', 'gated_out'], tot.writes));
     var ne = sum(Object.keys(tot.evictions).map(function (k) { return tot.evictions[k]; }));
@@ -239,7 +239,7 @@ export function dashboardPage(): string {
 <div class="status"><span class="dot" id="dot"></span><span id="status">connecting…</span></div></header>
 <div class="kpis">${kpi('k-hit', 'hit share (slot + logbook)')}${kpi('k-rpm', 'reads in the last minute')}${kpi('k-sessions', 'active sessions')}${kpi('k-alive', 'slots alive')}${kpi('k-median', 'median slot lifetime')}${kpi('k-p95', 'turn latency p95')}</div>
 <main class="grid">
-${panel('recall', 's8', 'Hit share over time', 'Share of reads per 5 s whose top item was a relevant working-memory slot, a relevant logbook entry, or nothing relevant (miss).')}
+${panel('hit-share', 's8', 'Hit share over time', 'Share of reads per 5 s whose top item was a relevant working-memory slot, a relevant logbook entry, or nothing relevant (miss).')}
 ${panel('occupancy', 's4', 'Slot occupancy', 'Active sessions by the share of their slots in use.')}
 ${panel('writes', 's4', 'Writes by outcome', 'Candidates per 5 s: new slot, replaced value, strengthened slot, or refused by the write gate.')}
 ${panel('evictions', 's4', 'Evictions by reason', 'Slots leaving working memory per 5 s.')}
