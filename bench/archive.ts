@@ -3,7 +3,7 @@
 // `npm run bench -- archive [--json] [--sizes 10000,100000] [--queries 500] [--M 16] [--efc 100] [--ef 64]
 //  [--ef-sweep 32,64,128] [--intrinsic 16]`; --intrinsic N draws low-rank vectors instead of uniform ones.
 
-import type { ArchiveMatch } from '../src/archive/archive.js';
+import type { VectorMatch } from '../src/archive/archive.js';
 import { ExactArchive } from '../src/archive/exact.js';
 import { HNSW_ARCHIVE_DEFAULTS, HnswArchive } from '../src/archive/hnsw.js';
 import { rng as prng } from './lib/stats.js';
@@ -93,7 +93,7 @@ interface Row {
 type Found = { ids: string[]; cosines: number[] };
 
 /** Times each query (after a short warm-up); returns sorted latencies in ms and the results. */
-function timeQueries(queries: Float32Array[], run: (q: Float32Array) => ArchiveMatch[]): { ms: number[]; results: Found[] } {
+function timeQueries(queries: Float32Array[], run: (q: Float32Array) => VectorMatch[]): { ms: number[]; results: Found[] } {
   for (let i = 0; i < Math.min(20, queries.length); i++) run(queries[i]!);
   const ms: number[] = [];
   const results: Found[] = [];

@@ -92,7 +92,7 @@ async function measure(lengths: readonly number[], window: number, block: number
   const convo = conversation(lengths[lengths.length - 1]! + window * lengths.length + 10, seed);
   const embedder = new HashingEmbedder({ dim: 384 });
   const store = new InProcessStore();
-  const tm = createTidemark({ store, embedder, secret: 'growth-bench', logbook: { maxEntries: 0, vectors } });
+  const tm = createTidemark({ store, embedder, hashKey: 'growth-bench', logbook: { maxEntries: 0, vectors } });
   const emb = memoized(embedder);
   const base = new TurnBaseline({ kind: 'flat' }, { embedder: emb });
   // Warm the JIT on a session of its own before anything is timed (common practice).

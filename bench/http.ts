@@ -123,7 +123,7 @@ async function serveOff(): Promise<{ url: string; close(): Promise<void> }> {
 
 /** Memory on: `serve()` with the in-process store and the same streaming bot. */
 async function serveOn(): Promise<{ url: string; close(): Promise<void> }> {
-  const s = await serve({ port: 0, host: '127.0.0.1', handler: (input) => streamWords(replyFor(String(input.text))), tidemark: { secret: 'http-bench' } });
+  const s = await serve({ port: 0, host: '127.0.0.1', handler: (input) => streamWords(replyFor(String(input.text))), tidemark: { hashKey: 'http-bench' } });
   return { url: s.url, close: () => s.close() };
 }
 

@@ -30,7 +30,7 @@ import { createTidemark, type Tidemark, type WrapContext, type WrapInput } from 
 import type { SlotTable } from '../src/memory/slots.js';
 import { InProcessStore, scopeOf } from '../src/store/in-process.js';
 import type { CommitRequest, Store } from '../src/store/store.js';
-import type { RedisClient, RedisStore } from '../adapters/redis/index.js';
+import type { RedisClient, RedisSlotStore } from '../adapters/redis/index.js';
 import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, barChart, writeResult } from './lib/results.js';
 import { generateScenario } from './lib/scenario.js';
@@ -202,7 +202,7 @@ function routeScriptsForAutoPipelining(client: RedisClient): void {
 export interface BackendOptions {
   /** `host:port,...` of any Redis Cluster (default: the repo's own, started if need be). */
   clusterSeeds?: string;
-  /** The store's per-process cache of sessions and logbook scopes (RedisStore `cacheSessions`). */
+  /** The store's per-process cache of sessions and logbook scopes (RedisSlotStore `cacheSessions`). */
   cacheSessions?: number;
   /** ioredis `commandTimeout` in ms (the store's default is 1,000); 0 waits for ever. */
   commandTimeoutMs?: number;
@@ -235,7 +235,7 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     };
   }
   const { Redis, Cluster } = await import('ioredis');
-  const { RedisStore, REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS } = await import('../adapters/redis/index.js');
+  const { RedisSlotStore, REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS } = await import('../adapters/redis/index.js');
   let client: RedisClient;
   let stopCluster = false;
   const clusterScript = new URL('../scripts/redis-cluster.sh', import.meta.url).pathname;
@@ -267,10 +267,10 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     client: c,
     async open() {
       const prefix = extra.prefix ?? `tidemark-bench:${runId()}:`;
-      return { store: new RedisStore({ redis: c, prefix, ...(extra.cacheSessions !== undefined ? { cacheSessions: extra.cacheSessions } : {}) }), prefix };
+      return { store: new RedisSlotStore({ redis: c, prefix, ...(extra.cacheSessions !== undefined ? { cacheSessions: extra.cacheSessions } : {}) }), prefix };
     },
     async bytesOf(store, sessions) {
-      const rs = store as RedisStore;
+      const rs = store as RedisSlotStore;
       const each = await Promise.all(
         sessions.map((s) => {
           const keys = rs.sessionKeys(TENANT, s).all;
@@ -313,7 +313,7 @@ type Outcome = 'commit' | 'error';
 /** Drives `sessions` simulated users for `turns` turns each with `concurrency` in flight. */
 async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
   const { store, prefix } = await backend.open();
-  const tm = createTidemark({ store, tenant: TENANT, capacity: o.capacity, secret: 'load-bench' });
+  const tm = createTidemark({ store, tenant: TENANT, capacity: o.capacity, hashKey: 'load-bench' });
   const read = histogram();
   const write = histogram();
   const turn = histogram();
@@ -531,7 +531,7 @@ async function idleRun(backend: Backend, count: number, turns: number, capacity:
   const bytes = await backend.bytesOf(store, sample);
   const byKey: Record<string, number> = {};
   for (const part of ['meta', 'slots', 'events', 'arch', 'alog'] as const) {
-    const each = await Promise.all(sample.map((s) => client.eval(MEMORY_OF_KEYS, 1, (store as RedisStore).sessionKeys(TENANT, s)[part])));
+    const each = await Promise.all(sample.map((s) => client.eval(MEMORY_OF_KEYS, 1, (store as RedisSlotStore).sessionKeys(TENANT, s)[part])));
     byKey[part] = Math.round(each.reduce<number>((a, v) => a + Number(v ?? 0), 0) / sample.length);
   }
   await store.close();

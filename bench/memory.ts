@@ -7,7 +7,7 @@
 // session is a long run, not an outage), and every key is deleted afterwards, on error or Ctrl-C too.
 
 import { createTidemark } from '../src/middleware/tidemark.js';
-import type { RedisStore } from '../adapters/redis/index.js';
+import type { RedisSlotStore } from '../adapters/redis/index.js';
 import { loadAverage, openBackend, scripts, type StoreKind } from './load.js';
 import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';
@@ -70,7 +70,7 @@ export default async function main(argv: string[]): Promise<void> {
       const { store, prefix } = await backend.open();
       prefixes.push(prefix!);
       used.push(prefix!);
-      const tm = createTidemark({ store, tenant: 'bench', capacity, secret: 'memory-bench' });
+      const tm = createTidemark({ store, tenant: 'bench', capacity, hashKey: 'memory-bench' });
       const convo = scripts(count, n, 31);
       let raw = 0;
       const t0 = performance.now();
@@ -86,7 +86,7 @@ export default async function main(argv: string[]): Promise<void> {
       );
       await tm.flush();
       const seconds = (performance.now() - t0) / 1000;
-      const rs = store as RedisStore;
+      const rs = store as RedisSlotStore;
       const sum = { meta: 0, slots: 0, events: 0, logbook_entries: 0, logbook_index: 0 };
       let kept = 0;
       for (let i = 0; i < count; i++) {

@@ -5,7 +5,8 @@
 // `npm run bench -- recall [--json] [--set conversations|scenario|both] [--k 10] [--capacity 64] [--seed N] [--sessions N]`.
 
 import { checkProbe, checkTurn, type Probe, type TranscriptTurn } from '../cli/jsonl.js';
-import { formatReplayTable, runReplay, type ReplayResult } from '../cli/replay.js';
+import { runReplay, type ReplayResult } from '../cli/replay.js';
+import { formatReplayTable } from '../cli/replay-cli.js';
 import { generateConversations, CONVERSATION_DEFAULTS } from './lib/conversations.js';
 import { SCENARIO_DEFAULTS, generateScenario } from './lib/scenario.js';
 import { intFlag } from './scenario.js';

@@ -8,7 +8,7 @@ import { execFileSync } from 'node:child_process';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Cluster, Redis } from 'ioredis';
-import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS, RedisStore, redisStore } from '../adapters/redis/index.js';
+import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS, RedisSlotStore, redisSlotStore } from '../adapters/redis/index.js';
 import { encodeLogbook, encodeSlot } from '../adapters/redis/codec.js';
 import { createTidemark } from '../src/index.js';
 import type { Store } from '../src/store/store.js';
@@ -57,7 +57,7 @@ class TimedStore {
   searches = 0;
   commitBytes = 0;
   sized = 0;
-  constructor(readonly inner: RedisStore) {}
+  constructor(readonly inner: RedisSlotStore) {}
   store(): Store {
     const s = this.inner;
     const self = this;
@@ -94,7 +94,7 @@ class TimedStore {
   }
 }
 
-async function sessionBytes(client: Redis | Cluster, store: RedisStore, tenant: string, session: string): Promise<{ working: number; total: number }> {
+async function sessionBytes(client: Redis | Cluster, store: RedisSlotStore, tenant: string, session: string): Promise<{ working: number; total: number }> {
   const k = store.sessionKeys(tenant, session);
   let working = 0;
   let total = 0;
@@ -108,7 +108,7 @@ async function sessionBytes(client: Redis | Cluster, store: RedisStore, tenant: 
 
 async function phase(name: string, client: Redis | Cluster, turnsPerSession: number, concurrency = CONCURRENCY): Promise<Figures & { shape: { loads: number; commits: number; searches: number; commitBytes: number } }> {
   const prefix = `tidemark-bench:${name}-${process.pid}-${Date.now().toString(36)}:`;
-  const inner = redisStore({ redis: client, prefix, idleTtlSeconds: 3600 });
+  const inner = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 3600 });
   const timed = new TimedStore(inner);
   const tm = createTidemark({ store: timed.store(), tenant: 'bench', capacity: CAPACITY });
   let outboxQueued = 0;

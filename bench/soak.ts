@@ -183,10 +183,10 @@ export default async function main(argv: string[]): Promise<void> {
   // nothing Redis acknowledged, so any write missing afterwards was lost by the client side.
   const aofDir = mkdtempSync(join(tmpdir(), 'tidemark-soak-'));
   const redis = await throwawayRedis({ aofDir });
-  const { RedisStore } = await import('../adapters/redis/index.js');
+  const { RedisSlotStore } = await import('../adapters/redis/index.js');
   const prefix = 'tidemark-soak:';
-  const store = new RedisStore({ redis: redis.url, prefix });
-  const tm = createTidemark({ store, tenant: 'soak', secret: 'soak-bench', outbox: { max: outboxMax } });
+  const store = new RedisSlotStore({ redis: redis.url, prefix });
+  const tm = createTidemark({ store, tenant: 'soak', hashKey: 'soak-bench', outbox: { max: outboxMax } });
   const names = Array.from({ length: sessions }, (_, i) => `soak-${i}`);
   const hashes = new Map(names.map((s) => [tm.hashSession('soak', s), s]));
   const convo = scripts(sessions, 50, 31);
@@ -366,7 +366,7 @@ export default async function main(argv: string[]): Promise<void> {
   await tm.close();
 
   // Verify with a fresh client and no caches: each session must hold exactly the messages acknowledged.
-  const check = new RedisStore({ redis: redis.url, prefix, cacheSessions: 0 });
+  const check = new RedisSlotStore({ redis: redis.url, prefix, cacheSessions: 0 });
   let lost = droppedFromOutbox * 2;
   let duplicated = 0;
   let resurrected = 0;

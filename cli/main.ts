@@ -92,7 +92,7 @@ program
   .option('--strict', 'stop at the first malformed line instead of skipping it')
   .option('--json', 'print one JSON object on stdout')
   .action(async (transcript: string, o: Record<string, unknown>) => {
-    const { replayCli } = await import('./replay.js');
+    const { replayCli } = await import('./replay-cli.js');
     process.exitCode = await replayCli(transcript, o);
   });
 

@@ -79,8 +79,8 @@ export async function serve(options: ServeOptions = {}): Promise<Serving> {
     if (typeof options.redis !== 'string' || !/^rediss?:\/\//.test(options.redis)) {
       throw new ConfigError(`serve: redis must be a redis:// or rediss:// URL, got ${describeValue(options.redis)}`, { details: { option: 'redis' } });
     }
-    const { RedisStore } = await import('../adapters/redis/index.js');
-    store = new RedisStore({ redis: options.redis });
+    const { RedisSlotStore } = await import('../adapters/redis/index.js');
+    store = new RedisSlotStore({ redis: options.redis });
   }
   const fromFile = options.config !== undefined ? readConfig(options.config) : {};
   const secret = options.secret ?? options.tidemark?.secret ?? fromFile.secret;

@@ -9,7 +9,8 @@ import { resolveMemoryParams } from '../src/memory/params.js';
 import type { TidemarkOptions } from '../src/middleware/tidemark.js';
 import { readText, type Probe, type TranscriptTurn } from './jsonl.js';
 import { progressBar } from './progress.js';
-import { defaultIo, loadConfig, loadReplayFiles, parseK, runReplay, type CliIo } from './replay.js';
+import { runReplay } from './replay.js';
+import { defaultIo, loadConfig, loadReplayFiles, parseK, type CliIo } from './replay-cli.js';
 
 /** Parameter path (`capacity`, `read.gamma`, `write.halfLife`, ...) -> values to try. */
 export type SweepAxes = Record<string, number[]>;

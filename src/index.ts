@@ -1,6 +1,8 @@
 // tidemark: working memory for chatbots. The front door: the factory, the public types, the
 // extension points and their defaults, and the error classes. Adapters live in subpath exports
-// (tidemark/redis, tidemark/http, tidemark/transformers) so their dependencies load only when used.
+// (tidemark/redis, tidemark/http, tidemark/transformers, tidemark/prometheus) so their dependencies
+// load only when used, and so these declarations never name an optional peer's types: a TypeScript
+// user without prom-client, ioredis, hnswlib-node or @xenova/transformers still passes `tsc --strict`.
 
 export { createTidemark, Tidemark, TIDEMARK_DEFAULTS } from './middleware/tidemark.js';
 export type {
@@ -10,6 +12,14 @@ export type {
   WrapInput,
   WriteOptions,
   WriteReport,
+  WriteDetail,
+  StoredValue,
+  OverwrittenValue,
+  DroppedItem,
+  WrapCallOptions,
+  FactTarget,
+  EditInput,
+  CorrectionReport,
   SessionView,
   SlotView,
 } from './middleware/tidemark.js';
@@ -23,12 +33,12 @@ export type { HashingEmbedderOptions } from './embed/hashing.js';
 export { EmbeddingCache } from './embed/cache.js';
 
 export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, EraseTarget, EraseReport } from './store/store.js';
-export { MemoryStore, memoryStore, MEMORY_STORE_DEFAULTS } from './store/memory.js';
-export type { MemoryStoreOptions } from './store/memory.js';
+export { InProcessStore, inProcessStore, IN_PROCESS_STORE_DEFAULTS } from './store/in-process.js';
+export type { InProcessStoreOptions } from './store/in-process.js';
 
-export type { Archive, ArchiveMatch } from './archive/archive.js';
-export { createArchive, ARCHIVE_DEFAULTS } from './archive/index.js';
-export type { ArchiveOptions } from './archive/index.js';
+export type { VectorIndex, VectorMatch } from './archive/archive.js';
+export { createVectorIndex, VECTOR_INDEX_DEFAULTS } from './archive/index.js';
+export type { VectorIndexOptions } from './archive/index.js';
 
 export type { Extractor, Candidate } from './memory/extract.js';
 export { RuleExtractor } from './memory/extract.js';
@@ -40,8 +50,6 @@ export type { GateFeatures, GateWeights } from './memory/gate.js';
 export { PROMPT_DEFAULTS, approxTokens } from './memory/prompt.js';
 export type { PromptOptions, TokenCounter } from './memory/prompt.js';
 
-export { prometheusMetrics, PROMETHEUS_METRICS_DEFAULTS, DURATION_BUCKETS_SECONDS } from './metrics/prometheus.js';
-export type { PrometheusMetrics, PrometheusMetricsOptions } from './metrics/prometheus.js';
 export { RetentionTracker, RETENTION_TRACKER_DEFAULTS, kaplanMeier, survivalAt, halfLifeDistribution, retentionSnapshot } from './metrics/retention.js';
 export type { RetentionSnapshot, SurvivalCurve, SurvivalStep, LifetimeObservation, HalfLifeDistribution } from './metrics/retention.js';
 export { DashboardCollector, COLLECTOR_DEFAULTS } from './metrics/collector.js';
@@ -57,3 +65,26 @@ export {
   isTidemarkError,
 } from './errors.js';
 export type { ErrorCode } from './errors.js';
+
+// Old names, kept for one minor version: see src/deprecated.ts.
+export {
+  MemoryStore,
+  memoryStore,
+  MEMORY_STORE_DEFAULTS,
+  createArchive,
+  ARCHIVE_DEFAULTS,
+  prometheusMetrics,
+  PROMETHEUS_METRICS_DEFAULTS,
+  DURATION_BUCKETS_SECONDS,
+} from './deprecated.js';
+export type {
+  MemoryStoreOptions,
+  ArchiveScope,
+  ArchiveItem,
+  ArchiveHit,
+  Archive,
+  ArchiveMatch,
+  ArchiveOptions,
+  DeprecatedTidemarkOptions,
+  DeprecatedPrometheusMetrics,
+} from './deprecated.js';

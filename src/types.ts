@@ -50,9 +50,6 @@ export interface SessionRef {
 /** Where logbook entries are kept and searched: one user (across sessions) or one session. */
 export type LogbookScope = { tenant: string; user: string } | { tenant: string; session: string };
 
-/** @deprecated since 0.2: use `LogbookScope`. */
-export type ArchiveScope = LogbookScope;
-
 /**
  * One slot as a record (array-of-structs form), used to move a slot between the core and a store.
  * Inside the core a session's slots live in a struct-of-arrays `SlotTable`.
@@ -162,14 +159,8 @@ export interface LogbookEntry {
   successor?: string;
 }
 
-/**
- * @deprecated since 0.2: the archive became the logbook (`LogbookEntry`), which also keeps every turn.
- * Kept as an alias for one minor version.
- */
-export type ArchiveItem = LogbookEntry;
-
-/** One nearest-neighbour result from an archive search. */
-export interface ArchiveHit {
+/** One nearest-neighbour result from a search of the logbook's vector index. */
+export interface LogbookVectorHit {
   item: LogbookEntry;
   cosine: number;
 }

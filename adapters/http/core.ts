@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: routing, auth and the SSE reply share one request lifecycle; split after the reliability work lands.
 // The HTTP core shared by the Fetch, Node `http` and Express-style front-ends: routing, auth for the
 // admin endpoints, body limits, JSON errors with TidemarkError codes, and the streaming chat reply as
 // Server-Sent Events. Front-ends only translate their request/response types to and from this core.

@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: the two payload kinds and both format versions share one byte layout, read side by side.
 // Binary payloads of the Redis store: one slot record or one logbook entry per hash field. Each payload
 // opens with a format version byte, a kind byte and a CRC32 of the rest, so a truncated, tampered or
 // foreign value is reported as corrupt instead of being decoded into wrong memories. Over 400 lines

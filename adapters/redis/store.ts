@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: every Store method against Redis and its per-process cache, in one place; split after the reliability work lands.
 // The Redis store: sessions, logbooks and event streams in Redis or Redis Cluster, shared by every bot
 // process. A read is one EVALSHA for the slots (answered with just the version when this process's
 // cached copy is current) and one per logbook slice for what is new since this process last looked;
@@ -8,7 +9,9 @@
 // conventions; splitting the logbook scope cache into its own file is the natural next cut.
 
 import { randomBytes } from 'node:crypto';
-import type { ArchiveOptions } from '../../src/archive/index.js';
+import type { VectorIndexOptions } from '../../src/archive/index.js';
+import type { DeprecatedStoreOptions } from '../../src/deprecated.js';
+import { logbookIndexFor } from '../../src/store/in-process.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
@@ -20,7 +23,7 @@ import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type Key
 import { KeySpace, type SessionKeys } from './keys.js';
 import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
 
-export interface RedisStoreOptions {
+export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
    * An ioredis `Redis` or `Cluster` instance, or a `redis://` URL (the store then creates a client with
    * `REDIS_CLIENT_OPTIONS` and closes it on `close()`; a client you pass stays yours to close).
@@ -55,7 +58,7 @@ export interface RedisStoreOptions {
   /** How long the first call waits for the initial connection (ms); later calls never wait. @default 2000 */
   connectTimeoutMs?: number;
   /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
-  archive?: ArchiveOptions;
+  vectorIndex?: VectorIndexOptions;
   /**
    * Seconds an erase tombstone (a time, no data) and an applied commit id are kept. A write older than
    * this — waiting in some process's outbox — could no longer be told from a new one, so it must stay
@@ -64,7 +67,7 @@ export interface RedisStoreOptions {
   fenceTtlSeconds?: number;
 }
 
-export const REDIS_STORE_DEFAULTS = {
+export const REDIS_SLOT_STORE_DEFAULTS = {
   redis: 'redis://127.0.0.1:6379',
   prefix: 'tidemark:',
   idleTtlSeconds: 30 * 24 * 3600,
@@ -73,9 +76,9 @@ export const REDIS_STORE_DEFAULTS = {
   cacheSessions: 1000,
   connectTimeoutMs: 2000,
   fenceTtlSeconds: 7 * 24 * 3600,
-} as const satisfies Omit<Required<RedisStoreOptions>, 'archive'>;
+} as const satisfies Omit<Required<RedisSlotStoreOptions>, 'vectorIndex' | keyof DeprecatedStoreOptions>;
 
-type Resolved = Omit<Required<RedisStoreOptions>, 'redis' | 'archive'> & { archive?: ArchiveOptions };
+type Resolved = Omit<Required<RedisSlotStoreOptions>, 'redis' | 'vectorIndex' | keyof DeprecatedStoreOptions> & { vectorIndex?: VectorIndexOptions } & DeprecatedStoreOptions;
 
 interface CachedSession {
   epoch: string;
@@ -122,7 +125,7 @@ function scopeKeyOf(scope: LogbookScope): string {
   return 'user' in scope ? `u\u0000${scope.tenant}\u0000${scope.user}` : `s\u0000${scope.tenant}\u0000${scope.session}`;
 }
 
-export class RedisStore implements Store {
+export class RedisSlotStore implements Store {
   readonly name: string;
   private client: RedisClient | undefined;
   private readonly clientReady: Promise<RedisClient>;
@@ -145,10 +148,10 @@ export class RedisStore implements Store {
   /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
   quarantined = 0;
 
-  constructor(options: RedisStoreOptions = {}) {
+  constructor(options: RedisSlotStoreOptions = {}) {
     // An option given as undefined means "the default", as documented, not "no value".
-    const given = Object.fromEntries(Object.entries(options).filter(([, v]) => v !== undefined)) as RedisStoreOptions;
-    const o = { ...REDIS_STORE_DEFAULTS, ...given };
+    const given = Object.fromEntries(Object.entries(options).filter(([, v]) => v !== undefined)) as RedisSlotStoreOptions;
+    const o = { ...REDIS_SLOT_STORE_DEFAULTS, ...given };
     const fail = (name: string, value: unknown, expected: string): never => {
       throw new ConfigError(`redis store: ${name} must be ${expected}, got ${describeValue(value)}`, { details: { option: name } });
     };
@@ -672,7 +675,7 @@ export class RedisStore implements Store {
     const key = scopeKeyOf(scope);
     let sc = this.scopes.get(key);
     if (!sc) {
-      sc = { sessions: new Map(), index: new LogbookIndex(this.o.archive ? { vectorIndex: this.o.archive } : {}), lock: Promise.resolve() };
+      sc = { sessions: new Map(), index: logbookIndexFor(this.o), lock: Promise.resolve() };
       if (this.o.cacheSessions > 0) {
         this.scopes.set(key, sc);
         if (this.scopes.size > this.o.cacheSessions) this.scopes.delete(this.scopes.keys().next().value!);
@@ -781,7 +784,7 @@ export class RedisStore implements Store {
   }
 }
 
-/** A Store on Redis or Redis Cluster (see RedisStoreOptions). */
-export function redisStore(options?: RedisStoreOptions): RedisStore {
-  return new RedisStore(options);
+/** A Store on Redis or Redis Cluster (see RedisSlotStoreOptions). */
+export function redisSlotStore(options?: RedisSlotStoreOptions): RedisSlotStore {
+  return new RedisSlotStore(options);
 }

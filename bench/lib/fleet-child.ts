@@ -17,7 +17,7 @@ export interface ChildJob {
 const job = JSON.parse(process.argv[2] ?? '{}') as ChildJob;
 const backend = await openBackend(job.kind, job.redisUrl, false, job.backend);
 const { store } = await backend.open();
-const tm = createTidemark({ store, tenant: job.run.tenant, capacity: job.capacity, secret: 'load-bench' });
+const tm = createTidemark({ store, tenant: job.run.tenant, capacity: job.capacity, hashKey: 'load-bench' });
 // After its warm-up the child says "ready" and waits for the parent's start time on stdin.
 const ready = (): Promise<number> =>
   new Promise((resolve) => {

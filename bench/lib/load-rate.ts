@@ -76,7 +76,7 @@ export async function loadAtRate(argv: string[], args: Args, num: (name: string,
     versions = before.map((b) => b.version);
     let parts: FixedRateResult[];
     if (processes === 1) {
-      const tm = createTidemark({ store, tenant: run.tenant, capacity, secret: 'load-bench' });
+      const tm = createTidemark({ store, tenant: run.tenant, capacity, hashKey: 'load-bench' });
       parts = [await runFixedRate(tm, run)];
       await tm.close();
     } else {

@@ -52,8 +52,8 @@ const fill = (tpl: string, v: Vals): string => tpl.replace(/\{(\w+)\}/g, (_, k: 
 const FIRST = ['Dana', 'Priya', 'Tomasz', 'Ines', 'Kwame', 'Maren', 'Yusuf', 'Leonie', 'Oskar', 'Ayla', 'Rafael', 'Suki', 'Bram', 'Noor', 'Ilse', 'Teodor', 'Mira', 'Callum', 'Zofia', 'Emeka'];
 const LAST = ['Whitfield', 'Okafor', 'Lindqvist', 'Moreau', 'Castellanos', 'Haddad', 'Brennan', 'Novak', 'Achterberg', 'Saltmarsh', 'Penhallow', 'Quist'];
 const STREETS = ['Mill Lane', 'Orchard Row', 'Kestrel Road', 'Fennel Street', 'Tanner Walk', 'Beacon Hill', 'Larch Avenue', 'Quarry Close', 'Willow Bank', 'Harbour Terrace'];
-const TOWNS = ['Ashford', 'Brackley', 'Dunmore', 'Elmstead', 'Fordham', 'Glenrick', 'Holloway', 'Kirkby', 'Lindale', 'Marwood'];
-const BRANDS = ['Quenby', 'Ferrow', 'Brackett', 'Velloni', 'Orrin', 'Tarrant', 'Wendell', 'Coldstream'];
+const TOWNS = ['Ashwendle', 'Brackenby', 'Dunmarrow', 'Elmquist', 'Fordlecote', 'Glenquarrie', 'Hollowmere', 'Kirkwendle', 'Lindquarry', 'Marrowdene'];
+const BRANDS = ['Quenby', 'Ferrow', 'Brackett', 'Velloni', 'Orrin', 'Tarrant', 'Wendell', 'Colbrenna'];
 const MODELS = ['Audax', 'Vagabond', 'Tourer', 'Sprint 2', 'Trail 9', 'Roamer', 'Cityline', 'Gravel X'];
 const COLOURS = ['green', 'red', 'matte black', 'teal', 'orange', 'cream', 'silver', 'navy'];
 const PARTS = ['inner tubes', 'brake pads', 'spare chains', 'bottle cages', 'tyre levers', 'cable ties'];

@@ -52,7 +52,7 @@ export async function steadySoak(argv: string[], args: ReturnType<typeof parseAr
   try {
     const { store, prefix } = await backend.open();
     const client = backend.client as Redis;
-    const tm = createTidemark({ store, tenant: 'bench', capacity: num('capacity', 64), secret: 'soak-bench' });
+    const tm = createTidemark({ store, tenant: 'bench', capacity: num('capacity', 64), hashKey: 'soak-bench' });
     const samples: Array<{ t: number; rss_mb: number; heap_mb: number; redis_used_mb: number; turns: number }> = [];
     let turns = 0;
     tm.on('commit', () => turns++);

@@ -1,8 +1,8 @@
 // The archive stores use: an exact scan while the archive is small, switched once and for good to an
-// HNSW graph when it passes `hnswThreshold` entries. Callers see one Archive either way; without
+// HNSW graph when it passes `hnswThreshold` entries. Callers see one VectorIndex either way; without
 // hnswlib-node installed it simply stays exact.
 
-import type { Archive, ArchiveMatch } from './archive.js';
+import type { VectorIndex, VectorMatch } from './archive.js';
 import { ExactArchive } from './exact.js';
 import { HnswArchive, hnswAvailable, resolveHnswOptions, HNSW_ARCHIVE_DEFAULTS, type HnswArchiveOptions } from './hnsw.js';
 import { ConfigError, describeValue } from '../errors.js';
@@ -27,7 +27,7 @@ export const ADAPTIVE_ARCHIVE_DEFAULTS: Required<AdaptiveArchiveOptions> = {
   hnswThreshold: 256,
 };
 
-export class AdaptiveArchive implements Archive {
+export class AdaptiveArchive implements VectorIndex {
   readonly dim: number;
   private readonly o: Required<AdaptiveArchiveOptions>;
   private exact: ExactArchive | null;
@@ -93,7 +93,7 @@ export class AdaptiveArchive implements Archive {
     return this.exact!.remove(id);
   }
 
-  search(query: Float32Array, k: number): ArchiveMatch[] {
+  search(query: Float32Array, k: number): VectorMatch[] {
     return this.hnsw ? this.hnsw.search(query, k) : this.exact!.search(query, k);
   }
 

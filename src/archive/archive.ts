@@ -1,14 +1,14 @@
-// The Archive extension point: a nearest-neighbour index over archived items' key vectors, keyed by
-// item id. Stores own the items; an Archive only finds ids near a query vector.
+// The vector index extension point: a nearest-neighbour index over logbook entries' key vectors, keyed
+// by entry id. Stores own the entries; a VectorIndex only finds ids near a query vector.
 
-/** One search result: an item id and its cosine similarity to the query. */
-export interface ArchiveMatch {
+/** One search result: an entry id and its cosine similarity to the query. */
+export interface VectorMatch {
   id: string;
   cosine: number;
 }
 
 /** A vector index over unit-length vectors of one dimension. */
-export interface Archive {
+export interface VectorIndex {
   /** Vector dimension this index holds. */
   readonly dim: number;
   /** Number of live (not deleted) entries. */
@@ -20,7 +20,14 @@ export interface Archive {
   /** Returns `true` when `id` is present. */
   has(id: string): boolean;
   /** Up to `k` nearest live entries by cosine, best first. */
-  search(query: Float32Array, k: number): ArchiveMatch[];
+  search(query: Float32Array, k: number): VectorMatch[];
   /** Drops every entry. */
   clear(): void;
 }
+
+// Old names for code inside the repo that has not moved yet (src/logbook, the stores); the public
+// deprecated aliases live in src/deprecated.ts.
+/** @deprecated since 0.2: use `VectorIndex`. */
+export type Archive = VectorIndex;
+/** @deprecated since 0.2: use `VectorMatch`. */
+export type ArchiveMatch = VectorMatch;

@@ -1,10 +1,10 @@
 // Exact nearest-neighbour search by a linear scan of float32 vectors; the right choice for small
 // archives, where it is both exact and faster than building a graph index.
 
-import type { Archive, ArchiveMatch } from './archive.js';
+import type { VectorIndex, VectorMatch } from './archive.js';
 import { dot, pushTopK } from '../memory/vector.js';
 
-export class ExactArchive implements Archive {
+export class ExactArchive implements VectorIndex {
   readonly dim: number;
   private vectors: Float32Array;
   private idsByRow: string[] = [];
@@ -56,7 +56,7 @@ export class ExactArchive implements Archive {
     return true;
   }
 
-  search(query: Float32Array, k: number): ArchiveMatch[] {
+  search(query: Float32Array, k: number): VectorMatch[] {
     const n = this.idsByRow.length;
     if (n === 0 || k <= 0) return [];
     const dim = this.dim;

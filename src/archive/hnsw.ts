@@ -4,7 +4,7 @@
 
 import { existsSync, readFileSync, writeFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
-import type { Archive, ArchiveMatch } from './archive.js';
+import type { VectorIndex, VectorMatch } from './archive.js';
 import { ConfigError, describeValue } from '../errors.js';
 
 type HnswModule = typeof import('hnswlib-node');
@@ -80,7 +80,7 @@ function requireHnswlib(): HnswModule {
   if ('module' in r) return r.module;
   throw new ConfigError(
     'HNSW archive: hnswlib-node could not be loaded; install it with `npm install hnswlib-node@3` ' +
-      '(it builds a native addon), or use ExactArchive / createArchive(), which stays on exact search without it',
+      '(it builds a native addon), or use ExactArchive / createVectorIndex(), which stays on exact search without it',
     { cause: r.error, details: { dependency: 'hnswlib-node' } },
   );
 }
@@ -121,7 +121,7 @@ interface SavedIds {
 
 const idsFile = (file: string): string => `${file}.ids.json`;
 
-export class HnswArchive implements Archive {
+export class HnswArchive implements VectorIndex {
   readonly dim: number;
   private readonly o: Required<HnswArchiveOptions>;
   private readonly lib: HnswModule;
@@ -210,7 +210,7 @@ export class HnswArchive implements Archive {
     return true;
   }
 
-  search(query: Float32Array, k: number): ArchiveMatch[] {
+  search(query: Float32Array, k: number): VectorMatch[] {
     if (query.length !== this.dim) throw new RangeError(`query has ${query.length} dims, archive holds ${this.dim}`);
     if (k <= 0 || this.labelById.size === 0) return [];
     // hnswlib already leaves marked-deleted labels out of its results; the extra places are a guard so a
@@ -218,7 +218,7 @@ export class HnswArchive implements Archive {
     const extra = this.deleted > 0 ? Math.min(this.deleted, k) : 0;
     const want = Math.min(k + extra, this.used);
     const { distances, neighbors } = this.index.searchKnn(Array.from(query), want);
-    const out: ArchiveMatch[] = [];
+    const out: VectorMatch[] = [];
     for (let i = 0; i < neighbors.length && out.length < k; i++) {
       const id = this.idByLabel[neighbors[i]!];
       // Inner-product space: distance = 1 - dot, and dot = cosine for unit vectors.

@@ -209,7 +209,7 @@ const SCRIPT = String.raw`
     $('k-median').textContent = c0.events === 0 ? 'none left yet' : c0.median === null ? 'over ' + fmt(c0.steps[c0.steps.length - 1].time) + ' turns' : fmt(c0.median) + ' turns';
     $('k-p95').textContent = ms(tot.latency.turn.p95 !== null ? tot.latency.turn.p95 : tot.latency.read.p95);
 
-    setPanel('recall', reads, stacked(widthOf('recall'), s.t, RK, s.reads, 'reads / 5 s', s.atMs), legend(RK, tot.reads, '', true));
+    setPanel('reads', reads, stacked(widthOf('reads'), s.t, RK, s.reads, 'reads / 5 s', s.atMs), legend(RK, tot.reads, '', true));
     var WK = ['allocated', 'overwritten', 'reinforced'], nw = tot.writes.allocated + tot.writes.overwritten + tot.writes.reinforced;
     setPanel('writes', nw + tot.writes.gated_out, stacked(widthOf('writes'), s.t, WK, s.writes, 'writes / 5 s', s.atMs), legend(WK, tot.writes, '', true) + '<span>refused by the gate (logbook only)<b>' + fmt(tot.writes.gated_out) + '</b></span>');
     var ne = sum(Object.keys(tot.evictions).map(function (k) { return tot.evictions[k]; }));
@@ -301,7 +301,7 @@ export function dashboardPage(): string {
 <div class="banner" id="banner" role="status"></div>
 <div class="kpis">${kpi('k-hit', 'hit share (slot + logbook)', 'k-hit-n')}${kpi('k-rpm', 'reads in the last minute')}${kpi('k-sessions', 'sessions stored', 'k-sessions-l')}${kpi('k-alive', 'slots alive', 'k-alive-l')}${kpi('k-median', 'median slot lifetime')}${kpi('k-p95', 'turn latency p95')}</div>
 <main class="grid">
-${panel('recall', 's8', 'Reads by result', 'Reads per 5 s, all processes: the top item was a relevant working-memory slot, a relevant logbook entry, nothing relevant (miss), or the store could not be read (degraded). Shares in the legend.')}
+${panel('reads', 's8', 'Reads by result', 'Reads per 5 s, all processes: the top item was a relevant working-memory slot, a relevant logbook entry, nothing relevant (miss), or the store could not be read (degraded). Shares in the legend.')}
 ${panel('occupancy', 's4', 'Slot occupancy', 'Sessions this process served, by the share of their slots in use.')}
 ${panel('writes', 's4', 'Slot writes by outcome', 'Writes per 5 s: new slot, replaced value, strengthened slot. Candidates the gate refused are counted apart.')}
 ${panel('evictions', 's4', 'Evictions by reason', 'Slots leaving working memory per 5 s.')}

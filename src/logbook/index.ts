@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: the index's postings, links and search share private state kept in step; split after the perf work lands.
 // The logbook's search index for one scope (a session, or a user across sessions): an inverted index
 // for Okapi BM25 (Robertson & Zaragoza 2009) kept incrementally as entries arrive, each turn linked to
 // the turns before and after it in its session, the speakers who said them, the dates they mention,

@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: the extraction rules read as one ordered list; splitting them would hide their precedence.
 // Candidate extraction: splits a turn into key/value candidates for the write gate. The default is
 // rule-based, for the common first-person statements bots hear ("my X is Y", "I live in Y", "call me
 // Y", "remember that ..."), dated or counted statements, and updates ("actually, make it Friday").
@@ -220,7 +221,7 @@ const RULES: Rule[] = [
     },
   },
   {
-    // Facts about someone else: "Mel's daughter starts school in May", "my sister's flat is in Leeds".
+    // Facts about someone else: "Mel's daughter starts school in May", "my sister's flat is in Wexdale".
     name: 'their-x',
     re: /\b((?:my\s+)?(?:\p{L}+\s+)?\p{Lu}\p{L}+['’]s|my\s+(?:brother|sister|mum|mom|dad|father|mother|partner|husband|wife|son|daughter|friend|boss|neighbour|neighbor|cousin|aunt|uncle|grandmother|grandfather|nan|gran)['’]s)\s+((?:[\p{L}-]+\s+){0,2}?[\p{L}-]+)\s+(is|are|was|were|starts|started|begins|began|will be|has been|lives|works)\s+(.+)/u,
     build: (m) => ({ key: `${m[1]!.trim()} ${m[2]!.trim()}${/^(?:starts|started|begins|began|lives|works)$/.test(m[3]!) ? ` (${m[3]})` : ''}`, value: m[4]! }),

@@ -1,3 +1,4 @@
+// Over ~400 lines on purpose: addressing, allocation and the fidelity rules decide one plan together; split after the perf work lands.
 // The write path of working memory: plans one turn's changes to a session's slots as a list of slot
 // operations, without touching the table. Content addressing (Graves et al. 2014, "Neural Turing
 // Machines"): the candidate's key is compared with every slot key by cosine; when the best match

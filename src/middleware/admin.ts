@@ -172,6 +172,11 @@ export class Admin {
     }
   }
 
+  /** `mutate` for the other rooms (corrections): the same load, change, commit and conflict retries. */
+  mutateSession(ref: SessionRef, change: Parameters<Admin['mutate']>[1]): Promise<void> {
+    return this.mutate(ref, change);
+  }
+
   /** Load, change and commit a session with conflict retries (admin operations). */
   private async mutate(
     ref: SessionRef,

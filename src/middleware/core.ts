@@ -64,7 +64,7 @@ export class Core {
   private readonly readFences = new WeakMap<MemoryContext, ErasureFence>();
   /** The fence of each session's last read, to check that values recalled then may still be promoted (bounded). */
   private readonly recalledFence = new Map<string, ErasureFence>();
-  private readonly secret: string;
+  private readonly hashKey: string;
   /** Whether turn vectors go into the logbook (and a dense list into reads). */
   readonly dense: boolean;
 
@@ -75,10 +75,10 @@ export class Core {
     readonly params: MemoryParams,
     readonly o: ResolvedOptions,
     readonly events: EventEmitter<TidemarkEvents>,
-    secret: string | undefined,
+    hashKey: string | undefined,
   ) {
     this.cache = new EmbeddingCache(o.embedCacheSize);
-    this.secret = secret ?? randomBytes(16).toString('hex');
+    this.hashKey = hashKey ?? randomBytes(16).toString('hex');
     this.dense = o.logbook.vectors === 'auto' ? embedder.semantic === true : o.logbook.vectors;
   }
 
@@ -87,7 +87,7 @@ export class Core {
     const k = `${tenant}\u0000${session}`;
     let h = this.hashes.get(k);
     if (h === undefined) {
-      h = createHmac('sha256', this.secret).update(k).digest('hex').slice(0, 12);
+      h = createHmac('sha256', this.hashKey).update(k).digest('hex').slice(0, 12);
       if (this.hashes.size >= 10_000) this.hashes.clear();
       this.hashes.set(k, h);
     }

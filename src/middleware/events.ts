@@ -7,7 +7,7 @@ import type { ArchiveReason, EvictReason, ReadResult, WriteOutcome } from '../ty
 
 /** Fields common to every per-session event. */
 export interface SessionEventBase {
-  /** Keyed hash of tenant + session id (see `Tidemark.hashSession`); stable within one instance secret. */
+  /** Keyed hash of tenant + session id (see `Tidemark.hashSession`); stable for one `hashKey`. */
   sessionHash: string;
   /** Keyed hash of the tenant id (12 hex chars, same key as `sessionHash`): events never carry raw ids. */
   tenant: string;

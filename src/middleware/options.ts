@@ -2,6 +2,7 @@
 // defaults in one constant, resolved and validated once at construction (the caller's object is
 // never changed).
 
+import type { DeprecatedTidemarkOptions } from '../deprecated.js';
 import type { Embedder } from '../embed/embedder.js';
 import { ConfigError, describeValue } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';
@@ -47,7 +48,7 @@ export interface LogbookOptions {
   vectors?: 'auto' | boolean;
 }
 
-export interface TidemarkOptions extends MemoryParamsInput {
+export interface TidemarkOptions extends MemoryParamsInput, DeprecatedTidemarkOptions {
   /** Where sessions live. @default new InProcessStore() */
   store?: Store;
   /** @default new HashingEmbedder({ dim: 384 }) */
@@ -97,8 +98,11 @@ export interface TidemarkOptions extends MemoryParamsInput {
    * same-topic write still addresses the slot (cosine 0.89 > the 0.8 overwrite threshold). @default 0.5
    */
   valueMix?: number;
-  /** Key for hashing session ids in events and metrics; random per process when unset. */
-  secret?: string;
+  /**
+   * Key of the keyed hash (HMAC-SHA-256) that stands for session ids in events and metrics; set the
+   * same key in every process to correlate them. @default random per process
+   */
+  hashKey?: string;
 }
 
 export interface ResolvedOptions {

@@ -24,10 +24,15 @@ import { ReadPath } from './read.js';
 import { isAsyncIterable, isReadableStream, passIterable, passReadable, type Reply, type ReplyEnd } from './stream.js';
 import type { Turn } from './validate.js';
 import { WritePath, type WriteReport } from './write.js';
+import { Corrections, type CorrectionReport, type EditInput, type FactTarget } from './correct.js';
+import { withoutText } from './report.js';
+import { hashKeyOf } from '../deprecated.js';
 
 export { TIDEMARK_DEFAULTS, type LogbookOptions, type OutboxOptions, type TidemarkOptions } from './options.js';
 export type { SessionView, SlotView } from './admin.js';
 export type { WriteReport } from './write.js';
+export type { WriteDetail, StoredValue, OverwrittenValue, DroppedItem } from './report.js';
+export type { FactTarget, EditInput, CorrectionReport } from './correct.js';
 
 /** What a wrapped handler receives besides its input. */
 export interface WrapContext {
@@ -38,11 +43,24 @@ export interface WrapContext {
 /** The input of a wrapped handler: a turn plus anything the bot passes along. */
 export type WrapInput = TurnInput & Record<string, unknown>;
 
+/** Per-turn options of a wrapped handler's call. */
+export interface WrapCallOptions {
+  /** Aborts the reply (the client went away). */
+  signal?: AbortSignal;
+  /**
+   * A question about the past ("what was my old address?"): replaced values rank by their own score
+   * instead of below the value that replaced them. Also read from `input.history`. @default false
+   */
+  history?: boolean;
+}
+
 export interface WriteOptions {
   /** Revision ids of slots the turn used; they are reinforced. */
   reinforce?: readonly string[];
   /** Ids of logbook values (evicted earlier) the turn used; they move back into slots. */
   promote?: readonly string[];
+  /** Put the values in `WriteReport.detail` too; without it the detail holds ids and keys only. @default false */
+  text?: boolean;
 }
 
 /** Terms of a reply, once, for the "used" test of every recalled item. */
@@ -61,6 +79,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   private readonly writes: WritePath;
   private readonly outbox: Outbox;
   private readonly admin: Admin;
+  private readonly corrections: Corrections;
   private closed = false;
   /** Times the store was found empty after an outage (a `storeReset` event each; a counter for metrics). */
   storeResets = 0;
@@ -76,11 +95,12 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       throw new ConfigError(`embedder ${this.embedder.id} has dim ${describeValue(this.embedder.dim)}; an embedder must know its dimension (call warmup() first)`);
     }
     this.extractor = options.extractor ?? new RuleExtractor();
-    this.core = new Core(this.store, this.embedder, this.extractor, this.params, o, this, options.secret);
+    this.core = new Core(this.store, this.embedder, this.extractor, this.params, o, this, hashKeyOf(options));
     this.reads = new ReadPath(this.core);
     this.writes = new WritePath(this.core);
     this.outbox = new Outbox(this.core, this.writes);
     this.admin = new Admin(this.core, this.outbox);
+    this.corrections = new Corrections(this.core, this.admin);
     this.retentionTracker.attach(this);
     this.store.watchResets?.(({ atMs }) => {
       this.storeResets++;
@@ -175,7 +195,9 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     const ref = refOf(first);
     // The erasure fence the turns are accepted under: an erase from here on (any process) wins.
     const fence = await this.core.fenceNow(ref, acceptedMs);
-    return this.outbox.enqueue(ref, list, [...(options.reinforce ?? [])], [...(options.promote ?? [])], fence, acceptedMs);
+    const report = await this.outbox.enqueue(ref, list, [...(options.reinforce ?? [])], [...(options.promote ?? [])], fence, acceptedMs);
+    if (report.detail && options.text !== true) report.detail = withoutText(report.detail);
+    return report;
   }
 
   private refuseClosed(op: string): void {
@@ -188,15 +210,15 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
    * memory write runs after the reply ends. Bad input rejects with an InputError before the handler
    * runs; any memory failure leaves the reply intact.
    */
-  wrap<I extends WrapInput, R extends Reply>(handler: (input: I, ctx: WrapContext) => R | Promise<R>): (input: I, options?: { signal?: AbortSignal }) => Promise<R> {
-    return async (input: I, options: { signal?: AbortSignal } = {}): Promise<R> => {
+  wrap<I extends WrapInput, R extends Reply>(handler: (input: I, ctx: WrapContext) => R | Promise<R>): (input: I, options?: WrapCallOptions) => Promise<R> {
+    return async (input: I, options: WrapCallOptions = {}): Promise<R> => {
       this.refuseClosed('wrap');
       const acceptedMs = Date.now();
       const turn = this.core.validate(input);
       const signal = options.signal ?? (input.signal instanceof AbortSignal ? input.signal : undefined);
       let memory: MemoryContext;
       try {
-        memory = await this.reads.read(turn, false);
+        memory = await this.reads.read(turn, options.history === true || input.history === true);
       } catch (err) {
         memory = this.reads.degraded(turn, err, 0);
       }
@@ -238,6 +260,23 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   }
 
   // ---------------------------------------------------------------- admin
+
+  /**
+   * Forgets one fact: a slot (`slot` index, or `item` = the id a read returned) or a logbook entry
+   * (`item`). The value leaves every tier: the slot, its earlier revisions in the logbook, and the
+   * logbook turns that said it (whole turns). Resolves to the ids removed.
+   */
+  forget(target: FactTarget): Promise<CorrectionReport> {
+    return this.corrections.forget(target);
+  }
+
+  /**
+   * Corrects one fact's value (`{ session, slot | item, value, by? }`). The old value leaves every
+   * tier as with forget(); the new revision's provenance is `edit:<by>:<epoch ms>`, not a turn.
+   */
+  edit(input: EditInput): Promise<CorrectionReport> {
+    return this.corrections.edit(input);
+  }
 
   /** Pins (or unpins) a slot: pinned slots never decay out and are never evicted. */
   pin(session: string, slot: number, pinned = true, tenant = this.tenant): Promise<void> {

@@ -17,6 +17,7 @@ import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
 import { Core, sleep, usSince } from './core.js';
 import { retentionOf } from './options.js';
+import { writeDetail, type WriteDetail } from './report.js';
 import type { Turn } from './validate.js';
 
 /** What one write did. */
@@ -35,6 +36,8 @@ export interface WriteReport {
   version: number;
   /** Turn ids assigned, in input order. */
   turns: string[];
+  /** What was stored, overwritten and dropped, by id and key (present once committed; see report.ts). */
+  detail?: WriteDetail;
 }
 
 /** The id of a turn's logbook entry: stable for a session's turn id, so a resent commit replaces it. */
@@ -187,6 +190,7 @@ export class WritePath {
         else if (o.outcome === 'reinforced') report.reinforced++;
         else report.gatedOut++;
       }
+      report.detail = writeDetail(plan, keyed, true);
       if (core.events.listenerCount('commit') > 0) {
         core.events.emit('commit', {
           ...core.base(ref), ops: ops.length, archived: demoted.length, logbook: entries.length + demoted.length, retries: attempt,

@@ -6,7 +6,8 @@
 
 import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
-import type { ArchiveOptions } from '../archive/index.js';
+import type { VectorIndexOptions } from '../archive/index.js';
+import type { DeprecatedStoreOptions } from '../deprecated.js';
 import { ConfigError, ErrorCodes, StoreError } from '../errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
 import { SlotTable } from '../memory/slots.js';
@@ -14,7 +15,7 @@ import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../typ
 import { applyRetention } from './retention.js';
 import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from './store.js';
 
-export interface InProcessStoreOptions {
+export interface InProcessStoreOptions extends DeprecatedStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
   snapshotPath?: string;
   /** Write a snapshot this often (ms) when something changed; 0 writes only on `save()`/`close()`. @default 5000 */
@@ -22,7 +23,7 @@ export interface InProcessStoreOptions {
   /** Events kept per session (oldest dropped first). @default 1000 */
   maxEvents?: number;
   /** Options of each logbook scope's vector index (exact scan, HNSW past a size). */
-  archive?: ArchiveOptions;
+  vectorIndex?: VectorIndexOptions;
   /**
    * Sessions held at most; past it the least recently used one is dropped with its logbook entries
    * (counted in `evicted.cap`). A session of 64 slots × 384 dims is about 100 KB. @default 10000
@@ -432,7 +433,7 @@ export class InProcessStore implements Store {
   }
 
   private newIndex(): LogbookIndex {
-    return new LogbookIndex(this.o.archive ? { vectorIndex: this.o.archive } : {});
+    return logbookIndexFor(this.o);
   }
 
   private logbook(scope: LogbookScope, create: boolean): LogbookIndex | undefined {
@@ -465,4 +466,10 @@ export function fencedOut(fence: ErasureFence, now: ErasureMarks): boolean {
 /** The default store (see InProcessStoreOptions). */
 export function inProcessStore(options?: InProcessStoreOptions): InProcessStore {
   return new InProcessStore(options);
+}
+
+/** A new logbook index with the store's vector index options. */
+export function logbookIndexFor(o: { vectorIndex?: VectorIndexOptions } & DeprecatedStoreOptions): LogbookIndex {
+  const vectorIndex = o.vectorIndex ?? o.archive; // the deprecated name (src/deprecated.ts) until 0.3
+  return new LogbookIndex(vectorIndex ? { vectorIndex } : {});
 }

@@ -3,7 +3,7 @@ import { describe, expect, it } from 'vitest';
 import { AdaptiveArchive } from '../../src/archive/adaptive.js';
 import { ExactArchive } from '../../src/archive/exact.js';
 import { hnswAvailable } from '../../src/archive/hnsw.js';
-import { ARCHIVE_DEFAULTS, createArchive } from '../../src/archive/index.js';
+import { VECTOR_INDEX_DEFAULTS, createVectorIndex } from '../../src/archive/index.js';
 import { ErrorCodes } from '../../src/errors.js';
 import { dot, unitVectors } from './vectors.js';
 
@@ -89,24 +89,24 @@ describe('AdaptiveArchive', () => {
 
   it('hnswThreshold Infinity stays exact; 0 starts on HNSW', () => {
     const vs = unitVectors(50, DIM, 13);
-    const never = createArchive(DIM, { hnswThreshold: Infinity });
-    const first = createArchive(DIM, { hnswThreshold: 0 });
+    const never = createVectorIndex(DIM, { hnswThreshold: Infinity });
+    const first = createVectorIndex(DIM, { hnswThreshold: 0 });
     vs.forEach((v, i) => (never.add(`v${i}`, v), first.add(`v${i}`, v)));
     expect(never.strategy).toBe('exact');
     expect(first.strategy).toBe(hnswAvailable() ? 'hnsw' : 'exact');
   });
 
   it('validates options at construction, HNSW ones included', () => {
-    expect(() => createArchive(DIM, { hnswThreshold: -1 })).toThrow(/hnswThreshold must be an integer >= 0 or Infinity, got -1/);
-    expect(() => createArchive(DIM, { ef: 0 })).toThrow(/ef must be an integer/);
-    expect(() => createArchive(0)).toThrow(/dim must be an integer in \[1, 65536\], got 0/);
+    expect(() => createVectorIndex(DIM, { hnswThreshold: -1 })).toThrow(/hnswThreshold must be an integer >= 0 or Infinity, got -1/);
+    expect(() => createVectorIndex(DIM, { ef: 0 })).toThrow(/ef must be an integer/);
+    expect(() => createVectorIndex(0)).toThrow(/dim must be an integer in \[1, 65536\], got 0/);
     try {
-      createArchive(DIM, { M: 500 });
+      createVectorIndex(DIM, { M: 500 });
       expect.unreachable();
     } catch (e) {
       expect((e as { code: string }).code).toBe(ErrorCodes.CONFIG);
     }
-    expect(ARCHIVE_DEFAULTS.hnswThreshold).toBe(256);
-    expect(ARCHIVE_DEFAULTS.ef).toBe(48);
+    expect(VECTOR_INDEX_DEFAULTS.hnswThreshold).toBe(256);
+    expect(VECTOR_INDEX_DEFAULTS.ef).toBe(48);
   });
 });

@@ -5,7 +5,7 @@
 import { existsSync, readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { beforeAll, describe, expect, it } from 'vitest';
-import type { ArchiveMatch } from '../../src/archive/archive.js';
+import type { VectorMatch } from '../../src/archive/archive.js';
 import { ExactArchive } from '../../src/archive/exact.js';
 import { HnswArchive } from '../../src/archive/hnsw.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
@@ -24,8 +24,8 @@ describe('HNSW recall@10 on 20,000 random unit vectors of dimension 384', () => 
   const Q = 100;
   const items = unitVectors(N, DIM, 2018);
   const queries = unitVectors(Q, DIM, 384);
-  let approx: ArchiveMatch[][] = [];
-  let exact: ArchiveMatch[][] = [];
+  let approx: VectorMatch[][] = [];
+  let exact: VectorMatch[][] = [];
 
   beforeAll(() => {
     const h = new HnswArchive(DIM, { M: 16, efConstruction: 64, ef: 2000, initialCapacity: N });

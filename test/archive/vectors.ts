@@ -1,6 +1,6 @@
 // Test helpers for the archive suites: seeded random unit vectors and recall@k against exact search.
 
-import type { ArchiveMatch } from '../../src/archive/archive.js';
+import type { VectorMatch } from '../../src/archive/archive.js';
 import { rng } from '../../bench/lib/stats.js';
 /** mulberry32, seeded (see bench/lib/stats.ts). */
 export const prng = rng;
@@ -30,7 +30,7 @@ export function unitVectors(n: number, dim: number, seed: number): Float32Array[
  * float32 rounding) — the distance-threshold definition ANN-Benchmarks uses (Aumüller et al. 2018, from
  * memory) — so two items at the same distance ranked the other way round are not a miss.
  */
-export function recallAtK(approx: ArchiveMatch[][], exact: ArchiveMatch[][], k: number): number {
+export function recallAtK(approx: VectorMatch[][], exact: VectorMatch[][], k: number): number {
   let found = 0;
   let total = 0;
   for (let i = 0; i < exact.length; i++) {

@@ -6,7 +6,7 @@
 // Run: node --import tsx bot-child.ts URL PREFIX PROC M
 
 import { createInterface } from 'node:readline';
-import { redisStore } from '../../adapters/redis/index.js';
+import { redisSlotStore } from '../../adapters/redis/index.js';
 import { createTidemark } from '../../src/index.js';
 
 const [url, prefix, procArg, mArg] = process.argv.slice(2) as [string, string, string, string];
@@ -14,7 +14,7 @@ const proc = Number(procArg);
 const M = Number(mArg);
 
 const tm = createTidemark({
-  store: redisStore({ redis: url, prefix, connectTimeoutMs: 1000 }),
+  store: redisSlotStore({ redis: url, prefix, connectTimeoutMs: 1000 }),
   tenant: 'chaos',
   outbox: { retryMs: 20, maxRetryMs: 200 },
 });

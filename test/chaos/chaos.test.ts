@@ -10,7 +10,7 @@ import { spawn, type ChildProcess } from 'node:child_process';
 import { join } from 'node:path';
 import { createInterface } from 'node:readline';
 import { afterAll, describe, expect, it } from 'vitest';
-import { redisStore } from '../../adapters/redis/index.js';
+import { redisSlotStore } from '../../adapters/redis/index.js';
 import { createTidemark } from '../../src/index.js';
 import { FaultProxy } from '../adapters/redis/proxy.js';
 import { ThrowawayRedis, freePort, repoRoot } from '../adapters/redis/helpers.js';
@@ -86,7 +86,7 @@ describe.skipIf(!hasRedisServer)(`chaos${hasRedisServer ? '' : ' (skipped: redis
     proxy.mode = 'pass';
     // Phase 2: erase user "leaver" from a fourth process, connected directly.
     await progress(Math.floor(total * 0.4));
-    const admin = createTidemark({ store: redisStore({ redis: server.url, prefix: PREFIX }), tenant: 'chaos' });
+    const admin = createTidemark({ store: redisSlotStore({ redis: server.url, prefix: PREFIX }), tenant: 'chaos' });
     const eraseStart = Date.now();
     await admin.erase({ user: 'leaver' });
     const eraseEnd = Date.now();
@@ -104,7 +104,7 @@ describe.skipIf(!hasRedisServer)(`chaos${hasRedisServer ? '' : ' (skipped: redis
     expect(bots.map((b) => b.report()!.outboxDepth)).toEqual(bots.map(() => 0));
     expect(proxy.cuts).toBeGreaterThan(0);
 
-    const store = redisStore({ redis: server.url, prefix: PREFIX });
+    const store = redisSlotStore({ redis: server.url, prefix: PREFIX });
     cleanup.push(() => store.close());
     const countIds = (entries: Array<{ kind: string; provenance: string[] }>): Map<string, number> => {
       const m = new Map<string, number>();

@@ -4,7 +4,8 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { TurnBaseline, parseBaseline } from '../../cli/baselines.js';
 import { parseProbes, parseTranscript } from '../../cli/jsonl.js';
-import { percentile, recallOf, replayCli, retrievedTurns, runReplay } from '../../cli/replay.js';
+import { percentile, recallOf, retrievedTurns, runReplay } from '../../cli/replay.js';
+import { replayCli } from '../../cli/replay-cli.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
 import { TINY_PROBES, TINY_TRANSCRIPT } from './fixtures.js';
 
@@ -147,7 +148,7 @@ describe('baselines', () => {
       { session: 's', turn: 'a', role: 'user' as const, text: 'my bike is a Harlow Tourer' },
       { session: 's', turn: 'b', role: 'assistant' as const, text: 'a Harlow Tourer, nice' },
       { session: 's', turn: 'c', role: 'user' as const, text: 'the weather is grim' },
-      { session: 's', turn: 'd', role: 'user' as const, text: 'I live in Ashford' },
+      { session: 's', turn: 'd', role: 'user' as const, text: 'I live in Ashwendle' },
     ];
     for (const t of turns) {
       await w.add(t);

@@ -33,7 +33,7 @@ const QUESTIONS = ['What bike do I ride?', 'When is my booking?', 'Which chain l
 const NAMES = ['Dana', 'Ravi', 'Maren', 'Tomasz', 'Aiko', 'Femi', 'Lucía', 'Jonah'];
 const COLOURS = ['green', 'red', 'teal', 'black', 'orange'];
 const MODELS = ['Quenby', 'tourer', 'gravel bike', 'cargo bike', 'fixie'];
-const TOWNS = ['Didsbury', 'Chorlton', 'Salford', 'Stockport', 'Levenshulme'];
+const TOWNS = ['Wexdale', 'Quarrowby', 'Fennickby', 'Saltwendle', 'Brindlecote'];
 const DAYS = ['Monday', 'Tuesday', 'Wednesday', 'Thursday', 'Friday'];
 
 function fill(template: string, i: number): string {
@@ -93,7 +93,7 @@ run('dashboard in a real browser', () => {
       if (m.type() === 'error') errors.push(m.text());
     });
     await page.goto(`${s.url}/dashboard`);
-    const panels = ['recall', 'occupancy', 'writes', 'evictions', 'survival', 'latency', 'sessions'];
+    const panels = ['reads', 'occupancy', 'writes', 'evictions', 'survival', 'latency', 'sessions'];
     // Every panel must report data (its data-live count > 0) while turns keep flowing.
     await page.waitForFunction(
       (ids) => ids.every((id) => Number(document.querySelector(`[data-panel="${id}"]`)?.getAttribute('data-live')) > 0),

@@ -75,7 +75,7 @@ run('dashboard through a store outage, in a real browser', () => {
     await page.waitForSelector('body[data-updated]', { timeout: 15_000 });
     expect(await text('#who')).toMatch(/^served by nursery-desk-1/);
     expect(await text('#k-median')).toBe('none left yet');
-    expect(await text('[data-panel="recall"] .chart')).toContain('waiting for traffic');
+    expect(await text('[data-panel="reads"] .chart')).toContain('waiting for traffic');
     expect(await page.isVisible('#banner')).toBe(false);
     expect(await text('#status')).toBe('live');
     await shot('idle');
@@ -85,10 +85,10 @@ run('dashboard through a store outage, in a real browser', () => {
     await traffic(40);
     await nextSnapshot();
     await nextSnapshot();
-    const legend = await text('[data-panel="recall"] .legend');
+    const legend = await text('[data-panel="reads"] .legend');
     // Each result with its count and share, e.g. "miss12 (30%)".
     expect(legend).toMatch(/miss\d+ \(\d+%\)/);
-    expect(await text('[data-panel="recall"] svg .unit')).toBe('reads / 5 s');
+    expect(await text('[data-panel="reads"] svg .unit')).toBe('reads / 5 s');
     expect(await text('[data-panel="writes"] svg .unit')).toBe('writes / 5 s');
     expect(await text('[data-panel="latency"] svg .unit')).toBe('ms');
     expect(await text('[data-panel="occupancy"] svg .unit')).toBe('sessions');
@@ -109,7 +109,7 @@ run('dashboard through a store outage, in a real browser', () => {
     await page.waitForFunction(() => /unreachable for [1-9]\d* s/.test(document.getElementById('banner')!.textContent ?? ''), null, { timeout: 10_000 });
     const banner = await text('#banner');
     expect(banner).toMatch(/^Store redis unreachable for \d+ s\. Reads run with empty memory/);
-    expect(await text('[data-panel="recall"] .legend')).toMatch(/degraded \(no memory\)6 \(\d+%\)/);
+    expect(await text('[data-panel="reads"] .legend')).toMatch(/degraded \(no memory\)6 \(\d+%\)/);
     expect(await text('[data-panel="fleet"]')).toMatch(/down/);
     await shot('outage');
   }, 60_000);

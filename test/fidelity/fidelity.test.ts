@@ -16,7 +16,7 @@ const parse = (sc: FidelityScenario) => ({
 
 /** Replays a scenario through one instance, as replay does, and returns the session's logbook. */
 async function replayed(sc: FidelityScenario) {
-  const tm = createTidemark({ secret: 'fidelity' });
+  const tm = createTidemark({ hashKey: 'fidelity' });
   const t = sc.turns;
   for (let i = 0; i < t.length; i++) {
     const batch = [t[i]!];

@@ -11,7 +11,7 @@ import { SlotTable } from '../../src/memory/slots.js';
 import { planWrite, type KeyedCandidate } from '../../src/memory/write.js';
 import { LOGBOOK_SEARCH_DEFAULTS } from '../../src/logbook/index.js';
 import { analyseQuery } from '../../src/logbook/query.js';
-import { MemoryStore } from '../../src/store/memory.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 import { readParams, vec, writeParams } from './helpers.js';
 
 const DIM = 4;
@@ -42,7 +42,7 @@ describe('memory invariants (fast-check)', () => {
   it('capacity, weights, strengths, pinned slots and archive reachability hold over random write sequences', async () => {
     await fc.assert(
       fc.asyncProperty(runArb, async ({ capacity, bias, halfLife, steps }) => {
-        const store = new MemoryStore();
+        const store = new InProcessStore();
         const ref = { tenant: 'prop', session: 's' };
         const params = writeParams({ halfLife, gateThreshold: 0.5, gateWeights: { ...DEFAULT_GATE_WEIGHTS, bias } });
         let t = new SlotTable(capacity, DIM);

@@ -10,7 +10,7 @@ import { analyseQuery } from '../../src/logbook/query.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 
 const TOPICS = ['bike', 'saddle', 'helmet', 'lock', 'pump', 'postcode'];
-const VALUES = ['a green Harlow Tourer', 'a red Pennick Sprint', 'blue', 'orange', 'ZZ99 9ZZ', 'a Fenwick leather saddle', 'brass'];
+const VALUES = ['a green Harlow Tourer', 'a red Pennick Sprint', 'blue', 'orange', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'brass'];
 const turnArb = fc.oneof(
   fc.record({ kind: fc.constant('fact' as const), topic: fc.constantFrom(...TOPICS), value: fc.constantFrom(...VALUES) }),
   fc.record({ kind: fc.constant('booking' as const), day: fc.constantFrom('Tuesday', 'Friday', 'Monday') }),
@@ -24,7 +24,7 @@ describe('memory invariants through the middleware (fast-check)', () => {
     await fc.assert(
       fc.asyncProperty(fc.integer({ min: 1, max: 4 }), fc.array(turnArb, { minLength: 1, maxLength: 14 }), async (capacity, turns) => {
         const store = new InProcessStore();
-        const tm = createTidemark({ store, capacity, secret: 'p', write: { halfLife: 6 } });
+        const tm = createTidemark({ store, capacity, hashKey: 'p', write: { halfLife: 6 } });
         const pinnedIds = new Set<number>();
         for (const t of turns) {
           if (t.kind === 'pin') {

@@ -11,7 +11,7 @@ import { ControlledStore, sleep } from './helpers.js';
 
 const open: Tidemark[] = [];
 function make(options: TidemarkOptions = {}): Tidemark {
-  const tm = createTidemark({ secret: 'test-secret', ...options });
+  const tm = createTidemark({ hashKey: 'test-key', ...options });
   open.push(tm);
   return tm;
 }
@@ -220,7 +220,7 @@ describe('admin', () => {
     await tm.write({ session: 's', text: 'I am allergic to chain wax.' });
     const slot = (await tm.inspect('s')).slots[0]!;
     await tm.pin('s', slot.index);
-    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My phone is 07700 900123', 'My saddle is a Fenwick leather saddle', 'My helmet is blue'];
+    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My phone is 07700 900123', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue'];
     let evicted = 0;
     tm.on('evict', () => evicted++);
     for (const text of facts) await tm.write({ session: 's', text });
@@ -343,7 +343,7 @@ describe('admin', () => {
     await tm.write({ session: 'bike-1', text: 'My name is Dana' });
     const h = tm.hashSession('default', 'bike-1');
     expect(h).toMatch(/^[0-9a-f]{12}$/);
-    expect(createTidemark({ secret: 'another' }).hashSession('default', 'bike-1')).not.toBe(h);
+    expect(createTidemark({ hashKey: 'another' }).hashSession('default', 'bike-1')).not.toBe(h);
     expect(seen.length).toBeGreaterThan(0);
     for (const s of seen) {
       expect(s).toContain(h);
@@ -354,7 +354,7 @@ describe('admin', () => {
 });
 
 describe('concurrency', () => {
-  const FACTS = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My saddle is a Fenwick leather saddle', 'My helmet is blue', 'My lock is a Brannock D-lock', 'My pump is orange', 'My bell is brass'];
+  const FACTS = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue', 'My lock is a Brackwen D-lock', 'My pump is orange', 'My bell is brass'];
 
   it('N concurrent writes to one session all land, in order (no lost update)', async () => {
     const store = new ControlledStore();
@@ -379,7 +379,7 @@ describe('concurrency', () => {
     const v = await a.inspect('s');
     expect(v.version).toBe(FACTS.length);
     expect(v.turns).toBe(FACTS.length);
-    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Harlow Tourer', 'ZZ99 9ZZ', 'a Fenwick leather saddle', 'blue', 'a Brannock D-lock', 'orange', 'brass'].sort());
+    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Harlow Tourer', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'blue', 'a Brackwen D-lock', 'orange', 'brass'].sort());
   });
 
   it('different sessions run in parallel: a slow commit of one does not hold up another', async () => {

@@ -10,7 +10,7 @@ import { ControlledStore, collect, sleep, slowChunks, streamOf } from './helpers
 
 const open: Tidemark[] = [];
 function make(options: TidemarkOptions = {}): Tidemark {
-  const tm = createTidemark({ secret: 'test-secret', ...options });
+  const tm = createTidemark({ hashKey: 'test-key', ...options });
   open.push(tm);
   return tm;
 }

@@ -3,7 +3,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it, vi } from 'vitest';
 import { InProcessStore } from '../../src/store/in-process.js';
-import { MemoryStore } from '../../src/store/memory.js';
+import { MemoryStore } from '../../src/deprecated.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
 
 storeConformance('in-process', async () => new InProcessStore());

@@ -4,7 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Cluster } from 'ioredis';
-import { redisStore } from '../../../adapters/redis/index.js';
+import { redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { archived, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
 import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
@@ -42,11 +42,11 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   storeConformance('cluster', async () => {
     const c = newCluster(ports);
     clients.push(c);
-    return redisStore({ redis: c, prefix: `${prefix}conf:` });
+    return redisSlotStore({ redis: c, prefix: `${prefix}conf:` });
   }, { keyTolerance: 1e-2 });
 
   it('every key of a session hashes to one slot (CLUSTER KEYSLOT), and sessions spread over the masters', async () => {
-    const store = redisStore({ redis: admin, prefix });
+    const store = redisSlotStore({ redis: admin, prefix });
     const slotsSeen = new Set<number>();
     for (let n = 0; n < 24; n++) {
       const ref = { tenant: 'acme', session: `ks-${n}`, user: 'u-ks' };
@@ -76,7 +76,7 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   });
 
   it('erasing a session leaves no key of it on any master', async () => {
-    const store = redisStore({ redis: admin, prefix });
+    const store = redisSlotStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
     await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
     // meta, slots, events, uarch, ualog, applied commit ids + the user's set
@@ -87,10 +87,10 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   });
 
   it('a user erase while another process opens sessions for that user on all three masters leaves none accepted before it', async () => {
-    const a = createTidemark({ store: redisStore({ redis: admin, prefix }), tenant: 'acme' });
+    const a = createTidemark({ store: redisSlotStore({ redis: admin, prefix }), tenant: 'acme' });
     const bClient = newCluster(ports);
     clients.push(bClient);
-    const b = createTidemark({ store: redisStore({ redis: bClient, prefix }), tenant: 'acme' });
+    const b = createTidemark({ store: redisSlotStore({ redis: bClient, prefix }), tenant: 'acme' });
     try {
       await b.write({ session: 'race-warm', user: 'u-race', text: 'My lesson is on Friday.' });
       await a.read({ session: 'race-warm', user: 'u-race', text: 'When is my lesson?' });

@@ -5,7 +5,7 @@
 import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { REDIS_STORE_DEFAULTS, redisStore } from '../../../adapters/redis/index.js';
+import { REDIS_SLOT_STORE_DEFAULTS, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, probeRedis, repoRoot, uniquePrefix } from './helpers.js';
 
@@ -20,7 +20,7 @@ describe('redis store configuration', () => {
 
   it('Redis down at startup costs one connect timeout, then calls fail at once until it is back', async () => {
     const port = await freePort();
-    const store = redisStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 300 });
+    const store = redisSlotStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 300 });
     try {
       const first = await store.load({ tenant: 't', session: 's' }).catch((e: Error) => e);
       expect(String((first as Error).message)).toMatch(/not ready after 300 ms/);
@@ -53,12 +53,12 @@ describe.skipIf(down !== null)(`redis store lifecycle${down ? ` (skipped: ${down
   // The default names 127.0.0.1:6379; with REDIS_URL pointing elsewhere there is nothing to reach.
   it.skipIf(!REDIS_URL.startsWith('redis://127.0.0.1:6379'))('redis: undefined means the documented default URL', async () => {
     const prefix = uniquePrefix('default-url');
-    const store = redisStore({ redis: undefined, prefix });
+    const store = redisSlotStore({ redis: undefined, prefix });
     try {
       expect(store.name).toBe('redis');
       expect(await store.listSessions('t')).toEqual([]);
       const o = (await store.redis()).options as { host?: string; port?: number };
-      expect(`redis://${o.host}:${o.port}`).toBe(REDIS_STORE_DEFAULTS.redis);
+      expect(`redis://${o.host}:${o.port}`).toBe(REDIS_SLOT_STORE_DEFAULTS.redis);
     } finally {
       await deletePrefix(await store.redis(), prefix);
       await store.close();
@@ -69,7 +69,7 @@ describe.skipIf(down !== null)(`redis store lifecycle${down ? ` (skipped: ${down
     const port = await freePort();
     const server = new ThrowawayRedis(port, false);
     await server.start();
-    const tm = createTidemark({ store: redisStore({ redis: server.url }) });
+    const tm = createTidemark({ store: redisSlotStore({ redis: server.url }) });
     try {
       expect(await tm.write({ session: 's', text: 'My name is Ola.' })).toMatchObject({ committed: true });
       expect(tm.storeResets).toBe(0);

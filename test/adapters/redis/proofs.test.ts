@@ -7,7 +7,7 @@ import { spawn } from 'node:child_process';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
-import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { factText } from './facts.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, repoRoot, uniquePrefix } from './helpers.js';
@@ -23,7 +23,7 @@ interface Canon {
 }
 
 /** A session's memory without what legitimately depends on write order (slot index, ids, clocks). */
-async function canon(store: RedisStore, tenant: string, session: string): Promise<Canon> {
+async function canon(store: RedisSlotStore, tenant: string, session: string): Promise<Canon> {
   const ref = { tenant, session };
   const snap = await store.load(ref);
   const slots: string[] = [];
@@ -85,7 +85,7 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
     expect(results.reduce((s, r) => s + r.retries, 0)).toBeGreaterThan(0);
 
     // The same writes, one at a time, in one process.
-    const serial = createTidemark({ store: redisStore({ redis: REDIS_URL, prefix: serialPrefix }), tenant: 'bikes' });
+    const serial = createTidemark({ store: redisSlotStore({ redis: REDIS_URL, prefix: serialPrefix }), tenant: 'bikes' });
     for (let p = 0; p < PROCS; p++) {
       for (let s = 0; s < SESSIONS; s++) {
         for (let f = 0; f < FACTS; f++) await serial.write({ session: `shop-${s}`, text: factText(p, f), turn: `p${p}-f${f}` });
@@ -93,8 +93,8 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
     }
     await serial.close();
 
-    const a = redisStore({ redis: REDIS_URL, prefix, cacheSessions: 0 });
-    const b = redisStore({ redis: REDIS_URL, prefix: serialPrefix, cacheSessions: 0 });
+    const a = redisSlotStore({ redis: REDIS_URL, prefix, cacheSessions: 0 });
+    const b = redisSlotStore({ redis: REDIS_URL, prefix: serialPrefix, cacheSessions: 0 });
     for (let s = 0; s < SESSIONS; s++) {
       const got = await canon(a, 'bikes', `shop-${s}`);
       const want = await canon(b, 'bikes', `shop-${s}`);
@@ -110,7 +110,7 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
     const server = new ThrowawayRedis(await freePort());
     await server.start();
     const tm = createTidemark({
-      store: redisStore({ redis: server.url }),
+      store: redisSlotStore({ redis: server.url }),
       tenant: 'bikes',
       readTimeoutMs: 500,
       outbox: { retryMs: 50, maxRetryMs: 200 },
@@ -149,7 +149,7 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
       expect((await tm.flush({ timeoutMs: 15_000 })).outboxDepth).toBe(0);
       expect(tm.outboxDepth).toBe(0);
 
-      const check = redisStore({ redis: server.url, cacheSessions: 0 });
+      const check = redisSlotStore({ redis: server.url, cacheSessions: 0 });
       for (let w = 0; w < WORKERS; w++) {
         const session = `bay-${w}`;
         const c = await canon(check, 'bikes', session);

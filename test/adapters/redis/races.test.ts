@@ -7,7 +7,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
-import { RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark, type Tidemark } from '../../../src/index.js';
 import type { CommitRequest, CommitResult } from '../../../src/store/store.js';
 import type { SessionRef } from '../../../src/types.js';
@@ -19,10 +19,10 @@ const down = await probeRedis();
 const target = new URL(REDIS_URL);
 
 /**
- * A RedisStore that runs a hook (once) just before its next commit — another writer getting in
+ * A RedisSlotStore that runs a hook (once) just before its next commit — another writer getting in
  * first — and optionally waits before every commit (a busy process).
  */
-class HookedStore extends RedisStore {
+class HookedStore extends RedisSlotStore {
   before: (() => Promise<void>) | undefined;
   delayMs: (() => number) | undefined;
   override async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
@@ -58,7 +58,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
   const prefixes: string[] = [];
   const open: Tidemark[] = [];
   const proc = (prefix: string, over: Parameters<typeof createTidemark>[0] = {}, url = REDIS_URL): Tidemark => {
-    const tm = createTidemark({ store: redisStore({ redis: url, prefix }), tenant: 'shop', ...over });
+    const tm = createTidemark({ store: redisSlotStore({ redis: url, prefix }), tenant: 'shop', ...over });
     open.push(tm);
     return tm;
   };
@@ -177,7 +177,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
   it('2: a commit resent after its reply was lost and 20 other commits is recognised, not applied again', async () => {
     const prefix = uniquePrefix('race-2');
     prefixes.push(prefix);
-    const store = redisStore({ redis: REDIS_URL, prefix });
+    const store = redisSlotStore({ redis: REDIS_URL, prefix });
     try {
       const ref = { tenant: 'shop', session: 'once' };
       const first = commitOf({ ops: [{ index: 0, slot: slot(1, { value: 'red' }) }], commitId: 'write-red' });

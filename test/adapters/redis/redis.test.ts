@@ -4,7 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
-import { REDIS_STORE_DEFAULTS, RedisStore, redisStore } from '../../../adapters/redis/index.js';
+import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
@@ -28,16 +28,16 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     admin.disconnect();
   });
 
-  storeConformance('redis-int8', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('int8') }), { keyTolerance: 1e-2 });
-  storeConformance('redis-float32', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
-  storeConformance('redis-nocache', async () => redisStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
+  storeConformance('redis-int8', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('int8') }), { keyTolerance: 1e-2 });
+  storeConformance('redis-float32', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
+  storeConformance('redis-nocache', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
 
   describe('payloads', () => {
-    let store: RedisStore;
+    let store: RedisSlotStore;
     let prefix: string;
     beforeAll(() => {
       prefix = prefixFor('payload');
-      store = redisStore({ redis: newClient(), prefix });
+      store = redisSlotStore({ redis: newClient(), prefix });
     });
     afterAll(async () => {
       (await store.redis()).disconnect();
@@ -48,7 +48,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 't', session: 'int8' };
       const key = unit(42, 384);
       await store.commit(ref, commitOf({ dim: 384, ops: [{ index: 0, slot: slot(1, { key }) }] }));
-      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      const fresh = redisSlotStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
       const got = (await fresh.load(ref))!.table.get(0)!.key;
       let maxErr = 0;
       let norm = 0;
@@ -67,7 +67,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const raw = (await admin.hgetBuffer(k.slots, '0'))!;
       raw[raw.length - 1] ^= 0x01; // one bit of the key
       await admin.hset(k.slots, '0', raw);
-      const fresh = redisStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
+      const fresh = redisSlotStore({ redis: await store.redis(), prefix, cacheSessions: 0 });
       const snap = await fresh.load(ref);
       expect(snap?.quarantined).toBe(1);
       expect(snap?.version).toBe(2); // moved on, so every cached copy and plan refreshes
@@ -94,16 +94,16 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
 
     it('under the middleware a corrupt slot is reported and the session keeps reading and writing', async () => {
       const p2 = `${prefix}mw:`;
-      const tm = createTidemark({ store: redisStore({ redis: await store.redis(), prefix: p2 }) });
+      const tm = createTidemark({ store: redisSlotStore({ redis: await store.redis(), prefix: p2 }) });
       try {
         await tm.write({ session: 'kept', text: 'My name is Ola.' });
         await tm.write({ session: 'kept', text: 'My bike is a green tandem.' });
-        const k = redisStore({ redis: await store.redis(), prefix: p2 }).sessionKeys('default', 'kept');
+        const k = redisSlotStore({ redis: await store.redis(), prefix: p2 }).sessionKeys('default', 'kept');
         const fields = await admin.hkeys(k.slots);
         const raw = (await admin.hgetBuffer(k.slots, fields[0]!))!;
         raw[raw.length - 1] ^= 0x01;
         await admin.hset(k.slots, fields[0]!, raw);
-        const other = createTidemark({ store: redisStore({ redis: await store.redis(), prefix: p2 }) });
+        const other = createTidemark({ store: redisSlotStore({ redis: await store.redis(), prefix: p2 }) });
         const codes: string[] = [];
         other.on('error', (e) => codes.push(e.error.code));
         const ctx = await other.read({ session: 'kept', text: 'What is my bike?' });
@@ -155,14 +155,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     };
 
     it('a commit is one EVALSHA and a read one EVALSHA', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'rt1' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       await settle();
       await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
       let cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
-      const cold = redisStore({ redis: client, prefix });
+      const cold = redisSlotStore({ redis: client, prefix });
       expect((await cold.load(ref))!.table.count()).toBe(2);
       cmds = await settle();
       // A store's first call on a connection also checks the prefix's marker key (an empty comeback).
@@ -176,8 +176,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('an unchanged session is served from the cache; another writer or an erase is seen at once', async () => {
-      const a = redisStore({ redis: client, prefix });
-      const b = redisStore({ redis: client, prefix });
+      const a = redisSlotStore({ redis: client, prefix });
+      const b = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'cache1' };
       await a.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       const s1 = await a.load(ref);
@@ -195,8 +195,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('logbook searches pick up entries appended by another process, its deletes and its retention', async () => {
-      const a = redisStore({ redis: client, prefix });
-      const b = redisStore({ redis: client, prefix });
+      const a = redisSlotStore({ redis: client, prefix });
+      const b = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'arch-delta' };
       const scope = { tenant: 'acme', session: 'arch-delta' };
       await b.commit(ref, commitOf({ logbook: [archived(1, ref), archived(2, ref)] }));
@@ -216,7 +216,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('a re-sent commit is recognised and applied once', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'resend' };
       const req = commitOf({ ops: [{ index: 0, slot: slot(1) }], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] });
       expect(await store.commit(ref, req)).toEqual({ ok: true, version: 1 });
@@ -232,14 +232,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(await store.commit(ref, first)).toEqual({ ok: true, version: 2 });
       const replanned = { ...commitOf({ expectedVersion: 2, ops: [{ index: 2, slot: slot(3) }], events: [ev] }), commitId: 'write-7f3a' };
       expect(await store.commit(ref, replanned)).toEqual({ ok: true, version: 2 });
-      const snap = await redisStore({ redis: client, prefix, cacheSessions: 0 }).load(ref);
+      const snap = await redisSlotStore({ redis: client, prefix, cacheSessions: 0 }).load(ref);
       expect(snap!.version).toBe(2);
       expect(snap!.table.isUsed(2)).toBe(false);
       expect(await store.readEvents(ref)).toHaveLength(2);
     });
 
     it('no call for one tenant names a key of another tenant', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const other = { tenant: 'beta', session: 'shared-id', user: 'u1' };
       await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, other)] }));
       await settle();
@@ -267,7 +267,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('tenant and session ids cannot collide through ":" or braces', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       await store.commit({ tenant: 'a:b', session: 'c' }, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       expect(await store.load({ tenant: 'a', session: 'b:c' })).toBeNull();
       await store.commit({ tenant: 'x', session: 'we{ir}d%' }, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
@@ -277,7 +277,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
-      const store = redisStore({ redis: client, prefix, idleTtlSeconds: 120 });
+      const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
@@ -286,14 +286,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
         expect(ttl, key).toBeGreaterThan(110);
         expect(ttl, key).toBeLessThanOrEqual(120);
       }
-      const forever = redisStore({ redis: client, prefix, idleTtlSeconds: 0 });
+      const forever = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 0 });
       await forever.commit(ref, commitOf({ expectedVersion: 1 }));
       expect(await client.ttl(k.meta)).toBe(-1);
       await forever.erase({ tenant: 'acme', user: 'u-ttl' });
     });
 
     it('erasure leaves no data key of the session or of the user, only tombstones holding a time (SCAN proves it)', async () => {
-      const store = redisStore({ redis: client, prefix });
+      const store = redisSlotStore({ redis: client, prefix });
       const a = { tenant: 'acme', session: 'gone-1', user: 'u-gone' };
       const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
       const c = { tenant: 'acme', session: 'gone-3' };
@@ -311,7 +311,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       for (const key of left) {
         expect(await client.get(key)).toMatch(/^\d{13}$/);
         expect(await client.ttl(key)).toBeGreaterThan(0);
-        expect(await client.ttl(key)).toBeLessThanOrEqual(REDIS_STORE_DEFAULTS.fenceTtlSeconds);
+        expect(await client.ttl(key)).toBeLessThanOrEqual(REDIS_SLOT_STORE_DEFAULTS.fenceTtlSeconds);
       }
       // A store that had them cached returns nothing either.
       expect(await store.load(a)).toBeNull();
@@ -321,19 +321,19 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
 
   describe('options', () => {
     it('rejects bad options naming the option, the value and what was expected', () => {
-      expect(() => redisStore({ prefix: 'a{b' })).toThrow(/prefix must be a string without \{ or \}, got "a\{b"/);
-      expect(() => redisStore({ idleTtlSeconds: -1 })).toThrow(/idleTtlSeconds must be an integer >= 0 \(0 = no TTL\), got -1/);
-      expect(() => redisStore({ keyFormat: 'int4' as never })).toThrow(/keyFormat must be 'int8' or 'float32', got "int4"/);
-      expect(() => redisStore({ maxEvents: 1.5 })).toThrow(/maxEvents must be an integer >= 0, got 1.5/);
-      expect(() => redisStore({ redis: 'http://x' })).toThrow(/redis must be an ioredis Redis\/Cluster instance or a redis:\/\/ URL/);
-      expect(() => redisStore({ redis: 'http://x' })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_CONFIG' }));
+      expect(() => redisSlotStore({ prefix: 'a{b' })).toThrow(/prefix must be a string without \{ or \}, got "a\{b"/);
+      expect(() => redisSlotStore({ idleTtlSeconds: -1 })).toThrow(/idleTtlSeconds must be an integer >= 0 \(0 = no TTL\), got -1/);
+      expect(() => redisSlotStore({ keyFormat: 'int4' as never })).toThrow(/keyFormat must be 'int8' or 'float32', got "int4"/);
+      expect(() => redisSlotStore({ maxEvents: 1.5 })).toThrow(/maxEvents must be an integer >= 0, got 1.5/);
+      expect(() => redisSlotStore({ redis: 'http://x' })).toThrow(/redis must be an ioredis Redis\/Cluster instance or a redis:\/\/ URL/);
+      expect(() => redisSlotStore({ redis: 'http://x' })).toThrow(expect.objectContaining({ code: 'TIDEMARK_E_CONFIG' }));
     });
   });
 
   describe('outages', () => {
     it('fails fast with STORE_UNAVAILABLE when nothing listens', async () => {
       const port = await freePort();
-      const store = redisStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 500 });
+      const store = redisSlotStore({ redis: `redis://127.0.0.1:${port}`, connectTimeoutMs: 500 });
       const t0 = performance.now();
       const err = await store.load({ tenant: 't', session: 's' }).catch((e: unknown) => e);
       expect(err).toMatchObject({ code: 'TIDEMARK_E_STORE_UNAVAILABLE' });
@@ -345,7 +345,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('a SIGKILLed server: calls fail fast while it is down, then the store reconnects and nothing acknowledged is lost', async () => {
       const server = new ThrowawayRedis(await freePort());
       await server.start();
-      const store = redisStore({ redis: server.url, prefix: 'tidemark:' });
+      const store = redisSlotStore({ redis: server.url, prefix: 'tidemark:' });
       try {
         const acked: number[] = [];
         for (let n = 1; n <= 20; n++) {
@@ -364,7 +364,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
           if (!back) await new Promise((r) => setTimeout(r, 100));
         }
         expect(back).toBe(true);
-        const fresh = redisStore({ redis: server.url, prefix: 'tidemark:', cacheSessions: 0 });
+        const fresh = redisSlotStore({ redis: server.url, prefix: 'tidemark:', cacheSessions: 0 });
         for (const n of acked) expect((await fresh.load({ tenant: 't', session: `s${n}` }))!.table.get(0)!.id).toBe(`r${n}`);
         expect(acked).toHaveLength(20);
         await fresh.close();

@@ -1,10 +1,10 @@
 // A bot process for the multi-process proof: writes its share of facts to the shared sessions through
-// createTidemark({ store: redisStore(...) }).write(), after a start signal in Redis so that all
+// createTidemark({ store: redisSlotStore(...) }).write(), after a start signal in Redis so that all
 // processes write at the same time. Prints one JSON line: writes done and conflicts retried.
 // Run: node --import tsx writer-child.ts URL PREFIX PROC SESSIONS FACTS
 
 import { Redis } from 'ioredis';
-import { redisStore } from '../../../adapters/redis/index.js';
+import { redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { factText } from './facts.js';
 
@@ -14,7 +14,7 @@ const sessions = Number(sessionsArg);
 const facts = Number(factsArg);
 
 const signal = new Redis(url);
-const tm = createTidemark({ store: redisStore({ redis: url, prefix }), tenant: 'bikes' });
+const tm = createTidemark({ store: redisSlotStore({ redis: url, prefix }), tenant: 'bikes' });
 let retries = 0;
 tm.on('commit', (e) => (retries += e.retries));
 process.stdout.write('ready\n');
