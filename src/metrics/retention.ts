@@ -50,44 +50,7 @@ export interface SurvivalCurve {
  * Var S(t) = S(t)² Σ_{t_j ≤ t} d_j / (n_j (n_j − d_j)).
  */
 export function kaplanMeier(observations: readonly LifetimeObservation[]): SurvivalCurve {
-  const sorted = observations
-    .filter((o) => Number.isFinite(o.time) && o.time >= 0)
-    .slice()
-    .sort((a, b) => a.time - b.time);
-  const n = sorted.length;
-  const steps: SurvivalStep[] = [];
-  let atRisk = n;
-  let survival = 1;
-  let greenwoodSum = 0;
-  let totalEvents = 0;
-  let median: number | null = null;
-  let i = 0;
-  while (i < n) {
-    const time = sorted[i]!.time;
-    let events = 0;
-    let censored = 0;
-    while (i < n && sorted[i]!.time === time) {
-      if (sorted[i]!.event) events += 1;
-      else censored += 1;
-      i += 1;
-    }
-    if (events > 0) {
-      survival *= 1 - events / atRisk;
-      greenwoodSum = atRisk > events ? greenwoodSum + events / (atRisk * (atRisk - events)) : Number.NaN;
-      steps.push({
-        time,
-        atRisk,
-        events,
-        censored,
-        survival,
-        variance: survival > 0 ? survival * survival * greenwoodSum : Number.NaN,
-      });
-      totalEvents += events;
-      if (median === null && survival <= 0.5) median = time;
-    }
-    atRisk -= events + censored;
-  }
-  return { n, events: totalEvents, censored: n - totalEvents, steps, median };
+  return kaplanMeierGrouped(observations.map((o) => ({ time: o.time, events: o.event ? 1 : 0, censored: o.event ? 0 : 1 })));
 }
 
 /** Observations sharing one lifetime: how many ended there and how many were censored there. */
@@ -98,9 +61,9 @@ export interface LifetimeGroup {
 }
 
 /**
- * The same Kaplan–Meier estimate over grouped observations (counts per distinct time, in any order):
- * equal to `kaplanMeier` of the expanded observations, at a cost set by the number of distinct times,
- * not of observations.
+ * The Kaplan–Meier estimate over grouped observations (counts per distinct time, in any order), the
+ * one estimator behind `kaplanMeier`: its cost is set by the number of distinct times, not of
+ * observations, so the incremental curves stay cheap.
  */
 export function kaplanMeierGrouped(groups: readonly LifetimeGroup[]): SurvivalCurve {
   const sorted = groups.filter((g) => Number.isFinite(g.time) && g.time >= 0 && g.events + g.censored > 0).sort((a, b) => a.time - b.time);
@@ -123,7 +86,7 @@ export function kaplanMeierGrouped(groups: readonly LifetimeGroup[]): SurvivalCu
     if (events > 0) {
       survival *= 1 - events / atRisk;
       greenwoodSum = atRisk > events ? greenwoodSum + events / (atRisk * (atRisk - events)) : Number.NaN;
-      steps.push({ time, atRisk, events, censored, survival, variance: survival * survival * greenwoodSum });
+      steps.push({ time, atRisk, events, censored, survival, variance: survival > 0 ? survival * survival * greenwoodSum : Number.NaN });
       totalEvents += events;
       if (median === null && survival <= 0.5) median = time;
     }

@@ -14,6 +14,7 @@ import type { SessionRef } from '../../../src/types.js';
 import { commitOf, slot } from '../../store/conformance.js';
 import { FaultProxy } from './proxy.js';
 import { REDIS_URL, deletePrefix, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
+import { rng } from '../../../bench/lib/stats.js';
 
 const down = await probeRedis();
 const target = new URL(REDIS_URL);
@@ -32,18 +33,6 @@ class HookedStore extends RedisSlotStore {
     if (this.delayMs) await new Promise((r) => setTimeout(r, this.delayMs!()));
     return super.commit(ref, req);
   }
-}
-
-/** A seeded generator (mulberry32), so a run's interleaving delays can be replayed. */
-function seeded(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
 }
 
 /** An async iterable reply whose chunks wait for `gate` after the first one. */
@@ -127,7 +116,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
     // after A's erase.
     const seed = 1402;
     console.log(`1b interleaving seed ${seed}`);
-    const rand = seeded(seed);
+    const rand = rng(seed);
     hooked.delayMs = () => Math.floor(rand() * 40);
     const N = 30;
     // Every write is accepted (called) before the erase is called; they race it to the store.
