@@ -53,7 +53,9 @@ export interface SessionKeys {
   cids: string;
   /** Hash: slot payloads that failed their check, kept aside (`index@seconds` -> payload). */
   quarantine: string;
-  /** The data keys, then gone and cids: the KEYS of the commit script (erase adds quarantine). */
+  /** Sorted set: slot index -> the slot's creation time (ms), so the retention sweep finds expired slots in O(expired). */
+  born: string;
+  /** The data keys, then gone, cids and born: the KEYS of the commit script (erase adds quarantine). */
   script: string[];
 }
 
@@ -66,12 +68,17 @@ export class KeySpace {
   }
 
   session(tenant: string, session: string): SessionKeys {
-    const b = this.sessionBase(tenant, session);
+    return this.sessionOfBase(this.sessionBase(tenant, session));
+  }
+
+  /** The keys of a session from its base (as `sessionBase` makes it). */
+  sessionOfBase(b: string): SessionKeys {
     const k = { meta: `${b}:meta`, slots: `${b}:slots`, events: `${b}:events`, arch: `${b}:arch`, uarch: `${b}:uarch`, alog: `${b}:alog`, ualog: `${b}:ualog` };
     const all = [k.meta, k.slots, k.events, k.arch, k.uarch, k.alog, k.ualog];
     const gone = `${b}:gone`;
     const cids = `${b}:cids`;
-    return { ...k, all, gone, cids, quarantine: `${b}:quarantine`, script: [...all, gone, cids] };
+    const born = `${b}:born`;
+    return { ...k, all: [...all, born], gone, cids, quarantine: `${b}:quarantine`, born, script: [...all, gone, cids, born] };
   }
 
   /** Set of the session ids a user has written to. Suffix `:sessions` never ends a session key. */

@@ -16,12 +16,12 @@ import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/er
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { listEntries } from '../../src/store/in-process.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from '../../src/store/store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats, SweepReport, SweepRequest } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -143,6 +143,8 @@ export class RedisSlotStore implements Store {
   private marker = '';
   private readonly resetListeners: Array<(e: { atMs: number }) => void> = [];
   private readonly watched = new WeakSet<object>();
+  /** Where the Cluster sweep of each tenant goes on from: master index and SCAN cursor. */
+  private readonly sweepAt = new Map<string, { node: number; cursor: string }>();
   /** Times the server was found empty after an outage (its marker key gone). */
   resets = 0;
   /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
@@ -257,7 +259,7 @@ export class RedisSlotStore implements Store {
       let moved: number;
       try {
         const c = await this.conn('quarantine');
-        moved = Number(await runScript(c, QUARANTINE, [k.meta, k.slots, k.quarantine], [Math.max(this.o.idleTtlSeconds, this.o.fenceTtlSeconds), ...bad]));
+        moved = Number(await this.counted(c, ref.tenant, QUARANTINE, [k.meta, k.slots, k.quarantine, k.arch, k.uarch, k.alog, k.ualog, k.born], [Math.max(this.o.idleTtlSeconds, this.o.fenceTtlSeconds), ...bad]));
       } catch (err) {
         throw unavailable('quarantine', err);
       }
@@ -349,7 +351,7 @@ export class RedisSlotStore implements Store {
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
-          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
+          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
         }),
       );
       return counts.reduce<number>((sum, n) => sum + Number(n), 0);
@@ -443,6 +445,77 @@ export class RedisSlotStore implements Store {
     return out;
   }
 
+  // ---------------------------------------------------------------- retention sweep
+
+  /**
+   * One pass of the retention sweep. On a single Redis the commit scripts keep two age indexes per
+   * tenant (each session by its oldest slot and by its oldest logbook entry), so a pass visits only
+   * sessions holding something expired: O(expired). It first counts again the sessions the due set
+   * says have expired by TTL, so the counters lose what Redis dropped. On Cluster no key may span hash
+   * slots: a pass SCANs the masters for the tenant's sessions, `budget` at a time, resuming from a
+   * cursor. Each session is swept by one script (SWEEP), idempotent, so processes may sweep together.
+   */
+  async sweep(req: SweepRequest): Promise<SweepReport> {
+    const budget = req.budget ?? 1000;
+    const slotCut = Math.max(0, Math.floor(req.slotCutoffMs));
+    const logCut = Math.max(0, Math.floor(req.logbookCutoffMs));
+    const out: SweepReport = { sessions: 0, slots: 0, logbookEntries: 0, done: true };
+    try {
+      const c = await this.conn('sweep');
+      const visit = async (k: SessionKeys, session: string): Promise<void> => {
+        const r = (await this.counted(c, req.tenant, SWEEP, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [slotCut, logCut])) as unknown[];
+        out.sessions++;
+        const slots = Number(r[0]);
+        const items = Number(r[1]);
+        out.slots += slots;
+        out.logbookEntries += items;
+        if (slots > 0) this.cache.delete(k.meta);
+        if (items > 0) {
+          // This process's indexes let the entries go now, not at their next search.
+          this.scopes.delete(scopeKeyOf({ tenant: req.tenant, session }));
+          const user = r[2] ? str(r[2]) : '';
+          if (user) this.scopes.delete(scopeKeyOf({ tenant: req.tenant, user }));
+        }
+      };
+      const sessionOf = (base: string): string | null => this.keys.sessionOfMeta(req.tenant, `${base}:meta`);
+      if (!isCluster(c)) {
+        const [, , due, oldSlot, oldLog] = this.statsKeys(req.tenant);
+        const expired = (await c.zrangebyscore(due, '-inf', Date.now(), 'LIMIT', 0, budget)) as string[];
+        for (const b of expired) {
+          const k = this.keys.sessionOfBase(b);
+          await this.counted(c, req.tenant, RESTAT, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], []);
+          this.cache.delete(k.meta);
+        }
+        const bases = new Set<string>();
+        if (slotCut > 0) for (const b of (await c.zrangebyscore(oldSlot, '-inf', `(${slotCut}`, 'LIMIT', 0, budget)) as string[]) bases.add(b);
+        if (logCut > 0) for (const b of (await c.zrangebyscore(oldLog, '-inf', `(${logCut}`, 'LIMIT', 0, budget)) as string[]) bases.add(b);
+        for (const b of bases) {
+          const s = sessionOf(b);
+          if (s !== null) await visit(this.keys.sessionOfBase(b), s);
+        }
+        out.done = expired.length < budget && bases.size < budget;
+        return out;
+      }
+      if (slotCut === 0 && logCut === 0) return out;
+      const masters = c.nodes('master');
+      let at = this.sweepAt.get(req.tenant) ?? { node: 0, cursor: '0' };
+      while (out.sessions < budget && at.node < masters.length) {
+        const [next, keys] = await masters[at.node]!.scan(at.cursor, 'MATCH', this.keys.metaPattern(req.tenant), 'COUNT', Math.min(1000, budget));
+        for (const meta of keys) {
+          const s = this.keys.sessionOfMeta(req.tenant, meta);
+          if (s !== null) await visit(this.keys.session(req.tenant, s), s);
+        }
+        at = next === '0' ? { node: at.node + 1, cursor: '0' } : { node: at.node, cursor: next };
+      }
+      out.done = at.node >= masters.length;
+      if (out.done) this.sweepAt.delete(req.tenant);
+      else this.sweepAt.set(req.tenant, at);
+      return out;
+    } catch (err) {
+      throw unavailable('sweep', err);
+    }
+  }
+
   // ---------------------------------------------------------------- operator figures (stats, fleet)
 
   /**
@@ -456,10 +529,16 @@ export class RedisSlotStore implements Store {
     return `${this.keys.sessionBase(tenant, '')}:fleet`;
   }
 
-  /** Runs a script with the tenant's counters key appended when the server is a single Redis (see scripts.ts, [stats]). */
+  /** The tenant's [stats] keys (see scripts.ts, statsLua): counters, tally, due, oldest slot, oldest logbook entry. */
+  private statsKeys(tenant: string): string[] {
+    const b = this.keys.sessionBase(tenant, '');
+    return [`${b}:stats`, `${b}:tally`, `${b}:due`, `${b}:oldslot`, `${b}:oldlog`];
+  }
+
+  /** Runs a script with the tenant's [stats] keys appended when the server is a single Redis (see scripts.ts, statsLua). */
   private counted(c: RedisClient, tenant: string, s: LuaScript, keys: readonly string[], args: readonly (string | Buffer | number)[]): Promise<unknown> {
     if (isCluster(c)) return runScript(c, s, keys, args);
-    return runScript(c, { ...s, keys: s.keys + 1 }, [...keys, this.statsKey(tenant)], args);
+    return runScript(c, { ...s, keys: s.keys + STATS_KEYS }, [...keys, ...this.statsKeys(tenant)], args);
   }
 
   async ping(): Promise<void> {
@@ -620,10 +699,11 @@ export class RedisSlotStore implements Store {
       if (op.slot) {
         if (op.slot.key.length !== req.dim) throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, `commit op for slot ${op.index} has ${op.slot.key.length} dims, commit says ${req.dim}`);
         const enc = encodeSlot(op.slot, kf);
-        args.push(String(op.index), enc.payload);
+        const born = Number.isFinite(op.slot.createdMs) ? Math.floor(op.slot.createdMs) : 0;
+        args.push(String(op.index), enc.payload, born);
         keys.push(enc.key);
       } else {
-        args.push(String(op.index), '');
+        args.push(String(op.index), '', 0);
         keys.push(null);
       }
     }

@@ -13,7 +13,7 @@ import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type Logbook
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
-import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from './store.js';
+import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats, SweepReport, SweepRequest } from './store.js';
 
 export interface InProcessStoreOptions extends DeprecatedStoreOptions {
   /** File to write snapshots to and restore from at start; none when unset. @default undefined */
@@ -107,7 +107,7 @@ export class InProcessStore implements Store {
       throw new ConfigError(`in-process store: idleTtlMs must be a number of ms >= 0 (0 = none), got ${String(this.o.idleTtlMs)}`, { details: { option: 'idleTtlMs' } });
     }
     if (this.o.idleTtlMs > 0) {
-      this.sweeper = setInterval(() => this.sweep(), Math.min(60_000, this.o.idleTtlMs));
+      this.sweeper = setInterval(() => this.sweepIdle(), Math.min(60_000, this.o.idleTtlMs));
       this.sweeper.unref();
     }
     if (this.o.snapshotPath) {
@@ -238,6 +238,47 @@ export class InProcessStore implements Store {
     return report;
   }
 
+  /**
+   * The retention sweep (see `Store.sweep`): one pass over the tenant's sessions and logbook scopes,
+   * in this process's memory (O(sessions + expired)). A session that loses a slot moves its version on,
+   * so a plan made before the sweep is re-planned. The vectors and text of a deleted slot are zeroed.
+   */
+  async sweep(req: SweepRequest): Promise<SweepReport> {
+    const out: SweepReport = { sessions: 0, slots: 0, logbookEntries: 0, done: true };
+    const prefix = `${req.tenant}\u0000`;
+    if (req.slotCutoffMs > 0) {
+      for (const [key, e] of this.sessions) {
+        if (!key.startsWith(prefix)) continue;
+        out.sessions++;
+        let n = 0;
+        for (let i = 0; i < e.table.capacity; i++) {
+          if (e.table.get(i) && e.table.createdMs[i]! < req.slotCutoffMs) {
+            e.table.clear(i);
+            n++;
+          }
+        }
+        if (n > 0) {
+          e.version++;
+          out.slots += n;
+        }
+      }
+    }
+    if (req.logbookCutoffMs > 0) {
+      for (const [key, index] of this.logbooks) {
+        if (!key.startsWith(`s\u0000${prefix}`) && !key.startsWith(`u\u0000${prefix}`)) continue;
+        // Every entry, not only a run from the front: a user scope interleaves its sessions' turns.
+        const expired = [...index.all()].filter((e) => e.atMs < req.logbookCutoffMs);
+        for (const e of expired) if (index.remove(e.id)) out.logbookEntries++;
+      }
+    }
+    if (out.slots > 0 || out.logbookEntries > 0) {
+      this.dirty = true;
+      // Deletion must reach the snapshot file at once, as an erase does.
+      if (this.o.snapshotPath) this.save();
+    }
+    return out;
+  }
+
   /** A session's entry, marked as just used (most recent in the LRU order); an idle-expired one is dropped. */
   private use(tenant: string, session: string): SessionEntry | undefined {
     const key = sessionKey(tenant, session);
@@ -256,7 +297,7 @@ export class InProcessStore implements Store {
   }
 
   /** Drops sessions idle past `idleTtlMs` (oldest first in the LRU order, so it stops at the first live one). */
-  private sweep(): void {
+  private sweepIdle(): void {
     const cutoff = Date.now() - this.o.idleTtlMs;
     for (const [key, e] of this.sessions) {
       if (e.usedMs > cutoff) break;

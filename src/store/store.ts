@@ -161,6 +161,29 @@ export interface FleetRecord {
   payload: string;
 }
 
+/** One pass of the retention sweep (see `Store.sweep`). */
+export interface SweepRequest {
+  tenant: string;
+  /** Slots created (`createdMs`) before this time (ms) are deleted; 0 deletes none. */
+  slotCutoffMs: number;
+  /** Logbook entries of every scope with `atMs` before this time (ms) are deleted; 0 deletes none. */
+  logbookCutoffMs: number;
+  /** Sessions to visit in this pass at most (a pass resumes where the last stopped). @default 1000 */
+  budget?: number;
+}
+
+/** What one sweep pass deleted. */
+export interface SweepReport {
+  /** Sessions visited. */
+  sessions: number;
+  /** Slots deleted (their session's version moves on). */
+  slots: number;
+  /** Logbook entries deleted, from the session and user scopes. */
+  logbookEntries: number;
+  /** Whether the pass reached the end of the store's sessions (false: the next pass goes on from here). */
+  done: boolean;
+}
+
 /** Persistence for sessions. Every implementation passes `test/store/conformance.ts`. */
 export interface Store {
   /** Short name for logs and metrics labels (`memory`, `redis`, `cluster`). */
@@ -206,6 +229,12 @@ export interface Store {
    * restart without persistence): sessions it held now read as new. Optional.
    */
   watchResets?(listener: (e: { atMs: number }) => void): void;
+  /**
+   * Deletes what retention no longer allows from every tier — slots, logbook entries and their
+   * vector-index entries, in session and user scopes — without waiting for the sessions' next commit.
+   * Safe to run from several processes at once. Optional: without it expiry happens at commits only.
+   */
+  sweep?(req: SweepRequest): Promise<SweepReport>;
   /** Releases connections, timers and files. */
   close(): Promise<void>;
   /** Resolves when the store answers a trivial command; rejects with a `StoreError` otherwise. */

@@ -371,5 +371,87 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       expect(await store.listSessions(ref.tenant, 10_000)).toContain(ref.session);
     });
+
+    // The retention sweep: what expired goes from every tier without waiting for a commit. Own tenant
+    // per case, so the store-kept figures can be compared exactly.
+    const sweepAll = async (tenant: string, slotCutoffMs: number, logbookCutoffMs: number) => {
+      const total = { sessions: 0, slots: 0, logbookEntries: 0 };
+      for (let pass = 0; pass < 100; pass++) {
+        const r = await store.sweep!({ tenant, slotCutoffMs, logbookCutoffMs, budget: 50 });
+        total.slots += r.slots;
+        total.logbookEntries += r.logbookEntries;
+        total.sessions += r.sessions;
+        if (r.done) break;
+      }
+      return total;
+    };
+    const T0 = 1_700_000_000_000;
+
+    test('sweep deletes expired slots and logbook entries (session and user scope) with no commit, and keeps the rest', async () => {
+      const tenant = `${tenantBase}-sw${++counter}`;
+      const a: SessionRef = { tenant, session: 'a', user: 'u9' };
+      const b: SessionRef = { tenant, session: 'b' };
+      const phone = 'my phone number is 07700 900123';
+      await store.commit(a, commitOf({
+        ops: [{ index: 0, slot: slot(1, { createdMs: T0 + 1000, value: '07700 900123' }) }, { index: 1, slot: slot(2, { createdMs: T0 + 60_000 }) }],
+        logbook: [turnEntry(1, a, phone), turnEntry(90, a, 'the saddle creaks on hills')],
+      }));
+      await store.commit(b, commitOf({ ops: [{ index: 0, slot: slot(3, { createdMs: T0 + 2000 }) }], logbook: [turnEntry(2, b, 'my phone number is 07700 900456')] }));
+      // Read first, so any per-process index or cache holds the entries the sweep must take away.
+      expect((await searchText(store, { tenant, user: 'u9' }, 'phone number')).hits.map((h) => h.entry.id)).toContain(`T-a-1`);
+      expect((await searchText(store, { tenant, session: 'b' }, 'phone number')).hits).toHaveLength(1);
+      const va = (await store.load(a))!.version;
+      const before = store.stats ? await store.stats(tenant) : undefined;
+
+      const cut = T0 + 30_000;
+      const swept = await sweepAll(tenant, cut, cut);
+      expect(swept.slots).toBe(2);
+      expect(swept.logbookEntries).toBe(2);
+
+      const la = (await store.load(a))!;
+      expect(la.table.get(0)).toBeNull();
+      expect(la.table.get(1)?.id).toBe('r2');
+      expect(la.version).toBeGreaterThan(va);
+      expect((await store.load(b))!.table.count()).toBe(0);
+      expect((await searchText(store, { tenant, user: 'u9' }, 'phone number')).hits.map((h) => h.entry.id)).not.toContain('T-a-1');
+      expect((await searchText(store, { tenant, session: 'b' }, 'phone number')).hits).toHaveLength(0);
+      expect((await store.listLogbook({ tenant, user: 'u9' })).map((e) => e.id)).toEqual(['T-a-90']);
+      expect(await store.listLogbook({ tenant, session: 'b' })).toEqual([]);
+      if (before) {
+        const after = await store.stats!(tenant);
+        expect(after.slots).toBe(before.slots - 2);
+        expect(after.logbookEntries).toBe(before.logbookEntries - 2);
+        expect(after.sessions).toBe(before.sessions);
+      }
+      // A plan made before the sweep is refused as a conflict, not applied over it.
+      expect((await store.commit(a, commitOf({ expectedVersion: va, ops: [{ index: 0, slot: slot(1, { createdMs: T0 + 1000 }) }] }))).ok).toBe(false);
+      await store.erase({ tenant, user: 'u9' });
+      await store.erase({ tenant, session: 'b' });
+    });
+
+    test('sweep is idempotent: concurrent passes delete each expired item once', async () => {
+      const tenant = `${tenantBase}-sw${++counter}`;
+      const refs: SessionRef[] = [1, 2, 3, 4].map((n) => ({ tenant, session: `c${n}`, ...(n % 2 ? { user: 'u8' } : {}) }));
+      for (const [n, ref] of refs.entries()) {
+        await store.commit(ref, commitOf({
+          ops: [{ index: 0, slot: slot(n, { createdMs: T0 }) }, { index: 1, slot: slot(n + 10, { createdMs: T0 + 99_000 }) }],
+          logbook: [turnEntry(1, ref, `old turn ${n}`), turnEntry(2, ref, `old turn ${n} again`), turnEntry(200, ref, `new turn ${n}`)],
+        }));
+      }
+      const before = store.stats ? await store.stats(tenant) : undefined;
+      const cut = T0 + 50_000;
+      const runs = await Promise.all([sweepAll(tenant, cut, cut), sweepAll(tenant, cut, cut), sweepAll(tenant, cut, cut)]);
+      expect(runs.reduce((n, r) => n + r.slots, 0)).toBe(4);
+      expect(runs.reduce((n, r) => n + r.logbookEntries, 0)).toBe(8);
+      expect(await sweepAll(tenant, cut, cut)).toMatchObject({ slots: 0, logbookEntries: 0 });
+      for (const ref of refs) expect((await store.load(ref))!.table.count()).toBe(1);
+      if (before) {
+        const after = await store.stats!(tenant);
+        expect(after).toMatchObject({ sessions: before.sessions, slots: before.slots - 4, logbookEntries: before.logbookEntries - 8 });
+      }
+      await store.erase({ tenant, user: 'u8' });
+      for (const ref of refs) await store.erase({ tenant, session: ref.session });
+      if (store.stats) expect(await store.stats(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
+    });
   });
 }

@@ -300,8 +300,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       for (const ref of [a, b, c]) {
         await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
-      // meta, slots, events, (u)arch, (u)alog, plus the applied commit ids
-      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(6 * 3);
+      // meta, slots, events, (u)arch, (u)alog, slot birth times, plus the applied commit ids
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(7 * 3);
       expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
       expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, logbookEntries: 2, events: 2 });
       expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, logbookEntries: 1, events: 1 });
