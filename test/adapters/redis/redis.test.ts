@@ -32,6 +32,73 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
   storeConformance('redis-float32', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('f32'), keyFormat: 'float32' }), { keyTolerance: 1e-6 });
   storeConformance('redis-nocache', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
 
+  describe('store-kept counters do not drift', () => {
+    const figures = async (store: RedisSlotStore, tenant: string) => {
+      const { source, ...f } = await store.stats(tenant);
+      expect(source).toBe('counters');
+      return f;
+    };
+
+    it('a session that expires by idleTtlSeconds leaves the counters at the next sweep', async () => {
+      const prefix = prefixFor('ttl-stats');
+      const store = redisSlotStore({ redis: REDIS_URL, prefix, idleTtlSeconds: 1 });
+      try {
+        const ref = { tenant: 'acme', session: 'brief', user: 'u-brief' };
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 1, slot: slot(2) }], logbook: [archived(1, ref)] }));
+        expect(await figures(store, 'acme')).toEqual({ sessions: 1, slots: 2, logbookEntries: 1 });
+        const k = store.sessionKeys('acme', 'brief');
+        for (let i = 0; i < 60 && (await admin.exists(k.meta)) === 1; i++) await new Promise((r) => setTimeout(r, 100));
+        expect(await admin.exists(k.meta)).toBe(0);
+        // Redis dropped the keys without a script seeing it; the sweep counts the session again.
+        await store.sweep({ tenant: 'acme', slotCutoffMs: 0, logbookCutoffMs: 0 });
+        expect(await figures(store, 'acme')).toEqual({ sessions: 0, slots: 0, logbookEntries: 0 });
+        // A session that comes back is counted once, not on top of the lost figures.
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(3) }] }));
+        expect(await figures(store, 'acme')).toEqual({ sessions: 1, slots: 1, logbookEntries: 0 });
+      } finally {
+        await store.close();
+      }
+    });
+
+    it('a session re-created after TTL expiry, before any sweep, is not counted twice', async () => {
+      const prefix = prefixFor('ttl-recreate');
+      const store = redisSlotStore({ redis: REDIS_URL, prefix, idleTtlSeconds: 1 });
+      try {
+        const ref = { tenant: 'acme', session: 'again' };
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 1, slot: slot(2) }], logbook: [archived(1, ref)] }));
+        const k = store.sessionKeys('acme', 'again');
+        for (let i = 0; i < 60 && (await admin.exists(k.meta)) === 1; i++) await new Promise((r) => setTimeout(r, 100));
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(3) }] }));
+        expect(await figures(store, 'acme')).toEqual({ sessions: 1, slots: 1, logbookEntries: 0 });
+        await store.sweep({ tenant: 'acme', slotCutoffMs: 0, logbookCutoffMs: 0 });
+        expect(await figures(store, 'acme')).toEqual({ sessions: 1, slots: 1, logbookEntries: 0 });
+      } finally {
+        await store.close();
+      }
+    });
+
+    it('a quarantined slot leaves the slot counter; an erase then brings every counter to zero', async () => {
+      const prefix = prefixFor('q-stats');
+      const store = redisSlotStore({ redis: REDIS_URL, prefix, cacheSessions: 0 });
+      try {
+        const ref = { tenant: 'acme', session: 'q' };
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }, { index: 1, slot: slot(2) }], logbook: [archived(1, ref)] }));
+        const k = store.sessionKeys('acme', 'q');
+        const raw = (await admin.hgetBuffer(k.slots, '0'))!;
+        raw[raw.length - 1] ^= 0x01;
+        await admin.hset(k.slots, '0', raw);
+        expect((await store.load(ref))?.quarantined).toBe(1);
+        expect(await figures(store, 'acme')).toEqual({ sessions: 1, slots: 1, logbookEntries: 1 });
+        await store.erase(ref);
+        expect(await figures(store, 'acme')).toEqual({ sessions: 0, slots: 0, logbookEntries: 0 });
+        // No per-session figure is left behind under the tenant's keys once nothing is stored.
+        expect((await scanKeys(admin, `${prefix}*`)).filter((x) => !x.endsWith(':gone') && !x.endsWith(':stats') && !x.endsWith('marker'))).toEqual([]);
+      } finally {
+        await store.close();
+      }
+    });
+  });
+
   describe('payloads', () => {
     let store: RedisSlotStore;
     let prefix: string;
