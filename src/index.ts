@@ -32,7 +32,7 @@ export { HashingEmbedder, hashingEmbedder, HASHING_EMBEDDER_DEFAULTS } from './e
 export type { HashingEmbedderOptions } from './embed/hashing.js';
 export { EmbeddingCache } from './embed/cache.js';
 
-export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, EraseTarget, EraseReport } from './store/store.js';
+export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, EraseTarget, EraseReport, SweepRequest, SweepReport } from './store/store.js';
 export { InProcessStore, inProcessStore, IN_PROCESS_STORE_DEFAULTS } from './store/in-process.js';
 export type { InProcessStoreOptions } from './store/in-process.js';
 

@@ -299,6 +299,10 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       lifetimeClock.observe(e.lifetime);
       lifetimeSeconds.observe(e.lifetimeMs / 1000);
     },
+    sweep(e) {
+      // Slots the retention sweep deleted left working memory as `expired`, like those a commit expires.
+      if (e.slots > 0) evictions.inc({ reason: 'expired' }, e.slots);
+    },
     archive(e) {
       if (['superseded', 'capacity', 'decayed', 'expired'].includes(e.reason)) archived.inc({ reason: e.reason });
     },

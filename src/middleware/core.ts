@@ -221,6 +221,11 @@ export class Core {
     return this.said.get(keyOf(ref)) ?? [];
   }
 
+  /** Drops remembered logbook values older than `cutoffMs` (deleted by retention; never promoted back). */
+  forgetRecalledBefore(cutoffMs: number): void {
+    for (const m of this.recalled.values()) for (const [id, e] of m) if (e.atMs < cutoffMs) m.delete(id);
+  }
+
   forgetRecalled(ref: SessionRef): void {
     this.recalled.get(keyOf(ref))?.clear();
   }

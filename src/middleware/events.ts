@@ -159,6 +159,21 @@ export interface StoreResetEvent {
   atMs: number;
 }
 
+/**
+ * A retention sweep deleted what had expired (`reason: 'expired'`): slots past `write.maxAgeMs` and
+ * logbook entries past `logbook.maxAgeMs`, over the tenant's sessions. No session ids, no text.
+ */
+export interface SweepEvent {
+  /** Keyed hash of the tenant swept. */
+  tenant: string;
+  atMs: number;
+  reason: 'expired';
+  /** Sessions visited. */
+  sessions: number;
+  slots: number;
+  logbookEntries: number;
+}
+
 /** `close()` ran out of time with writes still queued: they are not stored. */
 export interface ClosedEvent {
   abandoned: number;
@@ -178,5 +193,6 @@ export interface TidemarkEvents {
   outbox: (e: OutboxEvent) => void;
   error: (e: ErrorEvent) => void;
   storeReset: (e: StoreResetEvent) => void;
+  sweep: (e: SweepEvent) => void;
   closed: (e: ClosedEvent) => void;
 }

@@ -48,6 +48,19 @@ export interface LogbookOptions {
   vectors?: 'auto' | boolean;
 }
 
+/** Deleting what retention no longer allows, on a timer (see README, Personal data). */
+export interface RetentionOptions {
+  /**
+   * How often (ms) the sweep deletes slots past `write.maxAgeMs` and logbook entries past
+   * `logbook.maxAgeMs` from the store, whether or not their session writes again (and, on a single
+   * Redis, counts again sessions that expired by TTL). 0 turns the timer off: expiry then happens at
+   * a session's next commit and on `sweep()`. The timer does not keep the process alive. @default 60000
+   */
+  sweepMs?: number;
+  /** Sessions one sweep pass visits at most; a tick runs up to 16 passes. @default 1000 */
+  sweepBudget?: number;
+}
+
 export interface TidemarkOptions extends MemoryParamsInput, DeprecatedTidemarkOptions {
   /** Where sessions live. @default new InProcessStore() */
   store?: Store;
@@ -72,6 +85,8 @@ export interface TidemarkOptions extends MemoryParamsInput, DeprecatedTidemarkOp
   writeReplies?: boolean | 'named';
   /** The long-term tier. */
   logbook?: LogbookOptions;
+  /** The retention sweep. */
+  retention?: RetentionOptions;
   /** What an aborted reply writes: the user turn, nothing, or the user turn and the partial reply. @default 'user' */
   onAbort?: 'user' | 'none' | 'all';
   /** A read that takes longer (store, logbook search, or waiting for the session's previous write) runs degraded. @default 1000 */
@@ -111,6 +126,7 @@ export interface ResolvedOptions {
   truncate: boolean;
   writeReplies: boolean | 'named';
   logbook: Required<LogbookOptions>;
+  retention: Required<RetentionOptions>;
   onAbort: 'user' | 'none' | 'all';
   readTimeoutMs: number;
   commitRetries: number;
@@ -128,6 +144,7 @@ export const TIDEMARK_DEFAULTS: Omit<ResolvedOptions, 'prompt'> = {
   truncate: false,
   writeReplies: 'named',
   logbook: { roles: ['user', 'assistant'], maxAgeMs: 0, maxEntries: 100_000, vectors: 'auto' },
+  retention: { sweepMs: 60_000, sweepBudget: 1000 },
   onAbort: 'user',
   readTimeoutMs: 1000,
   commitRetries: 16,
@@ -164,6 +181,7 @@ export function resolveOptions(options: TidemarkOptions): ResolvedOptions {
     ...TIDEMARK_DEFAULTS,
     ...pick(options, ['tenant', 'maxTextBytes', 'truncate', 'writeReplies', 'onAbort', 'readTimeoutMs', 'commitRetries', 'embedCacheSize', 'useOverlap', 'valueMix', 'promote']),
     logbook: { ...TIDEMARK_DEFAULTS.logbook, ...options.logbook },
+    retention: { ...TIDEMARK_DEFAULTS.retention, ...pick(options.retention ?? {}, ['sweepMs', 'sweepBudget']) },
     outbox: { ...TIDEMARK_DEFAULTS.outbox, ...options.outbox },
     prompt: { ...PROMPT_DEFAULTS, ...options.prompt },
   };
@@ -180,6 +198,8 @@ export function resolveOptions(options: TidemarkOptions): ResolvedOptions {
   intOpt('prompt.tokenBudget', o.prompt.tokenBudget, 0, 1_000_000);
   intOpt('logbook.maxAgeMs', o.logbook.maxAgeMs, 0, Number.MAX_SAFE_INTEGER);
   intOpt('logbook.maxEntries', o.logbook.maxEntries, 0, 100_000_000);
+  intOpt('retention.sweepMs', o.retention.sweepMs, 0, 86_400_000);
+  intOpt('retention.sweepBudget', o.retention.sweepBudget, 1, 1_000_000);
   fraction('valueMix', o.valueMix);
   fraction('useOverlap', o.useOverlap);
   if (!Array.isArray(o.logbook.roles) || !o.logbook.roles.every((r) => ROLES.includes(r))) {

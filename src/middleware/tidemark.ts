@@ -13,13 +13,14 @@ import { resolveMemoryParams, type MemoryParams } from '../memory/params.js';
 import { analyze } from '../memory/text.js';
 import { RetentionTracker, retentionSnapshot, type RetentionSnapshot } from '../metrics/retention.js';
 import { InProcessStore } from '../store/in-process.js';
-import type { EraseReport, Store } from '../store/store.js';
+import type { EraseReport, Store, SweepReport } from '../store/store.js';
 import type { MemoryContext, RecallItem, TurnInput } from '../types.js';
 import { Admin, type SessionView } from './admin.js';
 import { Core, refOf } from './core.js';
 import type { TidemarkEvents } from './events.js';
 import { resolveOptions, type TidemarkOptions } from './options.js';
 import { Outbox } from './outbox.js';
+import { Sweeper } from './sweep.js';
 import { ReadPath } from './read.js';
 import { isAsyncIterable, isReadableStream, passIterable, passReadable, type Reply, type ReplyEnd } from './stream.js';
 import type { Turn } from './validate.js';
@@ -80,6 +81,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   private readonly outbox: Outbox;
   private readonly admin: Admin;
   private readonly corrections: Corrections;
+  private readonly sweeper: Sweeper;
   private closed = false;
   /** Times the store was found empty after an outage (a `storeReset` event each; a counter for metrics). */
   storeResets = 0;
@@ -101,6 +103,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     this.outbox = new Outbox(this.core, this.writes);
     this.admin = new Admin(this.core, this.outbox);
     this.corrections = new Corrections(this.core, this.admin);
+    this.sweeper = new Sweeper(this.core);
     this.retentionTracker.attach(this);
     this.store.watchResets?.(({ atMs }) => {
       this.storeResets++;
@@ -115,6 +118,15 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
    */
   retention(nowMs = Date.now()): RetentionSnapshot {
     return retentionSnapshot(this.retentionTracker, nowMs);
+  }
+
+  /**
+   * Runs the retention sweep now (it also runs every `retention.sweepMs`): deletes from the store the
+   * slots past `write.maxAgeMs` and the logbook entries past `logbook.maxAgeMs`, as of `nowMs`.
+   */
+  sweep(nowMs = Date.now()): Promise<SweepReport> {
+    if (this.closed) return Promise.reject(new StoreError(ErrorCodes.CLOSED, 'sweep after close(): this tidemark instance is closed; create a new one'));
+    return this.sweeper.run(nowMs);
   }
 
   /** Writes waiting for the store. */
@@ -341,6 +353,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     if (this.closed) return { abandoned: 0 };
     await this.flush({ timeoutMs: options.timeoutMs ?? 2000 });
     this.closed = true;
+    this.sweeper.stop();
     const abandoned = this.outbox.stop();
     this.emit('closed', { abandoned });
     if (abandoned > 0) this.core.emitError('outbox', new StoreError(ErrorCodes.STORE_UNAVAILABLE, `close(): ${abandoned} queued writes were not stored (store ${this.store.name} unreachable until the deadline)`));
