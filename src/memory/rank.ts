@@ -118,6 +118,21 @@ function termsOf(c: SlotCandidate): SlotTerms {
   return t;
 }
 
+/**
+ * Drops the cached word counts of slot texts: all of them, or those of some revision ids. Called on
+ * erasure (here and when another process's erase is seen), so nothing derived from an erased value
+ * outlives it in this process.
+ */
+export function forgetSlotTerms(ids?: Iterable<string>): void {
+  if (!ids) slotTerms.clear();
+  else for (const id of ids) slotTerms.delete(id);
+}
+
+/** Whether the word counts of a slot revision are cached (for tests of erasure). */
+export function slotTermsCached(id: string): boolean {
+  return slotTerms.has(id);
+}
+
 // A turn's text normalised, per entry (an entry's text never changes), held only as long as the entry.
 const normalized = new WeakMap<LogbookEntry, string>();
 function normalizedValue(e: LogbookEntry): string {

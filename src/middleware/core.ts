@@ -9,6 +9,7 @@ import type { Embedder } from '../embed/embedder.js';
 import { EmbedderError, ErrorCodes, StoreError, TidemarkError, isTidemarkError } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';
 import type { MemoryParams } from '../memory/params.js';
+import { forgetSlotTerms } from '../memory/rank.js';
 import type { ErasureFence, ErasureMarks, SessionSnapshot, Store } from '../store/store.js';
 import type { LogbookEntry, MemoryContext, SessionRef } from '../types.js';
 import type { TidemarkEvents } from './events.js';
@@ -152,7 +153,21 @@ export class Core {
   /** Records the fence a read was made under (and the session's recalled values with it). */
   rememberFence(ref: SessionRef, memory: MemoryContext, fence: ErasureFence): void {
     this.readFences.set(memory, fence);
-    remember(this.recalledFence, keyOf(ref), fence, 10_000);
+    const key = keyOf(ref);
+    const before = this.recalledFence.get(key)?.seen;
+    // The tombstones moved since this process last read the session: another process erased it (or
+    // its user). What this process derived from the erased text goes now, not when its caches fill.
+    if (before && fence.seen && !sameMarks(before, fence.seen)) this.forgetSession(ref);
+    remember(this.recalledFence, key, fence, 10_000);
+  }
+
+  /** Drops every memo of one session, and the ranking's cached word counts (an erase seen). */
+  forgetSession(ref: SessionRef): void {
+    const key = keyOf(ref);
+    this.lastRead.delete(key);
+    this.recalled.delete(key);
+    this.said.delete(key);
+    forgetSlotTerms();
   }
 
   fenceOf(memory: MemoryContext): ErasureFence | undefined {
@@ -232,6 +247,7 @@ export class Core {
 
   /** Drops every memo that holds session text (erasure). */
   clearMemos(): void {
+    forgetSlotTerms();
     this.cache.clear();
     this.recalled.clear();
     this.lastRead.clear();

@@ -6,6 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
+import { slotTermsCached } from '../../../src/memory/rank.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
@@ -95,6 +96,55 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
         expect((await scanKeys(admin, `${prefix}*`)).filter((x) => !x.endsWith(':gone') && !x.endsWith(':stats') && !x.endsWith('marker'))).toEqual([]);
       } finally {
         await store.close();
+      }
+    });
+  });
+
+  describe('erase reaches what other processes hold in memory', () => {
+    it('a second instance that read the text returns none of it after an erase made elsewhere, and drops its derived caches', async () => {
+      const prefix = prefixFor('erase-mem');
+      const writer = createTidemark({ tenant: 'shop', store: redisSlotStore({ redis: REDIS_URL, prefix }) });
+      const reader = createTidemark({ tenant: 'shop', store: redisSlotStore({ redis: REDIS_URL, prefix }) });
+      // The erase comes from a bare store (another process, or the CLI): nothing in this process is told.
+      const eraser = redisSlotStore({ redis: REDIS_URL, prefix });
+      try {
+        await writer.write({ session: 's1', user: 'u-mem', text: 'My phone number is 07700 900321.' });
+        await writer.write({ session: 's2', user: 'u-mem', text: 'My bike is a red cargo trike.' });
+        const ask = (session: string, text: string) => reader.read({ session, user: 'u-mem', text });
+        const before = await ask('s1', 'What is my phone number?');
+        const slotItem = before.items.find((i) => i.source === 'slot' && i.value.includes('900321'));
+        expect(slotItem).toBeDefined();
+        expect(slotTermsCached(slotItem!.id)).toBe(true);
+        expect((await ask('s2', 'What is my phone number?')).items.map((i) => i.value).join(' ')).toContain('900321');
+        // The reader's store caches hold the text too (session table, user-scope index).
+        expect((await reader.store.listLogbook({ tenant: 'shop', user: 'u-mem' })).map((e) => e.value).join(' ')).toContain('900321');
+
+        await eraser.erase({ tenant: 'shop', user: 'u-mem' });
+
+        const after = await ask('s1', 'What is my phone number?');
+        expect(after.items.map((i) => i.value).join(' ')).not.toContain('900321');
+        expect(slotTermsCached(slotItem!.id)).toBe(false);
+        expect((await ask('s2', 'What is my phone number?')).items.map((i) => i.value).join(' ')).not.toContain('900321');
+        expect((await reader.store.listLogbook({ tenant: 'shop', user: 'u-mem' })).map((e) => e.value).join(' ')).not.toContain('900321');
+        expect(await reader.store.load({ tenant: 'shop', session: 's1', user: 'u-mem' })).toBeNull();
+      } finally {
+        await writer.close();
+        await reader.close();
+        await eraser.close();
+      }
+    });
+
+    it('the erasing instance drops the ranking cache of the erased values at once', async () => {
+      const prefix = prefixFor('erase-rank');
+      const tm = createTidemark({ tenant: 'shop', store: redisSlotStore({ redis: REDIS_URL, prefix }) });
+      try {
+        await tm.write({ session: 's1', text: 'My phone number is 07700 900654.' });
+        const item = (await tm.read({ session: 's1', text: 'What is my phone number?' })).items.find((i) => i.source === 'slot');
+        expect(item && slotTermsCached(item.id)).toBe(true);
+        await tm.erase({ session: 's1' });
+        expect(slotTermsCached(item!.id)).toBe(false);
+      } finally {
+        await tm.close();
       }
     });
   });
