@@ -420,3 +420,31 @@ local nowms = tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000)
 restat({0, 0, 0}, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], ttl > 0 and (nowms + ttl) or 0)
 return ttl == -2 and 1 or 0
 `);
+
+/**
+ * Move logbook payloads that failed their check aside, so searches of the scope keep working: each one
+ * still equal to what the reader saw goes from the slice's hash to the session's quarantine hash (field
+ * `log:id@seconds`). Its log element stays as a deleted entry's does (readers skip it; retention pops it
+ * uncounted), so no position moves and no cached copy needs a full refetch.
+ * KEYS: meta, slots, arch, uarch, alog, ualog, born, quarantine, [stats]. ARGV: 1 slice ('s' session,
+ * 'u' user), 2 ttl seconds for the quarantine (0 = none), then id, payload pairs. Reply: the number moved.
+ */
+export const LOG_QUARANTINE = script('log_quarantine', 8, statsLua(9) + `
+local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
+local h = ARGV[1] == 'u' and KEYS[4] or KEYS[3]
+local t = redis.call('TIME')
+local moved = 0
+for i = 3, #ARGV, 2 do
+  local cur = redis.call('HGET', h, ARGV[i])
+  if cur and cur == ARGV[i + 1] then
+    redis.call('HSET', KEYS[8], 'log:' .. ARGV[i] .. '@' .. t[1], cur)
+    redis.call('HDEL', h, ARGV[i])
+    moved = moved + 1
+  end
+end
+if moved > 0 then
+  if tonumber(ARGV[2]) > 0 then redis.call('EXPIRE', KEYS[8], tonumber(ARGV[2])) end
+  restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
+end
+return moved
+`);

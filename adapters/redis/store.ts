@@ -21,7 +21,7 @@ import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_QUARANTINE, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -142,6 +142,7 @@ export class RedisSlotStore implements Store {
   /** This store's mark in Redis (see watchResets); '' until first connected. */
   private marker = '';
   private readonly resetListeners: Array<(e: { atMs: number }) => void> = [];
+  private readonly quarantineListeners: Array<(e: { tenant: string; session: string; entries: number }) => void> = [];
   private readonly watched = new WeakSet<object>();
   /** Where the Cluster sweep of each tenant goes on from: master index and SCAN cursor. */
   private readonly sweepAt = new Map<string, { node: number; cursor: string }>();
@@ -149,6 +150,8 @@ export class RedisSlotStore implements Store {
   resets = 0;
   /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
   quarantined = 0;
+  /** Logbook payloads moved aside after failing their check (see `watchQuarantine`). */
+  quarantinedEntries = 0;
 
   constructor(options: RedisSlotStoreOptions = {}) {
     // An option given as undefined means "the default", as documented, not "no value".
@@ -644,6 +647,10 @@ export class RedisSlotStore implements Store {
     return c;
   }
 
+  watchQuarantine(listener: (e: { tenant: string; session: string; entries: number }) => void): void {
+    this.quarantineListeners.push(listener);
+  }
+
   watchResets(listener: (e: { atMs: number }) => void): void {
     this.resetListeners.push(listener);
   }
@@ -789,6 +796,8 @@ export class RedisSlotStore implements Store {
       throw unavailable('searchLogbook', err);
     }
     const live = new Set(sessions);
+    /** Payloads that failed their check, per session: (id, payload) pairs to move aside. */
+    const bad = new Map<string, Array<string | Buffer>>();
     for (const s of [...sc.sessions.keys()]) if (!live.has(s)) this.dropScopeSession(sc, s);
     sessions.forEach((s, i) => {
       const r = replies[i] as unknown[] | null;
@@ -826,7 +835,17 @@ export class RedisSlotStore implements Store {
           entry.ids.push('');
           return;
         }
-        const e = decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id });
+        let e: LogbookEntry;
+        try {
+          e = decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id });
+        } catch (err) {
+          if (!(err instanceof StoreError) || err.code !== ErrorCodes.STORE_CORRUPT) throw err;
+          // Kept aside (below), not trusted and not fatal: the scope is searched without it.
+          if (!bad.has(s)) bad.set(s, []);
+          bad.get(s)!.push(id, v as Buffer);
+          entry.ids.push('');
+          return;
+        }
         if (user !== undefined && e.user !== user) {
           entry.ids.push('');
           return;
@@ -840,7 +859,24 @@ export class RedisSlotStore implements Store {
       entry.end = end;
       sc.sessions.set(s, entry);
     });
+    for (const [s, pairs] of bad) await this.quarantineLog(scope.tenant, s, user !== undefined ? 'u' : 's', pairs);
     return sc;
+  }
+
+  /** Moves logbook payloads that failed their check aside (LOG_QUARANTINE) and tells the listeners. */
+  private async quarantineLog(tenant: string, session: string, slice: 's' | 'u', pairs: Array<string | Buffer>): Promise<void> {
+    const k = this.keys.session(tenant, session);
+    let moved: number;
+    try {
+      const c = await this.conn('quarantine');
+      const ttl = Math.max(this.o.idleTtlSeconds, this.o.fenceTtlSeconds);
+      moved = Number(await this.counted(c, tenant, LOG_QUARANTINE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, k.quarantine], [slice, ttl, ...pairs]));
+    } catch (err) {
+      throw unavailable('quarantine', err);
+    }
+    if (moved === 0) return;
+    this.quarantinedEntries += moved;
+    for (const l of this.quarantineListeners) l({ tenant, session, entries: moved });
   }
 
   private dropEntry(sc: ScopeCache, id: string, session: string): void {

@@ -81,6 +81,9 @@ export class Core {
     this.cache = new EmbeddingCache(o.embedCacheSize);
     this.hashKey = hashKey ?? randomBytes(16).toString('hex');
     this.dense = o.logbook.vectors === 'auto' ? embedder.semantic === true : o.logbook.vectors;
+    store.watchQuarantine?.(({ tenant, session, entries }) => {
+      this.emitError('store', new StoreError(ErrorCodes.STORE_CORRUPT, `store ${store.name}: ${entries} logbook entries of this session failed their check and were moved aside; searches continue without them`, { details: { quarantined: entries, tier: 'logbook' } }), { tenant, session });
+    });
   }
 
   /** Keyed hash of a session id as it appears in events and metrics (12 hex chars). */

@@ -230,6 +230,12 @@ export interface Store {
    */
   watchResets?(listener: (e: { atMs: number }) => void): void;
   /**
+   * Calls `listener` when logbook entries whose stored payload failed its check were moved aside
+   * (kept under a quarantine key, not used): searches of the scope go on without them. Corrupt slot
+   * payloads are reported through `SessionSnapshot.quarantined` instead. Optional.
+   */
+  watchQuarantine?(listener: (e: { tenant: string; session: string; entries: number }) => void): void;
+  /**
    * Deletes what retention no longer allows from every tier — slots, logbook entries and their
    * vector-index entries, in session and user scopes — without waiting for the sessions' next commit.
    * Safe to run from several processes at once. Optional: without it expiry happens at commits only.

@@ -209,6 +209,66 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(await admin.exists(k.quarantine)).toBe(0);
     });
 
+    it('a tampered logbook payload is moved aside (kept, reported once) and the scope stays searchable', async () => {
+      const ref = { tenant: 't', session: 'tamper-log', user: 'u-tl' };
+      await store.commit(ref, commitOf({ logbook: [turnEntry(1, ref, 'my saddle is a brown leather one'), turnEntry(3, ref, 'my saddle bag is waxed canvas')] }));
+      const k = store.sessionKeys('t', 'tamper-log');
+      const raw = (await admin.hgetBuffer(k.uarch, `T-tamper-log-1`))!;
+      raw[raw.length - 1] ^= 0x01;
+      await admin.hset(k.uarch, `T-tamper-log-1`, raw);
+      const fresh = redisSlotStore({ redis: await store.redis(), prefix });
+      const heard: Array<{ session: string; entries: number }> = [];
+      fresh.watchQuarantine((e) => heard.push({ session: e.session, entries: e.entries }));
+      const scope = { tenant: 't', user: 'u-tl' };
+      const hits = (await searchText(fresh, scope, 'saddle')).hits.map((h) => h.entry.id);
+      expect(hits).toEqual(['T-tamper-log-3']);
+      expect(heard).toEqual([{ session: 'tamper-log', entries: 1 }]);
+      expect(fresh.quarantinedEntries).toBe(1);
+      const kept = await admin.hgetallBuffer(k.quarantine);
+      expect(Object.keys(kept)).toHaveLength(1);
+      expect(Object.keys(kept)[0]).toMatch(/^log:T-tamper-log-1@\d+$/);
+      expect(Object.values(kept)[0]!.equals(raw)).toBe(true);
+      expect(await admin.hexists(k.uarch, 'T-tamper-log-1')).toBe(0);
+      // Another process reading afresh finds nothing left to move and reports nothing.
+      const third = redisSlotStore({ redis: await store.redis(), prefix });
+      third.watchQuarantine(() => heard.push({ session: 'again', entries: 0 }));
+      expect((await searchText(third, scope, 'saddle')).hits.map((h) => h.entry.id)).toEqual(['T-tamper-log-3']);
+      expect(heard).toHaveLength(1);
+      // The session keeps committing; erase removes what was kept aside.
+      expect(await fresh.commit(ref, commitOf({ expectedVersion: 1, logbook: [turnEntry(5, ref, 'my saddle height is 74 cm')] }))).toMatchObject({ ok: true });
+      expect((await searchText(fresh, scope, 'saddle')).hits).toHaveLength(2);
+      await fresh.erase({ tenant: 't', user: 'u-tl' });
+      expect(await admin.exists(k.quarantine)).toBe(0);
+    });
+
+    it('under the middleware a corrupt logbook entry is reported (STORE_CORRUPT, tier logbook) and reads are not degraded', async () => {
+      const p3 = `${prefix}mwlog:`;
+      const writer = createTidemark({ store: redisSlotStore({ redis: await store.redis(), prefix: p3 }) });
+      const reader = createTidemark({ store: redisSlotStore({ redis: await store.redis(), prefix: p3 }) });
+      try {
+        await writer.write({ session: 'lg', user: 'u-lg', text: 'My saddle is a brown leather one.' });
+        await writer.write({ session: 'lg', user: 'u-lg', text: 'My pump is a yellow track pump.' });
+        const k = redisSlotStore({ prefix: p3, redis: await store.redis() }).sessionKeys('default', 'lg');
+        const fields = await admin.hkeys(k.uarch);
+        const target = fields[0]!;
+        const raw = (await admin.hgetBuffer(k.uarch, target))!;
+        raw[raw.length - 1] ^= 0x01;
+        await admin.hset(k.uarch, target, raw);
+        const errors: Array<{ code: string; details: unknown }> = [];
+        const degraded: string[] = [];
+        reader.on('error', (e) => errors.push({ code: e.error.code, details: e.error.details }));
+        reader.on('degraded', (e) => degraded.push(e.code));
+        const ctx = await reader.read({ session: 'lg2', user: 'u-lg', text: 'What pump and saddle do I have?' });
+        expect(ctx.degraded ?? false).toBe(false);
+        expect(degraded).toEqual([]);
+        expect(errors).toEqual([{ code: 'TIDEMARK_E_STORE_CORRUPT', details: { quarantined: 1, tier: 'logbook' } }]);
+        await reader.write({ session: 'lg2', user: 'u-lg', text: 'My lock is a heavy chain.' });
+      } finally {
+        await writer.close();
+        await reader.close();
+      }
+    });
+
     it('under the middleware a corrupt slot is reported and the session keeps reading and writing', async () => {
       const p2 = `${prefix}mw:`;
       const tm = createTidemark({ store: redisSlotStore({ redis: await store.redis(), prefix: p2 }) });
@@ -233,14 +293,16 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       }
     });
 
-    it('a tampered logbook payload is reported as corrupt by search', async () => {
+    it('a truncated session-scope logbook payload is never decoded: search goes on without it, the payload kept aside', async () => {
       const ref = { tenant: 't', session: 'tamper-arch' };
-      await store.commit(ref, commitOf({ logbook: [archived(1, ref)] }));
+      await store.commit(ref, commitOf({ logbook: [archived(1, ref), archived(2, ref)] }));
       const k = store.sessionKeys('t', 'tamper-arch');
       const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
       await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
       await admin.hset(k.meta, 'as', 'moved'); // as a real writer would, so the cached copy is refreshed
-      await expect(searchText(store, { tenant: 't', session: 'tamper-arch' }, 'old value')).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
+      const hits = (await searchText(store, { tenant: 't', session: 'tamper-arch' }, 'old value')).hits.map((h) => h.entry.id);
+      expect(hits).toEqual(['a2']);
+      expect(Object.keys(await admin.hgetall(k.quarantine))).toEqual([expect.stringMatching(/^log:a1@/)]);
     });
   });
 
