@@ -91,6 +91,15 @@ export class KeySpace {
     return `${this.prefix}{${escapeId(tenant, true)}:u:${escapeId(user, false)}}:gone`;
   }
 
+  /**
+   * Sorted set of the user's logbook entries over all their sessions (`session id` scored by the
+   * entry's time; no text), so `logbook.maxEntries` holds per user, not per session; same hash tag as
+   * the user's session set.
+   */
+  userEntries(tenant: string, user: string): string {
+    return `${this.prefix}{${escapeId(tenant, true)}:u:${escapeId(user, false)}}:entries`;
+  }
+
   /** SCAN MATCH pattern for the meta keys of one tenant. */
   metaPattern(tenant: string): string {
     return `${escapeGlob(this.prefix)}{${escapeGlob(escapeId(tenant, true))}:*}:meta`;

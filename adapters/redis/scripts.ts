@@ -322,15 +322,16 @@ return 1
 `);
 
 /**
- * First step of a user erase: move the user's tombstone forward (from here on LINK refuses writes
- * fenced before it) and read the sessions to erase.
- * KEYS: the user's session set, the user's tombstone. ARGV: tombstone ttl seconds.
+ * First step of a user erase: move the user's tombstone forward (from here on LINK and USER_CAP refuse
+ * writes fenced before it), delete the user's entry index and read the sessions to erase.
+ * KEYS: the user's session set, the user's tombstone, the user's entry index. ARGV: tombstone ttl seconds.
  * Reply: {tombstone time, {sessions...}}.
  */
-export const USER_ERASE = script('user_erase', 2, `
+export const USER_ERASE = script('user_erase', 3, `
 local t = redis.call('TIME')
 local at = math.max(tonumber(t[1]) * 1000 + math.floor(tonumber(t[2]) / 1000), tonumber(redis.call('GET', KEYS[2]) or '0') + 1)
 redis.call('SET', KEYS[2], at, 'EX', tonumber(ARGV[1]))
+redis.call('DEL', KEYS[3])
 return {tostring(at), redis.call('SMEMBERS', KEYS[1])}
 `);
 
@@ -447,4 +448,72 @@ if moved > 0 then
   restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
 end
 return moved
+`);
+
+/**
+ * `logbook.maxEntries` over a user's whole scope (all their sessions), after a commit added entries to
+ * one session's slice: index the new entries, then take the oldest past the cap out of the index and
+ * name them for deletion (TRIM, per session). Refused, like LINK, for a write fenced before a user
+ * erase (its session is being erased; the index must not name it again).
+ * KEYS: the user's entry index, the user's tombstone. ARGV: 1 max entries, 2 the user's erase time the
+ * writer saw ('' = none), 3 the writer's clock when it accepted the turn ('' = unfenced), then
+ * (time, "session id") pairs. Reply: {"session id", ...} the entries to delete.
+ */
+export const USER_CAP = script('user_cap', 2, `
+local gone = tonumber(redis.call('GET', KEYS[2]) or '0')
+if (ARGV[2] ~= '' and gone > tonumber(ARGV[2])) or (ARGV[3] ~= '' and gone >= tonumber(ARGV[3])) then return {} end
+for i = 4, #ARGV, 2 do redis.call('ZADD', KEYS[1], tonumber(ARGV[i]), ARGV[i + 1]) end
+local over = redis.call('ZCARD', KEYS[1]) - tonumber(ARGV[1])
+if over <= 0 then return {} end
+local out = {}
+local popped = redis.call('ZPOPMIN', KEYS[1], over)
+for i = 1, #popped, 2 do out[#out + 1] = popped[i] end
+return out
+`);
+
+/**
+ * Delete user-scope logbook entries of one session by id (the user's cap, USER_CAP). The oldest are
+ * normally at the head of the session's user log: those leave as retention's do (popped, the head
+ * moved on, so readers drop them without a full fetch); any other is deleted with its log element and
+ * the slice's epoch moved (readers fetch it again in full), as LOG_DELETE does.
+ * KEYS: meta, slots, arch, uarch, alog, ualog, born, [stats]. ARGV: 1 new epoch, then ids.
+ * Reply: number deleted.
+ */
+export const TRIM = script('trim', 7, statsLua(8) + `
+local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
+local want, left = {}, 0
+for i = 2, #ARGV do
+  want[ARGV[i]] = true
+  left = left + 1
+end
+local n, popped = 0, 0
+while left > 0 do
+  local e = redis.call('LINDEX', KEYS[6], 0)
+  if not e then break end
+  local id = string.match(e, '^%-?%d+:(.*)$') or e
+  if want[id] then
+    want[id] = nil
+    left = left - 1
+    n = n + redis.call('HDEL', KEYS[4], id)
+  elseif redis.call('HEXISTS', KEYS[4], id) == 1 then
+    break
+  end
+  redis.call('LPOP', KEYS[6])
+  popped = popped + 1
+end
+if left > 0 then
+  local moved = false
+  for _, e in ipairs(redis.call('LRANGE', KEYS[6], 0, -1)) do
+    local id = string.match(e, '^%-?%d+:(.*)$') or e
+    if want[id] then
+      n = n + redis.call('HDEL', KEYS[4], id)
+      redis.call('LREM', KEYS[6], 1, e)
+      moved = true
+    end
+  end
+  if moved and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], 'au', ARGV[1]) end
+end
+if popped > 0 and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HINCRBY', KEYS[1], 'auh', popped) end
+restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
+return n
 `);

@@ -21,7 +21,7 @@ import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
 import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_QUARANTINE, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_QUARANTINE, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, TRIM, USER_CAP, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -332,7 +332,42 @@ export class RedisSlotStore implements Store {
     }
     this.applyToCache(k.meta, req, epoch, version, keys);
     const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
+    const maxEntries = req.retention?.policy.maxEntries ?? 0;
+    if (ref.user && maxEntries > 0 && req.logbook.length > 0) dropped.count += await this.capUser(ref, req, maxEntries);
     return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
+  }
+
+  /**
+   * `logbook.maxEntries` over the user's whole scope (USER_CAP, then TRIM per session named). Runs after
+   * the commit, on other hash tags: the scope may exceed the cap by the entries of commits in flight at
+   * that moment (one commit's per process), never more. The commit has landed whatever happens here:
+   * a failure is left for the next commit of the user to make good (the cap is then applied again).
+   */
+  private async capUser(ref: SessionRef, req: CommitRequest, maxEntries: number): Promise<number> {
+    const user = ref.user!;
+    try {
+      const c = await this.conn('commit');
+      const f = req.fence;
+      const pairs: (string | number)[] = [];
+      for (const e of req.logbook) pairs.push(Math.floor(e.atMs), `${ref.session} ${e.id}`);
+      const over = ((await runScript(c, USER_CAP, [this.keys.userEntries(ref.tenant, user), this.keys.userGone(ref.tenant, user)], [maxEntries, f?.seen ? f.seen.user : '', f ? Math.floor(f.acceptedMs) : '', ...pairs])) as Buffer[]).map(str);
+      if (over.length === 0) return 0;
+      const bySession = new Map<string, string[]>();
+      for (const m of over) {
+        const at = m.indexOf(' ');
+        const s = m.slice(0, at);
+        if (!bySession.has(s)) bySession.set(s, []);
+        bySession.get(s)!.push(m.slice(at + 1));
+      }
+      let n = 0;
+      for (const [s, ids] of bySession) {
+        const k = this.keys.session(ref.tenant, s);
+        n += Number(await this.counted(c, ref.tenant, TRIM, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [token(), ...ids]));
+      }
+      return n;
+    } catch {
+      return 0;
+    }
   }
 
   async searchLogbook(scope: LogbookScope, query: LogbookQuery, params: LogbookSearchParams): Promise<LogbookSearchResult> {
@@ -351,6 +386,10 @@ export class RedisSlotStore implements Store {
       const c = await this.conn('deleteLogbook');
       const user = 'user' in scope;
       const sessions = user ? await c.smembers(this.keys.userSessions(scope.tenant, scope.user)) : [scope.session];
+      if (user) {
+        const members = sessions.flatMap((s) => ids.map((id) => `${s} ${id}`));
+        if (members.length > 0) await c.zrem(this.keys.userEntries(scope.tenant, scope.user), ...members);
+      }
       const counts = await Promise.all(
         sessions.map((s) => {
           const k = this.keys.session(scope.tenant, s);
@@ -398,7 +437,7 @@ export class RedisSlotStore implements Store {
         // session in the set as it stands at that moment: together they cover every session any
         // process wrote for this user before the erase.
         userSet = this.keys.userSessions(target.tenant, target.user);
-        const r = (await runScript(c, USER_ERASE, [userSet, this.keys.userGone(target.tenant, target.user)], [ttl])) as unknown[];
+        const r = (await runScript(c, USER_ERASE, [userSet, this.keys.userGone(target.tenant, target.user), this.keys.userEntries(target.tenant, target.user)], [ttl])) as unknown[];
         at = Number(str(r[0]));
         sessions = (r[1] as Buffer[]).map(str);
         this.scopes.delete(scopeKeyOf({ tenant: target.tenant, user: target.user }));
@@ -414,7 +453,13 @@ export class RedisSlotStore implements Store {
         report.events += Number(r[3]);
         const user = str(r[4]);
         this.forget(target.tenant, s, k, user);
-        if (user && !userSet) await c.srem(this.keys.userSessions(target.tenant, user), s);
+        if (user && !userSet) {
+          await c.srem(this.keys.userSessions(target.tenant, user), s);
+          // The user's entry index no longer names the session's entries (O(user's entries); erase is rare).
+          const idx = this.keys.userEntries(target.tenant, user);
+          const mine = (await c.zrange(idx, 0, -1)).filter((m) => m.startsWith(`${s} `));
+          if (mine.length > 0) await c.zrem(idx, ...mine);
+        }
       }
       // Only the members erased leave the set: a session linked since (a write fenced after the
       // tombstone, i.e. a new conversation) stays findable by the next erase.

@@ -453,5 +453,29 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       for (const ref of refs) await store.erase({ tenant, session: ref.session });
       if (store.stats) expect(await store.stats(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
     });
+
+    test('logbook.maxEntries holds per user scope (cap 5) while the user\'s sessions commit concurrently', async () => {
+      const tenant = `${tenantBase}-cap${++counter}`;
+      const refs: SessionRef[] = [1, 2, 3, 4].map((n) => ({ tenant, session: `k${n}`, user: 'ucap' }));
+      const retention = { policy: { maxAgeMs: 0, maxEntries: 5 }, nowMs: T0 + 1e6 };
+      const versions = refs.map(() => 0);
+      for (let round = 0; round < 4; round++) {
+        await Promise.all(refs.map(async (ref, j) => {
+          const n = (round * 4 + j) * 2;
+          const logbook = [turnEntry(n + 1, ref, `round ${round} turn a`), turnEntry(n + 2, ref, `round ${round} turn b`)];
+          const r = await store.commit(ref, commitOf({ expectedVersion: versions[j], logbook, retention }));
+          expect(r.ok).toBe(true);
+          versions[j] = r.ok ? r.version : versions[j]!;
+        }));
+        const kept = await store.listLogbook({ tenant, user: 'ucap' }, { limit: 1000 });
+        expect(kept.length).toBe(5);
+      }
+      // Rounds run one after another, so the 5 kept are all of the last round.
+      const kept = await store.listLogbook({ tenant, user: 'ucap' }, { limit: 1000 });
+      expect(kept.every((e) => e.value.startsWith('round 3'))).toBe(true);
+      if (store.stats) expect((await store.stats(tenant)).logbookEntries).toBe(5);
+      await store.erase({ tenant, user: 'ucap' });
+      if (store.stats) expect(await store.stats(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
+    });
   });
 }
