@@ -26,6 +26,12 @@ const target = new URL(REDIS_URL);
 class HookedStore extends RedisSlotStore {
   before: (() => Promise<void>) | undefined;
   delayMs: (() => number) | undefined;
+  /** While set, every logbook search waits for it (a stalled Redis). */
+  searchStall: Promise<void> | undefined;
+  override async searchLogbook(...a: Parameters<RedisSlotStore['searchLogbook']>): ReturnType<RedisSlotStore['searchLogbook']> {
+    if (this.searchStall) await this.searchStall;
+    return super.searchLogbook(...a);
+  }
   override async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
     const hook = this.before;
     this.before = undefined;
@@ -253,5 +259,75 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
     await b.flush({ timeoutMs: 5000 });
     const view = await a.inspect('w', 'shop', { logbookLimit: 100 });
     expect(view.logbook.map((e) => e.value)).toContain('My phone number is 07700 900321.');
+  });
+
+  // The four defects the test-suite audit found with probes (each must stay fixed).
+  it('4a: a conflict storm during an outbox retry: the write is planned again every pass and reported drained once, when stored', async () => {
+    const prefix = uniquePrefix('race-4a');
+    prefixes.push(prefix);
+    const a = proc(prefix);
+    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
+    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 5, maxRetryMs: 10 } });
+    open.push(b);
+    const changes: string[] = [];
+    b.on('outbox', (e) => changes.push(e.change));
+    await b.write({ session: 'storm', text: 'My name is Ola.' });
+    // Process A gets in first before each of B's next six commits: the write and five drain passes.
+    let losses = 6;
+    const arm = (): void => {
+      hooked.before = async () => {
+        await a.write({ session: 'storm', text: `My lesson is on day ${losses}.` });
+        if (--losses > 0) arm();
+      };
+    };
+    arm();
+    const r = await b.write({ session: 'storm', text: 'My phone number is 07700 900888.' });
+    expect(r.committed).toBe(false);
+    await b.flush({ timeoutMs: 10_000 });
+    expect(losses).toBe(0);
+    expect(changes).toEqual(['queued', 'retry', 'retry', 'retry', 'retry', 'retry', 'drained']);
+    const view = await a.inspect('storm', 'shop', { logbookLimit: 100 });
+    expect(view.logbook.filter((e) => e.value === 'My phone number is 07700 900888.')).toHaveLength(1);
+  });
+
+  it('4b: an erase while the outbox is committing that session: the commit is refused, nothing lands after the erase', async () => {
+    const prefix = uniquePrefix('race-4b');
+    prefixes.push(prefix);
+    const a = proc(prefix);
+    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
+    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 5, maxRetryMs: 10 } });
+    open.push(b);
+    const changes: string[] = [];
+    b.on('outbox', (e) => changes.push(e.change));
+    await b.write({ session: 'mid', user: 'u-mid', text: 'My name is Ola.' });
+    hooked.before = async () => void (await a.write({ session: 'mid', user: 'u-mid', text: 'My lesson is on Monday.' }));
+    expect((await b.write({ session: 'mid', user: 'u-mid', text: 'My phone number is 07700 900777.' })).committed).toBe(false);
+    // The drain's commit starts; the user is erased by process A before it reaches Redis.
+    hooked.before = async () => void (await a.erase({ user: 'u-mid' }));
+    await b.flush({ timeoutMs: 5000 });
+    expect(b.outboxDepth).toBe(0);
+    expect(changes).toEqual(['queued', 'erased']);
+    expect(await dataKeys(prefix)).toEqual([]);
+  });
+
+  it('4c: readTimeoutMs bounds the logbook search: a stalled search leaves the turn degraded, it does not hold it', async () => {
+    const prefix = uniquePrefix('race-4c');
+    prefixes.push(prefix);
+    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
+    const tm = createTidemark({ store: hooked, tenant: 'shop', readTimeoutMs: 100 });
+    open.push(tm);
+    await tm.write({ session: 'slow', text: 'My bike is a green tandem.' });
+    let release!: () => void;
+    hooked.searchStall = new Promise<void>((r) => (release = r));
+    const order: string[] = [];
+    // The search stays stalled until the read has answered: the read cannot have waited for it.
+    const ctx = await tm.read({ session: 'slow', text: 'What bike do I have?' });
+    order.push('read answered');
+    release();
+    order.push('search released');
+    expect(order).toEqual(['read answered', 'search released']);
+    expect(ctx.degraded).toBe(true);
+    hooked.searchStall = undefined;
+    expect((await tm.read({ session: 'slow', text: 'What bike do I have?' })).degraded).toBe(false);
   });
 });
