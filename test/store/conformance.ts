@@ -401,7 +401,8 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expect((await searchText(store, { tenant, user: 'u9' }, 'phone number')).hits.map((h) => h.entry.id)).toContain(`T-a-1`);
       expect((await searchText(store, { tenant, session: 'b' }, 'phone number')).hits).toHaveLength(1);
       const va = (await store.load(a))!.version;
-      const before = store.stats ? await store.stats(tenant) : undefined;
+      // Every store of this suite keeps stats (the figures must move with the sweep).
+      const before = await store.stats!(tenant);
 
       const cut = T0 + 30_000;
       const swept = await sweepAll(tenant, cut, cut);
@@ -417,12 +418,10 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       expect((await searchText(store, { tenant, session: 'b' }, 'phone number')).hits).toHaveLength(0);
       expect((await store.listLogbook({ tenant, user: 'u9' })).map((e) => e.id)).toEqual(['T-a-90']);
       expect(await store.listLogbook({ tenant, session: 'b' })).toEqual([]);
-      if (before) {
-        const after = await store.stats!(tenant);
-        expect(after.slots).toBe(before.slots - 2);
-        expect(after.logbookEntries).toBe(before.logbookEntries - 2);
-        expect(after.sessions).toBe(before.sessions);
-      }
+      const after = await store.stats!(tenant);
+      expect(after.slots).toBe(before.slots - 2);
+      expect(after.logbookEntries).toBe(before.logbookEntries - 2);
+      expect(after.sessions).toBe(before.sessions);
       // A plan made before the sweep is refused as a conflict, not applied over it.
       expect((await store.commit(a, commitOf({ expectedVersion: va, ops: [{ index: 0, slot: slot(1, { createdMs: T0 + 1000 }) }] }))).ok).toBe(false);
       await store.erase({ tenant, user: 'u9' });
@@ -438,20 +437,17 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
           logbook: [turnEntry(1, ref, `old turn ${n}`), turnEntry(2, ref, `old turn ${n} again`), turnEntry(200, ref, `new turn ${n}`)],
         }));
       }
-      const before = store.stats ? await store.stats(tenant) : undefined;
+      const before = await store.stats!(tenant);
       const cut = T0 + 50_000;
       const runs = await Promise.all([sweepAll(tenant, cut, cut), sweepAll(tenant, cut, cut), sweepAll(tenant, cut, cut)]);
       expect(runs.reduce((n, r) => n + r.slots, 0)).toBe(4);
       expect(runs.reduce((n, r) => n + r.logbookEntries, 0)).toBe(8);
       expect(await sweepAll(tenant, cut, cut)).toMatchObject({ slots: 0, logbookEntries: 0 });
       for (const ref of refs) expect((await store.load(ref))!.table.count()).toBe(1);
-      if (before) {
-        const after = await store.stats!(tenant);
-        expect(after).toMatchObject({ sessions: before.sessions, slots: before.slots - 4, logbookEntries: before.logbookEntries - 8 });
-      }
+      expect(await store.stats!(tenant)).toMatchObject({ sessions: before.sessions, slots: before.slots - 4, logbookEntries: before.logbookEntries - 8 });
       await store.erase({ tenant, user: 'u8' });
       for (const ref of refs) await store.erase({ tenant, session: ref.session });
-      if (store.stats) expect(await store.stats(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
+      expect(await store.stats!(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
     });
 
     test('logbook.maxEntries holds per user scope (cap 5) while the user\'s sessions commit concurrently', async () => {
@@ -473,9 +469,9 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       // Rounds run one after another, so the 5 kept are all of the last round.
       const kept = await store.listLogbook({ tenant, user: 'ucap' }, { limit: 1000 });
       expect(kept.every((e) => e.value.startsWith('round 3'))).toBe(true);
-      if (store.stats) expect((await store.stats(tenant)).logbookEntries).toBe(5);
+      expect((await store.stats!(tenant)).logbookEntries).toBe(5);
       await store.erase({ tenant, user: 'ucap' });
-      if (store.stats) expect(await store.stats(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
+      expect(await store.stats!(tenant)).toMatchObject({ sessions: 0, slots: 0, logbookEntries: 0 });
     });
   });
 }
