@@ -440,7 +440,7 @@ export class RedisSlotStore implements Store {
         const r = (await runScript(c, USER_ERASE, [userSet, this.keys.userGone(target.tenant, target.user), this.keys.userEntries(target.tenant, target.user)], [ttl])) as unknown[];
         at = Number(str(r[0]));
         sessions = (r[1] as Buffer[]).map(str);
-        this.scopes.delete(scopeKeyOf({ tenant: target.tenant, user: target.user }));
+        this.dropScope(scopeKeyOf({ tenant: target.tenant, user: target.user }));
       } else {
         sessions = [target.session];
       }
@@ -935,11 +935,20 @@ export class RedisSlotStore implements Store {
     sc.sessions.delete(session);
   }
 
+  /** Lets go of a scope's index at once (erasure): its entries are cleared, not left for the collector. */
+  private dropScope(key: string): void {
+    const sc = this.scopes.get(key);
+    if (!sc) return;
+    this.scopes.delete(key);
+    sc.index.clear();
+    sc.sessions.clear();
+  }
+
   private forget(tenant: string, session: string, k: SessionKeys, user: string): void {
     this.cache.delete(k.meta);
-    this.scopes.delete(scopeKeyOf({ tenant, session }));
+    this.dropScope(scopeKeyOf({ tenant, session }));
     if (user) {
-      this.scopes.delete(scopeKeyOf({ tenant, user }));
+      this.dropScope(scopeKeyOf({ tenant, user }));
       this.linked.delete(`${k.meta}\u0000${user}`);
     }
   }

@@ -2,6 +2,7 @@
 // conformance suite in both key formats, payload checks, round trips per call (counted with MONITOR),
 // tenant isolation, TTLs, erasure proven by SCAN, replayed commits, and a SIGKILLed server.
 
+import fc from 'fast-check';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
@@ -34,11 +35,72 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
   storeConformance('redis-nocache', async () => redisSlotStore({ redis: REDIS_URL, prefix: prefixFor('nocache'), cacheSessions: 0 }), { keyTolerance: 1e-2 });
 
   describe('store-kept counters do not drift', () => {
+    const T0 = 1_700_000_000_000;
     const figures = async (store: RedisSlotStore, tenant: string) => {
       const { source, ...f } = await store.stats(tenant);
       expect(source).toBe('counters');
       return f;
     };
+
+    it('property: after any sequence of commits, caps, deletes, sweeps and erases the counters equal what Redis holds (fast-check, seeded)', async () => {
+      const prefix = prefixFor('stats-prop');
+      const store = redisSlotStore({ redis: REDIS_URL, prefix });
+      const seed = Number(process.env.FC_SEED ?? 14014);
+      const sessions = ['p1', 'p2', 'p3'];
+      const op = fc.oneof(
+        fc.record({ kind: fc.constant('commit' as const), s: fc.nat({ max: 2 }), user: fc.boolean(), slots: fc.array(fc.tuple(fc.nat({ max: 5 }), fc.boolean()), { maxLength: 4 }), entries: fc.nat({ max: 3 }), cap: fc.constantFrom(0, 3, 5) }),
+        fc.record({ kind: fc.constant('sweep' as const), slotCut: fc.nat({ max: 40 }), logCut: fc.nat({ max: 40 }) }),
+        fc.record({ kind: fc.constant('erase' as const), s: fc.nat({ max: 2 }) }),
+        fc.constant({ kind: 'eraseUser' as const }),
+        fc.record({ kind: fc.constant('delete' as const), n: fc.nat({ max: 40 }) }),
+      );
+      let run = 0;
+      try {
+        await fc.assert(
+          fc.asyncProperty(fc.array(op, { minLength: 1, maxLength: 12 }), async (ops) => {
+            const tenant = `prop${++run}`;
+            const version = new Map<string, number>();
+            let n = 0;
+            for (const o of ops) {
+              if (o.kind === 'commit') {
+                const ref = { tenant, session: sessions[o.s]!, ...(o.user ? { user: 'pu' } : {}) };
+                const expectedVersion = (await store.load(ref))?.version ?? 0;
+                const slotOps = o.slots.map(([index, set]) => ({ index, slot: set ? slot(++n, { createdMs: T0 + n }) : null }));
+                const logbook = Array.from({ length: o.entries }, () => turnEntry(++n, ref, `turn ${n}`, { atMs: T0 + n }));
+                const r = await store.commit(ref, commitOf({ expectedVersion, ops: slotOps, logbook, retention: { policy: { maxAgeMs: 0, maxEntries: o.cap }, nowMs: T0 + n } }));
+                expect(r.ok).toBe(true);
+                version.set(ref.session, r.ok ? r.version : 0);
+              } else if (o.kind === 'sweep') {
+                await store.sweep({ tenant, slotCutoffMs: o.slotCut ? T0 + o.slotCut : 0, logbookCutoffMs: o.logCut ? T0 + o.logCut : 0 });
+              } else if (o.kind === 'erase') {
+                await store.erase({ tenant, session: sessions[o.s]! });
+              } else if (o.kind === 'eraseUser') {
+                await store.erase({ tenant, user: 'pu' });
+              } else {
+                await store.deleteLogbook({ tenant, user: 'pu' }, [`T-p1-${o.n}`, `T-p2-${o.n}`, `T-p3-${o.n}`]);
+                await store.deleteLogbook({ tenant, session: 'p1' }, [`T-p1-${o.n}`]);
+              }
+            }
+            // The truth, counted from the keys themselves.
+            const truth = { sessions: 0, slots: 0, logbookEntries: 0 };
+            for (const s of sessions) {
+              const k = store.sessionKeys(tenant, s);
+              if ((await admin.exists(k.meta)) === 0) continue;
+              truth.sessions++;
+              truth.slots += await admin.hlen(k.slots);
+              truth.logbookEntries += (await admin.hlen(k.arch)) + (await admin.hlen(k.uarch));
+            }
+            expect(await figures(store, tenant)).toEqual(truth);
+            await store.erase({ tenant, user: 'pu' });
+            for (const s of sessions) await store.erase({ tenant, session: s });
+            expect(await figures(store, tenant)).toEqual({ sessions: 0, slots: 0, logbookEntries: 0 });
+          }),
+          { seed, numRuns: 25 },
+        );
+      } finally {
+        await store.close();
+      }
+    });
 
     it('a session that expires by idleTtlSeconds leaves the counters at the next sweep', async () => {
       const prefix = prefixFor('ttl-stats');
