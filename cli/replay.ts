@@ -51,6 +51,8 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
   if ((configK ?? 0) < k) config.read = { ...config.read, k };
   const embedder: Embedder = config.embedder ?? new HashingEmbedder({ dim: 384 });
   config.embedder = embedder;
+  // A replay ages turns by their own times, at each commit; the retention sweep's wall clock would not.
+  config.retention = { ...config.retention, sweepMs: 0 };
   const tm = createTidemark(config);
   const issues: FormatIssue[] = [...(opts.issues ?? [])];
   const roles: Role[] = config.logbook?.roles ?? TIDEMARK_DEFAULTS.logbook.roles;
