@@ -293,6 +293,8 @@ export class RedisSlotStore implements Store {
   async commit(ref: SessionRef, req: CommitRequest): Promise<CommitResult> {
     const k = this.keys.session(ref.tenant, ref.session);
     const { args, keys } = this.commitArgs(ref, req);
+    const maxEntries = req.retention?.policy.maxEntries ?? 0;
+    let capping: Promise<string[]> | undefined;
     let reply: unknown;
     try {
       const c = await this.conn('commit');
@@ -312,7 +314,11 @@ export class RedisSlotStore implements Store {
           this.linked.add(lk);
         }
       }
-      reply = await this.counted(c, ref.tenant, COMMIT, k.script, args);
+      const sent = this.counted(c, ref.tenant, COMMIT, k.script, args);
+      // The user's cap goes out in the same tick, so it rides the commit's round trip (pipelined on
+      // one connection, in parallel on a Cluster); its index entries are taken back if the commit is refused.
+      if (ref.user && maxEntries > 0 && req.logbook.length > 0) capping = this.capUser(c, ref, req, maxEntries);
+      reply = await sent;
     } catch (err) {
       throw unavailable('commit', err);
     }
@@ -320,6 +326,7 @@ export class RedisSlotStore implements Store {
     const status = Number(r[0]);
     const version = Number(r[1]);
     const epoch = str(r[2]);
+    if (capping && (status === 0 || status === 3)) await this.uncapUser(ref, req, capping);
     if (status === 0) return { ok: false, conflict: true, version };
     if (status === 3) {
       this.cache.delete(k.meta);
@@ -332,26 +339,44 @@ export class RedisSlotStore implements Store {
     }
     this.applyToCache(k.meta, req, epoch, version, keys);
     const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
-    const maxEntries = req.retention?.policy.maxEntries ?? 0;
-    if (ref.user && maxEntries > 0 && req.logbook.length > 0) dropped.count += await this.capUser(ref, req, maxEntries);
+    if (capping) dropped.count += await this.trimUser(ref.tenant, await capping);
     return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
   }
 
   /**
-   * `logbook.maxEntries` over the user's whole scope (USER_CAP, then TRIM per session named). Runs after
-   * the commit, on other hash tags: the scope may exceed the cap by the entries of commits in flight at
-   * that moment (one commit's per process), never more. The commit has landed whatever happens here:
-   * a failure is left for the next commit of the user to make good (the cap is then applied again).
+   * `logbook.maxEntries` over the user's whole scope: USER_CAP indexes the commit's entries on the
+   * user's hash tag and names the oldest past the cap; TRIM deletes them from their sessions. It runs
+   * beside the commit, on other hash tags, so the scope may exceed the cap by the entries of commits
+   * in flight at that moment (one commit's per writing process), never more. A failure here leaves the
+   * commit as it is; the next commit of the user applies the cap again. Resolves to the entries named.
    */
-  private async capUser(ref: SessionRef, req: CommitRequest, maxEntries: number): Promise<number> {
+  private capUser(c: RedisClient, ref: SessionRef, req: CommitRequest, maxEntries: number): Promise<string[]> {
     const user = ref.user!;
+    const f = req.fence;
+    const pairs: (string | number)[] = [];
+    for (const e of req.logbook) pairs.push(Math.floor(e.atMs), `${ref.session} ${e.id}`);
+    return runScript(c, USER_CAP, [this.keys.userEntries(ref.tenant, user), this.keys.userGone(ref.tenant, user)], [maxEntries, f?.seen ? f.seen.user : '', f ? Math.floor(f.acceptedMs) : '', ...pairs]).then(
+      (over) => (over as Buffer[]).map(str),
+      () => [],
+    );
+  }
+
+  /** A refused commit's entries leave the user's index again (they were never stored). */
+  private async uncapUser(ref: SessionRef, req: CommitRequest, capping: Promise<string[]>): Promise<void> {
+    await capping;
     try {
       const c = await this.conn('commit');
-      const f = req.fence;
-      const pairs: (string | number)[] = [];
-      for (const e of req.logbook) pairs.push(Math.floor(e.atMs), `${ref.session} ${e.id}`);
-      const over = ((await runScript(c, USER_CAP, [this.keys.userEntries(ref.tenant, user), this.keys.userGone(ref.tenant, user)], [maxEntries, f?.seen ? f.seen.user : '', f ? Math.floor(f.acceptedMs) : '', ...pairs])) as Buffer[]).map(str);
-      if (over.length === 0) return 0;
+      await c.zrem(this.keys.userEntries(ref.tenant, ref.user!), ...req.logbook.map((e) => `${ref.session} ${e.id}`));
+    } catch {
+      // Left as it is: an entry the index names but no session holds is deleted as a no-op when it is the oldest.
+    }
+  }
+
+  /** Deletes the entries USER_CAP named (TRIM per session); resolves to how many went. */
+  private async trimUser(tenant: string, over: string[]): Promise<number> {
+    if (over.length === 0) return 0;
+    try {
+      const c = await this.conn('commit');
       const bySession = new Map<string, string[]>();
       for (const m of over) {
         const at = m.indexOf(' ');
@@ -359,12 +384,13 @@ export class RedisSlotStore implements Store {
         if (!bySession.has(s)) bySession.set(s, []);
         bySession.get(s)!.push(m.slice(at + 1));
       }
-      let n = 0;
-      for (const [s, ids] of bySession) {
-        const k = this.keys.session(ref.tenant, s);
-        n += Number(await this.counted(c, ref.tenant, TRIM, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [token(), ...ids]));
-      }
-      return n;
+      const counts = await Promise.all(
+        [...bySession].map(([s, ids]) => {
+          const k = this.keys.session(tenant, s);
+          return this.counted(c, tenant, TRIM, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [token(), ...ids]);
+        }),
+      );
+      return counts.reduce<number>((n, x) => n + Number(x), 0);
     } catch {
       return 0;
     }
