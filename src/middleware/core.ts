@@ -226,7 +226,11 @@ export class Core {
   /** The remembered logbook values of a session with these ids. */
   recalledEntries(ref: SessionRef, ids: readonly string[]): LogbookEntry[] {
     const m = this.recalled.get(keyOf(ref));
-    return ids.map((id) => m?.get(id)).filter((x): x is LogbookEntry => x !== undefined);
+    // With the retention sweep on (wall clock), a value past logbook.maxAgeMs is deleted or about to
+    // be, by some process: it is not promoted back into a slot from this process's memory.
+    const age = this.o.retention.sweepMs > 0 ? this.o.logbook.maxAgeMs : 0;
+    const cutoff = age > 0 ? Date.now() - age : -Infinity;
+    return ids.map((id) => m?.get(id)).filter((x): x is LogbookEntry => x !== undefined && x.atMs >= cutoff);
   }
 
   /** Remembers the texts a write just committed, as the next write's context. */

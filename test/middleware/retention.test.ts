@@ -89,6 +89,32 @@ describe('retention sweep', () => {
     await tm.close();
   });
 
+  it('a value recalled before a sweep deleted it is not promoted back into a slot from another instance\'s memory', async () => {
+    const store = new InProcessStore();
+    const opts = { store, capacity: 2, logbook: { roles: [] as [], maxAgeMs: 7 * day }, retention: { sweepMs: 3_600_000 } };
+    const a = createTidemark(opts);
+    const b = createTidemark(opts);
+    const t0 = Date.now() - 10 * day;
+    const facts = ['My bike is a green Harlow Tourer with a dynamo hub.', 'My favourite fern is the maidenhair fern on the balcony.', 'My Spanish teacher is called Lucia Moreno.'];
+    for (const [i, text] of facts.entries()) await a.write({ session: 's1', text, at: t0 + i * 1000 });
+    const evicted = (await a.inspect('s1')).logbook.find((e) => e.kind === 'capacity')!;
+    expect(evicted).toBeDefined();
+    // B recalls the evicted value (nothing has swept it yet) ...
+    const ctx = await b.read({ session: 's1', text: `What is ${evicted.keyText}?` });
+    expect(ctx.items.map((i) => i.id)).toContain(evicted.id);
+    const used = b.promotedBy(ctx, `It is ${evicted.value}.`);
+    expect(used).toEqual([evicted.id]);
+    // ... A's sweep deletes it (only the logbook limit is set: the slots stay) ...
+    expect((await a.sweep()).logbookEntries).toBe(1);
+    // ... and B's write does not bring it back from its memory.
+    await b.write({ session: 's1', text: 'Thanks!' }, { promote: used });
+    const view = await a.inspect('s1');
+    expect(view.slots.map((x) => x.id)).not.toContain(evicted.id);
+    expect(JSON.stringify(view)).not.toContain(evicted.value);
+    await a.close();
+    await b.close();
+  });
+
   it('rejects a bad retention.sweepMs with a ConfigError', () => {
     expect(() => createTidemark({ retention: { sweepMs: -1 } })).toThrow(/retention\.sweepMs/);
   });
