@@ -4,6 +4,7 @@
 
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { redisSlotStore } from '../../adapters/redis/index.js';
+import { prometheusMetrics } from '../../src/metrics/prometheus.js';
 import { InProcessStore, createTidemark, type Store, type SweepEvent } from '../../src/index.js';
 import { REDIS_URL, deletePrefix, newClient, probeRedis, uniquePrefix } from '../adapters/redis/helpers.js';
 
@@ -113,6 +114,17 @@ describe('retention sweep', () => {
     expect(JSON.stringify(view)).not.toContain(evicted.value);
     await a.close();
     await b.close();
+  });
+
+  it('swept slots count in tidemark_evictions_total{reason="expired"}', async () => {
+    const tm = createTidemark({ write: { maxAgeMs: 7 * day }, retention: { sweepMs: 0 } });
+    const metrics = await prometheusMetrics(tm);
+    await tm.write({ session: 's', text: PHONE, at: Date.now() - 10 * day });
+    expect(await metrics.metrics()).toContain('tidemark_evictions_total{reason="expired"} 0');
+    await tm.sweep();
+    expect(await metrics.metrics()).toContain('tidemark_evictions_total{reason="expired"} 1');
+    metrics.stop();
+    await tm.close();
   });
 
   it('rejects a bad retention.sweepMs with a ConfigError', () => {
