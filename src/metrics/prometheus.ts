@@ -99,6 +99,8 @@ const ERROR_STAGES = ['read', 'write', 'handler', 'outbox', 'store'] as const;
 /** Every value of an `outbox` event's `change`, zero-initialised so `increase()` sees the first one. */
 const OUTBOX_CHANGE_LABELS = ['queued', 'drained', 'overflow', 'retry', 'erased', 'expired', 'failed', 'abandoned'] as const;
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
+/** Why a value went from a slot to the logbook. */
+const DEMOTE_REASONS: readonly string[] = ['superseded', 'capacity', 'decayed', 'expired'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
 
 /** Label values come only from closed sets, so the number of series never depends on traffic. */
@@ -161,7 +163,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: ['outcome'], registers });
   const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: ['decision'], registers });
   const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: ['reason'], registers });
-  const archived = new client.Counter({ name: `${p}archived_items_total`, help: 'Values that left working memory for the logbook, by reason.', labelNames: ['reason'], registers });
+  const demoted = new client.Counter({ name: `${p}logbook_demoted_total`, help: 'Values that left working memory for the logbook (demoted), by reason: superseded by a newer value, or evicted for capacity, decay or age.', labelNames: ['reason'], registers });
   const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read (store load and logbook search), embedding included.', buckets, registers });
   const commitDuration = new client.Histogram({ name: `${p}commit_duration_seconds`, help: 'Time of one commit of a turn\'s memory write: extract, gate, plan and the store\'s commit, conflict retries included.', buckets, registers });
   const turnDuration = new client.Histogram({ name: `${p}turn_duration_seconds`, help: 'Time of one chat turn over HTTP, request in to last byte of the reply out (the bot\'s own time included).', buckets: [...TURN_BUCKETS_SECONDS], registers });
@@ -204,7 +206,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   const version = packageVersion();
   const buildInfo = new client.Gauge({ name: `${p}build_info`, help: 'Always 1; labels: the tidemark version and the store kind.', labelNames: ['version', 'store'], registers });
   buildInfo.set({ version, store: store?.name ?? 'unknown' }, 1);
-  const all: Array<{ name: string }> = [reads, writes, candidates, evictions, archived, readDuration, commitDuration, turnDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeClock, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, outbox, buildInfo] as unknown as Array<{ name: string }>;
+  const all: Array<{ name: string }> = [reads, writes, candidates, evictions, demoted, readDuration, commitDuration, turnDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeClock, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, outbox, buildInfo] as unknown as Array<{ name: string }>;
 
   if (health) {
     all.push(new client.Gauge({
@@ -268,7 +270,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   for (const w of WRITE_OUTCOMES) writes.inc({ outcome: w }, 0);
   for (const d of ['passed', 'gated_out']) candidates.inc({ decision: d }, 0);
   for (const r of EVICT_REASONS) evictions.inc({ reason: r }, 0);
-  for (const r of ['superseded', 'capacity', 'decayed', 'expired']) archived.inc({ reason: r }, 0);
+  for (const r of DEMOTE_REASONS) demoted.inc({ reason: r }, 0);
   for (const s of ['read', 'write']) degraded.inc({ stage: s }, 0);
   for (const c of OUTBOX_CHANGE_LABELS) outboxChanges.inc({ change: c }, 0);
   for (const stage of ERROR_STAGES) for (const code of [...KNOWN_CODES, 'other']) errors.inc({ stage, code }, 0);
@@ -300,7 +302,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       lifetimeSeconds.observe(e.lifetimeMs / 1000);
     },
     archive(e) {
-      if (['superseded', 'capacity', 'decayed', 'expired'].includes(e.reason)) archived.inc({ reason: e.reason });
+      if (DEMOTE_REASONS.includes(e.reason)) demoted.inc({ reason: e.reason });
     },
     commit(e) {
       commitDuration.observe(e.durationUs / 1e6);
