@@ -10,13 +10,33 @@ import type { EvictReason, ReadResult, WriteOutcome } from '../types.js';
 import type { StoreHealth } from './health.js';
 import { subscribe, type TidemarkEventSource } from './source.js';
 
+/**
+ * The part of a prom-client `Registry` tidemark uses. Structural, so these declarations type-check in
+ * an app without prom-client installed; a prom-client `Registry` is one (cast back to prom-client's
+ * `Registry` to merge registries or use the rest of its API).
+ */
+export interface MetricsRegistry {
+  readonly contentType: string;
+  metrics(): Promise<string>;
+  getMetricsAsArray(): ReadonlyArray<{ readonly name: string }>;
+  removeSingleMetric(name: string): void;
+}
+
+/** The prom-client module as far as these declarations need to name it (structural, see `MetricsRegistry`). */
+export interface PromClientModule {
+  readonly Registry: unknown;
+  readonly Counter: unknown;
+  readonly Gauge: unknown;
+  readonly Histogram: unknown;
+}
+
 export interface PrometheusMetricsOptions {
-  /** Registry to register on. @default a new `Registry` of the prom-client module in use */
-  registry?: PromClient.Registry;
+  /** Registry to register on (a prom-client `Registry`). @default a new `Registry` of the prom-client module in use */
+  registry?: MetricsRegistry;
   /** Prefix of every metric name; letters, digits and `_`, ending in `_`. @default 'tidemark_' */
   prefix?: string;
   /** The prom-client module, for callers that bundle their own copy. @default `await import('prom-client')` */
-  client?: typeof PromClient;
+  client?: PromClientModule;
   /** A session counts as active for this long after its last event; the dashboard's window. @default 900000 (15 min) */
   activeWindowMs?: number;
   /** Sessions remembered for the active-sessions gauge; past this the least recent are forgotten. @default 100000 */
@@ -27,6 +47,13 @@ export interface PrometheusMetricsOptions {
   health?: StoreHealth;
   /** Export the store's truth figures (sessions, slots, logbook entries) read from `store.stats()` at each scrape. @default true */
   storeFigures?: boolean;
+  /**
+   * Tenant ids that get their own value of a `tenant` label on the event counters (reads, writes,
+   * candidates, evictions, logbook demotions, degraded turns); every other tenant counts under `other`.
+   * The list bounds the series however many tenants there are. Needs an instance with `hashTenant`.
+   * @default none (no tenant label)
+   */
+  tenantLabels?: readonly string[];
   /** Also register prom-client's default process metrics (CPU, memory, event-loop lag; `process_*`, `nodejs_*`). @default false */
   processMetrics?: boolean;
 }
@@ -65,7 +92,12 @@ export type MetricsSource = TidemarkEventSource & {
   readonly store?: Store;
   readonly tenant?: string;
   readonly params?: { readonly decayUnit?: 'turns' | 'seconds' };
+  /** Keyed hash of a tenant id as events carry it; needed for `tenantLabels`. */
+  hashTenant?(tenant: string): string;
 };
+
+/** At most this many tenants get their own label value (common practice: keep a label's values in the tens). */
+export const MAX_TENANT_LABELS = 50;
 
 /** The package version, for `tidemark_build_info` (package.json two levels up from src/ or dist/src/). */
 function packageVersion(): string {
@@ -81,7 +113,8 @@ function packageVersion(): string {
 }
 
 export interface PrometheusMetrics {
-  readonly registry: PromClient.Registry;
+  /** The prom-client `Registry` the metrics are on. */
+  readonly registry: MetricsRegistry;
   /** The `Content-Type` of `metrics()` output. */
   readonly contentType: string;
   /** The exposition text of the whole registry. */
@@ -108,6 +141,23 @@ function codeLabel(code: unknown): string {
   return typeof code === 'string' && KNOWN_CODES.has(code) ? code : 'other';
 }
 
+/**
+ * The `tenant` label value of an event: the allow-listed id whose hash it carries, else `other`; null
+ * when no allow-list is set (no tenant label at all).
+ */
+function tenantLabeller(tm: MetricsSource, allow: readonly string[] | undefined): { labels: readonly string[]; of(hash: string): string } | null {
+  if (allow === undefined) return null;
+  const bad = (why: string): never => {
+    throw new ConfigError(`metrics: tenantLabels ${why}`, { details: { option: 'tenantLabels', value: allow } });
+  };
+  if (!Array.isArray(allow)) bad('must be an array of tenant ids');
+  if (allow.length > MAX_TENANT_LABELS) bad(`lists ${allow.length} tenants; at most ${MAX_TENANT_LABELS} get their own label value (the rest count as "other")`);
+  for (const t of allow) if (typeof t !== 'string' || t === '' || t === 'other' || t.length > 64) bad(`holds ${JSON.stringify(t)}; each must be a non-empty id of at most 64 characters, not "other"`);
+  if (typeof tm.hashTenant !== 'function') bad('needs an instance with hashTenant() (a tidemark instance has it): events carry hashed tenant ids');
+  const byHash = new Map(allow.map((t) => [tm.hashTenant!(t), t]));
+  return { labels: [...new Set(allow), 'other'], of: (hash) => byHash.get(hash) ?? 'other' };
+}
+
 export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMetricsOptions = {}): Promise<PrometheusMetrics> {
   const o = { ...PROMETHEUS_METRICS_DEFAULTS, ...options };
   if (typeof o.prefix !== 'string' || !/^[a-zA-Z_][a-zA-Z0-9_]*_$/.test(o.prefix)) {
@@ -126,7 +176,8 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       details: { option: 'durationBuckets', value: buckets },
     });
   }
-  let client = options.client;
+  const tenantOf = tenantLabeller(tm, options.tenantLabels);
+  let client = options.client as typeof PromClient | undefined;
   if (!client) {
     try {
       const mod = (await import('prom-client')) as typeof PromClient & { default?: typeof PromClient };
@@ -138,7 +189,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       });
     }
   }
-  const registry = options.registry ?? new client.Registry();
+  const registry = (options.registry as PromClient.Registry | undefined) ?? new client.Registry();
   const p = o.prefix;
   const registers = [registry];
   const store = tm.store;
@@ -159,11 +210,16 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   let outboxDepth = 0;
   const lifetimeUnit = tm.params?.decayUnit ?? 'turns';
 
-  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: ['result'], registers });
-  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: ['outcome'], registers });
-  const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: ['decision'], registers });
-  const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: ['reason'], registers });
-  const demoted = new client.Counter({ name: `${p}logbook_demoted_total`, help: 'Values that left working memory for the logbook (demoted), by reason: superseded by a newer value, or evicted for capacity, decay or age.', labelNames: ['reason'], registers });
+  // With tenantLabels, the event counters carry a bounded `tenant` label too.
+  const tl = (names: string[]): string[] => (tenantOf ? [...names, 'tenant'] : names);
+  const tenantValues: ReadonlyArray<string | null> = tenantOf ? tenantOf.labels : [null];
+  const withTenant = <L extends Record<string, string>>(labels: L, tenant: string | null): L => (tenant === null ? labels : { ...labels, tenant });
+  const at = <L extends Record<string, string>>(labels: L, e: { tenant: string }): L => withTenant(labels, tenantOf ? tenantOf.of(e.tenant) : null);
+  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: tl(['result']), registers });
+  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: tl(['outcome']), registers });
+  const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: tl(['decision']), registers });
+  const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: tl(['reason']), registers });
+  const demoted = new client.Counter({ name: `${p}logbook_demoted_total`, help: 'Values that left working memory for the logbook (demoted), by reason: superseded by a newer value, or evicted for capacity, decay or age.', labelNames: tl(['reason']), registers });
   const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read (store load and logbook search), embedding included.', buckets, registers });
   const commitDuration = new client.Histogram({ name: `${p}commit_duration_seconds`, help: 'Time of one commit of a turn\'s memory write: extract, gate, plan and the store\'s commit, conflict retries included.', buckets, registers });
   const turnDuration = new client.Histogram({ name: `${p}turn_duration_seconds`, help: 'Time of one chat turn over HTTP, request in to last byte of the reply out (the bot\'s own time included).', buckets: [...TURN_BUCKETS_SECONDS], registers });
@@ -266,11 +322,13 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   }
 
   // Zero-initialise every labelled series so dashboards and increase() see them from the first scrape.
-  for (const r of [...READ_RESULTS, 'degraded']) reads.inc({ result: r }, 0);
-  for (const w of WRITE_OUTCOMES) writes.inc({ outcome: w }, 0);
-  for (const d of ['passed', 'gated_out']) candidates.inc({ decision: d }, 0);
-  for (const r of EVICT_REASONS) evictions.inc({ reason: r }, 0);
-  for (const r of DEMOTE_REASONS) demoted.inc({ reason: r }, 0);
+  for (const t of tenantValues) {
+    for (const r of [...READ_RESULTS, 'degraded']) reads.inc(withTenant({ result: r }, t), 0);
+    for (const w of WRITE_OUTCOMES) writes.inc(withTenant({ outcome: w }, t), 0);
+    for (const d of ['passed', 'gated_out']) candidates.inc(withTenant({ decision: d }, t), 0);
+    for (const r of EVICT_REASONS) evictions.inc(withTenant({ reason: r }, t), 0);
+    for (const r of DEMOTE_REASONS) demoted.inc(withTenant({ reason: r }, t), 0);
+  }
   for (const s of ['read', 'write']) degraded.inc({ stage: s }, 0);
   for (const c of OUTBOX_CHANGE_LABELS) outboxChanges.inc({ change: c }, 0);
   for (const stage of ERROR_STAGES) for (const code of [...KNOWN_CODES, 'other']) errors.inc({ stage, code }, 0);
@@ -278,7 +336,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
 
   const unsubscribe = subscribe(tm, {
     read(e) {
-      reads.inc({ result: READ_RESULTS.includes(e.result) ? e.result : 'miss' });
+      reads.inc(at({ result: READ_RESULTS.includes(e.result) ? e.result : 'miss' }, e));
       readDuration.observe(e.durationUs / 1e6);
       embedDuration.observe({ stage: 'read' }, e.embedUs / 1e6);
       if (e.capacity > 0) occupancy.observe(e.slotsInUse / e.capacity);
@@ -289,20 +347,20 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       touch(e.sessionHash, e.atMs);
     },
     write(e) {
-      if (WRITE_OUTCOMES.includes(e.outcome)) writes.inc({ outcome: e.outcome });
+      if (WRITE_OUTCOMES.includes(e.outcome)) writes.inc(at({ outcome: e.outcome }, e));
       touch(e.sessionHash, e.atMs);
     },
     gate(e) {
       gateScore.observe(e.score);
-      candidates.inc({ decision: e.passed ? 'passed' : 'gated_out' });
+      candidates.inc(at({ decision: e.passed ? 'passed' : 'gated_out' }, e));
     },
     evict(e) {
-      if (EVICT_REASONS.includes(e.reason)) evictions.inc({ reason: e.reason });
+      if (EVICT_REASONS.includes(e.reason)) evictions.inc(at({ reason: e.reason }, e));
       lifetimeClock.observe(e.lifetime);
       lifetimeSeconds.observe(e.lifetimeMs / 1000);
     },
     archive(e) {
-      if (DEMOTE_REASONS.includes(e.reason)) demoted.inc({ reason: e.reason });
+      if (DEMOTE_REASONS.includes(e.reason)) demoted.inc(at({ reason: e.reason }, e));
     },
     commit(e) {
       commitDuration.observe(e.durationUs / 1e6);
@@ -315,7 +373,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       // A degraded read is a read: counted once under reads_total{result="degraded"} and here. A degraded
       // write is counted from the outbox's `queued` (below), so the two figures cannot drift apart.
       if (e.stage === 'read') {
-        reads.inc({ result: 'degraded' });
+        reads.inc(at({ result: 'degraded' }, e));
         degraded.inc({ stage: 'read' });
         touch(e.sessionHash, e.atMs);
       }

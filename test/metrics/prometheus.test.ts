@@ -145,6 +145,38 @@ describe('prometheusMetrics on the real middleware', () => {
     await tm.close();
   });
 
+  (existsSync(PROMTOOL) || inCI ? it : it.skip)('labels allow-listed tenants by name and every other tenant as "other" (bounded, promtool clean)', async () => {
+    const tm = createTidemark({ capacity: 4 });
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), tenantLabels: ['nursery', 'workshop'] });
+    // 3 reads for the nursery, 2 for the workshop, 1 each for 4 tenants off the list.
+    for (let i = 0; i < 3; i++) await tm.read({ tenant: 'nursery', session: `n${i}`, text: 'When is the fern delivery?' });
+    for (let i = 0; i < 2; i++) await tm.read({ tenant: 'workshop', session: `w${i}`, text: 'Is my bike ready?' });
+    for (const t of ['tutor', 'bakery', 'choir', 'library']) await tm.read({ tenant: t, session: 's', text: 'Hello?' });
+    await tm.write({ tenant: 'nursery', session: 'n0', text: 'My name is Ilse.', role: 'user' });
+    const text = await m.metrics();
+    const parsed = parsePrometheusTextFormat(text);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'nursery' })).toBe(3);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'workshop' })).toBe(2);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'other' })).toBe(4);
+    expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated', tenant: 'nursery' })).toBe(1);
+    expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated', tenant: 'other' })).toBe(0);
+    // Only the listed ids and "other" appear, never a hash or an unlisted id.
+    const tenants = new Set(family(parsed, 'tidemark_reads_total').metrics.map((x) => x.labels?.tenant));
+    expect([...tenants].sort()).toEqual(['nursery', 'other', 'workshop']);
+    expect(text).not.toMatch(/tutor|bakery|choir|library/);
+    expect(execFileSync(PROMTOOL, ['check', 'metrics'], { input: text, encoding: 'utf8' }).trim()).toBe('');
+    m.stop();
+    await tm.close();
+  });
+
+  it('refuses a tenant list that would not bound the label', async () => {
+    const tm = createTidemark();
+    await expect(prometheusMetrics(tm, { tenantLabels: ['other'] })).rejects.toThrow(/tenantLabels holds "other"/);
+    await expect(prometheusMetrics(tm, { tenantLabels: Array.from({ length: 51 }, (_, i) => `t${i}`) })).rejects.toThrow(/at most 50/);
+    await expect(prometheusMetrics(new EventEmitter<TidemarkEvents>(), { tenantLabels: ['nursery'] })).rejects.toThrow(/hashTenant/);
+    await tm.close();
+  });
+
   it('rejects a bad prefix naming the option and value', async () => {
     await expect(prometheusMetrics(new EventEmitter<TidemarkEvents>(), { prefix: 'bad-prefix' })).rejects.toThrow(/prefix must match .* got "bad-prefix"/);
   });
