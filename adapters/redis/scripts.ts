@@ -39,7 +39,8 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
  *       15 #events, 16 fence: the session's erase time the writer saw ('' = none), 17 fence: the
  *       writer's clock when it accepted the turn ('' = unfenced), 18 fence ttl seconds (how long
- *       ids and tombstones live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
+ *       ids and tombstones live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json,
+ *       then [stats] counter increments as (field, delta) pairs to the end.
  * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
  * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
  * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
@@ -154,6 +155,11 @@ if KEYS[10] then
   if not m[1] then redis.call('HINCRBY', KEYS[10], 'sessions', 1) end
   redis.call('HINCRBY', KEYS[10], 'slots', redis.call('HLEN', KEYS[2]) - statS0)
   redis.call('HINCRBY', KEYS[10], 'logbook', redis.call('HLEN', h) - statL0)
+  -- The commit's own counter increments (field, delta pairs after the events): slot survival counts.
+  while ARGV[a] do
+    redis.call('HINCRBY', KEYS[10], ARGV[a], ARGV[a + 1])
+    a = a + 2
+  end
 end
 return {1, v + 1, ep, dropAge, dropCount}
 `);

@@ -480,8 +480,10 @@ export class RedisSlotStore implements Store {
     try {
       const c = await this.conn('stats');
       if (!isCluster(c)) {
-        const [sessions, slots, logbook] = await c.hmget(this.statsKey(tenant), 'sessions', 'slots', 'logbook');
-        return { sessions: Number(sessions ?? 0), slots: Number(slots ?? 0), logbookEntries: Number(logbook ?? 0), source: 'counters' };
+        const all = await c.hgetall(this.statsKey(tenant));
+        const counters: Record<string, number> = {};
+        for (const [field, n] of Object.entries(all)) if (field.startsWith('survival.')) counters[field] = Number(n);
+        return { sessions: Number(all.sessions ?? 0), slots: Number(all.slots ?? 0), logbookEntries: Number(all.logbook ?? 0), source: 'counters', counters };
       }
       const out: StoreStats = { sessions: 0, slots: 0, logbookEntries: 0, source: 'scan' };
       for (const node of c.nodes('master')) {
@@ -630,6 +632,8 @@ export class RedisSlotStore implements Store {
     const home = { tenant: ref.tenant, session: ref.session };
     for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf, { ...home, id: e.id }));
     for (const ev of req.events) args.push(JSON.stringify(ev));
+    // [stats] Counter increments (field, delta) close the list; the script adds them on a single Redis.
+    for (const [field, n] of Object.entries(req.counters ?? {})) if (Number.isInteger(n) && n !== 0) args.push(field, n);
     return { args, keys };
   }
 

@@ -9,6 +9,7 @@ import type { Store } from '../store/store.js';
 import type { EvictReason, ReadResult, WriteOutcome } from '../types.js';
 import type { StoreHealth } from './health.js';
 import { subscribe, type TidemarkEventSource } from './source.js';
+import { SURVIVAL_BOUNDS, SURVIVAL_FIELD, type SurvivalUnit } from './survival.js';
 
 /**
  * The part of a prom-client `Registry` tidemark uses. Structural, so these declarations type-check in
@@ -288,7 +289,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     // One stats() call per scrape serves all three gauges; the figure is the store's, the same from
     // every process: aggregate with max(), never sum.
     let pending: Promise<void> | null = null;
-    let figures: { sessions: number; slots: number; logbookEntries: number } | null = null;
+    let figures: { sessions: number; slots: number; logbookEntries: number; counters?: Record<string, number> } | null = null;
     const refresh = (): Promise<void> =>
       (pending ??= store.stats!(tm.tenant ?? 'default').then(
         (f) => void (figures = f),
@@ -308,6 +309,27 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     all.push(figure('store_sessions', 'Sessions of this tenant holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
     all.push(figure('store_slots', 'Slots in use over every session in the store (the store\'s own count; aggregate with max()).', (f) => f.slots));
     all.push(figure('store_logbook_entries', 'Long-term (logbook) entries over every scope in the store (the store\'s own count; aggregate with max()).', (f) => f.logbookEntries));
+    // Slot survival counts the commits keep in the store (src/metrics/survival.ts): per lifetime
+    // interval, slots that reached its lower bound and slots whose lifetime ended inside it. Live and
+    // erased slots are in the first only (right-censored), so a Kaplan–Meier estimate over the fleet
+    // is a PromQL product (see the tidemark:slot_survival:* rules). Absent where the store keeps no
+    // counters (Redis Cluster).
+    const unit: SurvivalUnit = lifetimeUnit === 'seconds' ? 'seconds' : 'turns';
+    const survivalCounter = (name: string, help: string, prefix: string) =>
+      new client.Counter({
+        name: `${p}${name}`,
+        help,
+        labelNames: ['age', 'unit'],
+        registers,
+        async collect() {
+          await refresh();
+          this.reset();
+          if (!figures?.counters) return;
+          for (const b of SURVIVAL_BOUNDS[unit]) this.inc({ age: String(b), unit }, figures.counters[`${prefix}${b}`] ?? 0);
+        },
+      }) as unknown as { name: string };
+    all.push(survivalCounter('store_slot_age_reached_total', `Slots that lived to at least \`age\` (in \`unit\` of their session clock): at risk in the lifetime interval starting there. The store's own count: aggregate with max().`, SURVIVAL_FIELD.reached));
+    all.push(survivalCounter('store_slot_lifetime_ended_total', `Slots whose lifetime ended (evicted for capacity, decay or age; an erase is censored, not an end) in the interval starting at \`age\`. The store's own count: aggregate with max().`, SURVIVAL_FIELD.ended));
   }
   if (o.processMetrics) {
     const before = new Set(registry.getMetricsAsArray().map((m) => m.name));

@@ -94,6 +94,8 @@ export class InProcessStore implements Store {
   readonly evicted = { cap: 0, idle: 0 };
   /** Published dashboard buckets by instance (one process: usually one entry). */
   private readonly fleet = new Map<string, FleetRecord & { expiresMs: number }>();
+  /** Store-wide counters per tenant, from commits' `counters` (process lifetime; not in the snapshot file). */
+  private readonly counters = new Map<string, Record<string, number>>();
 
   constructor(options: InProcessStoreOptions = {}) {
     this.o = { ...IN_PROCESS_STORE_DEFAULTS, ...options };
@@ -184,6 +186,11 @@ export class InProcessStore implements Store {
     if (req.commitId) {
       (e.commitIds ??= []).push(req.commitId);
       if (e.commitIds.length > 16) e.commitIds.shift();
+    }
+    if (req.counters) {
+      let c = this.counters.get(ref.tenant);
+      if (!c) this.counters.set(ref.tenant, (c = {}));
+      for (const [field, n] of Object.entries(req.counters)) if (Number.isFinite(n)) c[field] = (c[field] ?? 0) + n;
     }
     this.dirty = true;
     return dropped && (dropped.age > 0 || dropped.count > 0) ? { ok: true, version: e.version, dropped } : { ok: true, version: e.version };
@@ -327,7 +334,7 @@ export class InProcessStore implements Store {
     }
     let logbookEntries = 0;
     for (const [key, index] of this.logbooks) if (key.startsWith(`s\u0000${tenant}\u0000`) || key.startsWith(`u\u0000${tenant}\u0000`)) logbookEntries += index.size;
-    return { sessions, slots, logbookEntries, source: 'counters' };
+    return { sessions, slots, logbookEntries, source: 'counters', counters: { ...this.counters.get(tenant) } };
   }
 
   async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
