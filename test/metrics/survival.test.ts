@@ -76,7 +76,7 @@ async function check(store: Store): Promise<void> {
   expect(evictions.filter((e) => e.reason === 'capacity').length).toBeGreaterThan(5);
   expect(evictions.filter((e) => e.reason === 'erased').length).toBeGreaterThan(0);
   const obs = await observations(store, sessions, evictions);
-  const stats = await store.stats('default');
+  const stats = await store.stats!('default');
   const table = lifeTable('turns', stats.counters ?? {});
   const km = kmAtBounds(obs);
   expect(table.length).toBeGreaterThan(2);
