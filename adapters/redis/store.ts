@@ -506,6 +506,45 @@ export class RedisSlotStore implements Store {
     }
   }
 
+  /**
+   * `MEMORY USAGE` (Redis's own estimate of a key's bytes, samples of nested values included) summed over
+   * each sampled session's data keys. Sessions come from SCAN pages started at a random cursor, at most
+   * 20 pages of 100 keys per master: the cost is bounded by `sample`, not by the number of sessions.
+   */
+  async sampleSessionBytes(tenant: string, sample: number): Promise<number[]> {
+    try {
+      const c = await this.conn('sampleSessionBytes');
+      const nodes = isCluster(c) ? c.nodes('master') : [c];
+      const out: number[] = [];
+      for (const node of nodes) {
+        // From a random cursor to the end of the table, then once from its start (a key may come twice).
+        let cursor = String(Math.floor(Math.random() * 2 ** 16));
+        let wrapped = cursor === '0';
+        const seen = new Set<string>();
+        for (let page = 0; page < 20 && out.length < sample; page++) {
+          const [next, metas] = await node.scan(cursor, 'MATCH', this.keys.metaPattern(tenant), 'COUNT', 100);
+          for (const meta of metas) {
+            if (out.length >= sample || seen.has(meta)) continue;
+            seen.add(meta);
+            const base = meta.slice(0, -':meta'.length);
+            const p = node.pipeline();
+            for (const suffix of ['meta', 'slots', 'events', 'arch', 'uarch', 'alog', 'ualog']) p.call('MEMORY', 'USAGE', `${base}:${suffix}`);
+            const res = (await p.exec()) ?? [];
+            out.push(res.reduce((n: number, [, v]: [Error | null, unknown]) => n + (Number(v) || 0), 0));
+          }
+          cursor = next;
+          if (cursor === '0') {
+            if (wrapped) break;
+            wrapped = true;
+          }
+        }
+      }
+      return out;
+    } catch (err) {
+      throw unavailable('sampleSessionBytes', err);
+    }
+  }
+
   async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
     try {
       const c = await this.conn('putFleet');

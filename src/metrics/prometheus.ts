@@ -49,6 +49,12 @@ export interface PrometheusMetricsOptions {
   /** Export the store's truth figures (sessions, slots, logbook entries) read from `store.stats()` at each scrape. @default true */
   storeFigures?: boolean;
   /**
+   * Bytes per session from a random sample of the store's sessions (Redis `MEMORY USAGE`; in-process an
+   * estimate), taken at most every `intervalMs` at a scrape: `tidemark_store_sampled_session_bytes`.
+   * `false` turns it off. @default { sample: 20, intervalMs: 60000 }
+   */
+  sessionBytes?: { sample?: number; intervalMs?: number } | false;
+  /**
    * Tenant ids that get their own value of a `tenant` label on the event counters (reads, writes,
    * candidates, evictions, logbook demotions, degraded turns); every other tenant counts under `other`.
    * The list bounds the series however many tenants there are. Needs an instance with `hashTenant`.
@@ -330,6 +336,42 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       }) as unknown as { name: string };
     all.push(survivalCounter('store_slot_age_reached_total', `Slots that lived to at least \`age\` (in \`unit\` of their session clock): at risk in the lifetime interval starting there. The store's own count: aggregate with max().`, SURVIVAL_FIELD.reached));
     all.push(survivalCounter('store_slot_lifetime_ended_total', `Slots whose lifetime ended (evicted for capacity, decay or age; an erase is censored, not an end) in the interval starting at \`age\`. The store's own count: aggregate with max().`, SURVIVAL_FIELD.ended));
+  }
+  const sizing = options.sessionBytes === false ? null : { sample: 20, intervalMs: 60_000, ...options.sessionBytes };
+  if (sizing && (!Number.isInteger(sizing.sample) || sizing.sample < 1 || sizing.sample > 1000 || !(sizing.intervalMs >= 1000))) {
+    throw new ConfigError('metrics: sessionBytes needs sample an integer 1–1000 and intervalMs ≥ 1000', { details: { option: 'sessionBytes', value: options.sessionBytes } });
+  }
+  if (store?.sampleSessionBytes && sizing) {
+    // A slow, bounded sample: at most `sample` sessions every `intervalMs`, whatever the scrape rate.
+    let sampled: { atMs: number; bytes: number[] } | null = null;
+    let sampling: Promise<void> | null = null;
+    const resample = (): Promise<void> => {
+      if (sampled && Date.now() - sampled.atMs < sizing.intervalMs) return Promise.resolve();
+      return (sampling ??= store.sampleSessionBytes!(tm.tenant ?? 'default', sizing.sample).then(
+        (bytes) => void (sampled = { atMs: Date.now(), bytes }),
+        () => void (sampled = null),
+      ).finally(() => (sampling = null)));
+    };
+    all.push(new client.Gauge({
+      name: `${p}store_sampled_session_bytes`,
+      help: `Mean bytes a session takes in the store, over a random sample of up to ${sizing.sample} sessions taken every ${sizing.intervalMs / 1000} s (Redis: MEMORY USAGE of its keys; in-process: an estimate). The store's figure: aggregate with max().`,
+      registers,
+      async collect() {
+        await resample();
+        const b = sampled?.bytes ?? [];
+        if (b.length > 0) this.set(b.reduce((x, y) => x + y, 0) / b.length);
+        else this.reset();
+      },
+    }) as unknown as { name: string });
+    all.push(new client.Gauge({
+      name: `${p}store_sampled_sessions`,
+      help: 'Sessions in the latest bytes-per-session sample (fewer than asked when the tenant has fewer).',
+      registers,
+      async collect() {
+        await resample();
+        this.set(sampled?.bytes.length ?? 0);
+      },
+    }) as unknown as { name: string });
   }
   if (o.processMetrics) {
     const before = new Set(registry.getMetricsAsArray().map((m) => m.name));

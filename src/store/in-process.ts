@@ -337,6 +337,39 @@ export class InProcessStore implements Store {
     return { sessions, slots, logbookEntries, source: 'counters', counters: { ...this.counters.get(tenant) } };
   }
 
+  /**
+   * An estimate, not a measurement: typed arrays by their byte length, strings at 2 bytes a character
+   * (UTF-16), events as their JSON, the session's logbook entries by value and key; object overheads
+   * left out. A sample of `sample` sessions picked at random from the tenant's (reservoir sampling).
+   */
+  async sampleSessionBytes(tenant: string, sample: number): Promise<number[]> {
+    const picked: Array<[string, SessionEntry]> = [];
+    let seen = 0;
+    for (const [key, e] of this.sessions) {
+      if (!key.startsWith(`${tenant}\u0000`)) continue;
+      seen++;
+      if (picked.length < sample) picked.push([key, e]);
+      else {
+        const j = Math.floor(Math.random() * seen);
+        if (j < sample) picked[j] = [key, e];
+      }
+    }
+    return picked.map(([key, e]) => {
+      const t = e.table;
+      let bytes = t.keys.byteLength + t.capacity * (6 * 8 + 4 + 2);
+      for (let i = 0; i < t.capacity; i++) {
+        if (!t.isUsed(i)) continue;
+        bytes += 2 * (t.ids[i]!.length + t.keyText[i]!.length + t.value[i]!.length + t.provenance[i]!.join('').length);
+      }
+      bytes += 2 * JSON.stringify(e.events).length;
+      const session = key.slice(tenant.length + 1);
+      for (const entry of listEntries(this.logbook(scopeOf({ tenant, session }), false), { limit: Number.MAX_SAFE_INTEGER })) {
+        bytes += 2 * (entry.id.length + entry.value.length + entry.keyText.length) + (entry.key ? entry.key.length * 4 : 0);
+      }
+      return bytes;
+    });
+  }
+
   async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
     const atMs = Date.now();
     this.fleet.set(`${tenant}\u0000${instance}`, { instance, atMs, payload, expiresMs: atMs + ttlMs });

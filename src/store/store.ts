@@ -220,6 +220,12 @@ export interface Store {
   ping?(): Promise<void>;
   /** A tenant's truth figures over the whole store (see `StoreStats`). */
   stats?(tenant: string): Promise<StoreStats>;
+  /**
+   * Bytes held by a random sample of at most `sample` of a tenant's sessions (slots, events and the
+   * session's logbook), one figure per session sampled; bounded cost whatever the number of sessions.
+   * Redis: `MEMORY USAGE` of each sampled session's keys; in-process: an estimate from its contents.
+   */
+  sampleSessionBytes?(tenant: string, sample: number): Promise<number[]>;
   /** Publishes one process's dashboard buckets for a tenant under `instance`, kept for `ttlMs`. */
   putFleet?(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void>;
   /** Every instance's latest published buckets for a tenant (expired ones left out). */

@@ -16,6 +16,7 @@ import { createTidemark } from '../../src/middleware/tidemark.js';
 import { StoreHealth } from '../../src/metrics/health.js';
 import { prometheusMetrics } from '../../src/metrics/prometheus.js';
 import { ControlledStore } from '../middleware/helpers.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 
 const PROMTOOL = '/usr/bin/promtool';
 const inCI = process.env.CI === 'true';
@@ -165,6 +166,28 @@ describe('prometheusMetrics on the real middleware', () => {
     expect([...tenants].sort()).toEqual(['nursery', 'other', 'workshop']);
     expect(text).not.toMatch(/tutor|bakery|choir|library/);
     expect(execFileSync(PROMTOOL, ['check', 'metrics'], { input: text, encoding: 'utf8' }).trim()).toBe('');
+    m.stop();
+    await tm.close();
+  });
+
+  it('samples bytes per session from the store, at most every intervalMs, bounded by the sample', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, capacity: 4 });
+    let calls = 0;
+    const sample = store.sampleSessionBytes.bind(store);
+    store.sampleSessionBytes = (tenant, n) => (calls++, sample(tenant, n));
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), sessionBytes: { sample: 5, intervalMs: 60_000 } });
+    for (let i = 0; i < 8; i++) await tm.write({ session: `g${i}`, text: 'My fern is a maidenhair, potted in March.', role: 'user' });
+    const parsed = parsePrometheusTextFormat(await m.metrics());
+    expect(value(parsed, 'tidemark_store_sampled_sessions')).toBe(5);
+    // Each session holds one slot's typed arrays at least: capacity × dim float32 keys.
+    const bytes = value(parsed, 'tidemark_store_sampled_session_bytes');
+    expect(bytes).toBeGreaterThan(4 * tm.embedder.dim * 4);
+    // All 8 sessions alike: the sample's mean is any one session's estimate.
+    const [one] = await sample('default', 1);
+    expect(bytes).toBe(one);
+    await m.metrics();
+    expect(calls).toBe(1); // the second scrape within intervalMs reuses the sample
     m.stop();
     await tm.close();
   });

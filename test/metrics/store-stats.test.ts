@@ -83,6 +83,25 @@ describe.skipIf(down !== null)(`redis store truth figures${down ? ` (skipped: ${
     expect((await store.stats('default')).logbookEntries).toBe(truth.logbookEntries - 1);
   });
 
+  it('samples bytes per session with MEMORY USAGE, bounded by the sample size', async () => {
+    const store = new RedisStore({ redis: client, prefix });
+    const tm = createTidemark({ store, tenant: 'sizes', capacity: 4 });
+    const sessions = ['z-1', 'z-2', 'z-3'];
+    for (let i = 0; i < 12; i++) await tm.write({ session: sessions[i % 3]!, text: FACTS[i % FACTS.length]!, role: 'user' });
+    // Every session sampled (3 < 10): the figures equal MEMORY USAGE summed over each session's keys.
+    const direct: number[] = [];
+    for (const s of sessions) {
+      const keys = await scanKeys(client, `${prefix}{sizes:${s}}:*`);
+      let n = 0;
+      for (const k of keys) if (!/:(gone|cids|quarantine)$/.test(k)) n += Number(await client.call('MEMORY', 'USAGE', k));
+      direct.push(n);
+    }
+    expect(direct.every((n) => n > 0)).toBe(true);
+    expect((await store.sampleSessionBytes('sizes', 10)).sort((a, b) => a - b)).toEqual(direct.sort((a, b) => a - b));
+    expect(await store.sampleSessionBytes('sizes', 2)).toHaveLength(2);
+    expect(await store.sampleSessionBytes('no-such-tenant', 5)).toEqual([]);
+  });
+
   it('fleet records are shared by every process on the store and expire', async () => {
     const a = new RedisStore({ redis: client, prefix });
     const b = new RedisStore({ redis: client, prefix });
