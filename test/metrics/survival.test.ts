@@ -9,7 +9,7 @@ import fc from 'fast-check';
 import { RedisStore } from '../../adapters/redis/index.js';
 import type { EvictEvent } from '../../src/middleware/events.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
-import { kaplanMeierGrouped, survivalAt, type LifetimeGroup } from '../../src/metrics/retention.js';
+import { kaplanMeier, kaplanMeierGrouped, survivalAt, type LifetimeGroup, type RetentionSnapshot } from '../../src/metrics/retention.js';
 import { lifeTable, SURVIVAL_BOUNDS, SURVIVAL_END_REASONS, survivalIncrements, survivalInterval, type SlotBirth } from '../../src/metrics/survival.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 import type { Store } from '../../src/store/store.js';
@@ -46,7 +46,7 @@ const FACTS = [
 ];
 
 /** A scripted conversation: 4 sessions, 64 turns, capacity 3 (evictions), one session erased midway. */
-async function drive(store: Store): Promise<{ sessions: string[]; evictions: EvictEvent[]; close: () => Promise<unknown> }> {
+async function drive(store: Store): Promise<{ sessions: string[]; evictions: EvictEvent[]; close: () => Promise<unknown>; retention: () => RetentionSnapshot }> {
   const tm = createTidemark({ store, capacity: 3 });
   const evictions: EvictEvent[] = [];
   tm.on('evict', (e) => evictions.push(e));
@@ -58,7 +58,7 @@ async function drive(store: Store): Promise<{ sessions: string[]; evictions: Evi
     if (i === 40) await tm.erase({ session: 'w-2' });
   }
   await tm.flush();
-  return { sessions, evictions, close: () => tm.close() };
+  return { sessions, evictions, close: () => tm.close(), retention: () => tm.retention() };
 }
 
 async function observations(store: Store, sessions: readonly string[], evictions: readonly EvictEvent[]): Promise<Array<{ time: number; event: boolean }>> {
@@ -72,7 +72,7 @@ async function observations(store: Store, sessions: readonly string[], evictions
 }
 
 async function check(store: Store): Promise<void> {
-  const { sessions, evictions, close } = await drive(store);
+  const { sessions, evictions, close, retention } = await drive(store);
   expect(evictions.filter((e) => e.reason === 'capacity').length).toBeGreaterThan(5);
   expect(evictions.filter((e) => e.reason === 'erased').length).toBeGreaterThan(0);
   const obs = await observations(store, sessions, evictions);
@@ -87,6 +87,9 @@ async function check(store: Store): Promise<void> {
     expect(row.atRisk).toBe(km.get(row.from)!.atRisk);
     expect(row.survival).toBeCloseTo(km.get(row.from)!.survival, 12);
   }
+  // The instance's own retention() (the dashboard's curve, fed by its events) is the exact
+  // Kaplan–Meier over the same slots.
+  expect(retention().clock).toEqual(kaplanMeier(obs));
   await close();
 }
 
