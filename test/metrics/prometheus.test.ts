@@ -105,12 +105,28 @@ describe('prometheusMetrics on the real middleware', () => {
   it('reports the store truth figures from the store itself (in-process store)', async () => {
     const tm = createTidemark({ capacity: 4 });
     const m = await prometheusMetrics(tm, { registry: new client.Registry() });
+    let allocated = 0;
+    let capacityEvictions = 0;
+    tm.on('write', (e) => void (e.outcome === 'allocated' && allocated++));
+    tm.on('evict', (e) => void (e.reason === 'capacity' && capacityEvictions++));
     for (let i = 0; i < 9; i++) await tm.write({ session: `n${i % 3}`, text: FACTS[i % FACTS.length]!, role: 'user' });
+    // Two more facts each for one session, past its capacity of 4.
+    for (const text of ['My helmet is blue.', 'My frame is steel.', 'My tyres are 32 mm.', 'My dog is called Pip.']) await tm.write({ session: 'n0', text, role: 'user' });
     const stats = await tm.store.stats!('default');
     const parsed = parsePrometheusTextFormat(await m.metrics());
     expect(value(parsed, 'tidemark_store_sessions')).toBe(3);
     expect(value(parsed, 'tidemark_store_slots')).toBe(stats.slots);
     expect(value(parsed, 'tidemark_store_logbook_entries')).toBe(stats.logbookEntries);
+    // Survival counts: every bound exported (zeros included), equal to the store's; every allocated
+    // slot reached age 0, and the lifetimes that ended are the capacity evictions sent.
+    expect(value(parsed, 'tidemark_store_slot_age_reached_total', { age: '0', unit: 'turns' })).toBe(allocated);
+    let ended = 0;
+    for (const age of ['0', '1', '2', '4', '8', '16', '32', '64', '128', '256', '512', '1024']) {
+      expect(value(parsed, 'tidemark_store_slot_age_reached_total', { age, unit: 'turns' })).toBe(stats.counters?.[`survival.reached.${age}`] ?? 0);
+      ended += value(parsed, 'tidemark_store_slot_lifetime_ended_total', { age, unit: 'turns' });
+    }
+    expect(ended).toBe(capacityEvictions);
+    expect(capacityEvictions).toBeGreaterThan(0);
     m.stop();
     await tm.close();
   });
