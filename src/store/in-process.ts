@@ -94,7 +94,7 @@ export class InProcessStore implements Store {
   readonly evicted = { cap: 0, idle: 0 };
   /** Published dashboard buckets by instance (one process: usually one entry). */
   private readonly fleet = new Map<string, FleetRecord & { expiresMs: number }>();
-  /** Store-wide counters per tenant, from commits' `counters` (process lifetime; not in the snapshot file). */
+  /** Store-wide counters per tenant, from commits' `counters` (kept in the snapshot file too). */
   private readonly counters = new Map<string, Record<string, number>>();
 
   constructor(options: InProcessStoreOptions = {}) {
@@ -410,7 +410,7 @@ export class InProcessStore implements Store {
     const logbook = [...this.logbooks.entries()].flatMap(([skey, index]) =>
       [...index.all()].map((entry) => ({ scope: skey, ...entry, ...(entry.key ? { key: b64(entry.key) } : {}) })),
     );
-    const doc = { format: SNAPSHOT_FORMAT, version: SNAPSHOT_VERSION, savedAt: new Date().toISOString(), sessions, logbook };
+    const doc = { format: SNAPSHOT_FORMAT, version: SNAPSHOT_VERSION, savedAt: new Date().toISOString(), sessions, logbook, counters: Object.fromEntries(this.counters) };
     mkdirSync(dirname(path), { recursive: true });
     const tmp = `${path}.${process.pid}.tmp`;
     writeFileSync(tmp, JSON.stringify(doc));
@@ -440,6 +440,7 @@ export class InProcessStore implements Store {
       this.sessions.clear();
       this.logbooks.clear();
       this.userSessions.clear();
+      this.counters.clear();
       throw new StoreError(ErrorCodes.STORE_CORRUPT, `snapshot ${path} has the right format but a malformed body (${cause instanceof Error ? cause.message : String(cause)}); move it aside to start empty`, { cause });
     }
   }
@@ -461,6 +462,14 @@ export class InProcessStore implements Store {
         const uk = userKey(s.tenant, s.user);
         if (!this.userSessions.has(uk)) this.userSessions.set(uk, new Set());
         this.userSessions.get(uk)!.add(s.session);
+      }
+    }
+    // Store-wide counters (absent in snapshots written before they existed).
+    if (doc.counters && typeof doc.counters === 'object') {
+      for (const [tenant, c] of Object.entries(doc.counters as Record<string, Record<string, unknown>>)) {
+        const kept: Record<string, number> = {};
+        for (const [field, n] of Object.entries(c ?? {})) if (typeof n === 'number' && Number.isFinite(n)) kept[field] = n;
+        this.counters.set(tenant, kept);
       }
     }
     for (const raw of doc.logbook) {

@@ -6,6 +6,9 @@
 
 import { afterAll, describe, expect, it } from 'vitest';
 import fc from 'fast-check';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { RedisStore } from '../../adapters/redis/index.js';
 import type { EvictEvent } from '../../src/middleware/events.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
@@ -151,6 +154,23 @@ describe('slot survival counts', () => {
 
   it('in-process store: the counts from a real conversation equal Kaplan–Meier on the slots themselves', async () => {
     await check(new InProcessStore());
+  });
+
+  it('in-process store: the counts survive a restart from the snapshot file, as the slots do', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tidemark-survival-'));
+    try {
+      const snapshotPath = join(dir, 'memory.json');
+      const first = new InProcessStore({ snapshotPath });
+      const { close } = await drive(first);
+      const before = (await first.stats('default')).counters;
+      await close();
+      const again = new InProcessStore({ snapshotPath });
+      expect((await again.stats('default')).counters).toEqual(before);
+      expect(Object.keys(before ?? {}).length).toBeGreaterThan(3);
+      await again.close();
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 });
 
