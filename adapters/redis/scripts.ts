@@ -97,7 +97,8 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
  *       15 #events, 16 fence: the session's erase time the writer saw ('' = none), 17 fence: the
  *       writer's clock when it accepted the turn ('' = unfenced), 18 fence ttl seconds (how long
- *       ids and tombstones live), then #ops x (index, payload or '' to free, creation ms), #entries x (id, atMs, payload), #events x json.
+ *       ids and tombstones live), then #ops x (index, payload or '' to free, creation ms), #entries x (id, atMs, payload), #events x json,
+ *       then [stats] counter increments as (field, delta) pairs to the end.
  * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
  * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
  * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
@@ -216,6 +217,13 @@ for _, i in ipairs({1, 2, 3, 4, 5, 6, 7, 10}) do
   if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
 end
 restat(before, KEYS[1], KEYS[2], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[10], ttl > 0 and (nowms + ttl * 1000) or 0)
+-- The commit's own counter increments (field, delta pairs after the events): slot survival counts.
+if KEYS[S] then
+  while ARGV[a] do
+    redis.call('HINCRBY', KEYS[S], ARGV[a], ARGV[a + 1])
+    a = a + 2
+  end
+end
 return {1, v + 1, ep, dropAge, dropCount}
 `);
 

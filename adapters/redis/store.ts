@@ -633,8 +633,10 @@ export class RedisSlotStore implements Store {
     try {
       const c = await this.conn('stats');
       if (!isCluster(c)) {
-        const [sessions, slots, logbook] = await c.hmget(this.statsKey(tenant), 'sessions', 'slots', 'logbook');
-        return { sessions: Number(sessions ?? 0), slots: Number(slots ?? 0), logbookEntries: Number(logbook ?? 0), source: 'counters' };
+        const all = await c.hgetall(this.statsKey(tenant));
+        const counters: Record<string, number> = {};
+        for (const [field, n] of Object.entries(all)) if (field.startsWith('survival.')) counters[field] = Number(n);
+        return { sessions: Number(all.sessions ?? 0), slots: Number(all.slots ?? 0), logbookEntries: Number(all.logbook ?? 0), source: 'counters', counters };
       }
       const out: StoreStats = { sessions: 0, slots: 0, logbookEntries: 0, source: 'scan' };
       for (const node of c.nodes('master')) {
@@ -654,6 +656,45 @@ export class RedisSlotStore implements Store {
       return out;
     } catch (err) {
       throw unavailable('stats', err);
+    }
+  }
+
+  /**
+   * `MEMORY USAGE` (Redis's own estimate of a key's bytes, samples of nested values included) summed over
+   * each sampled session's data keys. Sessions come from SCAN pages started at a random cursor, at most
+   * 20 pages of 100 keys per master: the cost is bounded by `sample`, not by the number of sessions.
+   */
+  async sampleSessionBytes(tenant: string, sample: number): Promise<number[]> {
+    try {
+      const c = await this.conn('sampleSessionBytes');
+      const nodes = isCluster(c) ? c.nodes('master') : [c];
+      const out: number[] = [];
+      for (const node of nodes) {
+        // From a random cursor to the end of the table, then once from its start (a key may come twice).
+        let cursor = String(Math.floor(Math.random() * 2 ** 16));
+        let wrapped = cursor === '0';
+        const seen = new Set<string>();
+        for (let page = 0; page < 20 && out.length < sample; page++) {
+          const [next, metas] = await node.scan(cursor, 'MATCH', this.keys.metaPattern(tenant), 'COUNT', 100);
+          for (const meta of metas) {
+            if (out.length >= sample || seen.has(meta)) continue;
+            seen.add(meta);
+            const base = meta.slice(0, -':meta'.length);
+            const p = node.pipeline();
+            for (const suffix of ['meta', 'slots', 'events', 'arch', 'uarch', 'alog', 'ualog', 'born', 'cids']) p.call('MEMORY', 'USAGE', `${base}:${suffix}`);
+            const res = (await p.exec()) ?? [];
+            out.push(res.reduce((n: number, [, v]: [Error | null, unknown]) => n + (Number(v) || 0), 0));
+          }
+          cursor = next;
+          if (cursor === '0') {
+            if (wrapped) break;
+            wrapped = true;
+          }
+        }
+      }
+      return out;
+    } catch (err) {
+      throw unavailable('sampleSessionBytes', err);
     }
   }
 
@@ -788,6 +829,8 @@ export class RedisSlotStore implements Store {
     const home = { tenant: ref.tenant, session: ref.session };
     for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf, { ...home, id: e.id }));
     for (const ev of req.events) args.push(JSON.stringify(ev));
+    // [stats] Counter increments (field, delta) close the list; the script adds them on a single Redis.
+    for (const [field, n] of Object.entries(req.counters ?? {})) if (Number.isInteger(n) && n !== 0) args.push(field, n);
     return { args, keys };
   }
 

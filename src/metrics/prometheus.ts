@@ -9,14 +9,35 @@ import type { Store } from '../store/store.js';
 import type { EvictReason, ReadResult, WriteOutcome } from '../types.js';
 import type { StoreHealth } from './health.js';
 import { subscribe, type TidemarkEventSource } from './source.js';
+import { SURVIVAL_BOUNDS, SURVIVAL_FIELD, type SurvivalUnit } from './survival.js';
+
+/**
+ * The part of a prom-client `Registry` tidemark uses. Structural, so these declarations type-check in
+ * an app without prom-client installed; a prom-client `Registry` is one (cast back to prom-client's
+ * `Registry` to merge registries or use the rest of its API).
+ */
+export interface MetricsRegistry {
+  readonly contentType: string;
+  metrics(): Promise<string>;
+  getMetricsAsArray(): ReadonlyArray<{ readonly name: string }>;
+  removeSingleMetric(name: string): void;
+}
+
+/** The prom-client module as far as these declarations need to name it (structural, see `MetricsRegistry`). */
+export interface PromClientModule {
+  readonly Registry: unknown;
+  readonly Counter: unknown;
+  readonly Gauge: unknown;
+  readonly Histogram: unknown;
+}
 
 export interface PrometheusMetricsOptions {
-  /** Registry to register on. @default a new `Registry` of the prom-client module in use */
-  registry?: PromClient.Registry;
+  /** Registry to register on (a prom-client `Registry`). @default a new `Registry` of the prom-client module in use */
+  registry?: MetricsRegistry;
   /** Prefix of every metric name; letters, digits and `_`, ending in `_`. @default 'tidemark_' */
   prefix?: string;
   /** The prom-client module, for callers that bundle their own copy. @default `await import('prom-client')` */
-  client?: typeof PromClient;
+  client?: PromClientModule;
   /** A session counts as active for this long after its last event; the dashboard's window. @default 900000 (15 min) */
   activeWindowMs?: number;
   /** Sessions remembered for the active-sessions gauge; past this the least recent are forgotten. @default 100000 */
@@ -27,6 +48,19 @@ export interface PrometheusMetricsOptions {
   health?: StoreHealth;
   /** Export the store's truth figures (sessions, slots, logbook entries) read from `store.stats()` at each scrape. @default true */
   storeFigures?: boolean;
+  /**
+   * Bytes per session from a random sample of the store's sessions (Redis `MEMORY USAGE`; in-process an
+   * estimate), taken at most every `intervalMs` at a scrape: `tidemark_store_sampled_session_bytes`.
+   * `false` turns it off. @default { sample: 20, intervalMs: 60000 }
+   */
+  sessionBytes?: { sample?: number; intervalMs?: number } | false;
+  /**
+   * Tenant ids that get their own value of a `tenant` label on the event counters (reads, writes,
+   * candidates, evictions, logbook demotions, degraded turns); every other tenant counts under `other`.
+   * The list bounds the series however many tenants there are. Needs an instance with `hashTenant`.
+   * @default none (no tenant label)
+   */
+  tenantLabels?: readonly string[];
   /** Also register prom-client's default process metrics (CPU, memory, event-loop lag; `process_*`, `nodejs_*`). @default false */
   processMetrics?: boolean;
 }
@@ -65,7 +99,12 @@ export type MetricsSource = TidemarkEventSource & {
   readonly store?: Store;
   readonly tenant?: string;
   readonly params?: { readonly decayUnit?: 'turns' | 'seconds' };
+  /** Keyed hash of a tenant id as events carry it; needed for `tenantLabels`. */
+  hashTenant?(tenant: string): string;
 };
+
+/** At most this many tenants get their own label value (common practice: keep a label's values in the tens). */
+export const MAX_TENANT_LABELS = 50;
 
 /** The package version, for `tidemark_build_info` (package.json two levels up from src/ or dist/src/). */
 function packageVersion(): string {
@@ -81,7 +120,8 @@ function packageVersion(): string {
 }
 
 export interface PrometheusMetrics {
-  readonly registry: PromClient.Registry;
+  /** The prom-client `Registry` the metrics are on. */
+  readonly registry: MetricsRegistry;
   /** The `Content-Type` of `metrics()` output. */
   readonly contentType: string;
   /** The exposition text of the whole registry. */
@@ -99,11 +139,30 @@ const ERROR_STAGES = ['read', 'write', 'handler', 'outbox', 'store'] as const;
 /** Every value of an `outbox` event's `change`, zero-initialised so `increase()` sees the first one. */
 const OUTBOX_CHANGE_LABELS = ['queued', 'drained', 'overflow', 'retry', 'erased', 'expired', 'failed', 'abandoned'] as const;
 const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired', 'erased'];
+/** Why a value went from a slot to the logbook. */
+const DEMOTE_REASONS: readonly string[] = ['superseded', 'capacity', 'decayed', 'expired'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
 
 /** Label values come only from closed sets, so the number of series never depends on traffic. */
 function codeLabel(code: unknown): string {
   return typeof code === 'string' && KNOWN_CODES.has(code) ? code : 'other';
+}
+
+/**
+ * The `tenant` label value of an event: the allow-listed id whose hash it carries, else `other`; null
+ * when no allow-list is set (no tenant label at all).
+ */
+function tenantLabeller(tm: MetricsSource, allow: readonly string[] | undefined): { labels: readonly string[]; of(hash: string): string } | null {
+  if (allow === undefined) return null;
+  const bad = (why: string): never => {
+    throw new ConfigError(`metrics: tenantLabels ${why}`, { details: { option: 'tenantLabels', value: allow } });
+  };
+  if (!Array.isArray(allow)) bad('must be an array of tenant ids');
+  if (allow.length > MAX_TENANT_LABELS) bad(`lists ${allow.length} tenants; at most ${MAX_TENANT_LABELS} get their own label value (the rest count as "other")`);
+  for (const t of allow) if (typeof t !== 'string' || t === '' || t === 'other' || t.length > 64) bad(`holds ${JSON.stringify(t)}; each must be a non-empty id of at most 64 characters, not "other"`);
+  if (typeof tm.hashTenant !== 'function') bad('needs an instance with hashTenant() (a tidemark instance has it): events carry hashed tenant ids');
+  const byHash = new Map(allow.map((t) => [tm.hashTenant!(t), t]));
+  return { labels: [...new Set(allow), 'other'], of: (hash) => byHash.get(hash) ?? 'other' };
 }
 
 export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMetricsOptions = {}): Promise<PrometheusMetrics> {
@@ -124,7 +183,8 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       details: { option: 'durationBuckets', value: buckets },
     });
   }
-  let client = options.client;
+  const tenantOf = tenantLabeller(tm, options.tenantLabels);
+  let client = options.client as typeof PromClient | undefined;
   if (!client) {
     try {
       const mod = (await import('prom-client')) as typeof PromClient & { default?: typeof PromClient };
@@ -136,7 +196,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       });
     }
   }
-  const registry = options.registry ?? new client.Registry();
+  const registry = (options.registry as PromClient.Registry | undefined) ?? new client.Registry();
   const p = o.prefix;
   const registers = [registry];
   const store = tm.store;
@@ -157,11 +217,16 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   let outboxDepth = 0;
   const lifetimeUnit = tm.params?.decayUnit ?? 'turns';
 
-  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: ['result'], registers });
-  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: ['outcome'], registers });
-  const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: ['decision'], registers });
-  const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: ['reason'], registers });
-  const archived = new client.Counter({ name: `${p}archived_items_total`, help: 'Values that left working memory for the logbook, by reason.', labelNames: ['reason'], registers });
+  // With tenantLabels, the event counters carry a bounded `tenant` label too.
+  const tl = (names: string[]): string[] => (tenantOf ? [...names, 'tenant'] : names);
+  const tenantValues: ReadonlyArray<string | null> = tenantOf ? tenantOf.labels : [null];
+  const withTenant = <L extends Record<string, string>>(labels: L, tenant: string | null): L => (tenant === null ? labels : { ...labels, tenant });
+  const at = <L extends Record<string, string>>(labels: L, e: { tenant: string }): L => withTenant(labels, tenantOf ? tenantOf.of(e.tenant) : null);
+  const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: tl(['result']), registers });
+  const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: tl(['outcome']), registers });
+  const candidates = new client.Counter({ name: `${p}candidates_total`, help: 'Extracted candidates by the write gate\'s decision: passed (went on to a write) or gated_out (kept in the logbook only).', labelNames: tl(['decision']), registers });
+  const evictions = new client.Counter({ name: `${p}evictions_total`, help: 'Slots that left working memory, by reason.', labelNames: tl(['reason']), registers });
+  const demoted = new client.Counter({ name: `${p}logbook_demoted_total`, help: 'Values that left working memory for the logbook (demoted), by reason: superseded by a newer value, or evicted for capacity, decay or age.', labelNames: tl(['reason']), registers });
   const readDuration = new client.Histogram({ name: `${p}read_duration_seconds`, help: 'Time of one memory read (store load and logbook search), embedding included.', buckets, registers });
   const commitDuration = new client.Histogram({ name: `${p}commit_duration_seconds`, help: 'Time of one commit of a turn\'s memory write: extract, gate, plan and the store\'s commit, conflict retries included.', buckets, registers });
   const turnDuration = new client.Histogram({ name: `${p}turn_duration_seconds`, help: 'Time of one chat turn over HTTP, request in to last byte of the reply out (the bot\'s own time included).', buckets: [...TURN_BUCKETS_SECONDS], registers });
@@ -204,7 +269,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   const version = packageVersion();
   const buildInfo = new client.Gauge({ name: `${p}build_info`, help: 'Always 1; labels: the tidemark version and the store kind.', labelNames: ['version', 'store'], registers });
   buildInfo.set({ version, store: store?.name ?? 'unknown' }, 1);
-  const all: Array<{ name: string }> = [reads, writes, candidates, evictions, archived, readDuration, commitDuration, turnDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeClock, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, outbox, buildInfo] as unknown as Array<{ name: string }>;
+  const all: Array<{ name: string }> = [reads, writes, candidates, evictions, demoted, readDuration, commitDuration, turnDuration, embedDuration, occupancy, topWeight, entropy, gateScore, lifetimeClock, lifetimeSeconds, retries, storeErrors, errors, degraded, outboxChanges, active, outbox, buildInfo] as unknown as Array<{ name: string }>;
 
   if (health) {
     all.push(new client.Gauge({
@@ -230,7 +295,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     // One stats() call per scrape serves all three gauges; the figure is the store's, the same from
     // every process: aggregate with max(), never sum.
     let pending: Promise<void> | null = null;
-    let figures: { sessions: number; slots: number; logbookEntries: number } | null = null;
+    let figures: { sessions: number; slots: number; logbookEntries: number; counters?: Record<string, number> } | null = null;
     const refresh = (): Promise<void> =>
       (pending ??= store.stats!(tm.tenant ?? 'default').then(
         (f) => void (figures = f),
@@ -250,6 +315,63 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
     all.push(figure('store_sessions', 'Sessions of this tenant holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
     all.push(figure('store_slots', 'Slots in use over every session in the store (the store\'s own count; aggregate with max()).', (f) => f.slots));
     all.push(figure('store_logbook_entries', 'Long-term (logbook) entries over every scope in the store (the store\'s own count; aggregate with max()).', (f) => f.logbookEntries));
+    // Slot survival counts the commits keep in the store (src/metrics/survival.ts): per lifetime
+    // interval, slots that reached its lower bound and slots whose lifetime ended inside it. Live and
+    // erased slots are in the first only (right-censored), so a Kaplan–Meier estimate over the fleet
+    // is a PromQL product (see the tidemark:slot_survival:* rules). Absent where the store keeps no
+    // counters (Redis Cluster).
+    const unit: SurvivalUnit = lifetimeUnit === 'seconds' ? 'seconds' : 'turns';
+    const survivalCounter = (name: string, help: string, prefix: string) =>
+      new client.Counter({
+        name: `${p}${name}`,
+        help,
+        labelNames: ['age', 'unit'],
+        registers,
+        async collect() {
+          await refresh();
+          this.reset();
+          if (!figures?.counters) return;
+          for (const b of SURVIVAL_BOUNDS[unit]) this.inc({ age: String(b), unit }, figures.counters[`${prefix}${b}`] ?? 0);
+        },
+      }) as unknown as { name: string };
+    all.push(survivalCounter('store_slot_age_reached_total', `Slots that lived to at least \`age\` (in \`unit\` of their session clock): at risk in the lifetime interval starting there. The store's own count: aggregate with max().`, SURVIVAL_FIELD.reached));
+    all.push(survivalCounter('store_slot_lifetime_ended_total', `Slots whose lifetime ended (evicted for capacity, decay or age; an erase is censored, not an end) in the interval starting at \`age\`. The store's own count: aggregate with max().`, SURVIVAL_FIELD.ended));
+  }
+  const sizing = options.sessionBytes === false ? null : { sample: 20, intervalMs: 60_000, ...options.sessionBytes };
+  if (sizing && (!Number.isInteger(sizing.sample) || sizing.sample < 1 || sizing.sample > 1000 || !(sizing.intervalMs >= 1000))) {
+    throw new ConfigError('metrics: sessionBytes needs sample an integer 1–1000 and intervalMs ≥ 1000', { details: { option: 'sessionBytes', value: options.sessionBytes } });
+  }
+  if (store?.sampleSessionBytes && sizing) {
+    // A slow, bounded sample: at most `sample` sessions every `intervalMs`, whatever the scrape rate.
+    let sampled: { atMs: number; bytes: number[] } | null = null;
+    let sampling: Promise<void> | null = null;
+    const resample = (): Promise<void> => {
+      if (sampled && Date.now() - sampled.atMs < sizing.intervalMs) return Promise.resolve();
+      return (sampling ??= store.sampleSessionBytes!(tm.tenant ?? 'default', sizing.sample).then(
+        (bytes) => void (sampled = { atMs: Date.now(), bytes }),
+        () => void (sampled = null),
+      ).finally(() => (sampling = null)));
+    };
+    all.push(new client.Gauge({
+      name: `${p}store_sampled_session_bytes`,
+      help: `Mean bytes a session takes in the store, over a random sample of up to ${sizing.sample} sessions taken every ${sizing.intervalMs / 1000} s (Redis: MEMORY USAGE of its keys; in-process: an estimate). The store's figure: aggregate with max().`,
+      registers,
+      async collect() {
+        await resample();
+        const b = sampled?.bytes ?? [];
+        if (b.length > 0) this.set(b.reduce((x, y) => x + y, 0) / b.length);
+        else this.reset();
+      },
+    }) as unknown as { name: string });
+    all.push(new client.Gauge({
+      name: `${p}store_sampled_sessions`,
+      help: 'Sessions in the latest bytes-per-session sample (fewer than asked when the tenant has fewer).',
+      registers,
+      async collect() {
+        await resample();
+        this.set(sampled?.bytes.length ?? 0);
+      },
+    }) as unknown as { name: string });
   }
   if (o.processMetrics) {
     const before = new Set(registry.getMetricsAsArray().map((m) => m.name));
@@ -264,11 +386,13 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   }
 
   // Zero-initialise every labelled series so dashboards and increase() see them from the first scrape.
-  for (const r of [...READ_RESULTS, 'degraded']) reads.inc({ result: r }, 0);
-  for (const w of WRITE_OUTCOMES) writes.inc({ outcome: w }, 0);
-  for (const d of ['passed', 'gated_out']) candidates.inc({ decision: d }, 0);
-  for (const r of EVICT_REASONS) evictions.inc({ reason: r }, 0);
-  for (const r of ['superseded', 'capacity', 'decayed', 'expired']) archived.inc({ reason: r }, 0);
+  for (const t of tenantValues) {
+    for (const r of [...READ_RESULTS, 'degraded']) reads.inc(withTenant({ result: r }, t), 0);
+    for (const w of WRITE_OUTCOMES) writes.inc(withTenant({ outcome: w }, t), 0);
+    for (const d of ['passed', 'gated_out']) candidates.inc(withTenant({ decision: d }, t), 0);
+    for (const r of EVICT_REASONS) evictions.inc(withTenant({ reason: r }, t), 0);
+    for (const r of DEMOTE_REASONS) demoted.inc(withTenant({ reason: r }, t), 0);
+  }
   for (const s of ['read', 'write']) degraded.inc({ stage: s }, 0);
   for (const c of OUTBOX_CHANGE_LABELS) outboxChanges.inc({ change: c }, 0);
   for (const stage of ERROR_STAGES) for (const code of [...KNOWN_CODES, 'other']) errors.inc({ stage, code }, 0);
@@ -276,7 +400,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
 
   const unsubscribe = subscribe(tm, {
     read(e) {
-      reads.inc({ result: READ_RESULTS.includes(e.result) ? e.result : 'miss' });
+      reads.inc(at({ result: READ_RESULTS.includes(e.result) ? e.result : 'miss' }, e));
       readDuration.observe(e.durationUs / 1e6);
       embedDuration.observe({ stage: 'read' }, e.embedUs / 1e6);
       if (e.capacity > 0) occupancy.observe(e.slotsInUse / e.capacity);
@@ -287,15 +411,15 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       touch(e.sessionHash, e.atMs);
     },
     write(e) {
-      if (WRITE_OUTCOMES.includes(e.outcome)) writes.inc({ outcome: e.outcome });
+      if (WRITE_OUTCOMES.includes(e.outcome)) writes.inc(at({ outcome: e.outcome }, e));
       touch(e.sessionHash, e.atMs);
     },
     gate(e) {
       gateScore.observe(e.score);
-      candidates.inc({ decision: e.passed ? 'passed' : 'gated_out' });
+      candidates.inc(at({ decision: e.passed ? 'passed' : 'gated_out' }, e));
     },
     evict(e) {
-      if (EVICT_REASONS.includes(e.reason)) evictions.inc({ reason: e.reason });
+      if (EVICT_REASONS.includes(e.reason)) evictions.inc(at({ reason: e.reason }, e));
       lifetimeClock.observe(e.lifetime);
       lifetimeSeconds.observe(e.lifetimeMs / 1000);
     },
@@ -304,7 +428,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       if (e.slots > 0) evictions.inc({ reason: 'expired' }, e.slots);
     },
     archive(e) {
-      if (['superseded', 'capacity', 'decayed', 'expired'].includes(e.reason)) archived.inc({ reason: e.reason });
+      if (DEMOTE_REASONS.includes(e.reason)) demoted.inc(at({ reason: e.reason }, e));
     },
     commit(e) {
       commitDuration.observe(e.durationUs / 1e6);
@@ -317,7 +441,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       // A degraded read is a read: counted once under reads_total{result="degraded"} and here. A degraded
       // write is counted from the outbox's `queued` (below), so the two figures cannot drift apart.
       if (e.stage === 'read') {
-        reads.inc({ result: 'degraded' });
+        reads.inc(at({ result: 'degraded' }, e));
         degraded.inc({ stage: 'read' });
         touch(e.sessionHash, e.atMs);
       }

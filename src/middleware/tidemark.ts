@@ -139,6 +139,11 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
     return this.core.hashSession(tenant, session);
   }
 
+  /** Keyed hash of a tenant id as it appears in events (the `tenant` field; 12 hex chars). */
+  hashTenant(tenant: string): string {
+    return this.core.hashTenant(tenant);
+  }
+
   /**
    * Revision ids of the slots a turn used, for `write(..., { reinforce })`. With the reply's text: the
    * recalled slots whose value the reply repeats (at least `useOverlap` of its words). Without it: the

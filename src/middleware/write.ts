@@ -12,6 +12,7 @@ import type { Candidate } from '../memory/extract.js';
 import { SlotTable, emptyTable } from '../memory/slots.js';
 import { textDigest } from '../memory/text.js';
 import { demotedEntry, planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
+import { survivalIncrements } from '../metrics/survival.js';
 import { scopeOf } from '../store/in-process.js';
 import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
@@ -153,10 +154,14 @@ export class WritePath {
       for (const e of plan.evictions) if (e.reason === 'expired') e.archived = false;
       const kept = plan.archive.filter((x) => x.kind !== 'expired');
       const demoted = resize ? [...resize.demote(ref, clock, last.atMs), ...kept] : kept;
+      const survival = survivalIncrements({
+        unit: core.params.decayUnit === 'seconds' ? 'seconds' : 'turns', prevClock: snap?.clock ?? 0, clock,
+        before: births(snap?.table), after: births(table, plan.ops), ended: plan.evictions.map((e) => ({ created: e.record.created, createdMs: e.record.createdMs, reason: e.reason })),
+      });
       const req: CommitRequest = {
         expectedVersion: snap?.version ?? 0, clock, turns: turnCount, capacity: table.capacity, dim: table.dim, ops,
         logbook: [...entries, ...demoted], retention: { policy: retentionOf(core.o), nowMs: last.atMs }, events: plan.events, commitId,
-        ...(fence ? { fence } : {}),
+        ...(fence ? { fence } : {}), ...(Object.keys(survival).length > 0 ? { counters: survival } : {}),
       };
       planUs += usSince(p0);
       const c0 = performance.now();
@@ -247,6 +252,17 @@ export class WritePath {
       }
     }
   }
+}
+
+/** Birth times of the slots in `table`, with `ops` applied on top (for the survival counts). */
+function births(table: SlotTable | undefined, ops: readonly SlotOp[] = []): Array<{ created: number; createdMs: number }> {
+  if (!table) return [];
+  const at = new Map<number, { created: number; createdMs: number } | null>();
+  for (let i = 0; i < table.capacity; i++) if (table.isUsed(i)) at.set(i, { created: table.created[i]!, createdMs: table.createdMs[i]! });
+  for (const op of ops) at.set(op.index, op.slot ? { created: op.slot.created, createdMs: op.slot.createdMs } : null);
+  const out: Array<{ created: number; createdMs: number }> = [];
+  for (const b of at.values()) if (b) out.push(b);
+  return out;
 }
 
 /**

@@ -94,6 +94,8 @@ export class InProcessStore implements Store {
   readonly evicted = { cap: 0, idle: 0 };
   /** Published dashboard buckets by instance (one process: usually one entry). */
   private readonly fleet = new Map<string, FleetRecord & { expiresMs: number }>();
+  /** Store-wide counters per tenant, from commits' `counters` (kept in the snapshot file too). */
+  private readonly counters = new Map<string, Record<string, number>>();
 
   constructor(options: InProcessStoreOptions = {}) {
     this.o = { ...IN_PROCESS_STORE_DEFAULTS, ...options };
@@ -184,6 +186,11 @@ export class InProcessStore implements Store {
     if (req.commitId) {
       (e.commitIds ??= []).push(req.commitId);
       if (e.commitIds.length > 16) e.commitIds.shift();
+    }
+    if (req.counters) {
+      let c = this.counters.get(ref.tenant);
+      if (!c) this.counters.set(ref.tenant, (c = {}));
+      for (const [field, n] of Object.entries(req.counters)) if (Number.isFinite(n)) c[field] = (c[field] ?? 0) + n;
     }
     this.dirty = true;
     return dropped && (dropped.age > 0 || dropped.count > 0) ? { ok: true, version: e.version, dropped } : { ok: true, version: e.version };
@@ -368,7 +375,40 @@ export class InProcessStore implements Store {
     }
     let logbookEntries = 0;
     for (const [key, index] of this.logbooks) if (key.startsWith(`s\u0000${tenant}\u0000`) || key.startsWith(`u\u0000${tenant}\u0000`)) logbookEntries += index.size;
-    return { sessions, slots, logbookEntries, source: 'counters' };
+    return { sessions, slots, logbookEntries, source: 'counters', counters: { ...this.counters.get(tenant) } };
+  }
+
+  /**
+   * An estimate, not a measurement: typed arrays by their byte length, strings at 2 bytes a character
+   * (UTF-16), events as their JSON, the session's logbook entries by value and key; object overheads
+   * left out. A sample of `sample` sessions picked at random from the tenant's (reservoir sampling).
+   */
+  async sampleSessionBytes(tenant: string, sample: number): Promise<number[]> {
+    const picked: Array<[string, SessionEntry]> = [];
+    let seen = 0;
+    for (const [key, e] of this.sessions) {
+      if (!key.startsWith(`${tenant}\u0000`)) continue;
+      seen++;
+      if (picked.length < sample) picked.push([key, e]);
+      else {
+        const j = Math.floor(Math.random() * seen);
+        if (j < sample) picked[j] = [key, e];
+      }
+    }
+    return picked.map(([key, e]) => {
+      const t = e.table;
+      let bytes = t.keys.byteLength + t.capacity * (6 * 8 + 4 + 2);
+      for (let i = 0; i < t.capacity; i++) {
+        if (!t.isUsed(i)) continue;
+        bytes += 2 * (t.ids[i]!.length + t.keyText[i]!.length + t.value[i]!.length + t.provenance[i]!.join('').length);
+      }
+      bytes += 2 * JSON.stringify(e.events).length;
+      const session = key.slice(tenant.length + 1);
+      for (const entry of listEntries(this.logbook(scopeOf({ tenant, session }), false), { limit: Number.MAX_SAFE_INTEGER })) {
+        bytes += 2 * (entry.id.length + entry.value.length + entry.keyText.length) + (entry.key ? entry.key.length * 4 : 0);
+      }
+      return bytes;
+    });
   }
 
   async putFleet(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void> {
@@ -411,7 +451,7 @@ export class InProcessStore implements Store {
     const logbook = [...this.logbooks.entries()].flatMap(([skey, index]) =>
       [...index.all()].map((entry) => ({ scope: skey, ...entry, ...(entry.key ? { key: b64(entry.key) } : {}) })),
     );
-    const doc = { format: SNAPSHOT_FORMAT, version: SNAPSHOT_VERSION, savedAt: new Date().toISOString(), sessions, logbook };
+    const doc = { format: SNAPSHOT_FORMAT, version: SNAPSHOT_VERSION, savedAt: new Date().toISOString(), sessions, logbook, counters: Object.fromEntries(this.counters) };
     mkdirSync(dirname(path), { recursive: true });
     const tmp = `${path}.${process.pid}.tmp`;
     writeFileSync(tmp, JSON.stringify(doc));
@@ -441,6 +481,7 @@ export class InProcessStore implements Store {
       this.sessions.clear();
       this.logbooks.clear();
       this.userSessions.clear();
+      this.counters.clear();
       throw new StoreError(ErrorCodes.STORE_CORRUPT, `snapshot ${path} has the right format but a malformed body (${cause instanceof Error ? cause.message : String(cause)}); move it aside to start empty`, { cause });
     }
   }
@@ -462,6 +503,14 @@ export class InProcessStore implements Store {
         const uk = userKey(s.tenant, s.user);
         if (!this.userSessions.has(uk)) this.userSessions.set(uk, new Set());
         this.userSessions.get(uk)!.add(s.session);
+      }
+    }
+    // Store-wide counters (absent in snapshots written before they existed).
+    if (doc.counters && typeof doc.counters === 'object') {
+      for (const [tenant, c] of Object.entries(doc.counters as Record<string, Record<string, unknown>>)) {
+        const kept: Record<string, number> = {};
+        for (const [field, n] of Object.entries(c ?? {})) if (typeof n === 'number' && Number.isFinite(n)) kept[field] = n;
+        this.counters.set(tenant, kept);
       }
     }
     for (const raw of doc.logbook) {

@@ -74,6 +74,12 @@ export interface CommitRequest {
    * Unset: the commit is not fenced (admin operations on a live session).
    */
   fence?: ErasureFence;
+  /**
+   * Increments to the tenant's store-wide counters, applied in the same atomic step as the commit (and
+   * not again for a commit id already applied): the slot survival counts (`survival.reached.<age>`,
+   * `survival.ended.<age>`, see src/metrics/survival.ts). Returned by `stats()` under `counters`.
+   */
+  counters?: Record<string, number>;
 }
 
 /** Times (ms, the store's clock; 0 = never) of the latest erase of a session and of its user. */
@@ -149,6 +155,8 @@ export interface StoreStats {
   logbookEntries: number;
   /** `counters`: kept by the commit/erase scripts; `scan`: counted on demand (Redis Cluster, where no key spans hash slots). */
   source: 'counters' | 'scan';
+  /** The sums of every commit's `counters` increments (absent where the store cannot keep them: Redis Cluster). */
+  counters?: Record<string, number>;
 }
 
 /** One process's published dashboard buckets (see `putFleet`). */
@@ -247,6 +255,12 @@ export interface Store {
   ping?(): Promise<void>;
   /** A tenant's truth figures over the whole store (see `StoreStats`). */
   stats?(tenant: string): Promise<StoreStats>;
+  /**
+   * Bytes held by a random sample of at most `sample` of a tenant's sessions (slots, events and the
+   * session's logbook), one figure per session sampled; bounded cost whatever the number of sessions.
+   * Redis: `MEMORY USAGE` of each sampled session's keys; in-process: an estimate from its contents.
+   */
+  sampleSessionBytes?(tenant: string, sample: number): Promise<number[]>;
   /** Publishes one process's dashboard buckets for a tenant under `instance`, kept for `ttlMs`. */
   putFleet?(tenant: string, instance: string, payload: string, ttlMs: number): Promise<void>;
   /** Every instance's latest published buckets for a tenant (expired ones left out). */

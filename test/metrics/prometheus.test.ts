@@ -16,6 +16,7 @@ import { createTidemark } from '../../src/middleware/tidemark.js';
 import { StoreHealth } from '../../src/metrics/health.js';
 import { prometheusMetrics } from '../../src/metrics/prometheus.js';
 import { ControlledStore } from '../middleware/helpers.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 
 const PROMTOOL = '/usr/bin/promtool';
 const inCI = process.env.CI === 'true';
@@ -104,12 +105,28 @@ describe('prometheusMetrics on the real middleware', () => {
   it('reports the store truth figures from the store itself (in-process store)', async () => {
     const tm = createTidemark({ capacity: 4 });
     const m = await prometheusMetrics(tm, { registry: new client.Registry() });
+    let allocated = 0;
+    let capacityEvictions = 0;
+    tm.on('write', (e) => void (e.outcome === 'allocated' && allocated++));
+    tm.on('evict', (e) => void (e.reason === 'capacity' && capacityEvictions++));
     for (let i = 0; i < 9; i++) await tm.write({ session: `n${i % 3}`, text: FACTS[i % FACTS.length]!, role: 'user' });
+    // Two more facts each for one session, past its capacity of 4.
+    for (const text of ['My helmet is blue.', 'My frame is steel.', 'My tyres are 32 mm.', 'My dog is called Pip.']) await tm.write({ session: 'n0', text, role: 'user' });
     const stats = await tm.store.stats!('default');
     const parsed = parsePrometheusTextFormat(await m.metrics());
     expect(value(parsed, 'tidemark_store_sessions')).toBe(3);
     expect(value(parsed, 'tidemark_store_slots')).toBe(stats.slots);
     expect(value(parsed, 'tidemark_store_logbook_entries')).toBe(stats.logbookEntries);
+    // Survival counts: every bound exported (zeros included), equal to the store's; every allocated
+    // slot reached age 0, and the lifetimes that ended are the capacity evictions sent.
+    expect(value(parsed, 'tidemark_store_slot_age_reached_total', { age: '0', unit: 'turns' })).toBe(allocated);
+    let ended = 0;
+    for (const age of ['0', '1', '2', '4', '8', '16', '32', '64', '128', '256', '512', '1024']) {
+      expect(value(parsed, 'tidemark_store_slot_age_reached_total', { age, unit: 'turns' })).toBe(stats.counters?.[`survival.reached.${age}`] ?? 0);
+      ended += value(parsed, 'tidemark_store_slot_lifetime_ended_total', { age, unit: 'turns' });
+    }
+    expect(ended).toBe(capacityEvictions);
+    expect(capacityEvictions).toBeGreaterThan(0);
     m.stop();
     await tm.close();
   });
@@ -142,6 +159,60 @@ describe('prometheusMetrics on the real middleware', () => {
     expect(out.trim()).toBe('');
     health.stop();
     m.stop();
+    await tm.close();
+  });
+
+  (existsSync(PROMTOOL) || inCI ? it : it.skip)('labels allow-listed tenants by name and every other tenant as "other" (bounded, promtool clean)', async () => {
+    const tm = createTidemark({ capacity: 4 });
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), tenantLabels: ['nursery', 'workshop'] });
+    // 3 reads for the nursery, 2 for the workshop, 1 each for 4 tenants off the list.
+    for (let i = 0; i < 3; i++) await tm.read({ tenant: 'nursery', session: `n${i}`, text: 'When is the fern delivery?' });
+    for (let i = 0; i < 2; i++) await tm.read({ tenant: 'workshop', session: `w${i}`, text: 'Is my bike ready?' });
+    for (const t of ['tutor', 'bakery', 'choir', 'library']) await tm.read({ tenant: t, session: 's', text: 'Hello?' });
+    await tm.write({ tenant: 'nursery', session: 'n0', text: 'My name is Ilse.', role: 'user' });
+    const text = await m.metrics();
+    const parsed = parsePrometheusTextFormat(text);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'nursery' })).toBe(3);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'workshop' })).toBe(2);
+    expect(value(parsed, 'tidemark_reads_total', { result: 'miss', tenant: 'other' })).toBe(4);
+    expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated', tenant: 'nursery' })).toBe(1);
+    expect(value(parsed, 'tidemark_writes_total', { outcome: 'allocated', tenant: 'other' })).toBe(0);
+    // Only the listed ids and "other" appear, never a hash or an unlisted id.
+    const tenants = new Set(family(parsed, 'tidemark_reads_total').metrics.map((x) => x.labels?.tenant));
+    expect([...tenants].sort()).toEqual(['nursery', 'other', 'workshop']);
+    expect(text).not.toMatch(/tutor|bakery|choir|library/);
+    expect(execFileSync(PROMTOOL, ['check', 'metrics'], { input: text, encoding: 'utf8' }).trim()).toBe('');
+    m.stop();
+    await tm.close();
+  });
+
+  it('samples bytes per session from the store, at most every intervalMs, bounded by the sample', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, capacity: 4 });
+    let calls = 0;
+    const sample = store.sampleSessionBytes.bind(store);
+    store.sampleSessionBytes = (tenant, n) => (calls++, sample(tenant, n));
+    const m = await prometheusMetrics(tm, { registry: new client.Registry(), sessionBytes: { sample: 5, intervalMs: 60_000 } });
+    for (let i = 0; i < 8; i++) await tm.write({ session: `g${i}`, text: 'My fern is a maidenhair, potted in March.', role: 'user' });
+    const parsed = parsePrometheusTextFormat(await m.metrics());
+    expect(value(parsed, 'tidemark_store_sampled_sessions')).toBe(5);
+    // Each session holds one slot's typed arrays at least: capacity × dim float32 keys.
+    const bytes = value(parsed, 'tidemark_store_sampled_session_bytes');
+    expect(bytes).toBeGreaterThan(4 * tm.embedder.dim * 4);
+    // All 8 sessions alike: the sample's mean is any one session's estimate.
+    const [one] = await sample('default', 1);
+    expect(bytes).toBe(one);
+    await m.metrics();
+    expect(calls).toBe(1); // the second scrape within intervalMs reuses the sample
+    m.stop();
+    await tm.close();
+  });
+
+  it('refuses a tenant list that would not bound the label', async () => {
+    const tm = createTidemark();
+    await expect(prometheusMetrics(tm, { tenantLabels: ['other'] })).rejects.toThrow(/tenantLabels holds "other"/);
+    await expect(prometheusMetrics(tm, { tenantLabels: Array.from({ length: 51 }, (_, i) => `t${i}`) })).rejects.toThrow(/at most 50/);
+    await expect(prometheusMetrics(new EventEmitter<TidemarkEvents>(), { tenantLabels: ['nursery'] })).rejects.toThrow(/hashTenant/);
     await tm.close();
   });
 

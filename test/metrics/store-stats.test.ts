@@ -48,7 +48,7 @@ describe('store truth figures', () => {
     const truth = await counted(store, sessions);
     expect(truth.sessions).toBe(3);
     expect(truth.slots).toBeGreaterThan(0);
-    const { source, ...figures } = await store.stats('default');
+    const { source, counters: _survival, ...figures } = await store.stats('default');
     expect(figures).toEqual(truth);
     expect(source).toBe('counters');
   });
@@ -74,13 +74,32 @@ describe.skipIf(down !== null)(`redis store truth figures${down ? ` (skipped: ${
     const truth = await counted(store, sessions);
     expect(truth.sessions).toBe(3);
     expect(truth.logbookEntries).toBeGreaterThan(0);
-    const { source, ...figures } = await store.stats('default');
+    const { source, counters: _survival, ...figures } = await store.stats('default');
     expect(source).toBe('counters');
     expect(figures).toEqual(truth);
     // A logbook delete moves the counter too.
     const [one] = await store.listLogbook({ tenant: 'default', session: 'bk-1' }, { limit: 1 });
     expect(await store.deleteLogbook({ tenant: 'default', session: 'bk-1' }, [one!.id])).toBe(1);
     expect((await store.stats('default')).logbookEntries).toBe(truth.logbookEntries - 1);
+  });
+
+  it('samples bytes per session with MEMORY USAGE, bounded by the sample size', async () => {
+    const store = new RedisStore({ redis: client, prefix });
+    const tm = createTidemark({ store, tenant: 'sizes', capacity: 4 });
+    const sessions = ['z-1', 'z-2', 'z-3'];
+    for (let i = 0; i < 12; i++) await tm.write({ session: sessions[i % 3]!, text: FACTS[i % FACTS.length]!, role: 'user' });
+    // Every session sampled (3 < 10): the figures equal MEMORY USAGE summed over each session's keys.
+    const direct: number[] = [];
+    for (const s of sessions) {
+      const keys = await scanKeys(client, `${prefix}{sizes:${s}}:*`);
+      let n = 0;
+      for (const k of keys) if (!/:(gone|cids|quarantine)$/.test(k)) n += Number(await client.call('MEMORY', 'USAGE', k));
+      direct.push(n);
+    }
+    expect(direct.every((n) => n > 0)).toBe(true);
+    expect((await store.sampleSessionBytes('sizes', 10)).sort((a, b) => a - b)).toEqual(direct.sort((a, b) => a - b));
+    expect(await store.sampleSessionBytes('sizes', 2)).toHaveLength(2);
+    expect(await store.sampleSessionBytes('no-such-tenant', 5)).toEqual([]);
   });
 
   it('fleet records are shared by every process on the store and expire', async () => {

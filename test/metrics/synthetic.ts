@@ -1,5 +1,7 @@
-// Synthetic tidemark events for metrics/collector/dashboard tests: a plausible turn (read, gate, write,
-// commit, sometimes evict) of one session, emitted on any emitter typed with TidemarkEvents.
+// Synthetic tidemark events: a plausible turn (read, gate, write, commit, sometimes evict) of one
+// session, emitted on any emitter typed with TidemarkEvents. The metrics, collector, retention and
+// dashboard tests are driven by the real middleware; this stream is left for the deprecated-entry test,
+// which checks the old names over a known, fixed stream.
 
 import type { EventEmitter } from 'eventemitter3';
 import type { TidemarkEvents } from '../../src/middleware/events.js';

@@ -32,16 +32,21 @@ function quickStart(): string {
   return block;
 }
 
-// Uses of every value export of the entries that need no optional peer.
+// Uses of every value export of the entries that need no optional peer, and of the HTTP adapter and
+// the metrics subpath, whose declarations must not need prom-client (it is loaded at run time only).
 const WITHOUT_PEERS = `
 import { createTidemark, inProcessStore, hashingEmbedder, TidemarkError, ErrorCodes, type MemoryContext, type Store } from 'tidemark';
 import { transformersEmbedder, type TransformersEmbedderOptions } from 'tidemark/transformers';
+import { createHttpAdapter, type HttpAdapterOptions } from 'tidemark/http';
+import { prometheusMetrics, type PrometheusMetrics, type MetricsRegistry } from 'tidemark/prometheus';
 const store: Store = inProcessStore();
 const memory = createTidemark({ store, embedder: hashingEmbedder({ dim: 64 }), hashKey: 'k', capacity: 16 });
 const ctx: Promise<MemoryContext> = memory.read({ session: 's1', text: 'hello' });
 const code: string = ErrorCodes.CONFIG;
 const options: TransformersEmbedderOptions = { model: 'invented/model' };
-export { ctx, code, options, transformersEmbedder, TidemarkError };
+const httpOptions: HttpAdapterOptions = { tidemark: memory, handler: (input) => String(input.text), metrics: false };
+const later = (m: PrometheusMetrics): MetricsRegistry => m.registry;
+export { ctx, code, options, transformersEmbedder, TidemarkError, createHttpAdapter, httpOptions, prometheusMetrics, later };
 `;
 
 // Every subpath, including those whose types come from an optional peer.
@@ -51,9 +56,13 @@ import { redisSlotStore, REDIS_CLIENT_OPTIONS, type RedisSlotStoreOptions } from
 import { createHttpAdapter, type HttpAdapterOptions } from 'tidemark/http';
 import { prometheusMetrics, type PrometheusMetrics } from 'tidemark/prometheus';
 import { transformersEmbedder } from 'tidemark/transformers';
+import * as client from 'prom-client';
 const tm = createTidemark({});
 const redisOptions: RedisSlotStoreOptions = { prefix: 'app:' };
-const metrics: Promise<PrometheusMetrics> = prometheusMetrics(tm);
+// prom-client's own Registry and module fit the structural option types.
+const registry = new client.Registry();
+const metrics: Promise<PrometheusMetrics> = prometheusMetrics(tm, { registry, client });
+void metrics.then((m) => client.Registry.merge([m.registry as client.Registry, new client.Registry()]));
 const httpOptions: HttpAdapterOptions = { tidemark: tm, handler: (input) => String(input.text) };
 export { redisSlotStore, REDIS_CLIENT_OPTIONS, createHttpAdapter, redisOptions, metrics, httpOptions, transformersEmbedder };
 `;

@@ -145,6 +145,11 @@ run('two serve processes on one Redis through an outage', () => {
     } finally {
       client.disconnect();
     }
+    // Store-kept figures read alike from both processes: slot survival counts and sampled session size.
+    const reached = await metric(a.url, 'tidemark_store_slot_age_reached_total', { age: '0', unit: 'turns' });
+    expect(reached).toBeGreaterThan(0);
+    expect(await metric(b.url, 'tidemark_store_slot_age_reached_total', { age: '0', unit: 'turns' })).toBe(reached);
+    expect(await metric(a.url, 'tidemark_store_sampled_session_bytes')).toBeGreaterThan(0);
     // The outbox drained after the return, and said so.
     expect([...a.logs, ...b.logs].some((l) => l.event === 'outbox_drained')).toBe(true);
   }, 120_000);
