@@ -93,7 +93,7 @@ describe.skipIf(down !== null)(`redis store truth figures${down ? ` (skipped: ${
     for (const s of sessions) {
       const keys = await scanKeys(client, `${prefix}{sizes:${s}}:*`);
       let n = 0;
-      for (const k of keys) if (!/:(gone|cids|quarantine)$/.test(k)) n += Number(await client.call('MEMORY', 'USAGE', k));
+      for (const k of keys) if (!/:(gone|quarantine)$/.test(k)) n += Number(await client.call('MEMORY', 'USAGE', k));
       direct.push(n);
     }
     expect(direct.every((n) => n > 0)).toBe(true);
