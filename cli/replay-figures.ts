@@ -81,7 +81,7 @@ export interface ReplaySummary extends RecallFigures {
   /** Logbook entries at the end, over all scopes. */
   logbook_entries: number;
   /** @deprecated since 0.2: logbook entries other than turns (the values that left working memory). */
-  archive_items: number;
+  demoted_items: number;
   tiers: TierSummary;
   /** Read latency (µs, embedding included) over turn and probe reads. */
   read_us: { p50: number; p99: number };

@@ -36,9 +36,9 @@ export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, Erase
 export { InProcessStore, inProcessStore, IN_PROCESS_STORE_DEFAULTS } from './store/in-process.js';
 export type { InProcessStoreOptions } from './store/in-process.js';
 
-export type { VectorIndex, VectorMatch } from './archive/archive.js';
-export { createVectorIndex, VECTOR_INDEX_DEFAULTS } from './archive/index.js';
-export type { VectorIndexOptions } from './archive/index.js';
+export type { VectorIndex, VectorMatch } from './vectors/vector-index.js';
+export { createVectorIndex, VECTOR_INDEX_DEFAULTS } from './vectors/index.js';
+export type { VectorIndexOptions } from './vectors/index.js';
 
 export type { Extractor, Candidate } from './memory/extract.js';
 export { RuleExtractor } from './memory/extract.js';
@@ -84,7 +84,7 @@ export type {
   ArchiveHit,
   Archive,
   ArchiveMatch,
-  ArchiveOptions,
+  VectorIndexOptions,
   DeprecatedTidemarkOptions,
   DeprecatedPrometheusMetrics,
 } from './deprecated.js';

@@ -9,7 +9,7 @@
 // conventions; splitting the logbook scope cache into its own file is the natural next cut.
 
 import { randomBytes } from 'node:crypto';
-import type { VectorIndexOptions } from '../../src/archive/index.js';
+import type { VectorIndexOptions } from '../../src/vectors/index.js';
 import type { DeprecatedStoreOptions } from '../../src/deprecated.js';
 import { logbookIndexFor } from '../../src/store/in-process.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';

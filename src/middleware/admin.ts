@@ -150,7 +150,7 @@ export class Admin {
     return { slots: n };
   }
 
-  /** Emits `evict` (reason `erased`, not archived) for each slot of a session about to be erased. */
+  /** Emits `evict` (reason `erased`, not kept in the logbook) for each slot of a session about to be erased. */
   private async announceErased(ref: SessionRef): Promise<void> {
     const core = this.core;
     if (core.events.listenerCount('evict') === 0) return;
@@ -166,7 +166,7 @@ export class Admin {
     for (let i = 0; i < t.capacity; i++) {
       if (!t.isUsed(i)) continue;
       core.events.emit('evict', {
-        ...base, slot: i, id: t.ids[i]!, reason: 'erased', archived: false, lifetime: snap.clock - t.created[i]!,
+        ...base, slot: i, id: t.ids[i]!, reason: 'erased', logged: false, lifetime: snap.clock - t.created[i]!,
         lifetimeMs: base.atMs - t.createdMs[i]!, halfLife: t.halfLife[i]!, strength: t.strength[i]!,
       });
     }

@@ -188,7 +188,7 @@ export class Corrections {
     let slot = -1;
     for (let i = 0; i < snap.table.capacity; i++) if (snap.table.ids[i] === rec.id) slot = i;
     core.events.emit('evict', {
-      ...base, slot, id: rec.id, reason: 'erased', archived: false, lifetime: snap.clock - rec.created,
+      ...base, slot, id: rec.id, reason: 'erased', logged: false, lifetime: snap.clock - rec.created,
       lifetimeMs: base.atMs - rec.createdMs, halfLife: rec.halfLife, strength: rec.strength,
     });
   }

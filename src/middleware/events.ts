@@ -3,7 +3,7 @@
 // feed metrics. Emitting with no listener costs one check.
 
 import type { TidemarkError } from '../errors.js';
-import type { ArchiveReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
+import type { DemotionReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
 
 /** Fields common to every per-session event. */
 export interface SessionEventBase {
@@ -61,7 +61,7 @@ export interface OverwriteEvent extends SessionEventBase {
   slot: number;
   /** Revision id now in the slot. */
   id: string;
-  /** Revision id moved to the archive as superseded. */
+  /** Revision id moved to the logbook as superseded. */
   supersededId: string;
   /** Cosine between the new key and the slot's key. */
   cosine: number;
@@ -72,7 +72,7 @@ export interface EvictEvent extends SessionEventBase {
   id: string;
   reason: EvictReason;
   /** Where the evicted value went. */
-  archived: boolean;
+  logged: boolean;
   /** Lifetime in session clock units (turns or seconds) and in wall-clock ms. */
   lifetime: number;
   lifetimeMs: number;
@@ -92,7 +92,7 @@ export interface GateEvent extends SessionEventBase {
 export interface CommitEvent extends SessionEventBase {
   ops: number;
   /** Values demoted to the logbook (superseded or evicted). */
-  archived: number;
+  demoted: number;
   /** Logbook entries added: turns kept plus values demoted. */
   logbook: number;
   /** Conflicts retried before success. */
@@ -133,8 +133,8 @@ export interface OutboxEvent {
 }
 
 /** A value left working memory for the logbook. */
-export interface ArchiveEvent extends SessionEventBase {
-  reason: ArchiveReason;
+export interface DemoteEvent extends SessionEventBase {
+  reason: DemotionReason;
   id: string;
 }
 
@@ -187,7 +187,7 @@ export interface TidemarkEvents {
   evict: (e: EvictEvent) => void;
   gate: (e: GateEvent) => void;
   commit: (e: CommitEvent) => void;
-  archive: (e: ArchiveEvent) => void;
+  archive: (e: DemoteEvent) => void;
   logbook: (e: LogbookEvent) => void;
   degraded: (e: DegradedEvent) => void;
   outbox: (e: OutboxEvent) => void;

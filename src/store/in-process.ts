@@ -6,7 +6,7 @@
 
 import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
-import type { VectorIndexOptions } from '../archive/index.js';
+import type { VectorIndexOptions } from '../vectors/index.js';
 import type { DeprecatedStoreOptions } from '../deprecated.js';
 import { ConfigError, ErrorCodes, StoreError } from '../errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';

@@ -40,12 +40,12 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
   }
   if (t.evict) {
     bus.emit('evict', {
-      ...base, slot: t.slot ?? 0, id: 'old', reason: t.evict, archived: t.evict !== 'erased', lifetime: 6, lifetimeMs: 6_000,
+      ...base, slot: t.slot ?? 0, id: 'old', reason: t.evict, logged: t.evict !== 'erased', lifetime: 6, lifetimeMs: 6_000,
       halfLife: 10, strength: 0.05,
     });
   }
   bus.emit('commit', {
-    ...base, ops: 1, archived: t.evict && t.evict !== 'erased' ? 1 : 0, logbook: 2, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
+    ...base, ops: 1, demoted: t.evict && t.evict !== 'erased' ? 1 : 0, logbook: 2, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
     embedUs: 60, slotsInUse, capacity, version: 1,
   });
 }
