@@ -470,7 +470,7 @@ async function usedMemory(client: RedisClient): Promise<number> {
 
 /**
  * Fills the store with `count` idle sessions and reports their size. Each is a copy of one of 64
- * template sessions that really had `turns` exchanges through tidemark (slots, archive items and
+ * template sessions that really had `turns` exchanges through tidemark (slots, logbook entries and
  * event stream as the core left them), committed through the store with many commits in flight
  * (ioredis pipelines them on its connection). Afterwards every key is deleted.
  */

@@ -158,7 +158,7 @@ async function phase(name: string, client: Redis | Cluster, turnsPerSession: num
     commit_ms_p50: r3(pct(timed.commits, 50)),
     commit_ms_p99: r3(pct(timed.commits, 99)),
     bytes_per_session: Math.round(working),
-    bytes_per_session_with_events_and_archive: Math.round(total),
+    bytes_per_session_with_events_and_logbook: Math.round(total),
     store_load_ms_p50: r3(pct(timed.loads, 50)),
     store_load_ms_p99: r3(pct(timed.loads, 99)),
     turns,
@@ -168,11 +168,11 @@ async function phase(name: string, client: Redis | Cluster, turnsPerSession: num
 }
 
 /** Raw ioredis doing what a turn costs the store: the same count of round trips, same payload sizes. */
-async function ceiling(client: Redis, turnsPerSession: number, shape: { loads: number; commits: number; searches: number; commitBytes: number }, archiveItemBytes: number): Promise<Figures> {
+async function ceiling(client: Redis, turnsPerSession: number, shape: { loads: number; commits: number; searches: number; commitBytes: number }, logbookItemBytes: number): Promise<Figures> {
   const prefix = `tidemark-bench:ceiling-${process.pid}-${Date.now().toString(36)}:`;
   const commitPayload = Buffer.alloc(Math.round(shape.commitBytes), 7);
   const small = Buffer.alloc(24, 1); // an unchanged-session reply: version + epoch
-  const item = Buffer.alloc(archiveItemBytes, 3);
+  const item = Buffer.alloc(logbookItemBytes, 3);
   const reads: number[] = [];
   const commits: number[] = [];
   await Promise.all(Array.from({ length: CONCURRENCY }, async (_, i) => {
@@ -181,7 +181,7 @@ async function ceiling(client: Redis, turnsPerSession: number, shape: { loads: n
   }));
   const t0 = performance.now();
   await Promise.all(Array.from({ length: CONCURRENCY }, async (_, i) => {
-    // A turn's read is one load plus its archive searches; its write is the remaining loads plus the commit.
+    // A turn's read is one load plus its logbook searches; its write is the remaining loads plus the commit.
     const L = Math.round(shape.loads);
     const S = Math.round(shape.searches);
     const C = Math.round(shape.commits);
@@ -286,7 +286,7 @@ export default async function main(argv: string[]): Promise<void> {
     ...figures,
     sequential: { read_ms_p50: seq.read_ms_p50, read_ms_p99: seq.read_ms_p99, commit_ms_p50: seq.commit_ms_p50, commit_ms_p99: seq.commit_ms_p99, store_load_ms_p50: seq.store_load_ms_p50, turns_per_s: seq.turns_per_s },
     core_memory_store_turns_per_s: core,
-    round_trips_per_turn: { loads: r3(shape.loads), commits: r3(shape.commits), archive_searches: r3(shape.searches) },
+    round_trips_per_turn: { loads: r3(shape.loads), commits: r3(shape.commits), logbook_searches: r3(shape.searches) },
     cluster,
     ceiling: { ...ceil, overhead_ratio: r3(ceil.turns_per_s / one.turns_per_s) },
     targets: { turns_per_s: 10_000, commit_ms_p99: 2, bytes_per_session: 40_960 },

@@ -268,7 +268,7 @@ export async function runReplay(opts: ReplayOptions): Promise<ReplayResult> {
       evictions,
       slots_in_use: slotsInUse,
       logbook_entries: logbookEntries,
-      archive_items: logbookEntries - entries.turn,
+      demoted_items: logbookEntries - entries.turn,
       tiers: {
         working: { slots_in_use: slotsInUse, capacity: tm.params.capacity, writes: { ...writes, ambiguous }, evictions: { ...evictions } },
         logbook: {

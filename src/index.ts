@@ -36,9 +36,9 @@ export type { Store, SessionSnapshot, SlotOp, CommitRequest, CommitResult, Erase
 export { InProcessStore, inProcessStore, IN_PROCESS_STORE_DEFAULTS } from './store/in-process.js';
 export type { InProcessStoreOptions } from './store/in-process.js';
 
-export type { VectorIndex, VectorMatch } from './archive/archive.js';
-export { createVectorIndex, VECTOR_INDEX_DEFAULTS } from './archive/index.js';
-export type { VectorIndexOptions } from './archive/index.js';
+export type { VectorIndex, VectorMatch } from './vectors/vector-index.js';
+export { createVectorIndex, VECTOR_INDEX_DEFAULTS } from './vectors/index.js';
+export type { VectorIndexOptions } from './vectors/index.js';
 
 export type { Extractor, Candidate } from './memory/extract.js';
 export { RuleExtractor } from './memory/extract.js';
@@ -67,24 +67,4 @@ export {
 export type { ErrorCode } from './errors.js';
 
 // Old names, kept for one minor version: see src/deprecated.ts.
-export {
-  MemoryStore,
-  memoryStore,
-  MEMORY_STORE_DEFAULTS,
-  createArchive,
-  ARCHIVE_DEFAULTS,
-  prometheusMetrics,
-  PROMETHEUS_METRICS_DEFAULTS,
-  DURATION_BUCKETS_SECONDS,
-} from './deprecated.js';
-export type {
-  MemoryStoreOptions,
-  ArchiveScope,
-  ArchiveItem,
-  ArchiveHit,
-  Archive,
-  ArchiveMatch,
-  ArchiveOptions,
-  DeprecatedTidemarkOptions,
-  DeprecatedPrometheusMetrics,
-} from './deprecated.js';
+export * from './deprecated.js';

@@ -4,11 +4,11 @@
 /** Who spoke a turn. */
 export type Role = 'user' | 'assistant' | 'system';
 
-/** Why a slot left working memory. `erased` items are deleted, never archived. */
+/** Why a slot left working memory. `erased` items are deleted, never kept in the logbook. */
 export type EvictReason = 'capacity' | 'decayed' | 'expired' | 'erased';
 
-/** Why an item is in the archive: it was replaced by a newer value, or evicted. */
-export type ArchiveReason = 'superseded' | 'capacity' | 'decayed' | 'expired';
+/** Why a value was demoted to the logbook: it was replaced by a newer value, or evicted. */
+export type DemotionReason = 'superseded' | 'capacity' | 'decayed' | 'expired';
 
 /**
  * Outcome of one read: the top item is relevant (by the calibrated hit threshold) and is a slot
@@ -33,7 +33,7 @@ export interface TurnInput {
   at?: string | number | Date;
   /** Free-form speaker label (kept as provenance detail only). */
   speaker?: string;
-  /** Stable user id; when given, the archive is shared by all sessions of that user. */
+  /** Stable user id; when given, the logbook is shared by all sessions of that user. */
   user?: string;
   /** Tenant id; overrides the instance's tenant. */
   tenant?: string;
@@ -43,7 +43,7 @@ export interface TurnInput {
 export interface SessionRef {
   tenant: string;
   session: string;
-  /** Present when the session belongs to a known user (archive per user). */
+  /** Present when the session belongs to a known user (logbook per user). */
   user?: string;
 }
 
@@ -103,7 +103,7 @@ export interface SlotRecord {
  * Why an entry is in the logbook: a turn as it was said (`turn`), or a slot value that left working
  * memory — replaced by a newer value (`superseded`), or evicted (`capacity`, `decayed`, `expired`).
  */
-export type LogbookKind = 'turn' | ArchiveReason;
+export type LogbookKind = 'turn' | DemotionReason;
 
 /** A resolved date a turn mentions (see `resolveDates`). */
 export interface MentionedDate {
@@ -172,7 +172,7 @@ export interface StoredEvent {
   id: string;
   clock: number;
   atMs: number;
-  reason?: EvictReason | ArchiveReason;
+  reason?: EvictReason | DemotionReason;
 }
 
 /** One item a read returns. */
@@ -219,7 +219,7 @@ export interface RecallItem {
   /** Ambiguous updates: the revision ids of the values it may replace. */
   maybeReplaces?: string[];
   /** @deprecated since 0.2: the logbook kind of a demoted value; use `kind`. */
-  reason?: ArchiveReason;
+  reason?: DemotionReason;
 }
 
 /** Everything a read did, for logs (no text), debugging and dashboards. */

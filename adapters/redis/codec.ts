@@ -10,7 +10,7 @@
 
 import * as zlib from 'node:zlib';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
-import type { ArchiveReason, LogbookEntry, LogbookKind, MentionedDate, Role, SlotRecord } from '../../src/types.js';
+import type { DemotionReason, LogbookEntry, LogbookKind, MentionedDate, Role, SlotRecord } from '../../src/types.js';
 
 /** Bumped when the layout below changes; a reader refuses versions it does not know. */
 export const PAYLOAD_FORMAT = 2;
@@ -18,7 +18,7 @@ export const PAYLOAD_FORMAT = 2;
 const PAYLOAD_FORMAT_1 = 1;
 export const KIND_SLOT = 1;
 /** A 0.1 archive item (read only). */
-export const KIND_ARCHIVE = 2;
+export const KIND_DEMOTED_V1 = 2;
 export const KIND_LOGBOOK = 3;
 /** A logbook entry in the compact layout (see encodeLogbook). */
 export const KIND_LOGBOOK_COMPACT = 4;
@@ -28,7 +28,7 @@ export type KeyFormat = 'int8' | 'float32';
 const KEY_FLOAT32 = 0;
 const KEY_INT8 = 1;
 
-const ARCHIVE_REASONS: readonly ArchiveReason[] = ['superseded', 'capacity', 'decayed', 'expired'];
+const DEMOTION_REASONS: readonly DemotionReason[] = ['superseded', 'capacity', 'decayed', 'expired'];
 const LOGBOOK_KINDS: readonly LogbookKind[] = ['turn', 'superseded', 'capacity', 'decayed', 'expired'];
 const ROLES: readonly Role[] = ['user', 'assistant', 'system'];
 const GRAINS: readonly MentionedDate['grain'][] = ['day', 'week', 'month', 'year'];
@@ -406,8 +406,8 @@ export function encodeLogbook(e: LogbookEntry, user: string | undefined, format:
  * session equal to it, so one read without `home` is corrupt.
  */
 export function decodeLogbook(buf: Buffer, what: string, home?: LogbookHome): LogbookEntry {
-  const r = open(buf, KIND_LOGBOOK, what, [KIND_LOGBOOK, KIND_ARCHIVE, KIND_LOGBOOK_COMPACT]);
-  if (buf[1] === KIND_ARCHIVE) return decodeArchiveV1(r);
+  const r = open(buf, KIND_LOGBOOK, what, [KIND_LOGBOOK, KIND_DEMOTED_V1, KIND_LOGBOOK_COMPACT]);
+  if (buf[1] === KIND_DEMOTED_V1) return decodeDemotedV1(r);
   const compact = buf[1] === KIND_LOGBOOK_COMPACT;
   const flags = r.u8();
   const flags2 = compact ? r.u8() : LB2_TENANT | LB2_SESSION | LB2_AT_F64 | LB2_CREATED | LB2_CREATED_F64 | LB2_CLOCK_F64;
@@ -468,15 +468,15 @@ const ARCH_USER = 1;
 const ARCH_SUCCESSOR = 2;
 
 /** A 0.1 archive item: an evicted or superseded slot value. */
-function decodeArchiveV1(r: Reader): LogbookEntry {
+function decodeDemotedV1(r: Reader): LogbookEntry {
   const flags = r.u8();
-  const reason = ARCHIVE_REASONS[r.u8()];
-  if (reason === undefined) r.fail('unknown archive reason');
+  const reason = DEMOTION_REASONS[r.u8()];
+  if (reason === undefined) r.fail('unknown demotion reason');
   const strength = r.f64();
   const halfLife = r.f64();
   const clock = r.f64();
   const createdMs = r.f64();
-  const archivedMs = r.f64();
+  const demotedMs = r.f64();
   const id = r.str();
   const tenant = r.str();
   const session = r.str();
@@ -489,7 +489,7 @@ function decodeArchiveV1(r: Reader): LogbookEntry {
   for (let i = 0; i < n; i++) provenance.push(r.str());
   const key = r.key();
   r.end();
-  const e: LogbookEntry = { id, kind: reason!, tenant, session, key, keyText, value, provenance, strength, halfLife, clock, createdMs, atMs: archivedMs, seq: 0 };
+  const e: LogbookEntry = { id, kind: reason!, tenant, session, key, keyText, value, provenance, strength, halfLife, clock, createdMs, atMs: demotedMs, seq: 0 };
   if (user !== undefined) e.user = user;
   if (successor !== undefined) e.successor = successor;
   return e;

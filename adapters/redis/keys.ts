@@ -29,15 +29,15 @@ export function escapeGlob(s: string): string {
 
 /** The keys of one session, in the order the Lua scripts expect them. */
 export interface SessionKeys {
-  /** Hash: v (version), ep (epoch), c (clock), n (turns), cap, dim, u (user), as/au (archive epochs), rc (recent commit ids). */
+  /** Hash: v (version), ep (epoch), c (clock), n (turns), cap, dim, u (user), as/au (logbook epochs of the session and user scopes), rc (recent commit ids). */
   meta: string;
   /** Hash: slot index -> slot payload. */
   slots: string;
   /** Stream of events, field `e` = JSON. */
   events: string;
-  /** Hash: item id -> archive payload, items of the session scope. */
+  /** Hash: entry id -> logbook entry payload, items of the session scope. */
   arch: string;
-  /** Hash: item id -> archive payload, items this session put in its user's scope. */
+  /** Hash: entry id -> logbook entry payload, items this session put in its user's scope. */
   uarch: string;
   /** Lists of the item ids appended to arch / uarch, in order (readers fetch only the new tail). */
   alog: string;

@@ -9,8 +9,8 @@
 // conventions; splitting the logbook scope cache into its own file is the natural next cut.
 
 import { randomBytes } from 'node:crypto';
-import type { VectorIndexOptions } from '../../src/archive/index.js';
-import type { DeprecatedStoreOptions } from '../../src/deprecated.js';
+import type { VectorIndexOptions } from '../../src/vectors/index.js';
+import type { DeprecatedStoreOptions } from '../../src/deprecated-fields.js';
 import { logbookIndexFor } from '../../src/store/in-process.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';

@@ -6,8 +6,8 @@
 // per scope. A search walks the postings of the query's rarer terms and looks up the common ones
 // (see search), not every entry.
 
-import type { Archive } from '../archive/archive.js';
-import { createArchive, type ArchiveOptions } from '../archive/index.js';
+import type { VectorIndex } from '../vectors/vector-index.js';
+import { createVectorIndex, type VectorIndexOptions } from '../vectors/index.js';
 import { bm25Idf, bm25Term } from '../memory/bm25.js';
 import { dateTerms } from '../memory/dates.js';
 import { READ_DEFAULTS, type ReadParams } from '../memory/params.js';
@@ -172,7 +172,7 @@ export interface LogbookIndexOptions {
   /** Keep a vector index over entries that carry a vector. @default true */
   vectors?: boolean;
   /** Options of the vector index (exact scan, HNSW past a size). */
-  vectorIndex?: ArchiveOptions;
+  vectorIndex?: VectorIndexOptions;
 }
 
 /** The index of one scope (see module comment). */
@@ -203,7 +203,7 @@ export class LogbookIndex {
   private readonly speakers = new Map<string, Map<string, number>>();
   /** session -> turn id -> ids of the superseded values that turn stated (their newest source). */
   private readonly staleTurns = new Map<string, Map<string, Set<string>>>();
-  private vectorIndex: Archive | null = null;
+  private vectorIndex: VectorIndex | null = null;
   // Scratch arrays of a search, reused (searches of one index never overlap: they are synchronous).
   private scratch = new Float64Array(64);
   /** First document number that may be live (see `oldest`). */
@@ -296,7 +296,7 @@ export class LogbookIndex {
       set.add(entry.id);
     }
     if (entry.key && this.o.vectors) {
-      this.vectorIndex ??= createArchive(entry.key.length, this.o.vectorIndex);
+      this.vectorIndex ??= createVectorIndex(entry.key.length, this.o.vectorIndex);
       // Vectors of another dimension (an embedder switch) stay out of the dense list until migrated.
       if (this.vectorIndex.dim === entry.key.length) this.vectorIndex.add(entry.id, entry.key);
     }

@@ -43,7 +43,7 @@ export function queryTermsOf(words: readonly string[]): string[] {
   return content.length > 0 ? content : words.slice();
 }
 
-/** BM25 statistics of a slot's (or archive item's) text: the content words of its key and value. */
+/** BM25 statistics of a slot's (or logbook entry's) text: the content words of its key and value. */
 export function textStats(keyText: string, value: string): DocStats {
   return docStats(contentWords(`${keyText} ${value}`));
 }
@@ -178,7 +178,7 @@ export function attend(table: SlotTable, now: number, q: Float32Array, terms: re
   }
   const best = selected[0];
   const hit = best !== undefined && (cosine[best]! >= p.hitCosine || lexicalRaw[best]! >= p.minLexical);
-  // On a miss the relevant items are still returned (the caller also searches the archive): a weak
+  // On a miss the relevant items are still returned (the caller also searches the logbook): a weak
   // match is better context than none, and the trace says it was a miss.
   return { cosine, lexical, lexicalRaw, strength, score, weight, selected, used, topCosine, topWeight, entropy, hit };
 }

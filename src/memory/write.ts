@@ -14,7 +14,7 @@
 // none of them and is kept beside them, newest first (`maybeReplaces`).
 
 import type { SlotOp } from '../store/store.js';
-import type { ArchiveReason, EvictReason, LogbookEntry, Role, SlotRecord, StoredEvent, WriteOutcome } from '../types.js';
+import type { DemotionReason, EvictReason, LogbookEntry, Role, SlotRecord, StoredEvent, WriteOutcome } from '../types.js';
 import { decayed, reinforce } from './decay.js';
 import type { Candidate } from './extract.js';
 import { gateFeatures, gateScore, type GateFeatures } from './gate.js';
@@ -84,14 +84,14 @@ export interface Eviction {
   slot: number;
   record: SlotRecord;
   reason: EvictReason;
-  archived: boolean;
+  logged: boolean;
   strength: number;
 }
 
 export interface WritePlan {
   ops: SlotOp[];
   /** Values leaving working memory (superseded or evicted), as logbook entries. */
-  archive: LogbookEntry[];
+  demoted: LogbookEntry[];
   events: StoredEvent[];
   outcomes: CandidateOutcome[];
   evictions: Eviction[];
@@ -147,7 +147,7 @@ function dateShape(expr: string): 'weekday' | 'calendar' | 'other' {
 export function demotedEntry(
   rec: SlotRecord,
   where: { tenant: string; session: string; user?: string },
-  reason: ArchiveReason,
+  reason: DemotionReason,
   strength: number,
   clock: number,
   atMs: number,
@@ -174,9 +174,6 @@ export function demotedEntry(
   };
 }
 
-/** @deprecated since 0.2: use `demotedEntry`. */
-export const archiveItemOf = demotedEntry;
-
 /** Plans the changes of one turn. Pure: reads `table`, returns operations. */
 export function planWrite(input: WritePlanInput): WritePlan {
   const { table, now, nowMs, params: p } = input;
@@ -185,7 +182,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
   const pending = new Map<number, SlotRecord | null>();
   /** Slots written by this plan, and the turn that wrote them: a turn never overwrites itself. */
   const writtenBy = new Map<number, string>();
-  const plan: WritePlan = { ops: [], archive: [], events: [], outcomes: [], evictions: [], reinforced: [], promoted: [], slotsInUse: 0 };
+  const plan: WritePlan = { ops: [], demoted: [], events: [], outcomes: [], evictions: [], reinforced: [], promoted: [], slotsInUse: 0 };
 
   const used = (i: number): boolean => (pending.has(i) ? pending.get(i) !== null : table.isUsed(i));
   const record = (i: number): SlotRecord | null => (pending.has(i) ? pending.get(i)! : table.get(i));
@@ -229,13 +226,13 @@ export function planWrite(input: WritePlanInput): WritePlan {
     pending.set(i, rec);
   };
   const where = { tenant: input.tenant, session: input.session, ...(input.user ? { user: input.user } : {}) };
-  const toLogbook = (rec: SlotRecord, reason: ArchiveReason, strength: number, successor?: string): LogbookEntry =>
+  const toLogbook = (rec: SlotRecord, reason: DemotionReason, strength: number, successor?: string): LogbookEntry =>
     demotedEntry(rec, where, reason, strength, now, nowMs, successor);
   const evict = (i: number, reason: EvictReason): void => {
     const rec = record(i)!;
     const s = strengthNow(i);
-    plan.archive.push(toLogbook(rec, reason as ArchiveReason, s));
-    plan.evictions.push({ slot: i, record: rec, reason, archived: true, strength: s });
+    plan.demoted.push(toLogbook(rec, reason as DemotionReason, s));
+    plan.evictions.push({ slot: i, record: rec, reason, logged: true, strength: s });
     plan.events.push({ type: 'evict', slot: i, id: rec.id, clock: now, atMs: nowMs, reason });
     set(i, null);
   };
@@ -449,7 +446,7 @@ export function planWrite(input: WritePlanInput): WritePlan {
       const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
       for (let j = 0; j < dim; j++) key[j] = key[j]! * inv;
       const provenance = cite(kc.turn, provenanceTail);
-      plan.archive.push(toLogbook(old, 'superseded', strengthNow(target), id));
+      plan.demoted.push(toLogbook(old, 'superseded', strengthNow(target), id));
       const rec: SlotRecord = {
         id,
         key,

@@ -2,8 +2,9 @@
 // a keyed hash of the session id — never message text or raw ids — so they are safe to log and to
 // feed metrics. Emitting with no listener costs one check.
 
+import type { DeprecatedCommitEventFields, DeprecatedEvents, DeprecatedEvictEventFields, DeprecatedReadEventFields } from '../deprecated-fields.js';
 import type { TidemarkError } from '../errors.js';
-import type { ArchiveReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
+import type { DemotionReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
 
 /** Fields common to every per-session event. */
 export interface SessionEventBase {
@@ -15,14 +16,12 @@ export interface SessionEventBase {
   atMs: number;
 }
 
-export interface ReadEvent extends SessionEventBase {
+export interface ReadEvent extends SessionEventBase, DeprecatedReadEventFields {
   result: ReadResult;
   /** Items returned (slots + logbook entries). */
   items: number;
   slotItems: number;
   logbookItems: number;
-  /** @deprecated since 0.2: the same as `logbookItems`. */
-  archiveItems: number;
   scanned: number;
   slotsInUse: number;
   capacity: number;
@@ -61,18 +60,18 @@ export interface OverwriteEvent extends SessionEventBase {
   slot: number;
   /** Revision id now in the slot. */
   id: string;
-  /** Revision id moved to the archive as superseded. */
+  /** Revision id moved to the logbook as superseded. */
   supersededId: string;
   /** Cosine between the new key and the slot's key. */
   cosine: number;
 }
 
-export interface EvictEvent extends SessionEventBase {
+export interface EvictEvent extends SessionEventBase, DeprecatedEvictEventFields {
   slot: number;
   id: string;
   reason: EvictReason;
-  /** Where the evicted value went. */
-  archived: boolean;
+  /** Where the evicted value went: kept in the logbook (true), or deleted (erased, expired). */
+  logged: boolean;
   /** Lifetime in session clock units (turns or seconds) and in wall-clock ms. */
   lifetime: number;
   lifetimeMs: number;
@@ -89,10 +88,10 @@ export interface GateEvent extends SessionEventBase {
   features: Record<string, number>;
 }
 
-export interface CommitEvent extends SessionEventBase {
+export interface CommitEvent extends SessionEventBase, DeprecatedCommitEventFields {
   ops: number;
   /** Values demoted to the logbook (superseded or evicted). */
-  archived: number;
+  demoted: number;
   /** Logbook entries added: turns kept plus values demoted. */
   logbook: number;
   /** Conflicts retried before success. */
@@ -132,9 +131,9 @@ export interface OutboxEvent {
   sessionHash?: string;
 }
 
-/** A value left working memory for the logbook. */
-export interface ArchiveEvent extends SessionEventBase {
-  reason: ArchiveReason;
+/** A value left working memory for the logbook (superseded, or evicted and kept). */
+export interface DemoteEvent extends SessionEventBase {
+  reason: DemotionReason;
   id: string;
 }
 
@@ -165,14 +164,14 @@ export interface ClosedEvent {
 }
 
 /** Event name -> listener signature, for `tidemark.on(name, listener)`. */
-export interface TidemarkEvents {
+export interface TidemarkEvents extends DeprecatedEvents {
   read: (e: ReadEvent) => void;
   write: (e: WriteEvent) => void;
   overwrite: (e: OverwriteEvent) => void;
   evict: (e: EvictEvent) => void;
   gate: (e: GateEvent) => void;
   commit: (e: CommitEvent) => void;
-  archive: (e: ArchiveEvent) => void;
+  demote: (e: DemoteEvent) => void;
   logbook: (e: LogbookEvent) => void;
   degraded: (e: DegradedEvent) => void;
   outbox: (e: OutboxEvent) => void;

@@ -30,8 +30,8 @@ export interface OverwrittenValue {
 export type DroppedItem =
   /** A candidate the write gate turned away (it is still in the logbook, inside its turn). */
   | { kind: 'gated_out'; key: string; turn: string; gate: number; value?: string }
-  /** A slot evicted to make room or decayed out; kept in the logbook unless `archived` is false. */
-  | { kind: 'evicted'; id: string; slot: number; key: string; reason: EvictReason; archived: boolean; value?: string };
+  /** A slot evicted to make room or decayed out; kept in the logbook unless `logged` is false. */
+  | { kind: 'evicted'; id: string; slot: number; key: string; reason: EvictReason; logged: boolean; value?: string };
 
 export interface WriteDetail {
   stored: StoredValue[];
@@ -56,7 +56,7 @@ export function writeDetail(plan: WritePlan, keyed: readonly KeyedCandidate[], w
   }
   for (const e of plan.evictions) {
     out.dropped.push({
-      kind: 'evicted', id: e.record.id, slot: e.slot, key: e.record.keyText, reason: e.reason, archived: e.archived,
+      kind: 'evicted', id: e.record.id, slot: e.slot, key: e.record.keyText, reason: e.reason, logged: e.logged,
       ...(withText ? { value: e.record.value } : {}),
     });
   }

@@ -4,6 +4,7 @@
 // and plans again with randomised backoff.
 
 import { randomUUID } from 'node:crypto';
+import { DEPRECATED_DEMOTE_EVENT, withDeprecatedCommitFields, withDeprecatedEvictFields } from '../deprecated-fields.js';
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, StoreError } from '../errors.js';
 import { resolveDates } from '../memory/dates.js';
@@ -16,6 +17,7 @@ import { scopeOf } from '../store/in-process.js';
 import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
 import { Core, sleep, usSince } from './core.js';
+import type { DemoteEvent } from './events.js';
 import { retentionOf } from './options.js';
 import { writeDetail, type WriteDetail } from './report.js';
 import type { Turn } from './validate.js';
@@ -150,8 +152,8 @@ export class WritePath {
       }
       const ops = resize ? mergeOps(resize.ops, plan.ops) : plan.ops;
       // A slot past write.maxAgeMs is retention, not forgetting: deleted, not demoted to the logbook.
-      for (const e of plan.evictions) if (e.reason === 'expired') e.archived = false;
-      const kept = plan.archive.filter((x) => x.kind !== 'expired');
+      for (const e of plan.evictions) if (e.reason === 'expired') e.logged = false;
+      const kept = plan.demoted.filter((x) => x.kind !== 'expired');
       const demoted = resize ? [...resize.demote(ref, clock, last.atMs), ...kept] : kept;
       const req: CommitRequest = {
         expectedVersion: snap?.version ?? 0, clock, turns: turnCount, capacity: table.capacity, dim: table.dim, ops,
@@ -192,10 +194,10 @@ export class WritePath {
       }
       report.detail = writeDetail(plan, keyed, true);
       if (core.events.listenerCount('commit') > 0) {
-        core.events.emit('commit', {
-          ...core.base(ref), ops: ops.length, archived: demoted.length, logbook: entries.length + demoted.length, retries: attempt,
+        core.events.emit('commit', withDeprecatedCommitFields({
+          ...core.base(ref), ops: ops.length, demoted: demoted.length, logbook: entries.length + demoted.length, retries: attempt,
           durationUs: usSince(c0), planUs, embedUs, slotsInUse: plan.slotsInUse, capacity: table.capacity, version: res.version,
-        });
+        }));
       }
       return report;
     }
@@ -205,22 +207,26 @@ export class WritePath {
   private emitWrite(ref: SessionRef, plan: WritePlan, capacity: number, clock: number, turnsKept: number, demoted: number, dropped: { age: number; count: number }): void {
     const ev = this.core.events;
     const wantEvict = ev.listenerCount('evict') > 0;
-    const wantArchive = ev.listenerCount('archive') > 0;
+    const wantDemote = ev.listenerCount('demote') > 0 || ev.listenerCount(DEPRECATED_DEMOTE_EVENT) > 0;
+    const demote = (e: DemoteEvent): void => {
+      ev.emit('demote', e);
+      ev.emit(DEPRECATED_DEMOTE_EVENT, e);
+    };
     const wantWrite = ev.listenerCount('write') > 0;
     const wantGate = ev.listenerCount('gate') > 0;
     const wantOverwrite = ev.listenerCount('overwrite') > 0;
     const wantLogbook = ev.listenerCount('logbook') > 0;
-    if (!wantEvict && !wantArchive && !wantWrite && !wantGate && !wantOverwrite && !wantLogbook) return;
+    if (!wantEvict && !wantDemote && !wantWrite && !wantGate && !wantOverwrite && !wantLogbook) return;
     const base = this.core.base(ref);
     if (wantLogbook) ev.emit('logbook', { ...base, turns: turnsKept, demoted, droppedAge: dropped.age, droppedCount: dropped.count });
     for (const e of plan.evictions) {
       if (wantEvict) {
-        ev.emit('evict', {
-          ...base, slot: e.slot, id: e.record.id, reason: e.reason, archived: e.archived,
+        ev.emit('evict', withDeprecatedEvictFields({
+          ...base, slot: e.slot, id: e.record.id, reason: e.reason, logged: e.logged,
           lifetime: clock - e.record.created, lifetimeMs: base.atMs - e.record.createdMs, halfLife: e.record.halfLife, strength: e.strength,
-        });
+        }));
       }
-      if (e.archived && wantArchive) ev.emit('archive', { ...base, reason: e.reason as 'capacity', id: e.record.id });
+      if (e.logged && wantDemote) demote({ ...base, reason: e.reason as 'capacity', id: e.record.id });
     }
     if (wantWrite) {
       for (const r of plan.reinforced) {
@@ -243,7 +249,7 @@ export class WritePath {
       }
       if (o.outcome === 'overwritten' && o.supersededId) {
         if (wantOverwrite) ev.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
-        if (wantArchive) ev.emit('archive', { ...base, reason: 'superseded', id: o.supersededId });
+        if (wantDemote) demote({ ...base, reason: 'superseded', id: o.supersededId });
       }
     }
   }
@@ -268,7 +274,7 @@ export function resizeTable(table: SlotTable, capacity: number, now: number): { 
     else moved.push(x.r);
   }
   for (const r of moved) next.set(next.firstFree(), r);
-  const evictions: Eviction[] = live.slice(capacity).map((x) => ({ slot: x.i, record: x.r, reason: 'capacity', archived: true, strength: x.s }));
+  const evictions: Eviction[] = live.slice(capacity).map((x) => ({ slot: x.i, record: x.r, reason: 'capacity', logged: true, strength: x.s }));
   const ops: SlotOp[] = [];
   for (let i = 0; i < capacity; i++) ops.push({ index: i, slot: next.get(i) });
   return {

@@ -6,8 +6,8 @@
 
 import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
-import type { VectorIndexOptions } from '../archive/index.js';
-import type { DeprecatedStoreOptions } from '../deprecated.js';
+import type { VectorIndexOptions } from '../vectors/index.js';
+import { vectorIndexOptionsOf, type DeprecatedStoreOptions } from '../deprecated-fields.js';
 import { ConfigError, ErrorCodes, StoreError } from '../errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
 import { SlotTable } from '../memory/slots.js';
@@ -470,6 +470,6 @@ export function inProcessStore(options?: InProcessStoreOptions): InProcessStore 
 
 /** A new logbook index with the store's vector index options. */
 export function logbookIndexFor(o: { vectorIndex?: VectorIndexOptions } & DeprecatedStoreOptions): LogbookIndex {
-  const vectorIndex = o.vectorIndex ?? o.archive; // the deprecated name (src/deprecated.ts) until 0.3
+  const vectorIndex = vectorIndexOptionsOf(o);
   return new LogbookIndex(vectorIndex ? { vectorIndex } : {});
 }

@@ -61,7 +61,7 @@ describe('runReplay on a hand-written transcript', () => {
       hit_precision: 1, hit_recall: 1,
       writes: { allocated: 4, overwritten: 1, reinforced: 0, gated_out: 1 },
       evictions: { capacity: 0, decayed: 0, expired: 0, erased: 0 },
-      slots_in_use: 4, logbook_entries: 11, archive_items: 1, skipped: 0,
+      slots_in_use: 4, logbook_entries: 11, demoted_items: 1, skipped: 0,
       tiers: {
         working: { slots_in_use: 4, capacity: 64, writes: { allocated: 4, overwritten: 1, reinforced: 0, gated_out: 1, ambiguous: 0 }, evictions: { capacity: 0, decayed: 0, expired: 0, erased: 0 } },
         logbook: {

@@ -130,7 +130,7 @@ describe('attend', () => {
     const r = attend(make(), 0, vec(0, 0.1, 1), [], { ...p, minCosine: 0, hitCosine: 0.3 });
     expect(r.topCosine).toBeLessThan(0.3);
     expect(r.hit).toBe(false);
-    // Weak matches are still context; the caller searches the archive too and reports a miss.
+    // Weak matches are still context; the caller searches the logbook too and reports a miss.
     expect(r.selected.length).toBeGreaterThan(0);
     for (const i of r.selected) expect(r.cosine[i]).toBeGreaterThanOrEqual(0);
     // With a relevance floor above every slot, nothing is returned.

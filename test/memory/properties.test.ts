@@ -1,6 +1,6 @@
 // Invariants of the memory math under random sequences of writes and reads (fast-check): capacity is
 // never exceeded, attention weights sum to 1 over used slots, strengths stay in (0, 1], pinned slots
-// survive, and an overwritten value stays reachable in the archive, linked to its successor.
+// survive, and an overwritten value stays reachable in the logbook, linked to its successor.
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
@@ -39,7 +39,7 @@ const runArb = fc.record({
 });
 
 describe('memory invariants (fast-check)', () => {
-  it('capacity, weights, strengths, pinned slots and archive reachability hold over random write sequences', async () => {
+  it('capacity, weights, strengths, pinned slots and logbook reachability hold over random write sequences', async () => {
     await fc.assert(
       fc.asyncProperty(runArb, async ({ capacity, bias, halfLife, steps }) => {
         const store = new InProcessStore();
@@ -76,11 +76,11 @@ describe('memory invariants (fast-check)', () => {
             table: t, now: clock, nowMs: s * 1000, params, tenant: ref.tenant, session: ref.session, candidates,
             reinforce: step.reinforceRead ? read.selected.map((i) => t.ids[i]!) : [], newId: () => `r${++n}`,
           });
-          const res = await store.commit(ref, { expectedVersion: version, clock, turns: s + 1, capacity, dim: DIM, ops: plan.ops, logbook: plan.archive, events: plan.events });
+          const res = await store.commit(ref, { expectedVersion: version, clock, turns: s + 1, capacity, dim: DIM, ops: plan.ops, logbook: plan.demoted, events: plan.events });
           expect(res.ok).toBe(true);
           version = res.version;
           t = (await store.load(ref))!.table;
-          for (const a of plan.archive) if (a.kind === 'superseded') superseded.push({ id: a.id, successor: a.successor! });
+          for (const a of plan.demoted) if (a.kind === 'superseded') superseded.push({ id: a.id, successor: a.successor! });
           // Capacity is never exceeded.
           expect(t.count()).toBeLessThanOrEqual(capacity);
           expect(plan.slotsInUse).toBe(t.count());
@@ -101,15 +101,15 @@ describe('memory invariants (fast-check)', () => {
           }
         }
         // Every superseded value is in the logbook, linked to its successor, and findable by its words.
-        const archive = await store.listLogbook(ref, { limit: 10_000 });
-        const byId = new Map(archive.map((a) => [a.id, a]));
+        const logbook = await store.listLogbook(ref, { limit: 10_000 });
+        const byId = new Map(logbook.map((a) => [a.id, a]));
         const live = new Set<string>();
         for (let i = 0; i < capacity; i++) if (t.isUsed(i)) live.add(t.ids[i]!);
         for (const { id, successor } of superseded) {
           const item = byId.get(id);
           expect(item).toBeDefined();
           expect(item!.successor).toBe(successor);
-          // The successor is live, or itself archived (superseded or evicted later).
+          // The successor is live, or itself demoted (superseded or evicted later).
           expect(live.has(successor) || byId.has(successor)).toBe(true);
           const r = await store.searchLogbook(ref, analyseQuery(item!.value, 0), { ...LOGBOOK_SEARCH_DEFAULTS, limit: 10_000 });
           expect(r.hits.some((h) => h.entry.id === id)).toBe(true);

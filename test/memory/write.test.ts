@@ -56,7 +56,7 @@ describe('planWrite: allocation', () => {
     expect(op.slot!.strength).toBeCloseTo(GATE, 15);
     expect([...op.slot!.key]).toEqual([0, 1, 0]);
     expect(p.events).toEqual([{ type: 'allocate', slot: 1, id: 'new1', clock: 4, atMs: 5000 }]);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
     expect(p.slotsInUse).toBe(2);
     expect(t.isUsed(1)).toBe(false); // the plan does not touch the table
   });
@@ -89,14 +89,14 @@ describe('planWrite: overwrite', () => {
   const newKey = vec(1, 0.2, 0); // cosine 1/sqrt(1.04) = 0.98 with the old key: above 0.8
   const make = () => table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Harlow', strength: 0.4, provenance: ['t1'], createdMs: 10, created: 1 })]);
 
-  it('replaces the value, archives the old one as superseded with successor = new id, and blends the key', () => {
+  it('replaces the value, demotes the old one as superseded with successor = new id, and blends the key', () => {
     const p = plan(make(), [cand(newKey, { key: 'my bike now', value: 'a red Pennick' })], { now: 7, nowMs: 3000 });
     const o = p.outcomes[0]!;
     expect(o).toMatchObject({ outcome: 'overwritten', slot: 0, id: 'new1', supersededId: 'old' });
     expect(o.cosine).toBeCloseTo(1 / Math.sqrt(1.04), 6);
-    expect(p.archive).toHaveLength(1);
-    expect(p.archive[0]).toMatchObject({ id: 'old', kind: 'superseded', successor: 'new1', value: 'a green Harlow', keyText: 'my bike', provenance: ['t1'], tenant: 'shop', session: 's1', clock: 7, atMs: 3000, createdMs: 10 });
-    expect(p.archive[0]!.strength).toBeCloseTo(0.4 * 2 ** (-7 / 10), 12);
+    expect(p.demoted).toHaveLength(1);
+    expect(p.demoted[0]).toMatchObject({ id: 'old', kind: 'superseded', successor: 'new1', value: 'a green Harlow', keyText: 'my bike', provenance: ['t1'], tenant: 'shop', session: 's1', clock: 7, atMs: 3000, createdMs: 10 });
+    expect(p.demoted[0]!.strength).toBeCloseTo(0.4 * 2 ** (-7 / 10), 12);
     const slot = p.ops[0]!.slot!;
     expect(slot).toMatchObject({ id: 'new1', previous: 'old', keyText: 'my bike now', value: 'a red Pennick', provenance: ['t9'], created: 1, createdMs: 10, updatedMs: 3000, stamp: 7 });
     expect(slot.strength).toBeCloseTo(GATE, 15); // max(gate, decayed old strength)
@@ -128,7 +128,7 @@ describe('planWrite: overwrite', () => {
     const p = plan(make(), [cand(vec(1, 1, 0), { key: 'my bike', value: 'a red Pennick' })], {}, { overwriteThreshold: 0.8 }); // cosine 0.707
     expect(p.outcomes[0]!.outcome).toBe('allocated');
     expect(p.outcomes[0]!.slot).toBe(1);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
   });
 
   it('reinforces instead when the value is the same fact again (case and punctuation aside)', () => {
@@ -142,21 +142,21 @@ describe('planWrite: overwrite', () => {
     expect(s.strength).toBeCloseTo(GATE, 15);
     expect(s.halfLife).toBe(15); // 10 * 1.5
     expect(s.stamp).toBe(10);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
   });
 });
 
 describe('planWrite: eviction', () => {
-  it('evicts the weakest non-pinned slot with reason capacity and archives it', () => {
+  it('evicts the weakest non-pinned slot with reason capacity and demotes it', () => {
     const t = table(3, 3, [
       rec('pinnedWeak', basis(3, 0), { strength: 0.1, pinned: true }),
       rec('mid', basis(3, 1), { strength: 0.5 }),
       rec('weak', basis(3, 2), { strength: 0.3 }),
     ]);
     const p = plan(t, [cand(vec(1, 1, 1))], {}, { overwriteThreshold: 0.9 });
-    expect(p.evictions).toEqual([expect.objectContaining({ slot: 2, reason: 'capacity', archived: true, strength: 0.3 })]);
-    expect(p.archive).toEqual([expect.objectContaining({ id: 'weak', kind: 'capacity', strength: 0.3 })]);
-    expect(p.archive[0]!.successor).toBeUndefined();
+    expect(p.evictions).toEqual([expect.objectContaining({ slot: 2, reason: 'capacity', logged: true, strength: 0.3 })]);
+    expect(p.demoted).toEqual([expect.objectContaining({ id: 'weak', kind: 'capacity', strength: 0.3 })]);
+    expect(p.demoted[0]!.successor).toBeUndefined();
     expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 2, id: 'new1' });
     expect(p.events.map((e) => [e.type, e.slot, e.reason])).toEqual([['evict', 2, 'capacity'], ['allocate', 2, undefined]]);
     expect(p.slotsInUse).toBe(3);
@@ -169,9 +169,9 @@ describe('planWrite: eviction', () => {
       rec('fresh', basis(3, 2), { strength: 0.9, halfLife: 10 }),
     ]);
     const p = plan(t, [], { now: 10 }); // faded: 0.03 -> 0.015 < 0.02
-    expect(p.evictions).toEqual([expect.objectContaining({ slot: 0, reason: 'decayed', archived: true })]);
+    expect(p.evictions).toEqual([expect.objectContaining({ slot: 0, reason: 'decayed', logged: true })]);
     expect(p.evictions[0]!.strength).toBeCloseTo(0.015, 12);
-    expect(p.archive).toEqual([expect.objectContaining({ id: 'faded', kind: 'decayed', clock: 10 })]);
+    expect(p.demoted).toEqual([expect.objectContaining({ id: 'faded', kind: 'decayed', clock: 10 })]);
     expect(p.ops).toEqual([{ index: 0, slot: null }]);
     expect(p.slotsInUse).toBe(2);
   });
@@ -180,7 +180,7 @@ describe('planWrite: eviction', () => {
     const t = table(2, 3, [rec('old', basis(3, 0), { createdMs: 0 }), rec('young', basis(3, 1), { createdMs: 1500 })]);
     const p = plan(t, [], { nowMs: 2000 }, { maxAgeMs: 1000 });
     expect(p.evictions.map((e) => [e.record.id, e.reason])).toEqual([['old', 'expired']]);
-    expect(p.archive[0]).toMatchObject({ id: 'old', kind: 'expired' });
+    expect(p.demoted[0]).toMatchObject({ id: 'old', kind: 'expired' });
     expect(plan(t, [], { nowMs: 2000 }, { maxAgeMs: 0 }).evictions).toEqual([]); // 0 never expires
   });
 
@@ -189,7 +189,7 @@ describe('planWrite: eviction', () => {
     const p = plan(t, [cand(basis(3, 2))]);
     expect(p.outcomes).toEqual([expect.objectContaining({ outcome: 'gated_out', slot: -1 })]);
     expect(p.ops).toEqual([]);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
     expect(p.evictions).toEqual([]);
   });
 });
@@ -213,7 +213,7 @@ describe('planWrite: updates', () => {
     expect(s.keyText).toBe('my booking');
     expect([...s.key]).toEqual([1, 0, 0]); // an update does not move the key
     expect(s.provenance).toEqual(['t4', 't2']);
-    expect(p.archive).toEqual([expect.objectContaining({ id: 'booking', value: 'book a service for Tuesday', kind: 'superseded', successor: s.id })]);
+    expect(p.demoted).toEqual([expect.objectContaining({ id: 'booking', value: 'book a service for Tuesday', kind: 'superseded', successor: s.id })]);
   });
 
   it('with two dated facts it could be about, replaces neither and is kept beside both, newest first', () => {
@@ -226,7 +226,7 @@ describe('planWrite: updates', () => {
     expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 2, maybeReplaces: ['wedding', 'exam'] });
     expect(p.ops.map((o) => o.index)).toEqual([2]);
     expect(p.ops[0]!.slot!.maybeReplaces).toEqual(['wedding', 'exam']);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
     // The turn before says which one "it" is: then it is an update of that one.
     const asked = plan(t, [moved], { now: 5, context: ['How is prep for your exam going?'] });
     expect(asked.outcomes[0]).toMatchObject({ outcome: 'overwritten', slot: 0, supersededId: 'exam' });
@@ -258,7 +258,7 @@ describe('planWrite: fidelity', () => {
     const p = plan(allergy(), [cand(vec(1, 0.1, 0), { key: 'the in-person sessions', value: 'no nut snacks at the in-person sessions please' }, 't15')], { now: 15 });
     expect(p.outcomes[0]!.cosine).toBeGreaterThan(0.99);
     expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 1 });
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
   });
 
   it('overwrites at the threshold and not just below it (shared words present)', () => {
@@ -274,7 +274,7 @@ describe('planWrite: fidelity', () => {
     const second = cand(basis(3, 0), { key: 'what I prefer: tutor', value: 'grammar in English', clause: true }, 't9');
     const p = plan(t, [first, second]);
     expect(p.outcomes.map((o) => o.outcome)).toEqual(['allocated', 'allocated']);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
     // The same key from a later turn is an update.
     const later = plan(t, [first, cand(basis(3, 0), { key: 'what I prefer: tutor', value: 'a male tutor' }, 't75')]);
     expect(later.outcomes.map((o) => o.outcome)).toEqual(['allocated', 'overwritten']);
@@ -285,7 +285,7 @@ describe('planWrite: fidelity', () => {
     const p = plan(allergy(), [reply], { now: 14 });
     expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 1 });
     expect(p.ops[0]!.slot!.reply).toBe(true);
-    expect(p.archive).toEqual([]);
+    expect(p.demoted).toEqual([]);
   });
 
   it("one speaker's fact is never overwritten by another speaker's", () => {

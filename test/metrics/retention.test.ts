@@ -137,7 +137,7 @@ describe('RetentionTracker', () => {
   const write = (sessionHash: string, slot: number, clock: number, atMs: number, outcome: WriteEvent['outcome'] = 'allocated'): WriteEvent =>
     ({ ...base, sessionHash, slot, id: `${sessionHash}-${slot}-${clock}`, clock, atMs, outcome, halfLife: 10 });
   const evict = (sessionHash: string, slot: number, lifetime: number, lifetimeMs: number, reason: EvictEvent['reason']): EvictEvent =>
-    ({ tenant: 't', sessionHash, slot, id: 'x', reason, archived: reason !== 'erased', lifetime, lifetimeMs, halfLife: 12, strength: 0.1, atMs: 0 });
+    ({ tenant: 't', sessionHash, slot, id: 'x', reason, logged: reason !== 'erased', lifetime, lifetimeMs, halfLife: 12, strength: 0.1, atMs: 0 });
 
   it('ends lifetimes on evict, censors live slots at the session clock and now, and censors erasures', () => {
     const bus = new EventEmitter<TidemarkEvents>();
@@ -220,7 +220,7 @@ describe('grouped Kaplan–Meier for the feed', () => {
     for (let i = 0; i < 120; i++) {
       const sessionHash = `s${i % 9}`;
       bus.emit('write', { ...base, sessionHash, outcome: 'allocated', slot: i % 4, id: `r${i}`, clock: i, gate: 1, strength: 1, halfLife: 20, slotsInUse: 1, capacity: 4 } as WriteEvent);
-      if (i % 3 === 0) bus.emit('evict', { ...base, sessionHash, slot: i % 4, id: `r${i}`, reason: i % 15 === 0 ? 'erased' : 'capacity', archived: true, lifetime: i % 11, lifetimeMs: 1000 + 137 * i, halfLife: 20, strength: 0.1 } as EvictEvent);
+      if (i % 3 === 0) bus.emit('evict', { ...base, sessionHash, slot: i % 4, id: `r${i}`, reason: i % 15 === 0 ? 'erased' : 'capacity', logged: true, lifetime: i % 11, lifetimeMs: 1000 + 137 * i, halfLife: 20, strength: 0.1 } as EvictEvent);
     }
     const exact = t.snapshot(2_000_000);
     const grouped = t.curves(2_000_000);

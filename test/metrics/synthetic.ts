@@ -26,7 +26,7 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
   const capacity = t.capacity ?? 8;
   const slotsInUse = t.slotsInUse ?? 3;
   bus.emit('read', {
-    ...base, result: t.result ?? 'slot', items: 2, slotItems: 2, logbookItems: 0, archiveItems: 0, scanned: slotsInUse,
+    ...base, result: t.result ?? 'slot', items: 2, slotItems: 2, logbookItems: 0, scanned: slotsInUse,
     slotsInUse, capacity, logbookSize: 10, topWeight: 0.7, entropy: 0.6, topCosine: 0.8, topCoverage: 0.6, durationUs: t.readUs ?? 400, searchUs: 40, embedUs: 50,
   });
   bus.emit('gate', { ...base, score: t.passed === false ? 0.2 : 0.8, threshold: 0.5, passed: t.passed !== false, features: { novelty: 0.5 } });
@@ -38,12 +38,12 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
   }
   if (t.evict) {
     bus.emit('evict', {
-      ...base, slot: t.slot ?? 0, id: 'old', reason: t.evict, archived: t.evict !== 'erased', lifetime: 6, lifetimeMs: 6_000,
+      ...base, slot: t.slot ?? 0, id: 'old', reason: t.evict, logged: t.evict !== 'erased', lifetime: 6, lifetimeMs: 6_000,
       halfLife: 10, strength: 0.05,
     });
   }
   bus.emit('commit', {
-    ...base, ops: 1, archived: t.evict && t.evict !== 'erased' ? 1 : 0, logbook: 2, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
+    ...base, ops: 1, demoted: t.evict && t.evict !== 'erased' ? 1 : 0, logbook: 2, retries: 0, durationUs: t.commitUs ?? 900, planUs: 100,
     embedUs: 60, slotsInUse, capacity, version: 1,
   });
 }

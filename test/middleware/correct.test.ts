@@ -227,7 +227,7 @@ describe('WriteReport.detail', () => {
     const tm = createTidemark({ hashKey: 'detail', capacity: 1 });
     const a = await tm.write({ session: 'd2', turn: 'e1', text: 'My name is Dana.' });
     const b = await tm.write({ session: 'd2', turn: 'e2', text: 'My bike is a green Quenby Audax.' });
-    expect(b.detail!.dropped).toEqual([{ kind: 'evicted', id: a.detail!.stored[0]!.id, slot: 0, key: 'my name', reason: 'capacity', archived: true }]);
+    expect(b.detail!.dropped).toEqual([{ kind: 'evicted', id: a.detail!.stored[0]!.id, slot: 0, key: 'my name', reason: 'capacity', logged: true }]);
     const c = await tm.write({ session: 'd3', turn: 'e3', text: 'The canal path floods every March near the old mill.' });
     for (const x of [...c.detail!.stored, ...c.detail!.dropped]) expect(x.key === '' || !'The canal path floods every March near the old mill.'.includes(x.key)).toBe(true);
     expect(JSON.stringify(c)).not.toContain('floods');

@@ -48,12 +48,12 @@ describe('memory invariants through the middleware (fast-check)', () => {
           for (const i of pinnedIds) expect(v.slots.find((s) => s.index === i)?.pinned).toBe(true);
         }
         const ref = { tenant: 'default', session: 's' };
-        const archive = await store.listLogbook(ref, { limit: 10_000 });
-        const ids = new Set(archive.map((a) => a.id));
+        const logbook = await store.listLogbook(ref, { limit: 10_000 });
+        const ids = new Set(logbook.map((a) => a.id));
         const live = new Set((await tm.inspect('s')).slots.map((s) => s.id));
         // Nothing said is lost: every turn written is in the logbook.
-        expect(archive.filter((x) => x.kind === 'turn')).toHaveLength(turns.filter((t) => t.kind !== 'pin').length);
-        for (const a of archive.filter((x) => x.kind === 'superseded')) {
+        expect(logbook.filter((x) => x.kind === 'turn')).toHaveLength(turns.filter((t) => t.kind !== 'pin').length);
+        for (const a of logbook.filter((x) => x.kind === 'superseded')) {
           expect(a.successor).toBeDefined();
           expect(live.has(a.successor!) || ids.has(a.successor!)).toBe(true);
           const r = await store.searchLogbook(ref, analyseQuery(a.value, 0), { ...LOGBOOK_SEARCH_DEFAULTS, limit: 10_000 });

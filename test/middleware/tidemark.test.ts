@@ -242,7 +242,7 @@ describe('admin', () => {
     await big.pin('s', 1); // the allergy
     const small = make({ store, capacity: 2, write: { halfLife: 2 } });
     const evicted: Array<[string, boolean]> = [];
-    small.on('evict', (e) => evicted.push([e.reason, e.archived]));
+    small.on('evict', (e) => evicted.push([e.reason, e.logged]));
     const report = await small.write({ session: 's', text: 'hello' });
     const v = await small.inspect('s');
     expect(v.capacity).toBe(2);

@@ -57,7 +57,7 @@ export function slot(n: number, over: Partial<SlotRecord> = {}): SlotRecord {
 }
 
 /** A demoted slot value (superseded by revision r{n}). */
-export function archived(n: number, ref: SessionRef, over: Partial<LogbookEntry> = {}): LogbookEntry {
+export function demotedItem(n: number, ref: SessionRef, over: Partial<LogbookEntry> = {}): LogbookEntry {
   return {
     id: `a${n}`,
     kind: 'superseded',
@@ -237,7 +237,7 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
 
     test('demoted values round-trip with their vectors, links and owners', async () => {
       const ref = fresh();
-      const items = [1, 2, 3].map((n) => archived(n, ref, n === 2 ? { owner: 'Ana', kind: 'capacity', successor: undefined } : {}));
+      const items = [1, 2, 3].map((n) => demotedItem(n, ref, n === 2 ? { owner: 'Ana', kind: 'capacity', successor: undefined } : {}));
       delete (items[1] as { successor?: string }).successor;
       await store.commit(ref, commitOf({ logbook: items }));
       const listed = await store.listLogbook({ tenant: ref.tenant, session: ref.session });
@@ -267,13 +267,13 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
     test('deleteLogbook removes from listing and search', async () => {
       const ref = fresh();
       const scope = { tenant: ref.tenant, session: ref.session };
-      await store.commit(ref, commitOf({ logbook: [1, 2, 3].map((n) => archived(n, ref)) }));
+      await store.commit(ref, commitOf({ logbook: [1, 2, 3].map((n) => demotedItem(n, ref)) }));
       expect(await store.deleteLogbook(scope, ['a2', 'nope'])).toBe(1);
       expect((await store.listLogbook(scope)).map((i) => i.id)).toEqual(['a3', 'a1']);
       const r = await searchText(store, scope, 'old value 2');
       expect(r.hits.map((h) => h.entry.id)).not.toContain('a2');
       // The same id can come back later (a value evicted again) and is searchable again.
-      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [archived(2, ref, { value: 'old value 2 revisited' })] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [demotedItem(2, ref, { value: 'old value 2 revisited' })] }));
       expect((await searchText(store, scope, 'revisited')).hits.map((h) => h.entry.id)).toEqual(['a2']);
     });
 
@@ -296,8 +296,8 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
     test('sessions of one user share a user-scope logbook', async () => {
       const a = fresh('u1');
       const b = fresh('u1');
-      await store.commit(a, commitOf({ logbook: [archived(1, a), turnEntry(1, a, 'the first violin lesson')] }));
-      await store.commit(b, commitOf({ logbook: [archived(2, b), turnEntry(1, b, 'the second violin lesson')] }));
+      await store.commit(a, commitOf({ logbook: [demotedItem(1, a), turnEntry(1, a, 'the first violin lesson')] }));
+      await store.commit(b, commitOf({ logbook: [demotedItem(2, b), turnEntry(1, b, 'the second violin lesson')] }));
       const listed = await store.listLogbook({ tenant: a.tenant, user: 'u1' });
       expect(listed.map((h) => h.id).sort()).toEqual(['T-' + a.session + '-1', 'T-' + b.session + '-1', 'a1', 'a2'].sort());
       expect(listed.find((h) => h.id === 'a1')!.session).toBe(a.session);
@@ -317,7 +317,7 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
     test('erasing a session removes slots, logbook entries and events', async () => {
       const ref = fresh();
       const keep = fresh();
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref), turnEntry(1, ref, 'my secret diary')], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref), turnEntry(1, ref, 'my secret diary')], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       await store.commit(keep, commitOf({ ops: [{ index: 0, slot: slot(2) }] }));
       const report = await store.erase({ tenant: ref.tenant, session: ref.session });
       expect(report).toMatchObject({ sessions: 1, slots: 1, logbookEntries: 2, events: 1 });
@@ -332,17 +332,17 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
     test('erasing a session also removes what it put in its user logbook', async () => {
       const a = fresh('u2');
       const b = fresh('u2');
-      await store.commit(a, commitOf({ logbook: [archived(1, a)] }));
-      await store.commit(b, commitOf({ logbook: [archived(2, b)] }));
+      await store.commit(a, commitOf({ logbook: [demotedItem(1, a)] }));
+      await store.commit(b, commitOf({ logbook: [demotedItem(2, b)] }));
       await store.erase({ tenant: a.tenant, session: a.session });
       expect((await store.listLogbook({ tenant: a.tenant, user: 'u2' })).map((h) => h.id)).toEqual(['a2']);
     });
 
-    test('erasing a user removes all of their sessions and archive', async () => {
+    test('erasing a user removes all of their sessions and logbook', async () => {
       const a = fresh('u3');
       const b = fresh('u3');
       const other = fresh('u4');
-      for (const r of [a, b, other]) await store.commit(r, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, r, { id: `a-${r.session}` })] }));
+      for (const r of [a, b, other]) await store.commit(r, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, r, { id: `a-${r.session}` })] }));
       const report = await store.erase({ tenant: a.tenant, user: 'u3' });
       expect(report.sessions).toBe(2);
       expect(report.logbookEntries).toBe(2);
@@ -357,7 +357,7 @@ export function storeConformance(name: string, factory: () => Promise<Store>, op
       const s = `iso${++counter}`;
       const t1 = { tenant: `${tenantBase}-x`, session: s };
       const t2 = { tenant: `${tenantBase}-y`, session: s };
-      await store.commit(t1, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, t1)] }));
+      await store.commit(t1, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, t1)] }));
       expect(await store.load(t2)).toBeNull();
       expect(await store.listLogbook({ tenant: t2.tenant, session: s })).toEqual([]);
       expect(await store.listSessions(t2.tenant)).toEqual([]);

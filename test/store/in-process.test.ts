@@ -4,7 +4,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it, vi } from 'vitest';
 import { InProcessStore } from '../../src/store/in-process.js';
 import { MemoryStore } from '../../src/deprecated.js';
-import { archived, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
+import { demotedItem, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
 
 storeConformance('in-process', async () => new InProcessStore());
 
@@ -17,7 +17,7 @@ describe('InProcessStore snapshot', () => {
     const ref = { tenant: 't', session: 's1' };
     const first = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
     const turn = turnEntry(1, ref, 'My sister Ana is a nurse in Fellbrook.', { speaker: 'Maren', dates: [{ text: 'today', day: '2023-11-14', grain: 'day' }] });
-    await first.commit(ref, commitOf({ clock: 5, turns: 6, ops: [{ index: 2, slot: slot(1) }], logbook: [archived(1, ref), turn], events: [{ type: 'allocate', slot: 2, id: 'r1', clock: 5, atMs: 9 }] }));
+    await first.commit(ref, commitOf({ clock: 5, turns: 6, ops: [{ index: 2, slot: slot(1) }], logbook: [demotedItem(1, ref), turn], events: [{ type: 'allocate', slot: 2, id: 'r1', clock: 5, atMs: 9 }] }));
     await first.close();
     const second = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
     const snap = await second.load(ref);
@@ -25,7 +25,7 @@ describe('InProcessStore snapshot', () => {
     expect(snap!.clock).toBe(5);
     expect(snap!.table.get(2)).toEqual(slot(1));
     expect((await second.listLogbook(ref)).map((e) => e.id).sort()).toEqual(['T-s1-1', 'a1']);
-    expect((await second.listLogbook(ref)).find((e) => e.id === 'a1')!.key).toEqual(archived(1, ref).key);
+    expect((await second.listLogbook(ref)).find((e) => e.id === 'a1')!.key).toEqual(demotedItem(1, ref).key);
     const r = await searchText(second, ref, 'What does Ana do for work?');
     expect(r.hits[0]!.entry).toEqual(turn);
     expect(await second.readEvents(ref)).toHaveLength(1);
@@ -40,7 +40,7 @@ describe('InProcessStore snapshot', () => {
     const path = join(dir, 'b.json');
     const ref = { tenant: 't', session: 'secret-session' };
     const store = new InProcessStore({ snapshotPath: path, snapshotIntervalMs: 0 });
-    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1, { value: 'allergic to peanut oil' }) }], logbook: [archived(1, ref, { value: 'old booking Tuesday' }), turnEntry(1, ref, 'I told you about my tax return')] }));
+    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1, { value: 'allergic to peanut oil' }) }], logbook: [demotedItem(1, ref, { value: 'old booking Tuesday' }), turnEntry(1, ref, 'I told you about my tax return')] }));
     store.save();
     expect(readFileSync(path, 'utf8')).toContain('peanut oil');
     await store.erase(ref);

@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Cluster } from 'ioredis';
 import { redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
-import { archived, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
+import { demotedItem, commitOf, searchText, slot, storeConformance } from '../../store/conformance.js';
 import { deletePrefix, newCluster, probeRedis, scanKeys, startCluster, stopCluster, uniquePrefix } from './helpers.js';
 
 // The cluster needs redis-server and redis-cli; the same probe as the single-node suite decides
@@ -51,7 +51,7 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
     for (let n = 0; n < 24; n++) {
       const ref = { tenant: 'acme', session: `ks-${n}`, user: 'u-ks' };
       // Distinct entry ids per session, so gathering them proves every master was asked.
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref, { id: `a-${n}`, value: `kayak note ${n}` })], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref, { id: `a-${n}`, value: `kayak note ${n}` })], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', ref.session);
       const slots = new Set<number>();
       for (const key of k.script) slots.add(Number(await admin.cluster('KEYSLOT', key)));
@@ -78,7 +78,7 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
   it('erasing a session leaves no key of it on any master', async () => {
     const store = redisSlotStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
-    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+    await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
     // meta, slots, events, uarch, ualog, applied commit ids + the user's set
     expect((await dataKeys()).length).toBe(7);
     await store.erase({ tenant: 'acme', session: 'bye' });

@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
-import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
+import { demotedItem, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
@@ -118,7 +118,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
 
     it('a tampered logbook payload is reported as corrupt by search', async () => {
       const ref = { tenant: 't', session: 'tamper-arch' };
-      await store.commit(ref, commitOf({ logbook: [archived(1, ref)] }));
+      await store.commit(ref, commitOf({ logbook: [demotedItem(1, ref)] }));
       const k = store.sessionKeys('t', 'tamper-arch');
       const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
       await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
@@ -159,7 +159,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 'acme', session: 'rt1' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
       await settle();
-      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 1, id: 'r2', clock: 1, atMs: 1 }] }));
       let cmds = await settle();
       expect(cmds.map((c) => c.args[0]!.toLowerCase())).toEqual(['evalsha']);
       const cold = redisSlotStore({ redis: client, prefix });
@@ -199,14 +199,14 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const b = redisSlotStore({ redis: client, prefix });
       const ref = { tenant: 'acme', session: 'arch-delta' };
       const scope = { tenant: 'acme', session: 'arch-delta' };
-      await b.commit(ref, commitOf({ logbook: [archived(1, ref), archived(2, ref)] }));
+      await b.commit(ref, commitOf({ logbook: [demotedItem(1, ref), demotedItem(2, ref)] }));
       expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a2', 'a1']);
-      await b.commit(ref, commitOf({ expectedVersion: 1, logbook: [archived(3, ref)] }));
+      await b.commit(ref, commitOf({ expectedVersion: 1, logbook: [demotedItem(3, ref)] }));
       const r = await searchText(a, scope, 'old value 3');
       expect(r.hits.sort((x, y) => y.score - x.score)[0]!.entry.id).toBe('a3');
       await b.deleteLogbook(scope, ['a1']);
       expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a3', 'a2']);
-      await b.commit(ref, commitOf({ expectedVersion: 2, logbook: [archived(4, ref)] }));
+      await b.commit(ref, commitOf({ expectedVersion: 2, logbook: [demotedItem(4, ref)] }));
       expect((await a.listLogbook(scope)).map((i) => i.id)).toEqual(['a4', 'a3', 'a2']);
       // Retention in b's commit trims the head of the log; a's cached index drops the trimmed entries.
       const t = (n: number) => turnEntry(n, ref, `logbook turn ${n}`);
@@ -241,10 +241,10 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('no call for one tenant names a key of another tenant', async () => {
       const store = redisSlotStore({ redis: client, prefix });
       const other = { tenant: 'beta', session: 'shared-id', user: 'u1' };
-      await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, other)] }));
+      await store.commit(other, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, other)] }));
       await settle();
       const ref = { tenant: 'alpha', session: 'shared-id', user: 'u1' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(2) }], logbook: [archived(2, ref)], events: [{ type: 'allocate', slot: 0, id: 'r2', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(2) }], logbook: [demotedItem(2, ref)], events: [{ type: 'allocate', slot: 0, id: 'r2', clock: 1, atMs: 1 }] }));
       await store.load(ref);
       await searchText(store, { tenant: 'alpha', user: 'u1' }, 'old value');
       await searchText(store, { tenant: 'alpha', session: 'shared-id' }, 'old value');
@@ -279,7 +279,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
       const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
-      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
       for (const key of [k.meta, k.slots, k.events, k.uarch, k.ualog]) {
         const ttl = await client.ttl(key);
@@ -298,7 +298,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const b = { tenant: 'acme', session: 'gone-2', user: 'u-gone' };
       const c = { tenant: 'acme', session: 'gone-3' };
       for (const ref of [a, b, c]) {
-        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+        await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
       // meta, slots, events, (u)arch, (u)alog, plus the applied commit ids
       expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(6 * 3);

@@ -1,6 +1,6 @@
-// Test helpers for the archive suites: seeded random unit vectors and recall@k against exact search.
+// Test helpers for the vector index suites: seeded random unit vectors and recall@k against exact search.
 
-import type { VectorMatch } from '../../src/archive/archive.js';
+import type { VectorMatch } from '../../src/vectors/vector-index.js';
 import { rng } from '../../bench/lib/stats.js';
 /** mulberry32, seeded (see bench/lib/stats.ts). */
 export const prng = rng;

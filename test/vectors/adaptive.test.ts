@@ -1,9 +1,9 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { AdaptiveArchive } from '../../src/archive/adaptive.js';
-import { ExactArchive } from '../../src/archive/exact.js';
-import { hnswAvailable } from '../../src/archive/hnsw.js';
-import { VECTOR_INDEX_DEFAULTS, createVectorIndex } from '../../src/archive/index.js';
+import { AdaptiveVectorIndex } from '../../src/vectors/adaptive.js';
+import { ExactVectorIndex } from '../../src/vectors/exact.js';
+import { hnswAvailable } from '../../src/vectors/hnsw.js';
+import { VECTOR_INDEX_DEFAULTS, createVectorIndex } from '../../src/vectors/index.js';
 import { ErrorCodes } from '../../src/errors.js';
 import { dot, unitVectors } from './vectors.js';
 
@@ -24,13 +24,13 @@ const op: fc.Arbitrary<Op> = fc.oneof(
   { weight: 2, arbitrary: fc.record({ kind: fc.constant('search' as const), q: fc.nat(63), k: fc.integer({ min: 0, max: 35 }) }) },
 );
 
-describe('AdaptiveArchive', () => {
-  it('behaves like the exact archive across the switch to HNSW (property)', () => {
+describe('AdaptiveVectorIndex', () => {
+  it('behaves like the exact index across the switch to HNSW (property)', () => {
     let switched = 0;
     fc.assert(
       fc.property(fc.array(op, { minLength: 1, maxLength: 120, size: 'max' }), (ops) => {
-        const a = new AdaptiveArchive(DIM, { hnswThreshold: THRESHOLD, rebuildDeletedShare: 0.3 });
-        const model = new ExactArchive(DIM);
+        const a = new AdaptiveVectorIndex(DIM, { hnswThreshold: THRESHOLD, rebuildDeletedShare: 0.3 });
+        const model = new ExactVectorIndex(DIM);
         const vectors = new Map<string, Float32Array>();
         let sawHnsw = false;
         for (const o of ops) {
@@ -70,7 +70,7 @@ describe('AdaptiveArchive', () => {
 
   it('switches once the size passes hnswThreshold, and finds the same items after the switch', () => {
     const vs = unitVectors(40, DIM, 12);
-    const a = new AdaptiveArchive(DIM, { hnswThreshold: 20 });
+    const a = new AdaptiveVectorIndex(DIM, { hnswThreshold: 20 });
     vs.slice(0, 20).forEach((v, i) => a.add(`v${i}`, v));
     expect(a.strategy).toBe('exact');
     const before = a.search(vs[3]!, 5);

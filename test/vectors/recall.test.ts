@@ -5,9 +5,9 @@
 import { existsSync, readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { beforeAll, describe, expect, it } from 'vitest';
-import type { VectorMatch } from '../../src/archive/archive.js';
-import { ExactArchive } from '../../src/archive/exact.js';
-import { HnswArchive } from '../../src/archive/hnsw.js';
+import type { VectorMatch } from '../../src/vectors/vector-index.js';
+import { ExactVectorIndex } from '../../src/vectors/exact.js';
+import { HnswVectorIndex } from '../../src/vectors/hnsw.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
 import { recallAtK, unitVectors } from './vectors.js';
 
@@ -28,8 +28,8 @@ describe('HNSW recall@10 on 20,000 random unit vectors of dimension 384', () => 
   let exact: VectorMatch[][] = [];
 
   beforeAll(() => {
-    const h = new HnswArchive(DIM, { M: 16, efConstruction: 64, ef: 2000, initialCapacity: N });
-    const e = new ExactArchive(DIM, N);
+    const h = new HnswVectorIndex(DIM, { M: 16, efConstruction: 64, ef: 2000, initialCapacity: N });
+    const e = new ExactVectorIndex(DIM, N);
     items.forEach((v, i) => (h.add(`r${i}`, v), e.add(`r${i}`, v)));
     expect(h.size).toBe(N);
     approx = queries.map((q) => h.search(q, K));
@@ -45,7 +45,7 @@ describe('HNSW recall@10 on 20,000 random unit vectors of dimension 384', () => 
 });
 
 // Schema-Guided Dialogue (Rastogi et al., AAAI 2020), test split files 001-003: real utterances embedded
-// by the built-in hashing embedder, with the archive's default HNSW options.
+// by the built-in hashing embedder, with the vector index's default HNSW options.
 const sgdDir = fileURLToPath(new URL('../../../shared/data/sgd/', import.meta.url));
 const sgdFiles = ['dialogues_001.json', 'dialogues_002.json', 'dialogues_003.json'];
 const sgdPresent = sgdFiles.every((f) => existsSync(sgdDir + f));
@@ -64,8 +64,8 @@ describe('HNSW recall@10 on the built-in embedder\'s vectors of the SGD utteranc
       expect(texts.length).toBeGreaterThan(3000);
       const vectors = new HashingEmbedder({ dim: DIM }).embedSync(texts);
       // Every tenth utterance is a query and stays out of the index, as a new turn would.
-      const h = new HnswArchive(DIM);
-      const e = new ExactArchive(DIM);
+      const h = new HnswVectorIndex(DIM);
+      const e = new ExactVectorIndex(DIM);
       const queries: Float32Array[] = [];
       vectors.forEach((v, i) => {
         if (i % 10 === 0) queries.push(v);

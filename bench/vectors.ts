@@ -1,11 +1,11 @@
-// Archive benchmark: HNSW build time, memory per item, search latency and recall@10 against the exact
+// Vector index benchmark: HNSW build time, memory per item, search latency and recall@10 against the exact
 // scan, measured side by side on the same seeded random unit vectors and the same queries.
-// `npm run bench -- archive [--json] [--sizes 10000,100000] [--queries 500] [--M 16] [--efc 100] [--ef 64]
+// `npm run bench -- vectors [--json] [--sizes 10000,100000] [--queries 500] [--M 16] [--efc 100] [--ef 64]
 //  [--ef-sweep 32,64,128] [--intrinsic 16]`; --intrinsic N draws low-rank vectors instead of uniform ones.
 
-import type { VectorMatch } from '../src/archive/archive.js';
-import { ExactArchive } from '../src/archive/exact.js';
-import { HNSW_ARCHIVE_DEFAULTS, HnswArchive } from '../src/archive/hnsw.js';
+import type { VectorMatch } from '../src/vectors/vector-index.js';
+import { ExactVectorIndex } from '../src/vectors/exact.js';
+import { HNSW_VECTOR_INDEX_DEFAULTS, HnswVectorIndex } from '../src/vectors/hnsw.js';
 import { rng as prng } from './lib/stats.js';
 
 const DIM = 384;
@@ -129,16 +129,16 @@ export default async function main(argv: string[]): Promise<void> {
   const json = argv.includes('--json');
   const sizes = numbers(flag(argv, 'sizes'), [10_000, 100_000]);
   const nQueries = numbers(flag(argv, 'queries'), [500])[0]!;
-  const M = numbers(flag(argv, 'M'), [HNSW_ARCHIVE_DEFAULTS.M])[0]!;
-  const efConstruction = numbers(flag(argv, 'efc'), [HNSW_ARCHIVE_DEFAULTS.efConstruction])[0]!;
-  const ef = numbers(flag(argv, 'ef'), [HNSW_ARCHIVE_DEFAULTS.ef])[0]!;
+  const M = numbers(flag(argv, 'M'), [HNSW_VECTOR_INDEX_DEFAULTS.M])[0]!;
+  const efConstruction = numbers(flag(argv, 'efc'), [HNSW_VECTOR_INDEX_DEFAULTS.efConstruction])[0]!;
+  const ef = numbers(flag(argv, 'ef'), [HNSW_VECTOR_INDEX_DEFAULTS.ef])[0]!;
   const sweep = numbers(flag(argv, 'ef-sweep'), []);
   const intrinsic = flag(argv, 'intrinsic') ? numbers(flag(argv, 'intrinsic'), [])[0]! : 0;
   const workload = intrinsic > 0 ? `low-rank random unit vectors (intrinsic dimension ${intrinsic})` : 'uniform random unit vectors';
   const vectors = (n: number, seed: number): Float32Array =>
     intrinsic > 0 ? lowRankVectors(n, DIM, intrinsic, seed) : unitVectors(n, DIM, seed);
 
-  console.log(`archive bench: ${workload}, dim ${DIM}, k ${K}, ${nQueries} queries, M ${M}, efConstruction ${efConstruction}, ef ${ef}`);
+  console.log(`vector index bench: ${workload}, dim ${DIM}, k ${K}, ${nQueries} queries, M ${M}, efConstruction ${efConstruction}, ef ${ef}`);
   const qbuf = vectors(nQueries, 7);
   const queries = Array.from({ length: nQueries }, (_, i) => qbuf.subarray(i * DIM, (i + 1) * DIM));
   const rows: Row[] = [];
@@ -152,12 +152,12 @@ export default async function main(argv: string[]): Promise<void> {
     // hnswlib reserves for capacity but never touches are not resident, so they do not count.
     const rss0 = process.memoryUsage().rss;
     const t0 = performance.now();
-    const hnsw = new HnswArchive(DIM, { M, efConstruction, ef, initialCapacity: 1024 });
+    const hnsw = new HnswVectorIndex(DIM, { M, efConstruction, ef, initialCapacity: 1024 });
     for (let i = 0; i < n; i++) hnsw.add(ids[i]!, data.subarray(i * DIM, (i + 1) * DIM));
     const buildS = (performance.now() - t0) / 1000;
     const bytesPerItem = (process.memoryUsage().rss - rss0) / n;
 
-    const exact = new ExactArchive(DIM, n);
+    const exact = new ExactVectorIndex(DIM, n);
     for (let i = 0; i < n; i++) exact.add(ids[i]!, data.subarray(i * DIM, (i + 1) * DIM));
     const ex = timeQueries(queries, (q) => exact.search(q, K));
     const hn = timeQueries(queries, (q) => hnsw.search(q, K));

@@ -2,8 +2,8 @@ import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { ExactArchive } from '../../src/archive/exact.js';
-import { HNSW_ARCHIVE_DEFAULTS, HnswArchive } from '../../src/archive/hnsw.js';
+import { ExactVectorIndex } from '../../src/vectors/exact.js';
+import { HNSW_VECTOR_INDEX_DEFAULTS, HnswVectorIndex } from '../../src/vectors/hnsw.js';
 import { ErrorCodes, TidemarkError } from '../../src/errors.js';
 import { dot, unitVectors } from './vectors.js';
 
@@ -11,12 +11,12 @@ const DIM = 32;
 const dir = mkdtempSync(join(tmpdir(), 'tidemark-hnsw-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
 
-describe('HnswArchive', () => {
-  it('agrees with the exact scan on a small archive (ids and cosines)', () => {
+describe('HnswVectorIndex', () => {
+  it('agrees with the exact scan on a small index (ids and cosines)', () => {
     const vs = unitVectors(300, DIM, 1);
     const qs = unitVectors(30, DIM, 2);
-    const h = new HnswArchive(DIM, { ef: 300 });
-    const e = new ExactArchive(DIM);
+    const h = new HnswVectorIndex(DIM, { ef: 300 });
+    const e = new ExactVectorIndex(DIM);
     vs.forEach((v, i) => (h.add(`v${i}`, v), e.add(`v${i}`, v)));
     expect(h.size).toBe(300);
     for (const q of qs) {
@@ -29,7 +29,7 @@ describe('HnswArchive', () => {
 
   it('converts hnswlib distances to cosines: an indexed vector finds itself at cosine 1', () => {
     const [a, b] = unitVectors(2, DIM, 3);
-    const h = new HnswArchive(DIM);
+    const h = new HnswVectorIndex(DIM);
     h.add('a', a!);
     h.add('b', b!);
     const r = h.search(a!, 2);
@@ -39,7 +39,7 @@ describe('HnswArchive', () => {
 
   it('replaces the vector of an existing id in place', () => {
     const [a, b, c] = unitVectors(3, DIM, 4);
-    const h = new HnswArchive(DIM);
+    const h = new HnswVectorIndex(DIM);
     h.add('x', a!);
     h.add('y', b!);
     h.add('x', c!);
@@ -50,7 +50,7 @@ describe('HnswArchive', () => {
 
   it('grows past its initial capacity with resizeIndex, keeping ef', () => {
     const vs = unitVectors(100, DIM, 5);
-    const h = new HnswArchive(DIM, { initialCapacity: 4, ef: 77 });
+    const h = new HnswVectorIndex(DIM, { initialCapacity: 4, ef: 77 });
     expect(h.capacity).toBe(4);
     vs.forEach((v, i) => h.add(`v${i}`, v));
     expect(h.size).toBe(100);
@@ -61,7 +61,7 @@ describe('HnswArchive', () => {
 
   it('marks deletions, never returns a removed id, and rebuilds past the deleted share', () => {
     const vs = unitVectors(40, DIM, 6);
-    const h = new HnswArchive(DIM, { rebuildDeletedShare: 0.25, ef: 100 });
+    const h = new HnswVectorIndex(DIM, { rebuildDeletedShare: 0.25, ef: 100 });
     vs.forEach((v, i) => h.add(`v${i}`, v));
     // 10 of 40 is exactly the share: not past it yet.
     for (let i = 0; i < 10; i++) expect(h.remove(`v${i}`)).toBe(true);
@@ -86,12 +86,12 @@ describe('HnswArchive', () => {
 
   it('re-applies ef after loading a saved index (hnswlib does not save it)', () => {
     const vs = unitVectors(200, DIM, 7);
-    const h = new HnswArchive(DIM, { ef: 123 });
+    const h = new HnswVectorIndex(DIM, { ef: 123 });
     vs.forEach((v, i) => h.add(`v${i}`, v));
     h.remove('v3');
     const file = join(dir, 'a.hnsw');
     h.saveSync(file);
-    const loaded = HnswArchive.loadSync(file, DIM, { ef: 123 });
+    const loaded = HnswVectorIndex.loadSync(file, DIM, { ef: 123 });
     expect(loaded.ef).toBe(123);
     expect(loaded.size).toBe(199);
     expect(loaded.has('v3')).toBe(false);
@@ -101,13 +101,13 @@ describe('HnswArchive', () => {
     // The kept vectors came back too: a later rebuild must not lose anything.
     loaded.add('v200', vs[0]!);
     expect(loaded.search(vs[150]!, 1)[0]!.id).toBe('v150');
-    const other = HnswArchive.loadSync(file, DIM, { ef: 31 });
+    const other = HnswVectorIndex.loadSync(file, DIM, { ef: 31 });
     expect(other.ef).toBe(31);
   });
 
   it('search with k above the size returns every live entry; clear empties it', () => {
     const vs = unitVectors(5, DIM, 9);
-    const h = new HnswArchive(DIM);
+    const h = new HnswVectorIndex(DIM);
     vs.forEach((v, i) => h.add(`v${i}`, v));
     expect(h.search(vs[0]!, 50)).toHaveLength(5);
     expect(h.search(vs[0]!, 0)).toEqual([]);
@@ -129,7 +129,7 @@ describe('HnswArchive', () => {
     for (const [o, msg] of bad) {
       let err: unknown;
       try {
-        new HnswArchive(DIM, o as never);
+        new HnswVectorIndex(DIM, o as never);
       } catch (e) {
         err = e;
       }
@@ -137,7 +137,7 @@ describe('HnswArchive', () => {
       expect((err as TidemarkError).code).toBe(ErrorCodes.CONFIG);
       expect((err as Error).message).toMatch(msg);
     }
-    expect(() => new HnswArchive(DIM).add('a', new Float32Array(DIM + 1))).toThrow(RangeError);
-    expect(HNSW_ARCHIVE_DEFAULTS).toEqual({ M: 16, efConstruction: 64, ef: 48, initialCapacity: 1024, rebuildDeletedShare: 0.25, randomSeed: 100 });
+    expect(() => new HnswVectorIndex(DIM).add('a', new Float32Array(DIM + 1))).toThrow(RangeError);
+    expect(HNSW_VECTOR_INDEX_DEFAULTS).toEqual({ M: 16, efConstruction: 64, ef: 48, initialCapacity: 1024, rebuildDeletedShare: 0.25, randomSeed: 100 });
   });
 });

@@ -1,10 +1,10 @@
 // Exact nearest-neighbour search by a linear scan of float32 vectors; the right choice for small
-// archives, where it is both exact and faster than building a graph index.
+// logbooks, where it is both exact and faster than building a graph index.
 
-import type { VectorIndex, VectorMatch } from './archive.js';
+import type { VectorIndex, VectorMatch } from './vector-index.js';
 import { dot, pushTopK } from '../memory/vector.js';
 
-export class ExactArchive implements VectorIndex {
+export class ExactVectorIndex implements VectorIndex {
   readonly dim: number;
   private vectors: Float32Array;
   private idsByRow: string[] = [];
@@ -24,7 +24,7 @@ export class ExactArchive implements VectorIndex {
   }
 
   add(id: string, vector: Float32Array): void {
-    if (vector.length !== this.dim) throw new RangeError(`vector has ${vector.length} dims, archive holds ${this.dim}`);
+    if (vector.length !== this.dim) throw new RangeError(`vector has ${vector.length} dims, the index holds ${this.dim}`);
     let row = this.rowById.get(id);
     if (row === undefined) {
       row = this.idsByRow.length;

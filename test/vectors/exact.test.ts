@@ -1,14 +1,14 @@
 import { describe, expect, it } from 'vitest';
-import { ExactArchive } from '../../src/archive/exact.js';
+import { ExactVectorIndex } from '../../src/vectors/exact.js';
 
 const v = (...xs: number[]): Float32Array => {
   const n = Math.hypot(...xs);
   return Float32Array.from(xs.map((x) => x / n));
 };
 
-describe('ExactArchive', () => {
+describe('ExactVectorIndex', () => {
   it('returns exact cosines, best first, cut at k', () => {
-    const a = new ExactArchive(3, 1);
+    const a = new ExactVectorIndex(3, 1);
     a.add('x', v(1, 0, 0));
     a.add('y', v(0, 1, 0));
     a.add('xy', v(1, 1, 0));
@@ -24,7 +24,7 @@ describe('ExactArchive', () => {
   });
 
   it('replaces a vector under the same id, and remove keeps the rest searchable', () => {
-    const a = new ExactArchive(2, 1);
+    const a = new ExactVectorIndex(2, 1);
     a.add('p', v(1, 0));
     a.add('q', v(0, 1));
     a.add('r', v(-1, 0));
@@ -41,7 +41,7 @@ describe('ExactArchive', () => {
   });
 
   it('rejects a vector of the wrong dimension and k <= 0 returns nothing', () => {
-    const a = new ExactArchive(2);
+    const a = new ExactVectorIndex(2);
     expect(() => a.add('a', new Float32Array(3))).toThrow(RangeError);
     a.add('a', v(1, 0));
     expect(a.search(v(1, 0), 0)).toEqual([]);

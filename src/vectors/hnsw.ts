@@ -1,16 +1,16 @@
-// Approximate nearest-neighbour search for large archives: a Hierarchical Navigable Small World graph
+// Approximate nearest-neighbour search for large logbooks: a Hierarchical Navigable Small World graph
 // (Malkov & Yashunin 2018, "Efficient and robust approximate nearest neighbor search using HNSW graphs")
 // through hnswlib-node, an optional peer dependency loaded only when an index is actually built.
 
 import { existsSync, readFileSync, writeFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
-import type { VectorIndex, VectorMatch } from './archive.js';
+import type { VectorIndex, VectorMatch } from './vector-index.js';
 import { ConfigError, describeValue } from '../errors.js';
 
 type HnswModule = typeof import('hnswlib-node');
 type HnswIndex = import('hnswlib-node').HierarchicalNSW;
 
-export interface HnswArchiveOptions {
+export interface HnswVectorIndexOptions {
   /**
    * Links each node keeps per graph layer (2·M on the bottom layer). Higher M raises recall at a given
    * `ef` and copes with higher intrinsic dimension, at the cost of memory (about 8·M bytes a node on
@@ -21,7 +21,7 @@ export interface HnswArchiveOptions {
   /**
    * Candidate list size while inserting. Higher builds a better graph (higher recall for the same
    * search `ef`) and makes every insert and rebuild slower; it does not change the search cost. 64
-   * rather than hnswlib's 200 keeps a 100K build to a few minutes on 2 cores (bench/archive.ts).
+   * rather than hnswlib's 200 keeps a 100K build to a few minutes on 2 cores (bench/vectors.ts).
    * @default 64
    */
   efConstruction?: number;
@@ -29,7 +29,7 @@ export interface HnswArchiveOptions {
    * Candidate list size while searching (hnswlib uses at least `k`). Higher raises recall and search
    * time roughly in proportion. hnswlib does not save it with an index, so it is re-applied after every
    * load, resize and rebuild. 48 is the smallest value that kept recall@10 near 0.98 at 100K
-   * embedding-like (low-rank) vectors with search p50 under 1 ms (bench/archive.ts); uniform random
+   * embedding-like (low-rank) vectors with search p50 under 1 ms (bench/vectors.ts); uniform random
    * vectors need ef in the thousands for the same recall.
    * @default 48
    */
@@ -47,7 +47,7 @@ export interface HnswArchiveOptions {
   randomSeed?: number;
 }
 
-export const HNSW_ARCHIVE_DEFAULTS: Required<HnswArchiveOptions> = {
+export const HNSW_VECTOR_INDEX_DEFAULTS: Required<HnswVectorIndexOptions> = {
   M: 16,
   efConstruction: 64,
   ef: 48,
@@ -79,23 +79,23 @@ function requireHnswlib(): HnswModule {
   const r = loadHnswlib();
   if ('module' in r) return r.module;
   throw new ConfigError(
-    'HNSW archive: hnswlib-node could not be loaded; install it with `npm install hnswlib-node@3` ' +
-      '(it builds a native addon), or use ExactArchive / createVectorIndex(), which stays on exact search without it',
+    'HNSW index: hnswlib-node could not be loaded; install it with `npm install hnswlib-node@3` ' +
+      '(it builds a native addon), or use ExactVectorIndex / createVectorIndex(), which stays on exact search without it',
     { cause: r.error, details: { dependency: 'hnswlib-node' } },
   );
 }
 
 function checkInt(name: string, value: unknown, min: number, max: number): void {
   if (typeof value !== 'number' || !Number.isInteger(value) || value < min || value > max) {
-    throw new ConfigError(`HNSW archive: ${name} must be an integer in [${min}, ${max}], got ${describeValue(value)}`, {
+    throw new ConfigError(`HNSW index: ${name} must be an integer in [${min}, ${max}], got ${describeValue(value)}`, {
       details: { option: name, value, expected: `integer in [${min}, ${max}]` },
     });
   }
 }
 
-/** Resolves and validates HNSW options; shared with the adaptive archive so errors surface at construction. */
-export function resolveHnswOptions(options: HnswArchiveOptions = {}): Required<HnswArchiveOptions> {
-  const o = { ...HNSW_ARCHIVE_DEFAULTS, ...options };
+/** Resolves and validates HNSW options; shared with the adaptive index so errors surface at construction. */
+export function resolveHnswOptions(options: HnswVectorIndexOptions = {}): Required<HnswVectorIndexOptions> {
+  const o = { ...HNSW_VECTOR_INDEX_DEFAULTS, ...options };
   checkInt('M', o.M, 2, 100);
   checkInt('efConstruction', o.efConstruction, 1, 10_000);
   checkInt('ef', o.ef, 1, 10_000);
@@ -103,7 +103,7 @@ export function resolveHnswOptions(options: HnswArchiveOptions = {}): Required<H
   checkInt('randomSeed', o.randomSeed, 0, 2 ** 32 - 1);
   const share = o.rebuildDeletedShare;
   if (typeof share !== 'number' || !(share > 0 && share <= 1)) {
-    throw new ConfigError(`HNSW archive: rebuildDeletedShare must be a number in (0, 1], got ${describeValue(share)}`, {
+    throw new ConfigError(`HNSW index: rebuildDeletedShare must be a number in (0, 1], got ${describeValue(share)}`, {
       details: { option: 'rebuildDeletedShare', value: share, expected: 'number in (0, 1]' },
     });
   }
@@ -121,9 +121,9 @@ interface SavedIds {
 
 const idsFile = (file: string): string => `${file}.ids.json`;
 
-export class HnswArchive implements VectorIndex {
+export class HnswVectorIndex implements VectorIndex {
   readonly dim: number;
-  private readonly o: Required<HnswArchiveOptions>;
+  private readonly o: Required<HnswVectorIndexOptions>;
   private readonly lib: HnswModule;
   private index!: HnswIndex;
   /** Vectors by label, row-major; kept so the graph can be rebuilt without its deleted nodes. */
@@ -137,7 +137,7 @@ export class HnswArchive implements VectorIndex {
   /** Search ef in force; starts at `options.ef`, changed by `setEf`. */
   private efSearch: number;
 
-  constructor(dim: number, options: HnswArchiveOptions = {}) {
+  constructor(dim: number, options: HnswVectorIndexOptions = {}) {
     checkInt('dim', dim, 1, 65_536);
     this.o = resolveHnswOptions(options);
     this.efSearch = this.o.ef;
@@ -182,7 +182,7 @@ export class HnswArchive implements VectorIndex {
   }
 
   add(id: string, vector: Float32Array): void {
-    if (vector.length !== this.dim) throw new RangeError(`vector has ${vector.length} dims, archive holds ${this.dim}`);
+    if (vector.length !== this.dim) throw new RangeError(`vector has ${vector.length} dims, the index holds ${this.dim}`);
     const existing = this.labelById.get(id);
     const label = existing ?? this.used;
     // hnswlib throws when adding past maxElements, so grow first.
@@ -211,7 +211,7 @@ export class HnswArchive implements VectorIndex {
   }
 
   search(query: Float32Array, k: number): VectorMatch[] {
-    if (query.length !== this.dim) throw new RangeError(`query has ${query.length} dims, archive holds ${this.dim}`);
+    if (query.length !== this.dim) throw new RangeError(`query has ${query.length} dims, the index holds ${this.dim}`);
     if (k <= 0 || this.labelById.size === 0) return [];
     // hnswlib already leaves marked-deleted labels out of its results; the extra places are a guard so a
     // label we no longer map can never cost the caller a result.
@@ -247,16 +247,16 @@ export class HnswArchive implements VectorIndex {
   }
 
   /** Loads what `saveSync` wrote; `ef` (and the other options) come from `options`, not the file. */
-  static loadSync(file: string, dim: number, options: HnswArchiveOptions = {}): HnswArchive {
-    const a = new HnswArchive(dim, options);
+  static loadSync(file: string, dim: number, options: HnswVectorIndexOptions = {}): HnswVectorIndex {
+    const a = new HnswVectorIndex(dim, options);
     if (!existsSync(idsFile(file))) {
-      throw new ConfigError(`HNSW archive: ${idsFile(file)} is missing; save with HnswArchive.saveSync()`, {
+      throw new ConfigError(`HNSW index: ${idsFile(file)} is missing; save with HnswVectorIndex.saveSync()`, {
         details: { option: 'file' },
       });
     }
     const doc = JSON.parse(readFileSync(idsFile(file), 'utf8')) as SavedIds;
     if (doc.format !== 'tidemark-hnsw-ids' || doc.version !== 1 || doc.dim !== dim || !Array.isArray(doc.ids)) {
-      throw new ConfigError(`HNSW archive: ${idsFile(file)} is not an id table for dim ${dim}`, {
+      throw new ConfigError(`HNSW index: ${idsFile(file)} is not an id table for dim ${dim}`, {
         details: { option: 'file', dim: doc.dim },
       });
     }
@@ -292,7 +292,7 @@ export class HnswArchive implements VectorIndex {
 
   private newIndex(capacity: number): HnswIndex {
     // Inner product on unit vectors is cosine without hnswlib's per-call normalisation, and matches
-    // ExactArchive's dot product to float32 rounding.
+    // ExactVectorIndex's dot product to float32 rounding.
     const index = new this.lib.HierarchicalNSW('ip', this.dim);
     index.initIndex({ maxElements: capacity, m: this.o.M, efConstruction: this.o.efConstruction, randomSeed: this.o.randomSeed });
     index.setEf(this.efSearch);
