@@ -12,7 +12,7 @@ import { findValueExpr, type ValueKind } from './values.js';
 export interface Candidate {
   /** The topic it is addressed by ("my bike"); embedded as the slot key. */
   key: string;
-  /** What a read recalls ("a green Quenby"). */
+  /** What a read recalls ("a green Corvane"). */
   value: string;
   /** The sentence it came from (used for gate features). */
   text: string;
@@ -307,7 +307,7 @@ function bookingKey(sentence: string): string {
 
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
-  // "a green Quenby with a basket" -> "Quenby": stop at the first preposition.
+  // "a green Corvane with a basket" -> "Corvane": stop at the first preposition.
   const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
   // A model number is not the noun: "a Orrin Sprint 2" -> "sprint".

@@ -114,9 +114,9 @@ describe('the packed tarball in a fresh TypeScript app', () => {
   });
 
   it('installs alone: the root entry loads and runs without any optional peer', async () => {
-    const script = `import('tidemark').then(async (t) => { const m = t.createTidemark(); await m.write({ session: 's', text: 'My bike is a green Quenby.' }); const c = await m.read({ session: 's', text: 'which bike?' }); console.log(c.items[0].value); });`;
+    const script = `import('tidemark').then(async (t) => { const m = t.createTidemark(); await m.write({ session: 's', text: 'My bike is a green Corvane.' }); const c = await m.read({ session: 's', text: 'which bike?' }); console.log(c.items[0].value); });`;
     const { stdout } = await run(process.execPath, ['--input-type=module', '-e', script], { cwd: app });
-    expect(stdout.trim()).toBe('a green Quenby');
+    expect(stdout.trim()).toBe('a green Corvane');
   }, 60_000);
 
   it('tsc --strict without skipLibCheck passes without the optional peers', async () => {
