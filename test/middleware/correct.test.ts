@@ -233,6 +233,24 @@ describe('WriteReport.detail', () => {
     expect(JSON.stringify(c)).not.toContain('floods');
     await tm.close();
   });
+
+  it('lists a candidate the gate turned away as dropped (key, turn, score), and values only with text: true', async () => {
+    const tm = createTidemark({ hashKey: 'detail', write: { gateThreshold: 1 } });
+    const r = await tm.write({ session: 'd4', turn: 'g1', text: 'My bike is a green Corvane Audax.' });
+    expect(r.gatedOut).toBe(1);
+    expect(r.detail).toEqual({ stored: [], overwritten: [], dropped: [{ kind: 'gated_out', key: 'my bike', turn: 'g1', gate: expect.any(Number) }] });
+    expect((r.detail!.dropped[0] as { gate: number }).gate).toBeLessThan(1);
+    expect(JSON.stringify(r)).not.toContain('Corvane');
+    const t = await tm.write({ session: 'd4', turn: 'g2', text: 'My bike is a green Corvane Audax.' }, { text: true });
+    expect(t.detail!.dropped).toEqual([{ kind: 'gated_out', key: 'my bike', turn: 'g2', gate: expect.any(Number), value: 'a green Corvane Audax' }]);
+    await tm.close();
+
+    const small = createTidemark({ hashKey: 'detail', capacity: 1 });
+    const a = await small.write({ session: 'd5', turn: 'h1', text: 'My name is Dana.' });
+    const b = await small.write({ session: 'd5', turn: 'h2', text: 'My bike is a green Corvane Audax.' }, { text: true });
+    expect(b.detail!.dropped).toEqual([{ kind: 'evicted', id: a.detail!.stored[0]!.id, slot: 0, key: 'my name', reason: 'capacity', logged: true, value: 'Dana' }]);
+    await small.close();
+  });
 });
 
 describe('the per-turn history option of wrap', () => {
