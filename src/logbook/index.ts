@@ -1,4 +1,8 @@
-// Over ~400 lines on purpose: the index's postings, links and search share private state kept in step; split after the perf work lands.
+// Why this file is over ~400 lines: LogbookIndex is one class whose postings (term -> documents),
+// turn-neighbour links, speaker and supersession maps and document slots are private arrays kept in
+// step by add, remove and compact, and read by search in the same pass. Moving search or compaction
+// to another module would mean exposing those arrays (and their invariants) to it; the query
+// analysis (query.ts) and the BM25 weights (memory/bm25.ts) already live apart.
 // The logbook's search index for one scope (a session, or a user across sessions): an inverted index
 // for Okapi BM25 (Robertson & Zaragoza 2009) kept incrementally as entries arrive, each turn linked to
 // the turns before and after it in its session, the speakers who said them, the dates they mention,

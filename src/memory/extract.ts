@@ -1,4 +1,8 @@
-// Over ~400 lines on purpose: the extraction rules read as one ordered list; splitting them would hide their precedence.
+// Why this file is over ~400 lines: the rule extractor is one ordered list of rules (the first that
+// matches a clause wins) together with the topic helpers those rules call (canonical topics, heads of
+// phrases, booking keys, answers to the bot's own question). A rule's meaning depends on the rules
+// before it and on those helpers, so they are read and changed together; sentence splitting and the
+// value kinds (values.ts) already live apart.
 // Candidate extraction: splits a turn into key/value candidates for the write gate. The default is
 // rule-based, for the common first-person statements bots hear ("my X is Y", "I live in Y", "call me
 // Y", "remember that ..."), dated or counted statements, and updates ("actually, make it Friday").
