@@ -53,7 +53,7 @@ export function demoHandler(input: WrapInput, ctx: WrapContext): AsyncIterable<s
 /** The demo conversation: one customer over a week, with an update and some small talk. */
 export const DEMO_CONVERSATION: ReadonlyArray<{ text: string; at: string }> = [
   { text: 'Hi there!', at: '2026-03-02T09:00:00Z' },
-  { text: 'My name is Dana Whitfield and my bike is a green Quenby with a dynamo hub.', at: '2026-03-02T09:00:20Z' },
+  { text: 'My name is Dana Whitfield and my bike is a green Corvane with a dynamo hub.', at: '2026-03-02T09:00:20Z' },
   { text: 'Can I book a full service for Tuesday?', at: '2026-03-02T09:01:00Z' },
   { text: "I'm allergic to citrus degreaser, so please keep it away from my bike.", at: '2026-03-02T09:01:40Z' },
   { text: 'Lovely weather for riding today, isn\'t it?', at: '2026-03-02T09:02:10Z' },

@@ -1,6 +1,7 @@
 // `tidemark replay` on the command line: reads the transcript, probe and config files, runs the
 // replay with a progress bar, and prints a table or one JSON object. The replay itself is in replay.ts.
 
+import { withDeprecatedReplayFields } from '../src/deprecated-fields.js';
 import { ConfigError, describeValue, isTidemarkError } from '../src/errors.js';
 import type { TidemarkOptions } from '../src/middleware/tidemark.js';
 import type { ReadResult } from '../src/types.js';
@@ -123,7 +124,7 @@ export async function replayCli(transcriptPath: string, cli: ReplayCliOptions, i
       ...(bar ? { onProgress: (d: number) => bar.tick(d) } : {}),
     });
     bar?.done();
-    if (cli.json) io.stdout(JSON.stringify(result) + '\n');
+    if (cli.json) io.stdout(JSON.stringify({ ...result, summary: withDeprecatedReplayFields(result.summary) }) + '\n');
     else io.stdout(formatReplayTable(result));
     for (const i of result.issues) if (cli.json) io.stderr.write(`${i.file} line ${i.line}: ${i.message}\n`);
     return 0;

@@ -1,6 +1,7 @@
 // The figures `tidemark replay` reports: the shapes of its summary (recall@1 / recall@k, value
 // accuracy, per probe kind, per tier and per baseline) and the pure helpers that compute them.
 
+import type { DeprecatedReplayFields } from '../src/deprecated-fields.js';
 import type { EvictReason, LogbookKind, ReadResult, RecallItem, Role } from '../src/types.js';
 import { patternOf, type Probe } from './jsonl.js';
 
@@ -57,7 +58,7 @@ export interface TierSummary {
   };
 }
 
-export interface ReplaySummary extends RecallFigures {
+export interface ReplaySummary extends RecallFigures, DeprecatedReplayFields {
   turns: number;
   sessions: number;
   probes: number;
@@ -80,7 +81,7 @@ export interface ReplaySummary extends RecallFigures {
   slots_in_use: number;
   /** Logbook entries at the end, over all scopes. */
   logbook_entries: number;
-  /** @deprecated since 0.2: logbook entries other than turns (the values that left working memory). */
+  /** Logbook entries other than turns: the values that left working memory (superseded or evicted). */
   demoted_items: number;
   tiers: TierSummary;
   /** Read latency (µs, embedding included) over turn and probe reads. */

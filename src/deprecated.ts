@@ -1,13 +1,15 @@
 // Deprecated names of the root entry (`tidemark`), kept for one minor version (from 0.2 until 0.3):
 // the only place the old names live. Each points to its new name; none has behaviour of its own.
-// The root entry re-exports this module, so `import { MemoryStore } from 'tidemark'` keeps working.
+// The root entry re-exports all of this module, so `import { MemoryStore } from 'tidemark'` keeps
+// working; old fields of options and output live in src/deprecated-fields.ts.
 
 import { DURATION_BUCKETS_SECONDS as DURATION_BUCKETS, PROMETHEUS_METRICS_DEFAULTS as METRICS_DEFAULTS } from './metrics/prometheus.js';
 import type { TidemarkEventSource } from './metrics/source.js';
+import type { DemoteEvent } from './middleware/events.js';
 import { IN_PROCESS_STORE_DEFAULTS, InProcessStore, inProcessStore, type InProcessStoreOptions } from './store/in-process.js';
-import { VECTOR_INDEX_DEFAULTS, createVectorIndex, type VectorIndexOptions } from './archive/index.js';
-import type { VectorIndex, VectorMatch } from './archive/archive.js';
-import type { LogbookEntry, LogbookScope, LogbookVectorHit } from './types.js';
+import { VECTOR_INDEX_DEFAULTS, createVectorIndex, type VectorIndexOptions } from './vectors/index.js';
+import type { VectorIndex, VectorMatch } from './vectors/vector-index.js';
+import type { DemotionReason, LogbookEntry, LogbookScope, LogbookVectorHit } from './types.js';
 
 // ------------------------------------------------------------------ the in-process store
 
@@ -40,25 +42,14 @@ export type ArchiveOptions = VectorIndexOptions;
 export const createArchive = createVectorIndex;
 /** @deprecated since 0.2: use `VECTOR_INDEX_DEFAULTS`. */
 export const ARCHIVE_DEFAULTS = VECTOR_INDEX_DEFAULTS;
+/** @deprecated since 0.2: use `DemotionReason`. */
+export type ArchiveReason = DemotionReason;
+/** @deprecated since 0.2: use `DemoteEvent` (the `archive` event is now `demote`). */
+export type ArchiveEvent = DemoteEvent;
 
-// ------------------------------------------------------------------ options
+// ------------------------------------------------------------------ options and output fields
 
-/** Options of `createTidemark` under their old names; `TidemarkOptions` extends this. */
-export interface DeprecatedTidemarkOptions {
-  /** @deprecated since 0.2: use `hashKey`; when both are set, `hashKey` wins. */
-  secret?: string;
-}
-
-/** Options of both stores under their old names; `InProcessStoreOptions` and `RedisSlotStoreOptions` extend this. */
-export interface DeprecatedStoreOptions {
-  /** @deprecated since 0.2: use `vectorIndex`; when both are set, `vectorIndex` wins. */
-  archive?: VectorIndexOptions;
-}
-
-/** The id-hashing key from the new option or its deprecated name. */
-export function hashKeyOf(options: { hashKey?: string } & DeprecatedTidemarkOptions): string | undefined {
-  return options.hashKey ?? options.secret;
-}
+export type { DeprecatedTidemarkOptions, DeprecatedStoreOptions } from './deprecated-fields.js';
 
 // ------------------------------------------------------------------ metrics moved to `tidemark/prometheus`
 // The root entry's declarations must not name prom-client's types (a TypeScript user without the

@@ -67,24 +67,4 @@ export {
 export type { ErrorCode } from './errors.js';
 
 // Old names, kept for one minor version: see src/deprecated.ts.
-export {
-  MemoryStore,
-  memoryStore,
-  MEMORY_STORE_DEFAULTS,
-  createArchive,
-  ARCHIVE_DEFAULTS,
-  prometheusMetrics,
-  PROMETHEUS_METRICS_DEFAULTS,
-  DURATION_BUCKETS_SECONDS,
-} from './deprecated.js';
-export type {
-  MemoryStoreOptions,
-  ArchiveScope,
-  ArchiveItem,
-  ArchiveHit,
-  Archive,
-  ArchiveMatch,
-  VectorIndexOptions,
-  DeprecatedTidemarkOptions,
-  DeprecatedPrometheusMetrics,
-} from './deprecated.js';
+export * from './deprecated.js';

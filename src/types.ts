@@ -61,7 +61,7 @@ export interface SlotRecord {
   key: Float32Array;
   /** The topic the slot is addressed by, e.g. "my bike". */
   keyText: string;
-  /** What a read recalls, e.g. "a green Quenby". */
+  /** What a read recalls, e.g. "a green Corvane". */
   value: string;
   /** Turn ids the value came from, newest first (an update's own turn leads). */
   provenance: string[];

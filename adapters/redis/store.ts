@@ -10,7 +10,7 @@
 
 import { randomBytes } from 'node:crypto';
 import type { VectorIndexOptions } from '../../src/vectors/index.js';
-import type { DeprecatedStoreOptions } from '../../src/deprecated.js';
+import type { DeprecatedStoreOptions } from '../../src/deprecated-fields.js';
 import { logbookIndexFor } from '../../src/store/in-process.js';
 import { ConfigError, ErrorCodes, StoreError, describeValue } from '../../src/errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../../src/logbook/index.js';

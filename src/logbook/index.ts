@@ -1,4 +1,9 @@
-// Over ~400 lines on purpose: the index's postings, links and search share private state kept in step; split after the perf work lands.
+// Why this file is over ~400 lines: LogbookIndex is one class whose postings (term -> documents),
+// turn-neighbour links, speaker and supersession maps and document slots are private arrays kept in
+// step by add, remove and compact, and read by search in the same pass. Moving search or compaction
+// to another module would mean exposing those arrays (and their invariants) to it. What stands apart
+// already does: the search's settings and result types (types.ts), the posting list and its lookup
+// (postings.ts), the query analysis (query.ts) and the BM25 weights (memory/bm25.ts).
 // The logbook's search index for one scope (a session, or a user across sessions): an inverted index
 // for Okapi BM25 (Robertson & Zaragoza 2009) kept incrementally as entries arrive, each turn linked to
 // the turns before and after it in its session, the speakers who said them, the dates they mention,
@@ -10,93 +15,14 @@ import type { VectorIndex } from '../vectors/vector-index.js';
 import { createVectorIndex, type VectorIndexOptions } from '../vectors/index.js';
 import { bm25Idf, bm25Term } from '../memory/bm25.js';
 import { dateTerms } from '../memory/dates.js';
-import { READ_DEFAULTS, type ReadParams } from '../memory/params.js';
 import { analyze, tokenize } from '../memory/text.js';
 import { pushTopK } from '../memory/vector.js';
 import type { LogbookEntry } from '../types.js';
+import { gallop, type Posting } from './postings.js';
+import { LOGBOOK_SEARCH_DEFAULTS, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult, type LogbookHit } from './types.js';
 
-/** How one search scores entries: the read options that concern the logbook (see ReadParams). */
-export type LogbookSearchParams = Pick<
-  ReadParams,
-  'k1' | 'b' | 'neighbourWeight' | 'speakerBoost' | 'nameWeight' | 'dateWeight' | 'temporalBoost' | 'replyWeight' | 'questionWeight'
-> & {
-  /** Entries returned by the lexical ranking at most (read.logbookLimit). */
-  limit: number;
-};
-
-/** The logbook search settings of a read's parameters. */
-export function searchParamsOf(p: ReadParams): LogbookSearchParams {
-  return {
-    k1: p.k1, b: p.b, neighbourWeight: p.neighbourWeight, speakerBoost: p.speakerBoost, nameWeight: p.nameWeight,
-    dateWeight: p.dateWeight, temporalBoost: p.temporalBoost, replyWeight: p.replyWeight, questionWeight: p.questionWeight, limit: p.logbookLimit,
-  };
-}
-
-export const LOGBOOK_SEARCH_DEFAULTS: LogbookSearchParams = searchParamsOf(READ_DEFAULTS);
-
-/** A query, analysed once by the caller (the same analysis scores slots). */
-export interface LogbookQuery {
-  /** Analysed terms (see `analyze`), with repeats. */
-  terms: readonly string[];
-  /** Raw lower-cased tokens, to recognise speakers' names. */
-  tokens: readonly string[];
-  /** Resolved-date terms of the query (see `dateTerms`). */
-  dateTerms: readonly string[];
-  /** The query asks when something happened. */
-  temporal: boolean;
-  /** Unit query vector, for the dense list. */
-  vector?: Float32Array;
-  /** Dense candidates wanted (0 for none). */
-  denseK?: number;
-}
-
-/** One entry a search found. */
-export interface LogbookHit {
-  entry: LogbookEntry;
-  /** Final lexical score: own BM25 plus the neighbours' share, times the speaker and date boosts. */
-  score: number;
-  /** The entry's own BM25 score (boosts excluded). */
-  lexical: number;
-  /** The part of `score` that came from neighbouring turns (before boosts). */
-  context: number;
-  /** Own BM25 over the query's maximum, in [0, ~1.5]: how much of the query the entry covers. */
-  coverage: number;
-  /** Cosine to the query vector, when the dense list was searched and holds the entry (else NaN). */
-  cosine: number;
-  /** Rank in the lexical list (1-based; 0 when only the dense list found it). */
-  lexicalRank: number;
-  /** Rank in the dense list (1-based; 0 when absent). */
-  denseRank: number;
-  /** Said by a person the query names. */
-  speakerMatch: boolean;
-  /**
-   * For a superseded value, and for a turn that stated a superseded value the query matched: the
-   * revision id of the current value (the successor chain followed through the logbook). A read never
-   * ranks this hit above it.
-   */
-  supersededBy?: string;
-}
-
-/** What a search found, and the statistics to score other texts (slots) on the same scale. */
-export interface LogbookSearchResult {
-  hits: LogbookHit[];
-  /** Entries in the index. */
-  size: number;
-  /** Average analysed length of the entries. */
-  avgLength: number;
-  /** Inverse document frequency per distinct query term (0 for unseen terms). */
-  idf: Map<string, number>;
-  /** Document frequency per distinct query term (live entries holding it). */
-  df: Map<string, number>;
-  /** Weight of each distinct query term (name and date terms are weighted differently). */
-  weight: Map<string, number>;
-  /** The query's maximum BM25: sum of weight × idf; coverage is a score over this. */
-  maxScore: number;
-  /** Speakers of this scope the query names, lower-cased. */
-  speakers: string[];
-  /** Final successors of superseded hits that are logbook entries themselves (evicted since). */
-  successors: Map<string, LogbookEntry>;
-}
+export { searchParamsOf, LOGBOOK_SEARCH_DEFAULTS } from './types.js';
+export type { LogbookSearchParams, LogbookQuery, LogbookHit, LogbookSearchResult } from './types.js';
 
 /** A polite request ("could you order 4 bags?", "can I book a service for Tuesday?") states what is wanted. */
 const REQUEST = /^\W*(?:(?:hi|hey|hello|ok|okay|yes|no|sure|great|sorry|actually|then|and|so|well|also)\b[\s,!.]*)*(?:(?:can|could|would|will|may)\s+(?:you|we|i)\b|please\b|i(?:'d| would) like\b|let'?s\b)/i;
@@ -128,38 +54,7 @@ const PREV = 1;
 const NEXT = 2;
 const FLAGS = 3;
 
-/**
- * The first index i in [from, n) with docs[i] >= d (n when none), for ascending `docs`: an
- * exponential probe then a binary search (galloping; Bentley & Yao 1976), so a run of lookups in
- * ascending order costs O(m log(n / m)).
- */
-export function gallop(docs: Int32Array, from: number, n: number, d: number): number {
-  if (from >= n || docs[from]! >= d) return from;
-  let step = 1;
-  let lo = from; // docs[lo] < d
-  let hi = from + 1;
-  while (hi < n && docs[hi]! < d) {
-    lo = hi;
-    step *= 2;
-    hi = from + step;
-  }
-  if (hi > n) hi = n;
-  // docs[lo] < d, and docs[hi] >= d or hi == n
-  while (hi - lo > 1) {
-    const mid = (lo + hi) >>> 1;
-    if (docs[mid]! < d) lo = mid;
-    else hi = mid;
-  }
-  return hi;
-}
-
-export { bm25Idf, bm25Term };
-
-interface Posting {
-  docs: Int32Array;
-  tfs: Uint16Array;
-  n: number;
-}
+export { bm25Idf, bm25Term, gallop };
 
 /** The speaker names a query can use: the whole label and each of its words ("Ana Ruiz" -> "ana", "ruiz"). */
 export function speakerTokens(speaker: string): string[] {

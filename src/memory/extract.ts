@@ -1,4 +1,8 @@
-// Over ~400 lines on purpose: the extraction rules read as one ordered list; splitting them would hide their precedence.
+// Why this file is over ~400 lines: the rule extractor is one ordered list of rules (the first that
+// matches a clause wins) together with the topic helpers those rules call (canonical topics, heads of
+// phrases, booking keys, answers to the bot's own question). A rule's meaning depends on the rules
+// before it and on those helpers, so they are read and changed together; sentence splitting and the
+// value kinds (values.ts) already live apart.
 // Candidate extraction: splits a turn into key/value candidates for the write gate. The default is
 // rule-based, for the common first-person statements bots hear ("my X is Y", "I live in Y", "call me
 // Y", "remember that ..."), dated or counted statements, and updates ("actually, make it Friday").
@@ -12,7 +16,7 @@ import { findValueExpr, type ValueKind } from './values.js';
 export interface Candidate {
   /** The topic it is addressed by ("my bike"); embedded as the slot key. */
   key: string;
-  /** What a read recalls ("a green Quenby"). */
+  /** What a read recalls ("a green Corvane"). */
   value: string;
   /** The sentence it came from (used for gate features). */
   text: string;
@@ -307,7 +311,7 @@ function bookingKey(sentence: string): string {
 
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
-  // "a green Quenby with a basket" -> "Quenby": stop at the first preposition.
+  // "a green Corvane with a basket" -> "Corvane": stop at the first preposition.
   const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
   // A model number is not the noun: "a Orrin Sprint 2" -> "sprint".

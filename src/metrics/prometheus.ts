@@ -427,7 +427,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
       // Slots the retention sweep deleted left working memory as `expired`, like those a commit expires.
       if (e.slots > 0) evictions.inc({ reason: 'expired' }, e.slots);
     },
-    archive(e) {
+    demote(e) {
       if (DEMOTE_REASONS.includes(e.reason)) demoted.inc(at({ reason: e.reason }, e));
     },
     commit(e) {

@@ -2,6 +2,7 @@
 // stored, re-embed after an embedder change. Each runs on the session's write chain, so it never
 // interleaves with a turn's write.
 
+import { withDeprecatedEvictFields } from '../deprecated-fields.js';
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, InputError, StoreError, describeValue } from '../errors.js';
 import { decayed } from '../memory/decay.js';
@@ -90,7 +91,7 @@ export class Admin {
   }
 
   /** A session's slots (strengths decayed to now), logbook entries and recent events. */
-  async inspect(session: string, tenant: string, options: { user?: string; logbookLimit?: number; archiveLimit?: number; eventLimit?: number } = {}): Promise<SessionView> {
+  async inspect(session: string, tenant: string, options: { user?: string; logbookLimit?: number; eventLimit?: number } = {}): Promise<SessionView> {
     const core = this.core;
     const ref: SessionRef = { tenant: checkId('tenant', tenant), session: checkId('session', session), ...(options.user ? { user: checkId('user', options.user) } : {}) };
     const snap = await core.storeCall(() => core.store.load(ref), 'load');
@@ -109,7 +110,7 @@ export class Admin {
         });
       }
     }
-    const limit = options.logbookLimit ?? options.archiveLimit ?? 100;
+    const limit = options.logbookLimit ?? 100;
     const logbook = (await core.storeCall(() => core.store.listLogbook(scopeOf(ref), { limit }), 'logbook')).map(({ key: _key, ...rest }) => rest);
     const events = await core.storeCall(() => core.store.readEvents(ref, options.eventLimit ?? 100), 'events');
     return {
@@ -165,10 +166,10 @@ export class Admin {
     const t = snap.table;
     for (let i = 0; i < t.capacity; i++) {
       if (!t.isUsed(i)) continue;
-      core.events.emit('evict', {
+      core.events.emit('evict', withDeprecatedEvictFields({
         ...base, slot: i, id: t.ids[i]!, reason: 'erased', logged: false, lifetime: snap.clock - t.created[i]!,
         lifetimeMs: base.atMs - t.createdMs[i]!, halfLife: t.halfLife[i]!, strength: t.strength[i]!,
-      });
+      }));
     }
   }
 

@@ -4,6 +4,7 @@
 // a turn that said it still says it). An edit writes the new value as a fresh revision whose
 // provenance names the edit instead of a turn. Each runs on the session's write chain.
 
+import { withDeprecatedEvictFields } from '../deprecated-fields.js';
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, InputError, describeValue } from '../errors.js';
 import { InProcessStore, scopeOf } from '../store/in-process.js';
@@ -187,10 +188,10 @@ export class Corrections {
     const base = core.base(ref);
     let slot = -1;
     for (let i = 0; i < snap.table.capacity; i++) if (snap.table.ids[i] === rec.id) slot = i;
-    core.events.emit('evict', {
+    core.events.emit('evict', withDeprecatedEvictFields({
       ...base, slot, id: rec.id, reason: 'erased', logged: false, lifetime: snap.clock - rec.created,
       lifetimeMs: base.atMs - rec.createdMs, halfLife: rec.halfLife, strength: rec.strength,
-    });
+    }));
   }
 
   private event(type: StoredEvent['type'], slot: number, id: string, snap: SessionSnapshot, reason?: 'erased'): StoredEvent {

@@ -2,6 +2,7 @@
 // a keyed hash of the session id — never message text or raw ids — so they are safe to log and to
 // feed metrics. Emitting with no listener costs one check.
 
+import type { DeprecatedCommitEventFields, DeprecatedEvents, DeprecatedEvictEventFields, DeprecatedReadEventFields } from '../deprecated-fields.js';
 import type { TidemarkError } from '../errors.js';
 import type { DemotionReason, EvictReason, ReadResult, WriteOutcome } from '../types.js';
 
@@ -15,14 +16,12 @@ export interface SessionEventBase {
   atMs: number;
 }
 
-export interface ReadEvent extends SessionEventBase {
+export interface ReadEvent extends SessionEventBase, DeprecatedReadEventFields {
   result: ReadResult;
   /** Items returned (slots + logbook entries). */
   items: number;
   slotItems: number;
   logbookItems: number;
-  /** @deprecated since 0.2: the same as `logbookItems`. */
-  archiveItems: number;
   scanned: number;
   slotsInUse: number;
   capacity: number;
@@ -67,11 +66,11 @@ export interface OverwriteEvent extends SessionEventBase {
   cosine: number;
 }
 
-export interface EvictEvent extends SessionEventBase {
+export interface EvictEvent extends SessionEventBase, DeprecatedEvictEventFields {
   slot: number;
   id: string;
   reason: EvictReason;
-  /** Where the evicted value went. */
+  /** Where the evicted value went: kept in the logbook (true), or deleted (erased, expired). */
   logged: boolean;
   /** Lifetime in session clock units (turns or seconds) and in wall-clock ms. */
   lifetime: number;
@@ -89,7 +88,7 @@ export interface GateEvent extends SessionEventBase {
   features: Record<string, number>;
 }
 
-export interface CommitEvent extends SessionEventBase {
+export interface CommitEvent extends SessionEventBase, DeprecatedCommitEventFields {
   ops: number;
   /** Values demoted to the logbook (superseded or evicted). */
   demoted: number;
@@ -132,7 +131,7 @@ export interface OutboxEvent {
   sessionHash?: string;
 }
 
-/** A value left working memory for the logbook. */
+/** A value left working memory for the logbook (superseded, or evicted and kept). */
 export interface DemoteEvent extends SessionEventBase {
   reason: DemotionReason;
   id: string;
@@ -180,14 +179,14 @@ export interface ClosedEvent {
 }
 
 /** Event name -> listener signature, for `tidemark.on(name, listener)`. */
-export interface TidemarkEvents {
+export interface TidemarkEvents extends DeprecatedEvents {
   read: (e: ReadEvent) => void;
   write: (e: WriteEvent) => void;
   overwrite: (e: OverwriteEvent) => void;
   evict: (e: EvictEvent) => void;
   gate: (e: GateEvent) => void;
   commit: (e: CommitEvent) => void;
-  archive: (e: DemoteEvent) => void;
+  demote: (e: DemoteEvent) => void;
   logbook: (e: LogbookEvent) => void;
   degraded: (e: DegradedEvent) => void;
   outbox: (e: OutboxEvent) => void;

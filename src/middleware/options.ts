@@ -2,7 +2,7 @@
 // defaults in one constant, resolved and validated once at construction (the caller's object is
 // never changed).
 
-import type { DeprecatedTidemarkOptions } from '../deprecated.js';
+import type { DeprecatedTidemarkOptions } from '../deprecated-fields.js';
 import type { Embedder } from '../embed/embedder.js';
 import { ConfigError, describeValue } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';

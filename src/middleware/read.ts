@@ -3,6 +3,7 @@
 // src/memory/rank.ts). The whole read runs within `readTimeoutMs`; past it, or on a store failure, the
 // handler gets empty memory and `degraded: true`.
 
+import { withDeprecatedReadFields } from '../deprecated-fields.js';
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, StoreError, isTidemarkError } from '../errors.js';
 import { attend, nextQuery, queryTermsOf, type AttentionResult } from '../memory/attention.js';
@@ -136,12 +137,12 @@ export class ReadPath {
     if (fence) core.rememberFence(ref, ctx, fence);
     if (core.events.listenerCount('read') > 0) {
       const slotItems = items.filter((i) => i.source === 'slot').length;
-      core.events.emit('read', {
-        ...core.base(ref), result, items: items.length, slotItems, logbookItems: items.length - slotItems, archiveItems: items.length - slotItems,
+      core.events.emit('read', withDeprecatedReadFields({
+        ...core.base(ref), result, items: items.length, slotItems, logbookItems: items.length - slotItems,
         scanned: trace.scanned, slotsInUse: trace.scanned, capacity: table?.capacity ?? core.params.capacity, logbookSize: lb.size,
         topWeight: trace.topWeight, entropy: trace.entropy, topCosine: trace.topCosine, topCoverage: trace.topCoverage,
         durationUs: trace.durationUs, searchUs, embedUs,
-      });
+      }));
     }
     return ctx;
   }

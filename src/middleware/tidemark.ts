@@ -27,7 +27,7 @@ import type { Turn } from './validate.js';
 import { WritePath, type WriteReport } from './write.js';
 import { Corrections, type CorrectionReport, type EditInput, type FactTarget } from './correct.js';
 import { withoutText } from './report.js';
-import { hashKeyOf } from '../deprecated.js';
+import { hashKeyOf } from '../deprecated-fields.js';
 
 export { TIDEMARK_DEFAULTS, type LogbookOptions, type OutboxOptions, type TidemarkOptions } from './options.js';
 export type { SessionView, SlotView } from './admin.js';

@@ -4,6 +4,7 @@
 // and plans again with randomised backoff.
 
 import { randomUUID } from 'node:crypto';
+import { DEPRECATED_DEMOTE_EVENT, withDeprecatedCommitFields, withDeprecatedEvictFields } from '../deprecated-fields.js';
 import { embedCached } from '../embed/cache.js';
 import { ErrorCodes, StoreError } from '../errors.js';
 import { resolveDates } from '../memory/dates.js';
@@ -17,6 +18,7 @@ import { scopeOf } from '../store/in-process.js';
 import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
 import { Core, sleep, usSince } from './core.js';
+import type { DemoteEvent } from './events.js';
 import { retentionOf } from './options.js';
 import { writeDetail, type WriteDetail } from './report.js';
 import type { Turn } from './validate.js';
@@ -197,10 +199,10 @@ export class WritePath {
       }
       report.detail = writeDetail(plan, keyed, true);
       if (core.events.listenerCount('commit') > 0) {
-        core.events.emit('commit', {
+        core.events.emit('commit', withDeprecatedCommitFields({
           ...core.base(ref), ops: ops.length, demoted: demoted.length, logbook: entries.length + demoted.length, retries: attempt,
           durationUs: usSince(c0), planUs, embedUs, slotsInUse: plan.slotsInUse, capacity: table.capacity, version: res.version,
-        });
+        }));
       }
       return report;
     }
@@ -210,7 +212,11 @@ export class WritePath {
   private emitWrite(ref: SessionRef, plan: WritePlan, capacity: number, clock: number, turnsKept: number, demoted: number, dropped: { age: number; count: number }): void {
     const ev = this.core.events;
     const wantEvict = ev.listenerCount('evict') > 0;
-    const wantDemote = ev.listenerCount('archive') > 0;
+    const wantDemote = ev.listenerCount('demote') > 0 || ev.listenerCount(DEPRECATED_DEMOTE_EVENT) > 0;
+    const demote = (e: DemoteEvent): void => {
+      ev.emit('demote', e);
+      ev.emit(DEPRECATED_DEMOTE_EVENT, e);
+    };
     const wantWrite = ev.listenerCount('write') > 0;
     const wantGate = ev.listenerCount('gate') > 0;
     const wantOverwrite = ev.listenerCount('overwrite') > 0;
@@ -220,12 +226,12 @@ export class WritePath {
     if (wantLogbook) ev.emit('logbook', { ...base, turns: turnsKept, demoted, droppedAge: dropped.age, droppedCount: dropped.count });
     for (const e of plan.evictions) {
       if (wantEvict) {
-        ev.emit('evict', {
+        ev.emit('evict', withDeprecatedEvictFields({
           ...base, slot: e.slot, id: e.record.id, reason: e.reason, logged: e.logged,
           lifetime: clock - e.record.created, lifetimeMs: base.atMs - e.record.createdMs, halfLife: e.record.halfLife, strength: e.strength,
-        });
+        }));
       }
-      if (e.logged && wantDemote) ev.emit('archive', { ...base, reason: e.reason as 'capacity', id: e.record.id });
+      if (e.logged && wantDemote) demote({ ...base, reason: e.reason as 'capacity', id: e.record.id });
     }
     if (wantWrite) {
       for (const r of plan.reinforced) {
@@ -248,7 +254,7 @@ export class WritePath {
       }
       if (o.outcome === 'overwritten' && o.supersededId) {
         if (wantOverwrite) ev.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
-        if (wantDemote) ev.emit('archive', { ...base, reason: 'superseded', id: o.supersededId });
+        if (wantDemote) demote({ ...base, reason: 'superseded', id: o.supersededId });
       }
     }
   }

@@ -1,18 +1,16 @@
 // The in-process store, tidemark's default: sessions, logbooks and event streams in this process's
 // memory, with an optional snapshot file so a restart loses nothing. Commits are synchronous under
 // the hood, so version checks are exact within one process. Each logbook scope is one LogbookIndex.
-// Over 400 lines: sessions, logbooks, tombstones, bounds and the snapshot file share one set of maps;
-// the snapshot file code is the natural next cut.
+// The snapshot file's format, writing and reading are in snapshot.ts.
 
-import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
-import { dirname } from 'node:path';
 import type { VectorIndexOptions } from '../vectors/index.js';
-import type { DeprecatedStoreOptions } from '../deprecated.js';
+import { vectorIndexOptionsOf, type DeprecatedStoreOptions } from '../deprecated-fields.js';
 import { ConfigError, ErrorCodes, StoreError } from '../errors.js';
 import { LogbookIndex, type LogbookQuery, type LogbookSearchParams, type LogbookSearchResult } from '../logbook/index.js';
 import { SlotTable } from '../memory/slots.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../types.js';
 import { applyRetention } from './retention.js';
+import { readSnapshot, restoreSnapshot, sessionKey, userKey, writeSnapshot, type SessionEntry } from './snapshot.js';
 import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureFence, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats, SweepReport, SweepRequest } from './store.js';
 
 export interface InProcessStoreOptions extends DeprecatedStoreOptions {
@@ -44,24 +42,6 @@ export const IN_PROCESS_STORE_DEFAULTS: Required<Pick<InProcessStoreOptions, 'sn
   idleTtlMs: 30 * 24 * 3600 * 1000,
 };
 
-interface SessionEntry {
-  version: number;
-  clock: number;
-  turns: number;
-  table: SlotTable;
-  events: StoredEvent[];
-  user?: string;
-  /** Last read or write (Date.now()), for idle eviction. */
-  usedMs: number;
-  /** Ids of the last commits applied, to recognise a resend. */
-  commitIds?: string[];
-}
-
-const SNAPSHOT_FORMAT = 'tidemark-memory-snapshot';
-const SNAPSHOT_VERSION = 2;
-
-const sessionKey = (tenant: string, session: string): string => `${tenant}\u0000${session}`;
-const userKey = (tenant: string, user: string): string => `${tenant}\u0000${user}`;
 export function scopeKey(scope: LogbookScope): string {
   return 'user' in scope ? `u\u0000${scope.tenant}\u0000${scope.user}` : `s\u0000${scope.tenant}\u0000${scope.session}`;
 }
@@ -438,43 +418,15 @@ export class InProcessStore implements Store {
   save(): void {
     const path = this.o.snapshotPath;
     if (!path) return;
-    const b64 = (v: Float32Array): string => Buffer.from(v.buffer, v.byteOffset, v.byteLength).toString('base64');
-    const sessions = [...this.sessions.entries()].map(([key, e]) => {
-      const [tenant, session] = key.split('\u0000') as [string, string];
-      const slots = [];
-      for (let i = 0; i < e.table.capacity; i++) {
-        const rec = e.table.get(i);
-        if (rec) slots.push({ index: i, ...rec, key: b64(rec.key) });
-      }
-      return { tenant, session, user: e.user, version: e.version, clock: e.clock, turns: e.turns, capacity: e.table.capacity, dim: e.table.dim, slots, events: e.events };
-    });
-    const logbook = [...this.logbooks.entries()].flatMap(([skey, index]) =>
-      [...index.all()].map((entry) => ({ scope: skey, ...entry, ...(entry.key ? { key: b64(entry.key) } : {}) })),
-    );
-    const doc = { format: SNAPSHOT_FORMAT, version: SNAPSHOT_VERSION, savedAt: new Date().toISOString(), sessions, logbook, counters: Object.fromEntries(this.counters) };
-    mkdirSync(dirname(path), { recursive: true });
-    const tmp = `${path}.${process.pid}.tmp`;
-    writeFileSync(tmp, JSON.stringify(doc));
-    renameSync(tmp, path);
+    writeSnapshot(path, this.sessions, this.logbooks, this.counters);
     this.dirty = false;
   }
 
   private restore(path: string): void {
-    if (!existsSync(path)) return;
-    let doc: any;
+    const doc = readSnapshot(path);
+    if (!doc) return;
     try {
-      doc = JSON.parse(readFileSync(path, 'utf8'));
-    } catch (cause) {
-      throw new StoreError(ErrorCodes.STORE_CORRUPT, `snapshot ${path} is not valid JSON; move it aside to start empty`, { cause });
-    }
-    if (doc?.format !== SNAPSHOT_FORMAT || doc.version !== SNAPSHOT_VERSION) {
-      throw new StoreError(
-        ErrorCodes.STORE_CORRUPT,
-        `snapshot ${path} has format ${String(doc?.format)} v${String(doc?.version)}, expected ${SNAPSHOT_FORMAT} v${SNAPSHOT_VERSION}`,
-      );
-    }
-    try {
-      this.restoreDoc(doc);
+      restoreSnapshot(doc, { sessions: this.sessions, logbooks: this.logbooks, userSessions: this.userSessions, counters: this.counters }, () => this.newIndex());
     } catch (cause) {
       // A file of the right format but the wrong shape (hand-edited, truncated by another tool):
       // nothing half-restored is kept.
@@ -483,42 +435,6 @@ export class InProcessStore implements Store {
       this.userSessions.clear();
       this.counters.clear();
       throw new StoreError(ErrorCodes.STORE_CORRUPT, `snapshot ${path} has the right format but a malformed body (${cause instanceof Error ? cause.message : String(cause)}); move it aside to start empty`, { cause });
-    }
-  }
-
-  private restoreDoc(doc: any): void {
-    if (!Array.isArray(doc.sessions) || !Array.isArray(doc.logbook)) throw new Error('sessions and logbook must be arrays');
-    const vec = (s: string): Float32Array => {
-      if (typeof s !== 'string') throw new Error('a vector is not a base64 string');
-      const buf = Buffer.from(s, 'base64');
-      return new Float32Array(buf.buffer.slice(buf.byteOffset, buf.byteOffset + buf.byteLength));
-    };
-    for (const s of doc.sessions) {
-      const table = new SlotTable(s.capacity, s.dim);
-      for (const rec of s.slots) table.set(rec.index, { ...rec, key: vec(rec.key) });
-      this.sessions.set(sessionKey(s.tenant, s.session), {
-        version: s.version, clock: s.clock, turns: s.turns, table, events: s.events ?? [], user: s.user, usedMs: Date.now(),
-      });
-      if (s.user) {
-        const uk = userKey(s.tenant, s.user);
-        if (!this.userSessions.has(uk)) this.userSessions.set(uk, new Set());
-        this.userSessions.get(uk)!.add(s.session);
-      }
-    }
-    // Store-wide counters (absent in snapshots written before they existed).
-    if (doc.counters && typeof doc.counters === 'object') {
-      for (const [tenant, c] of Object.entries(doc.counters as Record<string, Record<string, unknown>>)) {
-        const kept: Record<string, number> = {};
-        for (const [field, n] of Object.entries(c ?? {})) if (typeof n === 'number' && Number.isFinite(n)) kept[field] = n;
-        this.counters.set(tenant, kept);
-      }
-    }
-    for (const raw of doc.logbook) {
-      const { scope, ...rest } = raw;
-      const entry: LogbookEntry = { ...rest, ...(typeof raw.key === 'string' ? { key: vec(raw.key) } : {}) };
-      let index = this.logbooks.get(scope);
-      if (!index) this.logbooks.set(scope, (index = this.newIndex()));
-      index.add(entry);
     }
   }
 
@@ -560,6 +476,6 @@ export function inProcessStore(options?: InProcessStoreOptions): InProcessStore 
 
 /** A new logbook index with the store's vector index options. */
 export function logbookIndexFor(o: { vectorIndex?: VectorIndexOptions } & DeprecatedStoreOptions): LogbookIndex {
-  const vectorIndex = o.vectorIndex ?? o.archive; // the deprecated name (src/deprecated.ts) until 0.3
+  const vectorIndex = vectorIndexOptionsOf(o);
   return new LogbookIndex(vectorIndex ? { vectorIndex } : {});
 }

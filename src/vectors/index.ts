@@ -15,13 +15,6 @@ export function createVectorIndex(dim: number, options: VectorIndexOptions = {})
   return new AdaptiveVectorIndex(dim, options);
 }
 
-// Old names for code inside the repo that has not moved yet (src/logbook, the stores); the public
-// deprecated aliases live in src/deprecated.ts.
-/** @deprecated since 0.2: use `VectorIndexOptions`. */
-export type VectorIndexOptions = VectorIndexOptions;
-/** @deprecated since 0.2: use `createVectorIndex`. */
-export const createArchive = createVectorIndex;
-
 export type { VectorIndex, VectorMatch } from './vector-index.js';
 export { ExactVectorIndex } from './exact.js';
 export { HnswVectorIndex, HNSW_VECTOR_INDEX_DEFAULTS, hnswAvailable, type HnswVectorIndexOptions } from './hnsw.js';

@@ -24,10 +24,3 @@ export interface VectorIndex {
   /** Drops every entry. */
   clear(): void;
 }
-
-// Old names for code inside the repo that has not moved yet (src/logbook, the stores); the public
-// deprecated aliases live in src/deprecated.ts.
-/** @deprecated since 0.2: use `VectorIndex`. */
-export type Archive = VectorIndex;
-/** @deprecated since 0.2: use `VectorMatch`. */
-export type ArchiveMatch = VectorMatch;

@@ -3,7 +3,7 @@
 export const TINY_TRANSCRIPT = [
   { session: 's1', turn: 't1', role: 'user', text: 'Hi, my name is Dana Whitfield.' },
   { session: 's1', turn: 't2', role: 'assistant', text: 'Nice to meet you, Dana.' },
-  { session: 's1', turn: 't3', role: 'user', text: 'My bike is a green Harlow Tourer.' },
+  { session: 's1', turn: 't3', role: 'user', text: 'My bike is a green Corvane Tourer.' },
   { session: 's1', turn: 't4', role: 'assistant', text: 'Lovely bike.' },
   { session: 's1', turn: 't5', role: 'user', text: 'Can I book a service for Tuesday?' },
   { session: 's1', turn: 't6', role: 'assistant', text: 'Booked for Tuesday.' },

@@ -145,8 +145,8 @@ describe('baselines', () => {
     const w = new TurnBaseline({ kind: 'window', size: 2 }, { embedder });
     const f = new TurnBaseline({ kind: 'flat' }, { embedder });
     const turns = [
-      { session: 's', turn: 'a', role: 'user' as const, text: 'my bike is a Harlow Tourer' },
-      { session: 's', turn: 'b', role: 'assistant' as const, text: 'a Harlow Tourer, nice' },
+      { session: 's', turn: 'a', role: 'user' as const, text: 'my bike is a Corvane Tourer' },
+      { session: 's', turn: 'b', role: 'assistant' as const, text: 'a Corvane Tourer, nice' },
       { session: 's', turn: 'c', role: 'user' as const, text: 'the weather is grim' },
       { session: 's', turn: 'd', role: 'user' as const, text: 'I live in Ashwendle' },
     ];
@@ -156,8 +156,8 @@ describe('baselines', () => {
     }
     expect(w.itemsKept()).toBe(2);
     expect(f.itemsKept()).toBe(4); // both roles by default
-    expect((await f.query('s', 'which Harlow bike?', 1)).retrieved).toEqual(['a']);
-    expect((await w.query('s', 'which Harlow bike?', 5)).retrieved).not.toContain('a');
+    expect((await f.query('s', 'which Corvane bike?', 1)).retrieved).toEqual(['a']);
+    expect((await w.query('s', 'which Corvane bike?', 5)).retrieved).not.toContain('a');
     expect((await f.query('nobody', 'x', 3)).retrieved).toEqual([]);
   });
 });

@@ -32,7 +32,7 @@ const FACTS = [
 const QUESTIONS = ['What bike do I ride?', 'When is my booking?', 'Which chain lube will you use?', 'What is my name?', 'Do you sell mudguards?'];
 const NAMES = ['Dana', 'Ravi', 'Maren', 'Tomasz', 'Aiko', 'Femi', 'Lucía', 'Jonah'];
 const COLOURS = ['green', 'red', 'teal', 'black', 'orange'];
-const MODELS = ['Quenby', 'tourer', 'gravel bike', 'cargo bike', 'fixie'];
+const MODELS = ['Corvane', 'tourer', 'gravel bike', 'cargo bike', 'fixie'];
 const TOWNS = ['Wexdale', 'Quarrowby', 'Fennickby', 'Saltwendle', 'Brindlecote'];
 const DAYS = ['Monday', 'Tuesday', 'Wednesday', 'Thursday', 'Friday'];
 

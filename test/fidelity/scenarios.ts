@@ -803,12 +803,12 @@ const WORKSHOP = scenario(
       lines: [
         u("Hi, I'm Nadia Corran. I'd like to book a service.", 'name'),
         a('Morning Nadia! Which bike is it for?'),
-        u("I've got two bikes, a Harlow Tourer for commuting and a Pennick Sprint for weekend rides.", 'bikes'),
+        u("I've got two bikes, a Corvane Tourer for commuting and a Pennick Sprint for weekend rides.", 'bikes'),
         a('Nice pair. Which one needs the service?'),
         u("The Tourer. It's done about 3,000 miles since anyone last looked at it."),
         a('A full service would be sensible. I can do Tuesday 14 October at 9am or Wednesday 15 October at 2pm.'),
         u('Tuesday at 9, please.'),
-        a('Booked: full service for your Harlow Tourer on Tuesday 14 October at 9am.', 'svc1'),
+        a('Booked: full service for your Corvane Tourer on Tuesday 14 October at 9am.', 'svc1'),
         u('Can you keep it under £120? Anything over that, check with me first.', 'budget'),
         a("Noted: we'll check with you before going over £120. What's the best number to reach you on?"),
         u("It's 07700 900814.", 'phone'),
@@ -858,7 +858,7 @@ const WORKSHOP = scenario(
       start: '2025-10-13T07:55:00Z', // Monday
       lines: [
         u("I need to move the Tourer's service. Could it be Friday 17 October instead, same time?", 'svc2'),
-        a("Moved: the Harlow Tourer's full service is now Friday 17 October at 9am.", 'svc2Ack'),
+        a("Moved: the Corvane Tourer's full service is now Friday 17 October at 9am.", 'svc2Ack'),
         u("Thanks. While it's in, can you check the dynamo hub? The front light flickers."),
         a('Will do, we will check the dynamo wiring and the light connector.'),
         u("How's the Sprint doing?"),
@@ -949,7 +949,7 @@ const WORKSHOP = scenario(
       id: 'workshop:bikes-owned',
       query: 'Which bikes does the customer own?',
       expect: ['bikes'],
-      expectText: ['Harlow Tourer', 'Pennick Sprint'],
+      expectText: ['Corvane Tourer', 'Pennick Sprint'],
       rejectText: ['Vantor'],
       kind: 'not-retracted',
       why: "The brother's bike must never be stored as the customer's own.",
@@ -958,7 +958,7 @@ const WORKSHOP = scenario(
       id: 'workshop:commuter-bike',
       query: 'Which bike does the customer use for commuting?',
       expect: ['bikes'],
-      expectText: ['Harlow Tourer'],
+      expectText: ['Corvane Tourer'],
       rejectText: ['Vantor'],
       kind: 'multi-fact',
       why: 'The first of two bikes described in one sentence must keep its own role.',
@@ -983,7 +983,7 @@ const WORKSHOP = scenario(
     },
     {
       id: 'workshop:service-booked',
-      query: "When is the Harlow Tourer's service?",
+      query: "When is the Corvane Tourer's service?",
       expect: ['svc1'],
       expectText: ['Tuesday 14 October'],
       rejectText: ['Wednesday 15 October'],
@@ -1003,7 +1003,7 @@ const WORKSHOP = scenario(
     },
     {
       id: 'workshop:service',
-      query: "When is the Harlow Tourer's service?",
+      query: "When is the Corvane Tourer's service?",
       expect: ['svc2', 'svc2Ack'],
       expectText: ['Friday 17 October'],
       rejectText: ['Tuesday 14 October', 'Saturday 18 October'],
@@ -1012,7 +1012,7 @@ const WORKSHOP = scenario(
     },
     {
       id: 'workshop:service-time',
-      query: "What time is the Harlow Tourer's service?",
+      query: "What time is the Corvane Tourer's service?",
       expect: ['svc2', 'svc2Ack'],
       expectText: ['9am'],
       rejectText: ['2pm'],

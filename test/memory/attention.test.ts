@@ -48,7 +48,7 @@ describe('attend', () => {
   // cos: slot 0 key (1,0,0) -> 0.8; slot 1 key (0,1,0) -> 0.6; slot 2 key (0.6,0.8,0) -> 0.96.
   const make = () =>
     table(4, 3, [
-      rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Quenby', strength: 1 }),
+      rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Corvane', strength: 1 }),
       rec('b', basis(3, 1), { keyText: 'my booking', value: 'service on Tuesday', strength: 0.5 }),
       rec('c', vec(3, 4, 0), { keyText: 'my name', value: 'Dana', strength: 0.25, halfLife: 5 }),
       null,
@@ -57,11 +57,11 @@ describe('attend', () => {
   const p = readParams({ beta: 2, gamma: 1, delta: 0.5, temperature: 1, k: 5, minWeight: 0, maxMass: 1, minCosine: 0.2, hitCosine: 0.3 });
 
   it('scores z = beta*cos + gamma*lex + delta*ln(s) and weights softmax(z)', () => {
-    const r = attend(make(), 0, q, ['quenby'], p);
+    const r = attend(make(), 0, q, ['corvane'], p);
     expect(r.cosine[0]).toBeCloseTo(0.8, 6);
     expect(r.cosine[1]).toBeCloseTo(0.6, 6);
     expect(r.cosine[2]).toBeCloseTo(0.96, 6);
-    // Only slot 0 has "quenby": its normalised BM25 is 1, the others' 0.
+    // Only slot 0 has "corvane": its normalised BM25 is 1, the others' 0.
     expect([...r.lexical]).toEqual([1, 0, 0, 0]);
     expect(r.lexicalRaw[0]).toBeGreaterThan(0);
     const z = [2 * 0.8 + 1 + 0.5 * Math.log(1), 2 * 0.6 + 0.5 * Math.log(0.5), 2 * 0.96 + 0.5 * Math.log(0.25)];
@@ -98,24 +98,24 @@ describe('attend', () => {
   });
 
   it('keeps at most k items, best first', () => {
-    expect(attend(make(), 0, q, ['quenby'], { ...p, k: 2 }).selected).toEqual([0, 2]);
-    expect(attend(make(), 0, q, ['quenby'], { ...p, k: 1 }).selected).toEqual([0]);
+    expect(attend(make(), 0, q, ['corvane'], { ...p, k: 2 }).selected).toEqual([0, 2]);
+    expect(attend(make(), 0, q, ['corvane'], { ...p, k: 1 }).selected).toEqual([0]);
   });
 
   it('drops items under minWeight but always keeps the best one on a hit', () => {
-    const r = attend(make(), 0, q, ['quenby'], { ...p, minWeight: 0.2 });
+    const r = attend(make(), 0, q, ['corvane'], { ...p, minWeight: 0.2 });
     const w = [...r.weight].slice(0, 3);
     expect(w[0]).toBeGreaterThan(0.2);
     expect(r.selected).toEqual([0, 2, 1].filter((i, n) => n === 0 || w[i]! >= 0.2));
-    expect(attend(make(), 0, q, ['quenby'], { ...p, minWeight: 0.99 }).selected).toEqual([0]);
+    expect(attend(make(), 0, q, ['corvane'], { ...p, minWeight: 0.99 }).selected).toEqual([0]);
   });
 
   it('stops adding items once their cumulative weight reaches maxMass', () => {
-    const r = attend(make(), 0, q, ['quenby'], { ...p, maxMass: 0.5 });
+    const r = attend(make(), 0, q, ['corvane'], { ...p, maxMass: 0.5 });
     // Slot 0 alone holds more than half the mass.
     expect(r.weight[0]).toBeGreaterThan(0.5);
     expect(r.selected).toEqual([0]);
-    const r2 = attend(make(), 0, q, ['quenby'], { ...p, maxMass: r.weight[0]! + 0.01 });
+    const r2 = attend(make(), 0, q, ['corvane'], { ...p, maxMass: r.weight[0]! + 0.01 });
     expect(r2.selected).toEqual([0, 2]);
   });
 
@@ -153,13 +153,13 @@ describe('attend', () => {
 
 describe('queryTerms and slotDocStats', () => {
   it('uses content words of the query, or all words when it has none', () => {
-    expect(queryTerms('When is my Quenby ready?')).toEqual(['quenby', 'ready']);
+    expect(queryTerms('When is my Corvane ready?')).toEqual(['corvane', 'ready']);
     expect(queryTerms('what is it?')).toEqual(['what', 'is', 'it']);
   });
 
   it('indexes key and value text without stopwords and follows overwrites of a slot', () => {
-    const t = table(2, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Quenby' }), null]);
-    expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'green', 'quenby']);
+    const t = table(2, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Corvane' }), null]);
+    expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'green', 'corvane']);
     expect(slotDocStats(t)[1]).toBeNull();
     t.set(0, rec('a2', basis(3, 0), { keyText: 'my bike', value: 'a red Tarrant' }));
     expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'red', 'tarrant']);
@@ -168,7 +168,7 @@ describe('queryTerms and slotDocStats', () => {
   });
 
   it('keeps term postings in step with the slots, one changed slot at a time', () => {
-    const t = table(3, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Quenby' }), null, rec('b', basis(3, 1), { keyText: 'my fern', value: 'a green fern' })]);
+    const t = table(3, 3, [rec('a', basis(3, 0), { keyText: 'my bike', value: 'a green Corvane' }), null, rec('b', basis(3, 1), { keyText: 'my fern', value: 'a green fern' })]);
     const first = slotPostings(t);
     expect(first.byTerm.get('green')).toEqual([0, 2]);
     expect(first.byTerm.get('fern')).toEqual([2]);
@@ -176,13 +176,13 @@ describe('queryTerms and slotDocStats', () => {
     t.set(1, rec('c', basis(3, 2), { keyText: 'my pot', value: 'a green pot' }));
     expect(slotPostings(t).byTerm.get('green')).toEqual([0, 1, 2]);
     t.clear(0);
-    expect(slotPostings(t).byTerm.get('quenby')).toBeUndefined();
+    expect(slotPostings(t).byTerm.get('corvane')).toBeUndefined();
     expect(slotPostings(t).byTerm.get('green')).toEqual([1, 2]);
     expect([slotPostings(t).n, slotPostings(t).total]).toEqual([2, 6]);
   });
 
   it('ends where postings built afresh would, over random writes and clears (fast-check, seed 5)', () => {
-    const values = ['a green Quenby', 'a green fern', 'Friday at 9', 'the blue pot', 'blue chain wax', 'a fern and a pot'];
+    const values = ['a green Corvane', 'a green fern', 'Friday at 9', 'the blue pot', 'blue chain wax', 'a fern and a pot'];
     console.log('fast-check seed 5');
     fc.assert(
       fc.property(fc.array(fc.tuple(fc.nat(5), fc.option(fc.nat(5), { nil: null })), { maxLength: 40 }), (steps) => {

@@ -17,7 +17,7 @@ const score = (query: string[], docs: Array<string[] | null>, p = BM25_DEFAULTS)
 describe('bm25Scores by hand', () => {
   // N = 3 documents, total length 10, average length 10/3; k1 = 1.2, b = 0.75.
   const docs = [
-    ['quenby', 'green', 'bike'],
+    ['corvane', 'green', 'bike'],
     ['service', 'tuesday', 'bike', 'bike'],
     ['chain', 'wax', 'allergy'],
   ];
@@ -62,17 +62,17 @@ describe('bm25Scores by hand', () => {
 // okapibm25 counts term frequency with a substring regex and document frequency with includes().
 const corpus = [
   'my name is Dana Whitfield',
-  'my bike is a green Quenby with a basket and a Quenby bag',
+  'my bike is a green Corvane with a basket and a Corvane bag',
   'book a service for Tuesday morning',
   'I am allergic to chain wax, so please use dry lube',
   'the rear brake squeaks when it rains and the front brake rubs',
-  'my daughter rides a red Quenby to school',
+  'my daughter rides a red Corvane to school',
   'service the gears and the brake cables',
 ].map((t) => contentWords(t));
 const queries = [
-  ['quenby'],
+  ['corvane'],
   ['brake', 'service'],
-  ['tuesday', 'service', 'quenby'],
+  ['tuesday', 'service', 'corvane'],
   ['wax', 'lube', 'allergic'],
   ['dana', 'whitfield', 'school', 'gears'],
 ];

@@ -25,12 +25,12 @@ describe('RuleExtractor', () => {
   });
 
   it('splits "my X is Y" statements', () => {
-    expect(one('My bike is a green Quenby.')).toMatchObject({ key: 'my bike', value: 'a green Quenby' });
+    expect(one('My bike is a green Corvane.')).toMatchObject({ key: 'my bike', value: 'a green Corvane' });
   });
 
   it('finds several facts in one message', () => {
-    const cs = ex.extract('Hi, my name is Dana and my bike is a green Quenby.', 'user');
-    expect(cs.map((c) => [c.key, c.value])).toEqual([['my name', 'Dana'], ['my bike', 'a green Quenby']]);
+    const cs = ex.extract('Hi, my name is Dana and my bike is a green Corvane.', 'user');
+    expect(cs.map((c) => [c.key, c.value])).toEqual([['my name', 'Dana'], ['my bike', 'a green Corvane']]);
   });
 
   it('marks an update of a date ("move it to Friday instead") with the new expression', () => {

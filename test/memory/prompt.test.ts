@@ -9,10 +9,10 @@ const item = (key: string, value: string, over: Partial<RecallItem> = {}): Recal
 });
 
 describe('renderPrompt', () => {
-  const items = [item('my booking', 'Friday at 9'), item('my name', 'Dana'), item('my bike', 'a green Quenby')];
+  const items = [item('my booking', 'Friday at 9'), item('my name', 'Dana'), item('my bike', 'a green Corvane')];
 
   it('renders a header and "- key: value" lines in rank order', () => {
-    expect(renderPrompt(items)).toBe([PROMPT_DEFAULTS.header, '- my booking: Friday at 9', '- my name: Dana', '- my bike: a green Quenby'].join('\n'));
+    expect(renderPrompt(items)).toBe([PROMPT_DEFAULTS.header, '- my booking: Friday at 9', '- my name: Dana', '- my bike: a green Corvane'].join('\n'));
   });
 
   it('writes only the value when key and value are the same text, and marks values that left working memory', () => {
@@ -34,7 +34,7 @@ describe('renderPrompt', () => {
   it('stays within the token budget, skipping lines that do not fit', () => {
     const count = (s: string): number => s.split(/\s+/).filter(Boolean).length; // words as tokens
     const header = 'Memory:'; // 1 token
-    // '\n- my booking: Friday at 9' = 6 tokens, '\n- my name: Dana' = 4, '\n- my bike: a green Quenby' = 6
+    // '\n- my booking: Friday at 9' = 6 tokens, '\n- my name: Dana' = 4, '\n- my bike: a green Corvane' = 6
     expect(renderPrompt(items, { header, countTokens: count, tokenBudget: 11 })).toBe('Memory:\n- my booking: Friday at 9\n- my name: Dana');
     expect(renderPrompt(items, { header, countTokens: count, tokenBudget: 8 })).toBe('Memory:\n- my booking: Friday at 9');
     // A line too long is skipped, a later shorter one still fits.

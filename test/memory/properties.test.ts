@@ -17,7 +17,7 @@ import { readParams, vec, writeParams } from './helpers.js';
 const DIM = 4;
 // A few key directions so random writes collide (overwrites, reinforcements) as well as spread.
 const DIRECTIONS = [vec(1, 0, 0, 0), vec(0, 1, 0, 0), vec(0, 0, 1, 0), vec(0, 0, 0, 1), vec(1, 1, 0, 0), vec(1, 0.1, 0, 0), vec(1, 1, 1, 1)];
-const VALUES = ['Dana', 'a green Quenby', 'Tuesday at 10', 'chain wax', 'Friday at 9', 'a red Tarrant'];
+const VALUES = ['Dana', 'a green Corvane', 'Tuesday at 10', 'chain wax', 'Friday at 9', 'a red Tarrant'];
 
 const candidateArb = fc.record({
   dir: fc.integer({ min: 0, max: DIRECTIONS.length - 1 }),

@@ -44,14 +44,14 @@ function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePla
 describe('planWrite: allocation', () => {
   it('puts a new fact into the first free slot with the gate as its strength', () => {
     const t = table(3, 3, [rec('a', basis(3, 0))]);
-    const p = plan(t, [cand(basis(3, 1), { key: 'my bike', value: 'a green Quenby' })], { now: 4, nowMs: 5000 });
+    const p = plan(t, [cand(basis(3, 1), { key: 'my bike', value: 'a green Corvane' })], { now: 4, nowMs: 5000 });
     expect(p.outcomes).toEqual([expect.objectContaining({ index: 0, outcome: 'allocated', slot: 1, id: 'new1', cosine: 0 })]);
     expect(p.outcomes[0]!.gate).toBeCloseTo(GATE, 15);
     expect(p.ops).toHaveLength(1);
     const op = p.ops[0]!;
     expect(op.index).toBe(1);
     expect(op.slot).toMatchObject({
-      id: 'new1', keyText: 'my bike', value: 'a green Quenby', provenance: ['t9'], halfLife: 200, stamp: 4, created: 4, createdMs: 5000, updatedMs: 5000, reads: 0, pinned: false,
+      id: 'new1', keyText: 'my bike', value: 'a green Corvane', provenance: ['t9'], halfLife: 200, stamp: 4, created: 4, createdMs: 5000, updatedMs: 5000, reads: 0, pinned: false,
     });
     expect(op.slot!.strength).toBeCloseTo(GATE, 15);
     expect([...op.slot!.key]).toEqual([0, 1, 0]);
@@ -87,7 +87,7 @@ describe('planWrite: stored vector', () => {
 describe('planWrite: overwrite', () => {
   const oldKey = basis(3, 0);
   const newKey = vec(1, 0.2, 0); // cosine 1/sqrt(1.04) = 0.98 with the old key: above 0.8
-  const make = () => table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Harlow', strength: 0.4, provenance: ['t1'], createdMs: 10, created: 1 })]);
+  const make = () => table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Corvane', strength: 0.4, provenance: ['t1'], createdMs: 10, created: 1 })]);
 
   it('replaces the value, demotes the old one as superseded with successor = new id, and blends the key', () => {
     const p = plan(make(), [cand(newKey, { key: 'my bike now', value: 'a red Pennick' })], { now: 7, nowMs: 3000 });
@@ -95,7 +95,7 @@ describe('planWrite: overwrite', () => {
     expect(o).toMatchObject({ outcome: 'overwritten', slot: 0, id: 'new1', supersededId: 'old' });
     expect(o.cosine).toBeCloseTo(1 / Math.sqrt(1.04), 6);
     expect(p.demoted).toHaveLength(1);
-    expect(p.demoted[0]).toMatchObject({ id: 'old', kind: 'superseded', successor: 'new1', value: 'a green Harlow', keyText: 'my bike', provenance: ['t1'], tenant: 'shop', session: 's1', clock: 7, atMs: 3000, createdMs: 10 });
+    expect(p.demoted[0]).toMatchObject({ id: 'old', kind: 'superseded', successor: 'new1', value: 'a green Corvane', keyText: 'my bike', provenance: ['t1'], tenant: 'shop', session: 's1', clock: 7, atMs: 3000, createdMs: 10 });
     expect(p.demoted[0]!.strength).toBeCloseTo(0.4 * 2 ** (-7 / 10), 12);
     const slot = p.ops[0]!.slot!;
     expect(slot).toMatchObject({ id: 'new1', previous: 'old', keyText: 'my bike now', value: 'a red Pennick', provenance: ['t9'], created: 1, createdMs: 10, updatedMs: 3000, stamp: 7 });
@@ -117,8 +117,8 @@ describe('planWrite: overwrite', () => {
 
   it('a fact restated many times cites only its newest MAX_PROVENANCE turns', () => {
     const older = Array.from({ length: 40 }, (_, i) => `t${40 - i}`);
-    const t = table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Harlow', strength: 0.4, provenance: older, createdMs: 10, created: 1 })]);
-    const p = plan(t, [cand(newKey, { key: 'my bike', value: 'a green Harlow' }, 't41')], { now: 10 });
+    const t = table(2, 3, [rec('old', oldKey, { keyText: 'my bike', value: 'a green Corvane', strength: 0.4, provenance: older, createdMs: 10, created: 1 })]);
+    const p = plan(t, [cand(newKey, { key: 'my bike', value: 'a green Corvane' }, 't41')], { now: 10 });
     expect(p.outcomes[0]).toMatchObject({ outcome: 'reinforced', id: 'old' });
     const again = p.ops[0]!.slot!;
     expect(again.provenance).toEqual(['t41', ...older.slice(0, MAX_PROVENANCE - 1)]);
@@ -132,11 +132,11 @@ describe('planWrite: overwrite', () => {
   });
 
   it('reinforces instead when the value is the same fact again (case and punctuation aside)', () => {
-    const p = plan(make(), [cand(newKey, { key: 'my bike', value: 'A green Harlow!' }, 't5')], { now: 10 });
+    const p = plan(make(), [cand(newKey, { key: 'my bike', value: 'A green Corvane!' }, 't5')], { now: 10 });
     expect(p.outcomes[0]).toMatchObject({ outcome: 'reinforced', slot: 0, id: 'old' });
     const s = p.ops[0]!.slot!;
     expect(s.id).toBe('old');
-    expect(s.value).toBe('a green Harlow');
+    expect(s.value).toBe('a green Corvane');
     expect(s.provenance).toEqual(['t5', 't1']);
     // reinforce(0.4 * 2^-1 = 0.2) = 0.2 + 0.8 * 0.3 = 0.44, below the gate, so the gate wins
     expect(s.strength).toBeCloseTo(GATE, 15);

@@ -28,7 +28,7 @@ export function emitTurn(bus: Pick<EventEmitter<TidemarkEvents>, 'emit'>, t: Syn
   const capacity = t.capacity ?? 8;
   const slotsInUse = t.slotsInUse ?? 3;
   bus.emit('read', {
-    ...base, result: t.result ?? 'slot', items: 2, slotItems: 2, logbookItems: 0, archiveItems: 0, scanned: slotsInUse,
+    ...base, result: t.result ?? 'slot', items: 2, slotItems: 2, logbookItems: 0, scanned: slotsInUse,
     slotsInUse, capacity, logbookSize: 10, topWeight: 0.7, entropy: 0.6, topCosine: 0.8, topCoverage: 0.6, durationUs: t.readUs ?? 400, searchUs: 40, embedUs: 50,
   });
   bus.emit('gate', { ...base, score: t.passed === false ? 0.2 : 0.8, threshold: 0.5, passed: t.passed !== false, features: { novelty: 0.5 } });

@@ -104,13 +104,13 @@ for (const [label, make, skip] of backends) {
     it('forget by slot removes the value, its earlier revision and the turns that said them; other facts stay', async () => {
       const tm = tidemark();
       const s = `forget-slot-${label}`;
-      await tm.write({ session: s, turn: 'a1', text: 'My bike is a green Quenby Audax.' });
+      await tm.write({ session: s, turn: 'a1', text: 'My bike is a green Corvane Audax.' });
       await tm.write({ session: s, turn: 'a2', text: 'My name is Dana.' });
       await tm.write({ session: s, turn: 'a3', text: 'Actually my bike is now a red Ferrow Roamer.' });
       const before = await tm.inspect(s);
       const bike = before.slots.find((x) => x.key === 'my bike')!;
       expect(bike.value).toBe('a red Ferrow Roamer');
-      expect(before.logbook.some((e) => e.kind === 'superseded' && e.value === 'a green Quenby Audax')).toBe(true);
+      expect(before.logbook.some((e) => e.kind === 'superseded' && e.value === 'a green Corvane Audax')).toBe(true);
 
       const report = await tm.forget({ session: s, slot: bike.index });
 
@@ -120,7 +120,7 @@ for (const [label, make, skip] of backends) {
       );
       const after = await visible(tm, s, 'Which bike do I ride? What was my old bike?');
       expect(after).not.toContain('Ferrow');
-      expect(after).not.toContain('Quenby');
+      expect(after).not.toContain('Corvane');
       const view = await tm.inspect(s);
       expect(view.slots.map((x) => [x.key, x.value])).toEqual([['my name', 'Dana']]);
       expect(view.logbook.map((e) => e.id)).toEqual([turnEntryId(s, 'a2')]);
@@ -129,7 +129,7 @@ for (const [label, make, skip] of backends) {
         const raw = (await backend.bytes()).toString('latin1').toLowerCase();
         expect(raw).toContain('dana'); // the check can see values
         expect(raw).not.toContain('ferrow');
-        expect(raw).not.toContain('quenb');
+        expect(raw).not.toContain('corvan');
       }
     });
 
@@ -152,7 +152,7 @@ for (const [label, make, skip] of backends) {
     it('edit replaces the value everywhere and records who edited it in the provenance', async () => {
       const tm = tidemark();
       const s = `edit-${label}`;
-      await tm.write({ session: s, turn: 'c1', text: 'My bike is a green Quenby Audax.' });
+      await tm.write({ session: s, turn: 'c1', text: 'My bike is a green Corvane Audax.' });
       const slot = (await tm.inspect(s)).slots[0]!;
       const before = Date.now();
       const report = await tm.edit({ session: s, slot: slot.index, value: 'a blue Velloni Tourer', by: 'support-agent' });
@@ -168,10 +168,10 @@ for (const [label, make, skip] of backends) {
       expect(view.slots.map((x) => ({ key: x.key, value: x.value, id: x.id, provenance: x.provenance }))).toEqual([
         { key: 'my bike', value: 'a blue Velloni Tourer', id: report.id, provenance: report.provenance },
       ]);
-      expect(await visible(tm, s, 'Which bike do I ride?')).not.toContain('Quenby');
+      expect(await visible(tm, s, 'Which bike do I ride?')).not.toContain('Corvane');
       const ctx = await tm.read({ session: s, text: 'Which bike do I ride?' });
       expect(ctx.items[0]).toMatchObject({ source: 'slot', id: report.id, value: 'a blue Velloni Tourer' });
-      if (backend.bytes) expect((await backend.bytes()).toString('latin1').toLowerCase()).not.toContain('quenb');
+      if (backend.bytes) expect((await backend.bytes()).toString('latin1').toLowerCase()).not.toContain('corvan');
     });
 
     it('refuses unclear targets with coded input errors', async () => {
@@ -196,11 +196,11 @@ describe('forget and the in-process snapshot file', () => {
     // snapshotIntervalMs 0: the file is written only on save() or close(), so only the forget can have written it.
     const store = new InProcessStore({ snapshotPath: file, snapshotIntervalMs: 0 });
     const tm = createTidemark({ store, hashKey: 'snap' });
-    await tm.write({ session: 'snap', turn: 'g1', text: 'My bike is a green Quenby Audax.' });
+    await tm.write({ session: 'snap', turn: 'g1', text: 'My bike is a green Corvane Audax.' });
     store.save();
-    expect(readFileSync(file, 'utf8').toLowerCase()).toContain('quenb');
+    expect(readFileSync(file, 'utf8').toLowerCase()).toContain('corvan');
     await tm.forget({ session: 'snap', slot: 0 });
-    expect(readFileSync(file, 'utf8').toLowerCase()).not.toContain('quenb');
+    expect(readFileSync(file, 'utf8').toLowerCase()).not.toContain('corvan');
     await tm.close();
     rmSync(dir, { recursive: true, force: true });
   });
@@ -209,10 +209,10 @@ describe('forget and the in-process snapshot file', () => {
 describe('WriteReport.detail', () => {
   it('lists what was stored and overwritten by id and key, with no text unless asked', async () => {
     const tm = createTidemark({ hashKey: 'detail' });
-    const first = await tm.write({ session: 'd1', turn: 'd1', text: 'My bike is a green Quenby Audax.' });
+    const first = await tm.write({ session: 'd1', turn: 'd1', text: 'My bike is a green Corvane Audax.' });
     expect(first.detail!.stored).toEqual([{ id: expect.stringMatching(/^[0-9a-f]{16}$/), slot: 0, key: 'my bike', outcome: 'allocated', turn: 'd1' }]);
     expect(first.detail!.overwritten).toEqual([]);
-    expect(JSON.stringify(first)).not.toContain('Quenby');
+    expect(JSON.stringify(first)).not.toContain('Corvane');
     const firstId = first.detail!.stored[0]!.id;
 
     const second = await tm.write({ session: 'd1', turn: 'd2', text: 'Actually my bike is now a red Ferrow Roamer.' }, { text: true });
@@ -226,12 +226,30 @@ describe('WriteReport.detail', () => {
   it('lists evicted slots as dropped, and leaves out a key that is the whole statement', async () => {
     const tm = createTidemark({ hashKey: 'detail', capacity: 1 });
     const a = await tm.write({ session: 'd2', turn: 'e1', text: 'My name is Dana.' });
-    const b = await tm.write({ session: 'd2', turn: 'e2', text: 'My bike is a green Quenby Audax.' });
+    const b = await tm.write({ session: 'd2', turn: 'e2', text: 'My bike is a green Corvane Audax.' });
     expect(b.detail!.dropped).toEqual([{ kind: 'evicted', id: a.detail!.stored[0]!.id, slot: 0, key: 'my name', reason: 'capacity', logged: true }]);
     const c = await tm.write({ session: 'd3', turn: 'e3', text: 'The canal path floods every March near the old mill.' });
     for (const x of [...c.detail!.stored, ...c.detail!.dropped]) expect(x.key === '' || !'The canal path floods every March near the old mill.'.includes(x.key)).toBe(true);
     expect(JSON.stringify(c)).not.toContain('floods');
     await tm.close();
+  });
+
+  it('lists a candidate the gate turned away as dropped (key, turn, score), and values only with text: true', async () => {
+    const tm = createTidemark({ hashKey: 'detail', write: { gateThreshold: 1 } });
+    const r = await tm.write({ session: 'd4', turn: 'g1', text: 'My bike is a green Corvane Audax.' });
+    expect(r.gatedOut).toBe(1);
+    expect(r.detail).toEqual({ stored: [], overwritten: [], dropped: [{ kind: 'gated_out', key: 'my bike', turn: 'g1', gate: expect.any(Number) }] });
+    expect((r.detail!.dropped[0] as { gate: number }).gate).toBeLessThan(1);
+    expect(JSON.stringify(r)).not.toContain('Corvane');
+    const t = await tm.write({ session: 'd4', turn: 'g2', text: 'My bike is a green Corvane Audax.' }, { text: true });
+    expect(t.detail!.dropped).toEqual([{ kind: 'gated_out', key: 'my bike', turn: 'g2', gate: expect.any(Number), value: 'a green Corvane Audax' }]);
+    await tm.close();
+
+    const small = createTidemark({ hashKey: 'detail', capacity: 1 });
+    const a = await small.write({ session: 'd5', turn: 'h1', text: 'My name is Dana.' });
+    const b = await small.write({ session: 'd5', turn: 'h2', text: 'My bike is a green Corvane Audax.' }, { text: true });
+    expect(b.detail!.dropped).toEqual([{ kind: 'evicted', id: a.detail!.stored[0]!.id, slot: 0, key: 'my name', reason: 'capacity', logged: true, value: 'Dana' }]);
+    await small.close();
   });
 });
 

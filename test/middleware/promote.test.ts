@@ -6,7 +6,7 @@ import { createTidemark } from '../../src/middleware/tidemark.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 
 const facts = [
-  'My bike is a green Harlow Tourer with a dynamo hub.',
+  'My bike is a green Corvane Tourer with a dynamo hub.',
   'My favourite fern is the maidenhair fern on the balcony.',
   'My Spanish teacher is called Lucia Moreno.',
 ];
@@ -49,11 +49,11 @@ describe('logbook values and promotion', () => {
     await tm.write({ session: 'kept', text: 'My bike is a red Pennick Sprint.' });
     expect((await tm.inspect('gone', undefined, { user: 'u9' })).logbook.length).toBeGreaterThan(facts.length);
     await tm.erase({ session: 'gone' });
-    for (const q of [...facts, 'bike', 'fern', 'teacher Lucia', 'Harlow']) {
+    for (const q of [...facts, 'bike', 'fern', 'teacher Lucia', 'Corvane']) {
       for (const ref of [{ session: 'gone' }, { session: 'gone', user: 'u9' }, { session: 'other', user: 'u9' }]) {
         const ctx = await tm.read({ ...ref, text: q });
         for (const item of ctx.items) {
-          expect(item.value).not.toMatch(/Harlow|maidenhair|Lucia/);
+          expect(item.value).not.toMatch(/Corvane|maidenhair|Lucia/);
         }
       }
     }

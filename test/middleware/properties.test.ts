@@ -10,7 +10,7 @@ import { analyseQuery } from '../../src/logbook/query.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 
 const TOPICS = ['bike', 'saddle', 'helmet', 'lock', 'pump', 'postcode'];
-const VALUES = ['a green Harlow Tourer', 'a red Pennick Sprint', 'blue', 'orange', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'brass'];
+const VALUES = ['a green Corvane Tourer', 'a red Pennick Sprint', 'blue', 'orange', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'brass'];
 const turnArb = fc.oneof(
   fc.record({ kind: fc.constant('fact' as const), topic: fc.constantFrom(...TOPICS), value: fc.constantFrom(...VALUES) }),
   fc.record({ kind: fc.constant('booking' as const), day: fc.constantFrom('Tuesday', 'Friday', 'Monday') }),

@@ -96,7 +96,7 @@ describe('retention sweep', () => {
     const a = createTidemark(opts);
     const b = createTidemark(opts);
     const t0 = Date.now() - 10 * day;
-    const facts = ['My bike is a green Harlow Tourer with a dynamo hub.', 'My favourite fern is the maidenhair fern on the balcony.', 'My Spanish teacher is called Lucia Moreno.'];
+    const facts = ['My bike is a green Corvane Tourer with a dynamo hub.', 'My favourite fern is the maidenhair fern on the balcony.', 'My Spanish teacher is called Lucia Moreno.'];
     for (const [i, text] of facts.entries()) await a.write({ session: 's1', text, at: t0 + i * 1000 });
     const evicted = (await a.inspect('s1')).logbook.find((e) => e.kind === 'capacity')!;
     expect(evicted).toBeDefined();

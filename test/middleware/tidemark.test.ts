@@ -20,7 +20,7 @@ afterEach(async () => {
 });
 
 /** The bike workshop conversation of the demo, up to the change of day. */
-const BOOKING = ['Hi, my name is Dana and my bike is a green Harlow Tourer.', 'Can I book a service for Tuesday?', 'I am allergic to chain wax.', 'Actually, can we move it to Friday instead?'];
+const BOOKING = ['Hi, my name is Dana and my bike is a green Corvane Tourer.', 'Can I book a service for Tuesday?', 'I am allergic to chain wax.', 'Actually, can we move it to Friday instead?'];
 
 describe('bad input gets a coded error and nothing written', () => {
   async function nothingWritten(tm: Tidemark, session = 's1'): Promise<void> {
@@ -42,7 +42,7 @@ describe('bad input gets a coded error and nothing written', () => {
 
   it('oversize text: TIDEMARK_E_INPUT_TOO_LARGE; with truncate: true it is cut on a UTF-8 boundary', async () => {
     const tm = make({ maxTextBytes: 40 });
-    const long = 'My bike is a ' + 'Harlow Tourer '.repeat(10);
+    const long = 'My bike is a ' + 'Corvane Tourer '.repeat(10);
     await expect(tm.write({ session: 's1', text: long })).rejects.toMatchObject({ code: 'TIDEMARK_E_INPUT_TOO_LARGE' });
     await nothingWritten(tm);
     // "Remember that " is 14 bytes, then 3-byte characters: 40 bytes end inside the 9th, so 8 are kept.
@@ -82,7 +82,7 @@ describe('bad input gets a coded error and nothing written', () => {
     expect((err as Error).message).toContain('gives 256');
     expect((err as Error).message).toContain('migrate');
     expect((err as Error).message).not.toContain('s1'); // the raw session id stays out of messages
-    await expect(other.write({ session: 's1', text: 'My bike is a Harlow Tourer' })).rejects.toMatchObject({ code: 'TIDEMARK_E_EMBED_DIM' });
+    await expect(other.write({ session: 's1', text: 'My bike is a Corvane Tourer' })).rejects.toMatchObject({ code: 'TIDEMARK_E_EMBED_DIM' });
     expect((await store.load({ tenant: 'default', session: 's1' }))!.version).toBe(1);
   });
 
@@ -207,7 +207,7 @@ describe('admin', () => {
   it('erase by user removes every session of that user', async () => {
     const tm = make();
     await tm.write({ session: 'a', user: 'u1', text: 'My name is Dana' });
-    await tm.write({ session: 'b', user: 'u1', text: 'My bike is a green Harlow Tourer' });
+    await tm.write({ session: 'b', user: 'u1', text: 'My bike is a green Corvane Tourer' });
     await tm.write({ session: 'c', user: 'u2', text: 'My name is Rowan' });
     await tm.erase({ user: 'u1' });
     expect((await tm.inspect('a')).slots).toEqual([]);
@@ -220,7 +220,7 @@ describe('admin', () => {
     await tm.write({ session: 's', text: 'I am allergic to chain wax.' });
     const slot = (await tm.inspect('s')).slots[0]!;
     await tm.pin('s', slot.index);
-    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My phone is 07700 900123', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue'];
+    const facts = ['My name is Dana', 'My bike is a green Corvane Tourer', 'My postcode is ZZ99 9ZZ', 'My phone is 07700 900123', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue'];
     let evicted = 0;
     tm.on('evict', () => evicted++);
     for (const text of facts) await tm.write({ session: 's', text });
@@ -237,7 +237,7 @@ describe('admin', () => {
   it('reopening a session with a smaller capacity keeps pinned and strongest slots and reports the evictions', async () => {
     const store = new InProcessStore();
     const big = make({ store, capacity: 4, write: { halfLife: 2 } });
-    const facts = ['My name is Dana', 'I am allergic to chain wax.', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ'];
+    const facts = ['My name is Dana', 'I am allergic to chain wax.', 'My bike is a green Corvane Tourer', 'My postcode is ZZ99 9ZZ'];
     for (const text of facts) await big.write({ session: 's', text });
     await big.pin('s', 1); // the allergy
     const small = make({ store, capacity: 2, write: { halfLife: 2 } });
@@ -250,7 +250,7 @@ describe('admin', () => {
     expect(v.slots.map((x) => x.value).sort()).toEqual(['ZZ99 9ZZ', 'chain wax']);
     expect(report.evicted).toBe(2);
     expect(evicted).toEqual([['capacity', true], ['capacity', true]]);
-    expect(v.logbook.filter((a) => a.kind !== 'turn').map((a) => [a.value, a.kind]).sort()).toEqual([['Dana', 'capacity'], ['a green Harlow Tourer', 'capacity']]);
+    expect(v.logbook.filter((a) => a.kind !== 'turn').map((a) => [a.value, a.kind]).sort()).toEqual([['Dana', 'capacity'], ['a green Corvane Tourer', 'capacity']]);
     expect(v.events.filter((e) => e.type === 'evict').map((e) => e.reason)).toEqual(['capacity', 'capacity']);
   });
 
@@ -314,7 +314,7 @@ describe('admin', () => {
 
   it('migrate() stores the same vectors a fresh write with the new embedder would (value mix included)', async () => {
     const store = new InProcessStore();
-    const facts = ['My name is Dana', 'My bike is a green Harlow Tourer', 'I am allergic to chain wax.'];
+    const facts = ['My name is Dana', 'My bike is a green Corvane Tourer', 'I am allergic to chain wax.'];
     const old = make({ store });
     for (const text of facts) await old.write({ session: 'old', text });
     const tm = make({ store, embedder: new HashingEmbedder({ dim: 256 }) });
@@ -354,7 +354,7 @@ describe('admin', () => {
 });
 
 describe('concurrency', () => {
-  const FACTS = ['My name is Dana', 'My bike is a green Harlow Tourer', 'My postcode is ZZ99 9ZZ', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue', 'My lock is a Brackwen D-lock', 'My pump is orange', 'My bell is brass'];
+  const FACTS = ['My name is Dana', 'My bike is a green Corvane Tourer', 'My postcode is ZZ99 9ZZ', 'My saddle is a Fenmarrow leather saddle', 'My helmet is blue', 'My lock is a Brackwen D-lock', 'My pump is orange', 'My bell is brass'];
 
   it('N concurrent writes to one session all land, in order (no lost update)', async () => {
     const store = new ControlledStore();
@@ -379,7 +379,7 @@ describe('concurrency', () => {
     const v = await a.inspect('s');
     expect(v.version).toBe(FACTS.length);
     expect(v.turns).toBe(FACTS.length);
-    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Harlow Tourer', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'blue', 'a Brackwen D-lock', 'orange', 'brass'].sort());
+    expect(v.slots.map((s) => s.value).sort()).toEqual(['Dana', 'a green Corvane Tourer', 'ZZ99 9ZZ', 'a Fenmarrow leather saddle', 'blue', 'a Brackwen D-lock', 'orange', 'brass'].sort());
   });
 
   it('different sessions run in parallel: a slow commit of one does not hold up another', async () => {

@@ -104,7 +104,7 @@ describe('a slow store does not hold back the reply', () => {
     const bot = tm.wrap(async () => slowChunks(['ok ', 'noted'], 0));
     const firstChunkAt: number[] = [];
     const turnStart: number[] = [];
-    for (const text of ['My name is Dana', 'My bike is a green Harlow Tourer']) {
+    for (const text of ['My name is Dana', 'My bike is a green Corvane Tourer']) {
       turnStart.push(performance.now());
       const reply = await bot({ session: 's', text });
       for await (const chunk of reply) if (chunk === 'ok ') firstChunkAt.push(performance.now());
@@ -118,7 +118,7 @@ describe('a slow store does not hold back the reply', () => {
     expect(firstChunkAt[0]! - turnStart[0]!).toBeLessThan(200); // the commit takes 500
     // Turn 2 may wait for turn 1's pending commit (read-your-writes), but only within readTimeoutMs.
     expect(firstChunkAt[1]! - turnStart[1]!).toBeLessThan(100 + 250);
-    expect((await values(tm, 's')).sort()).toEqual(['Dana', 'a green Harlow Tourer']);
+    expect((await values(tm, 's')).sort()).toEqual(['Dana', 'a green Corvane Tourer']);
   });
 
   it('a string reply resolves before its commit finishes', async () => {

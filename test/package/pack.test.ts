@@ -23,7 +23,7 @@ const pin = (name: string): string => `${name}@${repoPkg.devDependencies[name]}`
 const PEERS = ['prom-client', 'ioredis', 'hnswlib-node', '@xenova/transformers'].map(pin);
 const NPM_FLAGS = ['--prefer-offline', '--ignore-scripts', '--no-audit', '--no-fund', '--loglevel=error'];
 
-/** The README's quick start (the first ts block under "## Quick start"), which names `myModel`. */
+/** The README's quick start (the first ts block under "## Quick start"), runnable as printed. */
 function quickStart(): string {
   const readme = readFileSync(join(ROOT, 'README.md'), 'utf8');
   const section = readme.split(/^## Quick start$/m)[1];
@@ -99,7 +99,7 @@ describe('the packed tarball in a fresh TypeScript app', () => {
     await run('mkdir', ['-p', app]);
     writeFileSync(join(app, 'package.json'), JSON.stringify({ name: 'consumer-app', version: '1.0.0', private: true, type: 'module' }));
     writeFileSync(join(app, 'tsconfig.json'), JSON.stringify(TSCONFIG));
-    writeFileSync(join(app, 'quick-start.ts'), `declare const myModel: { complete(prompt: string): Promise<string> };\n${quickStart()}\nexport {};\n`);
+    writeFileSync(join(app, 'quick-start.ts'), `${quickStart()}\nexport {};\n`);
     await run('npm', ['install', ...NPM_FLAGS, tarball, pin('typescript'), pin('@types/node')], { cwd: app });
   }, 300_000);
 
@@ -123,9 +123,18 @@ describe('the packed tarball in a fresh TypeScript app', () => {
   });
 
   it('installs alone: the root entry loads and runs without any optional peer', async () => {
-    const script = `import('tidemark').then(async (t) => { const m = t.createTidemark(); await m.write({ session: 's', text: 'My bike is a green Quenby.' }); const c = await m.read({ session: 's', text: 'which bike?' }); console.log(c.items[0].value); });`;
+    const script = `import('tidemark').then(async (t) => { const m = t.createTidemark(); await m.write({ session: 's', text: 'My bike is a green Corvane.' }); const c = await m.read({ session: 's', text: 'which bike?' }); console.log(c.items[0].value); });`;
     const { stdout } = await run(process.execPath, ['--input-type=module', '-e', script], { cwd: app });
-    expect(stdout.trim()).toBe('a green Quenby');
+    expect(stdout.trim()).toBe('a green Corvane');
+  }, 60_000);
+
+  it("runs the README's quick start as printed: the second reply has the first turn's fact in its memory", async () => {
+    writeFileSync(join(app, 'quick-start.mjs'), quickStart());
+    const { stdout } = await run(process.execPath, ['quick-start.mjs'], { cwd: app });
+    const [first, ...second] = stdout.trim().split('\n[memory: ');
+    expect(first).toBe('[memory: empty] You said: My bike is a green Corvane Audax.');
+    expect(second.join('')).toContain('- my bike: a green Corvane Audax\n');
+    expect(stdout.trim().endsWith('You said: Which bike do I ride?')).toBe(true);
   }, 60_000);
 
   it('tsc --strict without skipLibCheck passes without the optional peers', async () => {

@@ -97,7 +97,7 @@ describe('sseFrame', () => {
 
 describe('POST /chat (node listener)', () => {
   it('streams memory, then the reply as data lines, then done', async () => {
-    const res = await post('/chat', JSON.stringify({ session: 'rider-1', text: 'My name is Dana and my bike is a green Quenby.' }));
+    const res = await post('/chat', JSON.stringify({ session: 'rider-1', text: 'My name is Dana and my bike is a green Corvane.' }));
     expect(res.status).toBe(200);
     expect(res.headers.get('content-type')).toBe('text/event-stream; charset=utf-8');
     expect(res.headers.get('access-control-allow-origin')).toBeNull();
@@ -107,7 +107,7 @@ describe('POST /chat (node listener)', () => {
     expect(memory).toEqual({ result: 'miss', degraded: false, items: [] });
     expect(events.at(-1)!.event).toBe('done');
     const text = events.filter((e) => e.event === undefined).map((e) => e.data).join('');
-    expect(text).toBe(BOT_TEXT('My name is Dana and my bike is a green Quenby.', 0));
+    expect(text).toBe(BOT_TEXT('My name is Dana and my bike is a green Corvane.', 0));
     await tm.flush();
 
     const again = parseSse(await (await post('/chat', JSON.stringify({ session: 'rider-1', text: 'What bike do I ride?' }))).text());
@@ -120,7 +120,7 @@ describe('POST /chat (node listener)', () => {
       expect(item).not.toHaveProperty('value');
       expect(item).not.toHaveProperty('key');
     }
-    expect(JSON.stringify(m2)).not.toMatch(/Quenby/);
+    expect(JSON.stringify(m2)).not.toMatch(/Corvane/);
   });
 
   it('aborts the handler when the client disconnects', async () => {
