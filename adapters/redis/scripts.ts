@@ -3,6 +3,7 @@
 // sent by SHA (EVALSHA) and re-sent in full once when a server answers NOSCRIPT (e.g. after a restart).
 
 import { createHash } from 'node:crypto';
+import { BLOCK_BYTES, BLOCK_RECORDS } from './codec.js';
 
 export interface LuaScript {
   readonly name: string;
@@ -14,6 +15,46 @@ export interface LuaScript {
 function script(name: string, keys: number, lua: string): LuaScript {
   return { name, keys, lua, sha: createHash('sha1').update(lua).digest('hex') };
 }
+
+/**
+ * Lua helpers for logbook blocks (layout in codec.ts): unsigned and zigzag varints, and the records of a
+ * block as {start, time} (start = the record's first byte, time = block base + its delta).
+ */
+const BLOCK_LUA = `
+local function uvar(v)
+  local s = ''
+  while v >= 128 do
+    s = s .. string.char(v % 128 + 128)
+    v = math.floor(v / 128)
+  end
+  return s .. string.char(v)
+end
+local function zz(d) if d >= 0 then return uvar(2 * d) end return uvar(-2 * d - 1) end
+local function rvar(s, p)
+  local v, m = 0, 1
+  while true do
+    local b = string.byte(s, p)
+    p = p + 1
+    v = v + (b % 128) * m
+    if b < 128 then return v, p end
+    m = m * 128
+  end
+end
+local function brecs(el)
+  local colon = string.find(el, ':', 3, true)
+  local base = tonumber(string.sub(el, 3, colon - 1))
+  local out, p = {}, colon + 1
+  while p <= #el do
+    local len, q = rvar(el, p)
+    local z = rvar(el, q)
+    local d = (z % 2 == 0) and z / 2 or -(z + 1) / 2
+    out[#out + 1] = {p, base + d}
+    p = q + len
+  end
+  return out, colon
+end
+local function bcount(el) if string.byte(el, 1) == 0 then return string.byte(el, 2) end return 1 end
+`;
 
 /**
  * Load one session in one round trip.
@@ -39,17 +80,18 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
  *       15 #events, 16 fence: the session's erase time the writer saw ('' = none), 17 fence: the
  *       writer's clock when it accepted the turn ('' = unfenced), 18 fence ttl seconds (how long
- *       ids and tombstones live), then #ops x (index, payload or '' to free), #entries x (id, atMs, payload), #events x json.
- * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
- * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
- * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
+ *       ids and tombstones live), then #ops x (index, payload or '' to free), #entries x (atMs, record body), #events x json.
+ * A logbook slice is a log of blocks of entries in arrival order (codec.ts; logs written before blocks
+ * hold `atMs:id` elements with the payloads in a hash, still read and trimmed); entries trimmed by
+ * retention leave from the head of the log, the meta field `ah` / `auh` counts them and `an` / `aun`
+ * counts the entries the log holds, so readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
  * server's time, for ARGV[18] seconds: longer than any write may wait in an outbox, so a resend is
  * recognised however many commits came between.
  * Reply: {1, version, epoch, dropped by age, dropped by count} applied | {2, version, epoch} this commit
  *        id was already applied | {0, version, epoch} version mismatch | {3, version, epoch} the
  *        session was erased after the writer's fence.
  */
-export const COMMIT = script('commit', 9, `
+export const COMMIT = script('commit', 9, `${BLOCK_LUA}
 local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
 local v = tonumber(m[1] or '0')
 -- Fenced: refused when the session was erased after the writer looked, or not before it accepted the turn.
@@ -96,41 +138,71 @@ if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
   fields[#fields + 1] = ARGV[8]
 end
-local h, log, headf = KEYS[4], KEYS[6], 'ah'
-if ARGV[8] ~= '' then h, log, headf = KEYS[5], KEYS[7], 'auh' end
-local statL0 = redis.call('HLEN', h) -- [stats] logbook entries of the slice before this commit
+local h, log, headf, nf = KEYS[4], KEYS[6], 'ah', 'an'
+if ARGV[8] ~= '' then h, log, headf, nf = KEYS[5], KEYS[7], 'auh', 'aun' end
+-- Entries go into blocks (see codec.ts, logbook blocks): appended to the open block at the tail, or a new one.
+local n = tonumber(redis.call('HGET', KEYS[1], nf) or '-1')
+if n < 0 then n = redis.call('LLEN', log) end -- a log written before blocks: one entry per element
+local added = 0
+local tail = nil
 for i = 1, nlb do
-  -- An id already present is replaced in place (a resent turn); only a new one joins the log.
-  if redis.call('HSET', h, ARGV[a], ARGV[a + 2]) == 1 then redis.call('RPUSH', log, ARGV[a + 1] .. ':' .. ARGV[a]) end
-  a = a + 3
+  local at, body = tonumber(ARGV[a]), ARGV[a + 1]
+  a = a + 2
+  if tail == nil then tail = redis.call('LINDEX', log, -1) or false end
+  local open = tail and string.byte(tail, 1) == 0
+  if open and string.find(tail, body, 1, true) then
+    -- A resent entry already in the open block (same bytes): not added twice.
+  elseif open and string.byte(tail, 2) < ${BLOCK_RECORDS} and #tail < ${BLOCK_BYTES} then
+    local colon = string.find(tail, ':', 3, true)
+    local z = zz(at - tonumber(string.sub(tail, 3, colon - 1)))
+    tail = '\\0' .. string.char(string.byte(tail, 2) + 1) .. string.sub(tail, 3) .. uvar(#z + #body) .. z .. body
+    redis.call('LSET', log, -1, tail)
+    added = added + 1
+  else
+    local z = zz(0)
+    tail = '\\0' .. string.char(1) .. string.format('%.0f', at) .. ':' .. uvar(#z + #body) .. z .. body
+    redis.call('RPUSH', log, tail)
+    added = added + 1
+  end
 end
--- Retention: oldest first from the head of the log, by age then by count. A popped element whose
+n = n + added
+-- Retention: oldest first from the head of the log, by age then by count. A popped 0.2 element whose
 -- entry was already deleted (a tombstone) is not counted.
 local dropAge, dropCount, popped = 0, 0, 0
 local maxn, cutoff = tonumber(ARGV[11]), tonumber(ARGV[12])
-local function pop()
-  local e = redis.call('LPOP', log)
-  if not e then return nil end
-  popped = popped + 1
-  local id = string.match(e, '^%-?%d+:(.*)$') or e
-  return redis.call('HDEL', h, id)
-end
-if cutoff > 0 then
+local function trim(byAge)
   while true do
-    local e = redis.call('LINDEX', log, 0)
-    if not e then break end
-    local at = tonumber(string.match(e, '^(%-?%d+):'))
-    if at == nil or at >= cutoff then break end
-    dropAge = dropAge + pop()
+    local el = redis.call('LINDEX', log, 0)
+    if not el then return end
+    if string.byte(el, 1) == 0 then
+      local recs, colon = brecs(el)
+      local k = 0
+      for j = 1, #recs do
+        if (byAge and recs[j][2] < cutoff) or (not byAge and n - k > maxn) then k = j else break end
+      end
+      if k == 0 then return end
+      if k == #recs then redis.call('LPOP', log)
+      else redis.call('LSET', log, 0, '\\0' .. string.char(#recs - k) .. string.sub(el, 3, colon) .. string.sub(el, recs[k + 1][1])) end
+      popped, n = popped + k, n - k
+      if byAge then dropAge = dropAge + k else dropCount = dropCount + k end
+      if k < #recs then return end
+    else
+      -- A 0.2 element 'atMs:id', its entry in the hash.
+      if byAge then
+        local at = tonumber(string.match(el, '^(%-?%d+):'))
+        if at == nil or at >= cutoff then return end
+      elseif n <= maxn then return end
+      redis.call('LPOP', log)
+      popped, n = popped + 1, n - 1
+      local d = redis.call('HDEL', h, string.match(el, '^%-?%d+:(.*)$') or el)
+      if byAge then dropAge = dropAge + d else dropCount = dropCount + d end
+    end
   end
 end
-if maxn > 0 then
-  while redis.call('HLEN', h) > maxn do
-    local d = pop()
-    if d == nil then break end
-    dropCount = dropCount + d
-  end
-end
+if cutoff > 0 then trim(true) end
+if maxn > 0 then trim(false) end
+fields[#fields + 1] = nf
+fields[#fields + 1] = n
 if popped > 0 then
   fields[#fields + 1] = headf
   fields[#fields + 1] = tonumber(redis.call('HGET', KEYS[1], headf) or '0') + popped
@@ -153,57 +225,106 @@ end
 if KEYS[10] then
   if not m[1] then redis.call('HINCRBY', KEYS[10], 'sessions', 1) end
   redis.call('HINCRBY', KEYS[10], 'slots', redis.call('HLEN', KEYS[2]) - statS0)
-  redis.call('HINCRBY', KEYS[10], 'logbook', redis.call('HLEN', h) - statL0)
+  redis.call('HINCRBY', KEYS[10], 'logbook', added - dropAge - dropCount)
 end
 return {1, v + 1, ep, dropAge, dropCount}
 `);
 
 /**
  * Fetch what is new in one logbook slice of a session.
- * KEYS: meta, hash (arch | uarch), log (alog | ualog). ARGV: epoch field ('as' | 'au'), head field
- * ('ah' | 'auh'), '=' .. cached epoch or '' (nothing cached), cached absolute end of the log.
- * Positions are absolute: the head counts elements trimmed from the front since the session began.
- * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads}
- * (the elements after the cached end) | {epoch, head, end, 'f', elements, payloads} (everything: first
- * fetch, epoch moved, or too far behind). Payloads align with elements; a deleted entry's is false.
+ * KEYS: meta, hash (arch | uarch; payloads of logs written before blocks), log (alog | ualog).
+ * ARGV: epoch field ('as' | 'au'), head field ('ah' | 'auh'), '=' .. cached epoch or '' (nothing
+ * cached), cached absolute end of the log, count field ('an' | 'aun').
+ * Positions count entries and are absolute: the head counts entries trimmed from the front since the
+ * session began. A block holds several entries, so a delta starts at the element holding the cached
+ * end and says how many of its first entries the reader has already.
+ * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads,
+ * skip} (the elements holding the entries after the cached end) | {epoch, head, end, 'f', elements,
+ * payloads, 0} (everything: first fetch, epoch moved, or too far behind). Payloads align with elements:
+ * false for a block, the hash payload for an `atMs:id` element (false when that entry was deleted).
  */
-export const LOG_FETCH = script('log_fetch', 3, `
+export const LOG_FETCH = script('log_fetch', 3, `${BLOCK_LUA}
 if redis.call('EXISTS', KEYS[1]) == 0 then return false end
-local mh = redis.call('HMGET', KEYS[1], ARGV[1], ARGV[2])
+local mh = redis.call('HMGET', KEYS[1], ARGV[1], ARGV[2], ARGV[5])
 local ep = mh[1] or ''
 local head = tonumber(mh[2] or '0')
-local n = redis.call('LLEN', KEYS[3])
+local n = tonumber(mh[3] or '-1')
+if n < 0 then n = redis.call('LLEN', KEYS[3]) end
 local stop = head + n
 local from = tonumber(ARGV[4])
-local mode = 'f'
+local mode, skip = 'f', 0
 local els
 if ARGV[3] ~= '' and ARGV[3] == ('=' .. ep) and from >= head and from <= stop and stop - from <= 1000 then
   if from == stop then return {ep, head, stop} end
   mode = 'd'
-  els = redis.call('LRANGE', KEYS[3], from - head, -1)
+  local need, got, i = stop - from, 0, 0
+  while got < need do
+    i = i - 1
+    local el = redis.call('LINDEX', KEYS[3], i)
+    if not el then break end
+    got = got + bcount(el)
+  end
+  els = redis.call('LRANGE', KEYS[3], i, -1)
+  skip = math.max(0, got - need)
 else
   els = redis.call('LRANGE', KEYS[3], 0, -1)
 end
-local vals = {}
--- HMGET in chunks: unpack() of thousands of arguments overflows Lua's C stack.
-for c = 1, #els, 500 do
-  local ids = {}
-  for i = c, math.min(c + 499, #els) do ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i] end
-  local got = redis.call('HMGET', KEYS[2], unpack(ids))
-  for i = 1, #got do vals[#vals + 1] = got[i] end
+local vals, ids, at = {}, {}, {}
+for i = 1, #els do
+  vals[i] = false
+  if string.byte(els[i], 1) ~= 0 then
+    ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i]
+    at[#at + 1] = i
+  end
 end
-return {ep, head, stop, mode, els, vals}
+-- HMGET in chunks: unpack() of thousands of arguments overflows Lua's C stack.
+for c = 1, #ids, 500 do
+  local got = redis.call('HMGET', KEYS[2], unpack(ids, c, math.min(c + 499, #ids)))
+  for j = 1, #got do vals[at[c + j - 1]] = got[j] end
+end
+return {ep, head, stop, mode, els, vals, skip}
+`);
+
+/**
+ * Take entries out of blocks (deleteLogbook): the reader fetched the log, found the records, and sends
+ * each changed block as it saw it and as it should be ('' = remove the block). Applied only when every
+ * block is still as seen (else -1: fetch and try again); moves the epoch so cached copies refetch in full.
+ * KEYS: meta, log, [stats]. ARGV: epoch field, new epoch, count field, entries removed, then
+ * (element index, block seen, new block) triples. Reply: entries removed, or -1.
+ */
+export const LOG_REWRITE = script('log_rewrite', 2, `
+for i = 5, #ARGV, 3 do
+  if redis.call('LINDEX', KEYS[2], tonumber(ARGV[i])) ~= ARGV[i + 1] then return -1 end
+end
+local gone = false
+for i = 5, #ARGV, 3 do
+  if ARGV[i + 2] == '' then
+    redis.call('LSET', KEYS[2], tonumber(ARGV[i]), '\\0\\0gone')
+    gone = true
+  else
+    redis.call('LSET', KEYS[2], tonumber(ARGV[i]), ARGV[i + 2])
+  end
+end
+if gone then redis.call('LREM', KEYS[2], 0, '\\0\\0gone') end
+local k = tonumber(ARGV[4])
+if redis.call('EXISTS', KEYS[1]) == 1 then
+  redis.call('HSET', KEYS[1], ARGV[1], ARGV[2])
+  local n = tonumber(redis.call('HGET', KEYS[1], ARGV[3]) or '-1')
+  if n >= 0 then redis.call('HSET', KEYS[1], ARGV[3], math.max(0, n - k)) end
+end
+if KEYS[3] then redis.call('HINCRBY', KEYS[3], 'logbook', 0 - k) end -- [stats]
+return k
 `);
 
 /**
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
  * O(log length): deletes are rare (a promotion, an edit), never per turn.
- * KEYS: meta, hash, log, [stats]. ARGV: epoch field, new epoch, ids... Reply: number removed.
+ * KEYS: meta, hash, log, [stats]. ARGV: epoch field, new epoch, count field ('an' | 'aun'), ids... Reply: number removed.
  */
 export const LOG_DELETE = script('log_delete', 3, `
 local want, n = {}, 0
-for i = 3, #ARGV do
+for i = 4, #ARGV do
   if redis.call('HDEL', KEYS[2], ARGV[i]) == 1 then
     want[ARGV[i]] = true
     n = n + 1
@@ -211,11 +332,19 @@ for i = 3, #ARGV do
 end
 if n == 0 then return 0 end
 if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', 0 - n) end -- [stats]
+local gone = 0
 for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
-  local id = string.match(e, '^%-?%d+:(.*)$') or e
-  if want[id] then redis.call('LREM', KEYS[3], 1, e) end
+  if string.byte(e, 1) ~= 0 then
+    local id = string.match(e, '^%-?%d+:(.*)$') or e
+    if want[id] then gone = gone + redis.call('LREM', KEYS[3], 1, e) end
+  end
 end
-if redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], ARGV[1], ARGV[2]) end
+if redis.call('EXISTS', KEYS[1]) == 1 then
+  redis.call('HSET', KEYS[1], ARGV[1], ARGV[2])
+  -- The count of entries the log holds (logs that have blocks too): ARGV[3] names it.
+  local c = ARGV[3] and tonumber(redis.call('HGET', KEYS[1], ARGV[3]) or '-1') or -1
+  if c >= 0 then redis.call('HSET', KEYS[1], ARGV[3], math.max(0, c - gone)) end
+end
 return n
 `);
 
@@ -233,7 +362,8 @@ redis.call('SET', KEYS[8], at, 'EX', tonumber(ARGV[1]))
 local existed = redis.call('EXISTS', KEYS[1])
 local user = redis.call('HGET', KEYS[1], 'u') or ''
 local slots = redis.call('HLEN', KEYS[2])
-local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
+local cn = redis.call('HMGET', KEYS[1], 'an', 'aun') -- entries in the logs; logs from before blocks: their hashes
+local items = (tonumber(cn[1] or '') or redis.call('HLEN', KEYS[4])) + (tonumber(cn[2] or '') or redis.call('HLEN', KEYS[5]))
 local events = redis.call('XLEN', KEYS[3])
 redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9], KEYS[10])
 if KEYS[11] then -- [stats] (0 - x, not -x: Lua's -0 reaches Redis as "-0", which HINCRBY refuses)

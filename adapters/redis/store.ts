@@ -19,9 +19,10 @@ import { listEntries } from '../../src/store/in-process.js';
 import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
-import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
+import { corrupt, decodeLogbook, decodeRecord, decodeSlot, encodeRecord, encodeSlot, joinBlock, splitBlock, type KeyFormat, type RecordHome } from './codec.js';
+import { turnEntryId } from '../../src/middleware/write.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_REWRITE, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -112,6 +113,8 @@ const elementId = (e: string): string => {
 };
 
 const token = (): string => randomBytes(8).toString('hex');
+/** First byte of a logbook block element (codec.ts, BLOCK_MARK). */
+const BLOCK_MARK_BYTE = 0;
 const str = (b: unknown): string => (Buffer.isBuffer(b) ? b.toString('utf8') : String(b));
 
 function num(b: unknown, what: string, integer: boolean): number {
@@ -347,15 +350,48 @@ export class RedisSlotStore implements Store {
       const user = 'user' in scope;
       const sessions = user ? await c.smembers(this.keys.userSessions(scope.tenant, scope.user)) : [scope.session];
       const counts = await Promise.all(
-        sessions.map((s) => {
+        sessions.map(async (s) => {
           const k = this.keys.session(scope.tenant, s);
-          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
+          const keys = [k.meta, user ? k.uarch : k.arch, user ? k.ualog : k.alog];
+          // Entries of logs written before blocks (hash payloads), then those in blocks.
+          const old = Number(await this.counted(c, scope.tenant, LOG_DELETE, keys, [user ? 'au' : 'as', token(), user ? 'aun' : 'an', ...ids]));
+          return old + (await this.deleteFromBlocks(c, scope, s, keys, ids));
         }),
       );
-      return counts.reduce<number>((sum, n) => sum + Number(n), 0);
+      return counts.reduce<number>((sum, n) => sum + n, 0);
     } catch (err) {
       throw unavailable('deleteLogbook', err);
     }
+  }
+
+  /**
+   * Takes records out of a slice's blocks: fetch the log, drop the records with these ids, send the
+   * changed blocks with the bytes they were seen with (LOG_REWRITE refuses if any moved meanwhile;
+   * then fetch again). Deletes are rare (a promotion, an edit), never per turn.
+   */
+  private async deleteFromBlocks(c: RedisClient, scope: LogbookScope, session: string, keys: string[], ids: readonly string[]): Promise<number> {
+    const user = 'user' in scope ? scope.user : undefined;
+    const want = new Set(ids);
+    const home: RecordHome = { tenant: scope.tenant, session, ...(user !== undefined ? { user } : {}) };
+    const [ef, hf, cf] = user !== undefined ? ['au', 'auh', 'aun'] : ['as', 'ah', 'an'];
+    for (let attempt = 0; attempt < 8; attempt++) {
+      const r = (await runScript(c, LOG_FETCH, keys, [ef, hf, '', 0, cf])) as unknown[] | null;
+      if (r === null || r.length < 6) return 0;
+      const triples: (string | number | Buffer)[] = [];
+      let removed = 0;
+      (r[4] as Buffer[]).forEach((el, i) => {
+        if (el[0] !== BLOCK_MARK_BYTE) return;
+        const blk = splitBlock(el, 'logbook block');
+        const keep = blk.records.filter((rec) => !want.has(decodeRecord(rec.body, rec.at, 'logbook record', home, turnEntryId).id));
+        if (keep.length === blk.records.length) return;
+        removed += blk.records.length - keep.length;
+        triples.push(i, el, keep.length > 0 ? joinBlock(blk.header, keep) : '');
+      });
+      if (removed === 0) return 0;
+      const n = Number(await this.counted(c, scope.tenant, LOG_REWRITE, [keys[0]!, keys[2]!], [ef, token(), cf, removed, ...triples]));
+      if (n >= 0) return n;
+    }
+    throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, 'redis store: deleteLogbook: the log kept changing; try again');
   }
 
   async readEvents(ref: SessionRef, limit = 100): Promise<StoredEvent[]> {
@@ -491,10 +527,11 @@ export class RedisSlotStore implements Store {
           cursor = next;
           for (const meta of keys) {
             const base = meta.slice(0, -':meta'.length);
-            const [slots, arch, uarch] = await Promise.all([node.hlen(`${base}:slots`), node.hlen(`${base}:arch`), node.hlen(`${base}:uarch`)]);
+            const [slots, arch, uarch, counts] = await Promise.all([node.hlen(`${base}:slots`), node.hlen(`${base}:arch`), node.hlen(`${base}:uarch`), node.hmget(meta, 'an', 'aun')]);
             out.sessions += 1;
             out.slots += slots;
-            out.logbookEntries += arch + uarch;
+            // Entries in blocks are counted in meta (an / aun); logs from before blocks, by their hashes.
+            out.logbookEntries += (counts[0] !== null ? Number(counts[0]) : arch) + (counts[1] !== null ? Number(counts[1]) : uarch);
           }
         } while (cursor !== '0');
       }
@@ -627,8 +664,11 @@ export class RedisSlotStore implements Store {
         keys.push(null);
       }
     }
-    const home = { tenant: ref.tenant, session: ref.session };
-    for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf, { ...home, id: e.id }));
+    const home: RecordHome = { tenant: ref.tenant, session: ref.session, ...(ref.user !== undefined ? { user: ref.user } : {}) };
+    for (const e of req.logbook) {
+      const rec = encodeRecord(e, ref.user, kf, home, turnEntryId);
+      args.push(String(rec.at), rec.body);
+    }
     for (const ev of req.events) args.push(JSON.stringify(ev));
     return { args, keys };
   }
@@ -702,7 +742,7 @@ export class RedisSlotStore implements Store {
           const k = this.keys.session(scope.tenant, s);
           const cached = sc.sessions.get(s);
           const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
-          return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0]);
+          return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0, user !== undefined ? 'aun' : 'an']);
         }),
       );
     } catch (err) {
@@ -735,24 +775,39 @@ export class RedisSlotStore implements Store {
         this.dropScopeSession(sc, s);
         cached = undefined;
       }
-      const els = (r[4] as Buffer[]).map(str);
+      const els = r[4] as Buffer[];
       const vals = r[5] as Array<Buffer | null | false>;
+      let skip = delta ? num(r[6] ?? 0, 'logbook skip', true) : 0;
       const entry: ScopeSession = cached ?? { epoch, head, end: head, ids: [] };
       const fresh: LogbookEntry[] = [];
-      els.forEach((el, j) => {
-        const v = vals[j];
-        const id = elementId(el);
-        if (!v) {
-          entry.ids.push('');
-          return;
-        }
-        const e = decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id });
-        if (user !== undefined && e.user !== user) {
+      const home: RecordHome = { tenant: scope.tenant, session: s, ...(user !== undefined ? { user } : {}) };
+      const take = (e: LogbookEntry | null, id: string): void => {
+        if (!e || (user !== undefined && e.user !== user)) {
           entry.ids.push('');
           return;
         }
         entry.ids.push(id);
         fresh.push(e);
+      };
+      els.forEach((el, j) => {
+        if (el[0] === BLOCK_MARK_BYTE) {
+          for (const rec of splitBlock(el, 'logbook block').records) {
+            if (skip > 0) {
+              skip--;
+              continue;
+            }
+            const e = decodeRecord(rec.body, rec.at, 'logbook record', home, turnEntryId);
+            take(e, e.id);
+          }
+          return;
+        }
+        const id = elementId(str(el));
+        const v = vals[j];
+        if (skip > 0) {
+          skip--;
+          return;
+        }
+        take(v ? decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id }) : null, id);
       });
       // A full fetch comes in log order already; neighbours link by seq either way.
       for (const e of fresh) sc.index.add(e);

@@ -4,7 +4,8 @@
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { decodeLogbook, encodeLogbook, KIND_LOGBOOK, KIND_LOGBOOK_COMPACT } from '../../../adapters/redis/codec.js';
+import { buildBlocks, decodeLogbook, decodeRecord, encodeLogbook, encodeRecord, joinBlock, KIND_LOGBOOK, KIND_LOGBOOK_COMPACT, splitBlock } from '../../../adapters/redis/codec.js';
+import { turnEntryId } from '../../../src/middleware/write.js';
 import type { LogbookEntry } from '../../../src/types.js';
 
 const home = { tenant: 'nursery', session: 'chat-17' };
@@ -101,3 +102,99 @@ function crc(data: Uint8Array): number {
   }
   return (c ^ 0xffffffff) >>> 0;
 }
+
+describe('logbook blocks (kind 5 records)', () => {
+  const plain: LogbookEntry = { ...turn, id: turnEntryId('chat-17', 't3') };
+
+  it('costs a plain turn its text plus 8 bytes in a block (2 + 6), against 42 as a compact entry', () => {
+    const rec = encodeRecord(plain, undefined, 'int8', home, turnEntryId);
+    // check 2 + flags 1 + seq 1 + value 1+20 = 25 = 20 + 5.
+    expect(rec.body.length).toBe(25);
+    expect(rec.at).toBe(plain.atMs);
+    const [blk] = buildBlocks([rec]);
+    // block header: mark 1 + count 1 + base 13 digits + ':' 1; record: length 1 + delta 1 + body.
+    expect(blk!.length).toBe(16 + 2 + 25);
+    const split = splitBlock(blk!, 'test');
+    expect(split.records).toHaveLength(1);
+    expect(decodeRecord(split.records[0]!.body, split.records[0]!.at, 'test', home, turnEntryId)).toEqual(plain);
+    // The assistant's reply is plain too; a turn whose id is not the digest of its turn id writes the id.
+    const reply = { ...plain, role: 'assistant' as const };
+    expect(decodeRecord(encodeRecord(reply, undefined, 'int8', home, turnEntryId).body, plain.atMs, 'test', home, turnEntryId)).toEqual(reply);
+    expect(encodeRecord(turn, undefined, 'int8', home, turnEntryId).body.length).toBe(25 + 2 + 18);
+  });
+
+  it('round-trips arbitrary entries through blocks, in order, with deltas either side of the base (seed 5151)', () => {
+    console.log('block round-trip seed 5151');
+    const time = fc.oneof(fc.integer({ min: 0, max: 2 ** 45 }), fc.double({ min: -1e6, max: 1e13, noNaN: true }));
+    const entry = fc.record({
+      id: fc.string({ minLength: 1, maxLength: 20 }),
+      kind: fc.constantFrom('turn', 'superseded', 'capacity', 'decayed', 'expired') as fc.Arbitrary<LogbookEntry['kind']>,
+      tenant: fc.constantFrom('nursery', 'workshop'),
+      session: fc.constantFrom('chat-17', 'chat-18'),
+      value: fc.string({ maxLength: 200 }),
+      keyText: fc.string({ maxLength: 20 }),
+      provenance: fc.array(fc.string({ maxLength: 8 }), { maxLength: 3 }),
+      atMs: time,
+      createdMs: time,
+      clock: time,
+      seq: fc.integer({ min: 0, max: 1_000_000 }),
+      role: fc.constantFrom(undefined, 'user', 'assistant', 'system') as fc.Arbitrary<LogbookEntry['role']>,
+      derived: fc.boolean(),
+      speaker: fc.option(fc.string({ maxLength: 10 }), { nil: undefined }),
+      user: fc.constantFrom(undefined, 'u-1', 'u-2'),
+    });
+    fc.assert(
+      fc.property(fc.array(entry, { minLength: 1, maxLength: 150 }), fc.constantFrom(undefined, 'u-1'), (list, homeUser) => {
+        const h = { ...home, ...(homeUser !== undefined ? { user: homeUser } : {}) };
+        const entries = list.map(({ derived, role, speaker, user, ...e0 }) => {
+          const e: LogbookEntry = { ...e0 };
+          if (derived) {
+            // A turn as the middleware writes it: every derivable field derivable.
+            e.kind = 'turn';
+            e.provenance = [`t${e.seq}`];
+            e.id = turnEntryId(e.session, `t${e.seq}`);
+            e.clock = e.seq;
+            e.createdMs = e.atMs;
+            e.keyText = '';
+          }
+          if (role) e.role = role;
+          if (speaker !== undefined) e.speaker = speaker;
+          if (user !== undefined) e.user = user;
+          if (e.kind !== 'turn') {
+            e.strength = 0.5;
+            e.halfLife = 30;
+          }
+          return e;
+        });
+        const recs = entries.map((e) => encodeRecord(e, e.user, 'float32', h, turnEntryId));
+        const back = buildBlocks(recs).flatMap((b) => splitBlock(b, 'test').records.map((r) => decodeRecord(r.body, r.at, 'test', h, turnEntryId)));
+        expect(back).toEqual(entries);
+      }),
+      { seed: 5151, numRuns: 150 },
+    );
+  });
+
+  it('a changed byte anywhere in a record body, or a wrong time, is corrupt', () => {
+    const rec = encodeRecord(plain, undefined, 'int8', home, turnEntryId);
+    for (let i = 0; i < rec.body.length; i++) {
+      const bad = Buffer.from(rec.body);
+      bad[i] ^= 0x10;
+      expect(() => decodeRecord(bad, plain.atMs, 'test', home, turnEntryId), `byte ${i}`).toThrow();
+    }
+    expect(() => decodeRecord(rec.body, plain.atMs + 1, 'test', home, turnEntryId)).toThrow(/checksum/);
+    const [blk] = buildBlocks([rec, rec]);
+    expect(() => splitBlock(blk!.subarray(0, blk!.length - 1), 'test')).toThrow(/truncated/);
+    const wrongCount = Buffer.from(blk!);
+    wrongCount[1] = 3;
+    expect(() => splitBlock(wrongCount, 'test')).toThrow(/says 3 records/);
+  });
+
+  it('joinBlock keeps the records chosen, their times unchanged against the same base', () => {
+    const recs = [0, 1500, -20, 90_000].map((d, i) => encodeRecord({ ...plain, seq: i + 1, clock: i + 1, provenance: [`t${i + 1}`], id: turnEntryId('chat-17', `t${i + 1}`), atMs: plain.atMs + d, createdMs: plain.atMs + d }, undefined, 'int8', home, turnEntryId));
+    const [blk] = buildBlocks(recs);
+    const split = splitBlock(blk!, 'test');
+    const kept = joinBlock(split.header, [split.records[1]!, split.records[3]!]);
+    expect(splitBlock(kept, 'test').records.map((r) => decodeRecord(r.body, r.at, 'test', home, turnEntryId).seq)).toEqual([2, 4]);
+    expect(splitBlock(kept, 'test').records.map((r) => r.at)).toEqual([plain.atMs + 1500, plain.atMs + 90_000]);
+  });
+});

@@ -6,6 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
+import { encodeLogbook } from '../../../adapters/redis/codec.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
@@ -116,12 +117,59 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       }
     });
 
+    it('a log written before blocks (hash payloads, atMs:id elements) still reads, and takes blocks after it: listing, delta reads, delete and retention span both', async () => {
+      const ref = { tenant: 't', session: 'legacy-log' };
+      const scope = { tenant: 't', session: 'legacy-log' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      const k = store.sessionKeys('t', 'legacy-log');
+      // As 0.2 wrote it: one hash field per entry, one log element `atMs:id`, no entry count in meta.
+      await admin.hdel(k.meta, 'an');
+      for (const n of [1, 2, 3]) {
+        const e = turnEntry(n, ref, `older note ${n} about canoes`);
+        await admin.hset(k.arch, e.id, encodeLogbook(e, undefined, 'int8', { tenant: 't', session: 'legacy-log', id: e.id }));
+        await admin.rpush(k.alog, `${e.atMs}:${e.id}`);
+      }
+      await admin.hset(k.meta, 'as', 'moved');
+      const reader = redisSlotStore({ redis: admin, prefix });
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([3, 2, 1]);
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [4, 5].map((n) => turnEntry(n, ref, `newer note ${n} about canoes`)) }));
+      expect(await admin.hget(k.meta, 'an')).toBe('5');
+      const els = await admin.lrangeBuffer(k.alog, 0, -1);
+      expect(els.map((e) => e[0] === 0)).toEqual([false, false, false, true]);
+      // The reader that saw the three old entries gets the two new ones as a delta.
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([5, 4, 3, 2, 1]);
+      expect((await searchText(reader, scope, 'canoes')).hits).toHaveLength(5);
+      expect(await reader.deleteLogbook(scope, [turnEntry(2, ref, '').id, turnEntry(5, ref, '').id, 'nope'])).toBe(2);
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([4, 3, 1]);
+      expect(await admin.hget(k.meta, 'an')).toBe('3');
+      // Retention by count takes the oldest first, across the old elements and into the block.
+      const r = await store.commit(ref, commitOf({ expectedVersion: 2, logbook: [turnEntry(6, ref, 'latest note about canoes')], retention: { policy: { maxAgeMs: 0, maxEntries: 2 }, nowMs: Date.now() } }));
+      expect(r).toEqual({ ok: true, version: 3, dropped: { age: 0, count: 2 } });
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([6, 4]);
+      expect(await admin.hlen(k.arch)).toBe(0);
+      expect(await store.erase({ tenant: 't', session: 'legacy-log' })).toMatchObject({ logbookEntries: 2 });
+    });
+
+    it('appended turns share blocks: 150 entries take 3 list elements, and a reader that looked between commits fetches only the open block', async () => {
+      const ref = { tenant: 't', session: 'blocks' };
+      const scope = { tenant: 't', session: 'blocks' };
+      const reader = redisSlotStore({ redis: admin, prefix });
+      for (let v = 0; v < 75; v++) {
+        await store.commit(ref, commitOf({ expectedVersion: v, logbook: [2 * v + 1, 2 * v + 2].map((n) => turnEntry(n, ref, `note ${n} on the tandem`)) }));
+        if (v === 40) expect(await reader.listLogbook(scope, { limit: 1000 })).toHaveLength(82);
+      }
+      const k = store.sessionKeys('t', 'blocks');
+      expect(await admin.llen(k.alog)).toBe(3);
+      expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 150 }, (_, i) => 150 - i));
+    });
+
     it('a tampered logbook payload is reported as corrupt by search', async () => {
       const ref = { tenant: 't', session: 'tamper-arch' };
       await store.commit(ref, commitOf({ logbook: [archived(1, ref)] }));
       const k = store.sessionKeys('t', 'tamper-arch');
-      const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
-      await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
+      const raw = Buffer.from((await admin.lindexBuffer(k.alog, -1))!);
+      raw[raw.length - 1] ^= 0x55; // one byte of the record's value
+      await admin.lset(k.alog, -1, raw);
       await admin.hset(k.meta, 'as', 'moved'); // as a real writer would, so the cached copy is refreshed
       await expect(searchText(store, { tenant: 't', session: 'tamper-arch' }, 'old value')).rejects.toMatchObject({ code: 'TIDEMARK_E_STORE_CORRUPT' });
     });
@@ -281,7 +329,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
-      for (const key of [k.meta, k.slots, k.events, k.uarch, k.ualog]) {
+      for (const key of [k.meta, k.slots, k.events, k.ualog]) {
         const ttl = await client.ttl(key);
         expect(ttl, key).toBeGreaterThan(110);
         expect(ttl, key).toBeLessThanOrEqual(120);
@@ -300,8 +348,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       for (const ref of [a, b, c]) {
         await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [archived(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
-      // meta, slots, events, (u)arch, (u)alog, plus the applied commit ids
-      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(6 * 3);
+      // meta, slots, events, (u)alog (the logbook's blocks), plus the applied commit ids
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(5 * 3);
       expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
       expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, logbookEntries: 2, events: 2 });
       expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, logbookEntries: 1, events: 1 });
