@@ -27,6 +27,11 @@ const HEADER = 6; // format(1) kind(1) crc32(4)
 export type KeyFormat = 'int8' | 'float32';
 const KEY_FLOAT32 = 0;
 const KEY_INT8 = 1;
+/**
+ * int8 with only the non-zero components, as (index delta varint, int8) pairs: the same values as
+ * KEY_INT8, chosen when shorter (a hashing embedder's key touches a few dozen of its dimensions).
+ */
+const KEY_INT8_SPARSE = 2;
 
 const ARCHIVE_REASONS: readonly ArchiveReason[] = ['superseded', 'capacity', 'decayed', 'expired'];
 const LOGBOOK_KINDS: readonly LogbookKind[] = ['turn', 'superseded', 'capacity', 'decayed', 'expired'];
@@ -116,17 +121,36 @@ class Writer {
     }
     // Symmetric per-vector int8 quantisation (scale = max|x| / 127), common practice for embedding
     // storage; the reader re-normalises, so the worst component error is about scale / 2.
-    this.u8(KEY_INT8);
     let max = 0;
     for (let j = 0; j < v.length; j++) max = Math.max(max, Math.abs(v[j]!));
     const scale = Math.fround(max / 127);
+    const q = new Int8Array(v.length);
+    let nnz = 0;
+    let sparseBytes = 5;
+    for (let j = 0, last = 0; j < v.length; j++) {
+      q[j] = scale === 0 ? 0 : Math.max(-127, Math.min(127, Math.round(v[j]! / scale)));
+      if (q[j] !== 0) {
+        nnz++;
+        sparseBytes += (j - last < 0x80 ? 1 : 2) + 1;
+        last = j;
+      }
+    }
+    if (sparseBytes < v.length) {
+      this.u8(KEY_INT8_SPARSE);
+      this.f32(scale);
+      this.varint(nnz);
+      for (let j = 0, last = 0; j < v.length; j++) {
+        if (q[j] === 0) continue;
+        this.varint(j - last);
+        this.u8(q[j]! & 0xff);
+        last = j;
+      }
+      return dequantise(q, scale);
+    }
+    this.u8(KEY_INT8);
     this.f32(scale);
     this.need(v.length);
-    const q = new Int8Array(v.length);
-    for (let j = 0; j < v.length; j++) {
-      q[j] = scale === 0 ? 0 : Math.max(-127, Math.min(127, Math.round(v[j]! / scale)));
-      this.buf[this.pos + j] = q[j]! & 0xff;
-    }
+    for (let j = 0; j < v.length; j++) this.buf[this.pos + j] = q[j]! & 0xff;
     this.pos += v.length;
     return dequantise(q, scale);
   }
@@ -209,6 +233,16 @@ class Reader {
       for (let j = 0; j < dim; j++) v[j] = this.buf.readFloatLE(this.pos + 4 * j);
       this.pos += dim * 4;
       return v;
+    }
+    if (format === KEY_INT8_SPARSE) {
+      const scale = this.f32();
+      const q = new Int8Array(dim);
+      for (let i = 0, n = this.varint(), j = 0; i < n; i++) {
+        j += this.varint();
+        if (j >= dim || (i > 0 && q[j] !== 0)) this.fail('bad sparse key');
+        q[j] = (this.u8() << 24) >> 24;
+      }
+      return dequantise(q, scale);
     }
     if (format !== KEY_INT8) this.fail(`unknown key format ${format}`);
     const scale = this.f32();
@@ -517,7 +551,7 @@ function decodeArchiveV1(r: Reader): LogbookEntry {
 export const BLOCK_MARK = 0;
 /** Records per block, and the size past which the script starts a new block. */
 export const BLOCK_RECORDS = 64;
-export const BLOCK_BYTES = 4096;
+export const BLOCK_BYTES = 1800;
 
 const R_ID = 1;
 const R_PROV = 2;
@@ -790,7 +824,7 @@ export function buildBlocks(records: ReadonlyArray<{ at: number; body: Buffer }>
       // appended to the open block
     } else {
       flush();
-      cur = { base: x.at, parts: [], n: 0, size: 0 };
+      cur = { base: x.at, parts: [], n: 0, size: 3 + String(x.at).length };
     }
     const d = x.at - cur!.base;
     const z = uvarBytes(d >= 0 ? 2 * d : -2 * d - 1);

@@ -198,3 +198,27 @@ describe('logbook blocks (kind 5 records)', () => {
     expect(splitBlock(kept, 'test').records.map((r) => r.at)).toEqual([plain.atMs + 1500, plain.atMs + 90_000]);
   });
 });
+
+describe('int8 keys with few non-zero components', () => {
+  it('are written sparse (index delta, value) when shorter, and decode to exactly the dense int8 vector', () => {
+    const dim = 384;
+    const sparse = new Float32Array(dim);
+    for (let i = 0; i < 30; i++) sparse[(i * 97) % dim] = ((i % 7) - 3 || 1) / 10;
+    let n = 0;
+    for (const x of sparse) n += x * x;
+    for (let j = 0; j < dim; j++) sparse[j] = sparse[j]! / Math.sqrt(n);
+    const entry: LogbookEntry = { ...turn, kind: 'capacity', key: sparse, strength: 0.4, halfLife: 30 };
+    const small = encodeLogbook(entry, undefined, 'int8', home);
+    const back = decodeLogbook(small, 'test', home).key!;
+    // Every component within the int8 error of the original, and the zeros exactly zero.
+    for (let j = 0; j < dim; j++) {
+      expect(Math.abs(back[j]! - sparse[j]!)).toBeLessThan(0.005);
+      if (sparse[j] === 0) expect(back[j]).toBe(0);
+    }
+    // 30 pairs: index deltas (97 apart, or wrapping, one byte or two) and values, against 384 bytes dense.
+    const dense = encodeLogbook({ ...entry, key: Float32Array.from({ length: dim }, (_, j) => (j % 2 ? 1 : -1) / Math.sqrt(dim)) }, undefined, 'int8', home);
+    expect(dense.length - small.length).toBeGreaterThan(384 - 100);
+    // A record written with a dense key still decodes (the reader takes both).
+    expect(decodeLogbook(dense, 'test', home).key!.length).toBe(dim);
+  });
+});
