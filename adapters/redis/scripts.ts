@@ -237,7 +237,7 @@ return {1, v + 1, ep, dropAge, dropCount}
  * cached), cached absolute end of the log, count field ('an' | 'aun').
  * Positions count entries and are absolute: the head counts entries trimmed from the front since the
  * session began. A block holds several entries, so a delta starts at the element holding the cached
- * end and says how many of its first entries the reader has already.
+ * end, cut to the entries after it (skip says how many entries of a first `atMs:id` element to pass over: 0).
  * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads,
  * skip} (the elements holding the entries after the cached end) | {epoch, head, end, 'f', elements,
  * payloads, 0} (everything: first fetch, epoch moved, or too far behind). Payloads align with elements:
@@ -266,6 +266,12 @@ if ARGV[3] ~= '' and ARGV[3] == ('=' .. ep) and from >= head and from <= stop an
   end
   els = redis.call('LRANGE', KEYS[3], i, -1)
   skip = math.max(0, got - need)
+  -- Only the records the reader lacks: the first block is cut after its first skip records.
+  if skip > 0 and string.byte(els[1], 1) == 0 then
+    local recs, colon = brecs(els[1])
+    els[1] = '\\0' .. string.char(#recs - skip) .. string.sub(els[1], 3, colon) .. string.sub(els[1], recs[skip + 1][1])
+    skip = 0
+  end
 else
   els = redis.call('LRANGE', KEYS[3], 0, -1)
 end
