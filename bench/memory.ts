@@ -10,7 +10,7 @@
 
 import { createTidemark } from '../src/middleware/tidemark.js';
 import type { RedisSlotStore } from '../adapters/redis/index.js';
-import { BLOCK_MARK, decodeRecord, splitBlock } from '../adapters/redis/codec.js';
+import { BLOCK_MARK, SEALED_MARK, decodeRecord, splitBlock } from '../adapters/redis/codec.js';
 import { turnEntryId } from '../src/middleware/write.js';
 import { loadAverage, openBackend, scripts, type StoreKind } from './load.js';
 import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
@@ -91,6 +91,7 @@ export default async function main(argv: string[]): Promise<void> {
         }),
       );
       await tm.flush();
+      await (store as RedisSlotStore).settled();
       const seconds = (performance.now() - t0) / 1000;
       const rs = store as RedisSlotStore;
       const sum = { meta: 0, slots: 0, events: 0, logbook_entries: 0, logbook_index: 0 };
@@ -107,7 +108,7 @@ export default async function main(argv: string[]): Promise<void> {
         const [an, aun] = await client.hmget(k.meta, 'an', 'aun');
         kept += (an !== null ? Number(an) : await client.hlen(k.arch)) + (aun !== null ? Number(aun) : await client.hlen(k.uarch));
         for (const el of await client.lrangeBuffer(k.alog, 0, -1)) {
-          if (el[0] !== BLOCK_MARK) continue;
+          if (el[0] !== BLOCK_MARK && el[0] !== SEALED_MARK) continue;
           for (const r of splitBlock(el, 'block').records) {
             const e = decodeRecord(r.body, r.at, 'record', { tenant: 'bench', session: `m${i}` }, turnEntryId);
             if (e.kind === 'turn') {

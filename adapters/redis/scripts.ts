@@ -53,7 +53,25 @@ local function brecs(el)
   end
   return out, colon
 end
-local function bcount(el) if string.byte(el, 1) == 0 then return string.byte(el, 2) end return 1 end
+-- A sealed block (0x01): count, dead (records trimmed from its front), base, then the records' times
+-- as zigzag deltas; the bodies are compressed after them. Returns the times of every record (dead too).
+local function stimes(el)
+  local colon = string.find(el, ':', 4, true)
+  local base = tonumber(string.sub(el, 4, colon - 1))
+  local out, p = {}, colon + 1
+  for j = 1, string.byte(el, 2) do
+    local z
+    z, p = rvar(el, p)
+    out[j] = base + ((z % 2 == 0) and z / 2 or -(z + 1) / 2)
+  end
+  return out
+end
+local function bcount(el)
+  local m = string.byte(el, 1)
+  if m == 0 then return string.byte(el, 2) end
+  if m == 1 then return string.byte(el, 2) - string.byte(el, 3) end
+  return 1
+end
 `;
 
 /**
@@ -87,7 +105,7 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  * counts the entries the log holds, so readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
  * server's time, for ARGV[18] seconds: longer than any write may wait in an outbox, so a resend is
  * recognised however many commits came between.
- * Reply: {1, version, epoch, dropped by age, dropped by count} applied | {2, version, epoch} this commit
+ * Reply: {1, version, epoch, dropped by age, dropped by count, a block this commit closed or ''} applied | {2, version, epoch} this commit
  *        id was already applied | {0, version, epoch} version mismatch | {3, version, epoch} the
  *        session was erased after the writer's fence.
  */
@@ -145,6 +163,7 @@ local n = tonumber(redis.call('HGET', KEYS[1], nf) or '-1')
 if n < 0 then n = redis.call('LLEN', log) end -- a log written before blocks: one entry per element
 local added = 0
 local tail = nil
+local sealed = '' -- an open block closed by this commit, for the writer to compress (SEAL)
 for i = 1, nlb do
   local at, body = tonumber(ARGV[a]), ARGV[a + 1]
   a = a + 2
@@ -159,6 +178,7 @@ for i = 1, nlb do
     redis.call('LSET', log, -1, tail)
     added = added + 1
   else
+    if open then sealed = tail end
     local z = zz(0)
     tail = '\\0' .. string.char(1) .. string.format('%.0f', at) .. ':' .. uvar(#z + #body) .. z .. body
     redis.call('RPUSH', log, tail)
@@ -186,6 +206,19 @@ local function trim(byAge)
       popped, n = popped + k, n - k
       if byAge then dropAge = dropAge + k else dropCount = dropCount + k end
       if k < #recs then return end
+    elseif string.byte(el, 1) == 1 then
+      -- A sealed block: its dead count moves on; it goes when every record is dead.
+      local times, c, dead = stimes(el), string.byte(el, 2), string.byte(el, 3)
+      local k = 0
+      for j = dead + 1, c do
+        if (byAge and times[j] < cutoff) or (not byAge and n - k > maxn) then k = k + 1 else break end
+      end
+      if k == 0 then return end
+      if dead + k == c then redis.call('LPOP', log)
+      else redis.call('LSET', log, 0, string.sub(el, 1, 2) .. string.char(dead + k) .. string.sub(el, 4)) end
+      popped, n = popped + k, n - k
+      if byAge then dropAge = dropAge + k else dropCount = dropCount + k end
+      if dead + k < c then return end
     else
       -- A 0.2 element 'atMs:id', its entry in the hash.
       if byAge then
@@ -227,7 +260,7 @@ if KEYS[10] then
   redis.call('HINCRBY', KEYS[10], 'slots', redis.call('HLEN', KEYS[2]) - statS0)
   redis.call('HINCRBY', KEYS[10], 'logbook', added - dropAge - dropCount)
 end
-return {1, v + 1, ep, dropAge, dropCount}
+return {1, v + 1, ep, dropAge, dropCount, sealed}
 `);
 
 /**
@@ -278,7 +311,7 @@ end
 local vals, ids, at = {}, {}, {}
 for i = 1, #els do
   vals[i] = false
-  if string.byte(els[i], 1) ~= 0 then
+  if string.byte(els[i], 1) > 1 then
     ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i]
     at[#at + 1] = i
   end
@@ -323,6 +356,23 @@ return k
 `);
 
 /**
+ * Replace a closed block by its sealed (compressed) form, if it is still there as the writer saw it
+ * (near the tail: a commit closed it a moment ago). Positions and entries do not change, so the epoch
+ * stays. KEYS: log. ARGV: the block as closed, the sealed block. Reply: 1 replaced | 0 not found.
+ */
+export const SEAL = script('seal', 1, `
+for i = -1, -8, -1 do
+  local el = redis.call('LINDEX', KEYS[1], i)
+  if not el then return 0 end
+  if el == ARGV[1] then
+    redis.call('LSET', KEYS[1], i, ARGV[2])
+    return 1
+  end
+end
+return 0
+`);
+
+/**
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
  * O(log length): deletes are rare (a promotion, an edit), never per turn.
@@ -340,7 +390,7 @@ if n == 0 then return 0 end
 if KEYS[4] then redis.call('HINCRBY', KEYS[4], 'logbook', 0 - n) end -- [stats]
 local gone = 0
 for _, e in ipairs(redis.call('LRANGE', KEYS[3], 0, -1)) do
-  if string.byte(e, 1) ~= 0 then
+  if string.byte(e, 1) > 1 then
     local id = string.match(e, '^%-?%d+:(.*)$') or e
     if want[id] then gone = gone + redis.call('LREM', KEYS[3], 1, e) end
   end

@@ -19,10 +19,10 @@ import { listEntries } from '../../src/store/in-process.js';
 import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
-import { corrupt, decodeLogbook, decodeRecord, decodeSlot, encodeRecord, encodeSlot, joinBlock, splitBlock, type KeyFormat, type RecordHome } from './codec.js';
+import { corrupt, decodeLogbook, decodeRecord, decodeSlot, encodeRecord, encodeSlot, joinBlock, sealBlock, splitBlock, type KeyFormat, type RecordHome } from './codec.js';
 import { turnEntryId } from '../../src/middleware/write.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_REWRITE, QUARANTINE, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_REWRITE, QUARANTINE, SEAL, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -113,8 +113,8 @@ const elementId = (e: string): string => {
 };
 
 const token = (): string => randomBytes(8).toString('hex');
-/** First byte of a logbook block element (codec.ts, BLOCK_MARK). */
-const BLOCK_MARK_BYTE = 0;
+/** First byte of a logbook block element, open or sealed (codec.ts, BLOCK_MARK and SEALED_MARK). */
+const isBlock = (el: Buffer): boolean => el[0] === 0 || el[0] === 1;
 const str = (b: unknown): string => (Buffer.isBuffer(b) ? b.toString('utf8') : String(b));
 
 function num(b: unknown, what: string, integer: boolean): number {
@@ -146,6 +146,10 @@ export class RedisSlotStore implements Store {
   private marker = '';
   private readonly resetListeners: Array<(e: { atMs: number }) => void> = [];
   private readonly watched = new WeakSet<object>();
+  /** Seals in flight (see seal()); close() waits for them. */
+  private readonly sealing = new Set<Promise<unknown>>();
+  /** Blocks sealed by this process (compressed after a commit closed them). */
+  sealed = 0;
   /** Times the server was found empty after an outage (its marker key gone). */
   resets = 0;
   /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
@@ -329,6 +333,8 @@ export class RedisSlotStore implements Store {
       return { ok: true, version };
     }
     this.applyToCache(k.meta, req, epoch, version, keys);
+    const closed = r[5];
+    if (Buffer.isBuffer(closed) && closed.length > 0) this.seal(ref.user ? k.ualog : k.alog, closed);
     const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
     return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
   }
@@ -380,7 +386,7 @@ export class RedisSlotStore implements Store {
       const triples: (string | number | Buffer)[] = [];
       let removed = 0;
       (r[4] as Buffer[]).forEach((el, i) => {
-        if (el[0] !== BLOCK_MARK_BYTE) return;
+        if (!isBlock(el)) return;
         const blk = splitBlock(el, 'logbook block');
         const keep = blk.records.filter((rec) => !want.has(decodeRecord(rec.body, rec.at, 'logbook record', home, turnEntryId).id));
         if (keep.length === blk.records.length) return;
@@ -576,6 +582,7 @@ export class RedisSlotStore implements Store {
 
   async close(): Promise<void> {
     if (this.closed) return;
+    await Promise.all([...this.sealing]);
     this.closed = true;
     this.cache.clear();
     this.scopes.clear();
@@ -790,7 +797,7 @@ export class RedisSlotStore implements Store {
         fresh.push(e);
       };
       els.forEach((el, j) => {
-        if (el[0] === BLOCK_MARK_BYTE) {
+        if (isBlock(el)) {
           for (const rec of splitBlock(el, 'logbook block').records) {
             if (skip > 0) {
               skip--;
@@ -827,6 +834,34 @@ export class RedisSlotStore implements Store {
     if (!entry) return;
     for (const id of entry.ids) if (id) this.dropEntry(sc, id, session);
     sc.sessions.delete(session);
+  }
+
+  /**
+   * Compresses a block a commit just closed and puts it in place of the open form, if still there
+   * (SEAL compares bytes). Off the commit's path: the turn does not wait; a failure leaves the block
+   * open, which reads the same.
+   */
+  private seal(log: string, closed: Buffer): void {
+    let sealedForm: Buffer;
+    try {
+      sealedForm = sealBlock(closed, 'closed logbook block');
+    } catch {
+      return;
+    }
+    if (sealedForm.length >= closed.length) return;
+    const p = this.conn('seal')
+      .then((c) => runScript(c, SEAL, [log], [closed, sealedForm]))
+      .then((n) => {
+        if (Number(n) === 1) this.sealed++;
+      })
+      .catch(() => undefined);
+    this.sealing.add(p);
+    void p.finally(() => this.sealing.delete(p));
+  }
+
+  /** Resolves when the seals this process started have settled (benchmarks measure after them). */
+  async settled(): Promise<void> {
+    while (this.sealing.size > 0) await Promise.all([...this.sealing]);
   }
 
   private forget(tenant: string, session: string, k: SessionKeys, user: string): void {

@@ -4,7 +4,7 @@
 
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { buildBlocks, decodeLogbook, decodeRecord, encodeLogbook, encodeRecord, joinBlock, KIND_LOGBOOK, KIND_LOGBOOK_COMPACT, splitBlock } from '../../../adapters/redis/codec.js';
+import { buildBlocks, decodeLogbook, decodeRecord, encodeLogbook, encodeRecord, joinBlock, KIND_LOGBOOK, KIND_LOGBOOK_COMPACT, sealBlock, SEALED_MARK, splitBlock } from '../../../adapters/redis/codec.js';
 import { turnEntryId } from '../../../src/middleware/write.js';
 import type { LogbookEntry } from '../../../src/types.js';
 
@@ -220,5 +220,30 @@ describe('int8 keys with few non-zero components', () => {
     expect(dense.length - small.length).toBeGreaterThan(384 - 100);
     // A record written with a dense key still decodes (the reader takes both).
     expect(decodeLogbook(dense, 'test', home).key!.length).toBe(dim);
+  });
+});
+
+describe('sealed blocks', () => {
+  it('hold the same records compressed; dead records are skipped; damage is corrupt', () => {
+    const recs = Array.from({ length: 64 }, (_, i) =>
+      encodeRecord({ ...turn, id: turnEntryId('chat-17', `t${i + 1}`), provenance: [`t${i + 1}`], seq: i + 1, clock: i + 1, value: `Do ferns like shade in pot ${i}?`, atMs: turn.atMs + i * 700, createdMs: turn.atMs + i * 700 }, undefined, 'int8', home, turnEntryId),
+    );
+    const [open] = buildBlocks(recs);
+    const sealed = sealBlock(open!, 'test');
+    expect(sealed[0]).toBe(SEALED_MARK);
+    expect(sealed.length).toBeLessThan(open!.length * 0.6);
+    const a = splitBlock(open!, 'test');
+    const b = splitBlock(sealed, 'test');
+    expect(b.records.map((r) => [r.at, r.raw.toString('hex')])).toEqual(a.records.map((r) => [r.at, r.raw.toString('hex')]));
+    // The script trims a sealed block by moving its dead count (byte 2): readers skip those records.
+    const trimmed = Buffer.from(sealed);
+    trimmed[2] = 10;
+    expect(splitBlock(trimmed, 'test').records.map((r) => decodeRecord(r.body, r.at, 'test', home, turnEntryId).seq)).toEqual(Array.from({ length: a.records.length - 10 }, (_, i) => i + 11));
+    // An open block rebuilt from a sealed one's records (deleteLogbook) is the open layout again.
+    const rebuilt = joinBlock(b.header, b.records.slice(1));
+    expect(splitBlock(rebuilt, 'test').records.map((r) => r.raw.toString('hex'))).toEqual(a.records.slice(1).map((r) => r.raw.toString('hex')));
+    const damaged = Buffer.from(sealed);
+    damaged[damaged.length - 5] ^= 0xff;
+    expect(() => splitBlock(damaged, 'test').records.map((r) => decodeRecord(r.body, r.at, 'test', home, turnEntryId))).toThrow();
   });
 });

@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
-import { buildBlocks, encodeLogbook, encodeRecord } from '../../../adapters/redis/codec.js';
+import { buildBlocks, encodeLogbook, encodeRecord, splitBlock } from '../../../adapters/redis/codec.js';
 import { turnEntryId } from '../../../src/middleware/write.js';
 import { archived, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
@@ -162,8 +162,21 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const k = store.sessionKeys('t', 'blocks');
       const want = buildBlocks(Array.from({ length: 150 }, (_, i) => encodeRecord(turnEntry(i + 1, ref, `note ${i + 1} on the tandem`), undefined, 'int8', ref, turnEntryId)));
       expect(want.length).toBeLessThan(10);
-      expect(await admin.lrangeBuffer(k.alog, 0, -1)).toEqual(want);
+      await store.settled();
+      const got = await admin.lrangeBuffer(k.alog, 0, -1);
+      // Every block the commits closed is sealed (compressed, shorter); the open one at the tail is as built.
+      expect(got.map((b) => b[0])).toEqual(want.map((_, i) => (i < want.length - 1 ? 1 : 0)));
+      got.slice(0, -1).forEach((b, i) => expect(b.length).toBeLessThan(want[i]!.length));
+      expect(got.map((b) => splitBlock(b, 'test').records.map((r) => r.raw.toString('hex')))).toEqual(want.map((b) => splitBlock(b, 'test').records.map((r) => r.raw.toString('hex'))));
+      expect(got.at(-1)).toEqual(want.at(-1));
       expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 150 }, (_, i) => 150 - i));
+      // Retention and delete reach into sealed blocks: the oldest 70 go (a block and a part of the next),
+      // then one entry in the middle of a sealed block.
+      const kept = await store.commit(ref, commitOf({ expectedVersion: 75, retention: { policy: { maxAgeMs: 0, maxEntries: 80 }, nowMs: Date.now() } }));
+      expect(kept).toMatchObject({ ok: true, dropped: { age: 0, count: 70 } });
+      expect(await reader.deleteLogbook(scope, [turnEntry(100, ref, '').id])).toBe(1);
+      expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 80 }, (_, i) => 150 - i).filter((n) => n !== 100));
+      expect(await admin.hget(k.meta, 'an')).toBe('79');
     });
 
     it('a tampered logbook payload is reported as corrupt by search', async () => {
