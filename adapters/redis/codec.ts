@@ -552,8 +552,8 @@ export const BLOCK_MARK = 0;
 /** First byte of a sealed block: the same records, bodies compressed (see sealBlock). */
 export const SEALED_MARK = 1;
 /** Records per block, and the size past which the script starts a new block. */
-export const BLOCK_RECORDS = 64;
-export const BLOCK_BYTES = 1800;
+export const BLOCK_RECORDS = 128;
+export const BLOCK_BYTES = 4000;
 
 const R_ID = 1;
 const R_PROV = 2;
