@@ -277,11 +277,11 @@ return {1, v + 1, ep, dropAge, dropCount, sealed}
  * false for a block, the hash payload for an `atMs:id` element (false when that entry was deleted).
  */
 export const LOG_FETCH = script('log_fetch', 3, `${BLOCK_LUA}
-if redis.call('EXISTS', KEYS[1]) == 0 then return false end
-local mh = redis.call('HMGET', KEYS[1], ARGV[1], ARGV[2], ARGV[5])
-local ep = mh[1] or ''
-local head = tonumber(mh[2] or '0')
-local n = tonumber(mh[3] or '-1')
+local mh = redis.call('HMGET', KEYS[1], 'v', ARGV[1], ARGV[2], ARGV[5])
+if not mh[1] then return false end -- no session (every commit writes v)
+local ep = mh[2] or ''
+local head = tonumber(mh[3] or '0')
+local n = tonumber(mh[4] or '-1')
 if n < 0 then n = redis.call('LLEN', KEYS[3]) end
 local stop = head + n
 local from = tonumber(ARGV[4])
