@@ -743,15 +743,28 @@ export class RedisSlotStore implements Store {
     let replies: unknown[];
     try {
       const c = await this.conn('searchLogbook');
-      sessions = user !== undefined ? await c.smembers(this.keys.userSessions(scope.tenant, user)) : [(scope as { session: string }).session];
-      replies = await Promise.all(
-        sessions.map((s) => {
-          const k = this.keys.session(scope.tenant, s);
-          const cached = sc.sessions.get(s);
-          const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
-          return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0, user !== undefined ? 'aun' : 'an']);
-        }),
-      );
+      const fetch = (s: string): Promise<unknown> => {
+        const k = this.keys.session(scope.tenant, s);
+        const cached = sc.sessions.get(s);
+        const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
+        return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0, user !== undefined ? 'aun' : 'an']);
+      };
+      if (user === undefined) {
+        sessions = [(scope as { session: string }).session];
+        replies = [await fetch(sessions[0]!)];
+      } else {
+        // The slices this process already holds are fetched beside SMEMBERS (one round trip when the
+        // user's sessions are unchanged); a session new to the set is fetched after it. Every fetch
+        // starts after the search did, so each sees what was committed before.
+        const known = [...sc.sessions.keys()];
+        const [members, ...early] = await Promise.all([c.smembers(this.keys.userSessions(scope.tenant, user)), ...known.map(fetch)]);
+        sessions = members as string[];
+        const got = new Map<string, unknown>(known.map((s, i) => [s, early[i]]));
+        const missing = sessions.filter((s) => !got.has(s));
+        const late = await Promise.all(missing.map(fetch));
+        missing.forEach((s, i) => got.set(s, late[i]));
+        replies = sessions.map((s) => got.get(s));
+      }
     } catch (err) {
       throw unavailable('searchLogbook', err);
     }
