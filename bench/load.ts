@@ -5,6 +5,7 @@
 // `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).
 // `--idle N` instead fills Redis with N idle sessions and reports what they hold (see idleRun;
 // `--in-flight N` commits at once, default 64; commands wait for Redis unless `--command-timeout MS`).
+// `--user-sessions K` gives every K consecutive sessions one user, so reads search the user's logbook.
 // `--rate R --seconds S` is fixed-rate (open-loop) load instead, optionally by a fleet of processes
 // (`--processes N`); see lib/load-rate.ts. Every mode: `--cache-sessions N` (the store's per-process
 // cache), `--cluster-seeds host:port,...` (any Cluster), `--own-redis` (a redis-server of the run's
@@ -54,6 +55,8 @@ interface LoadFigures {
   sessions: number;
   turns_per_session: number;
   concurrency: number;
+  /** Sessions per simulated user (0 = none). */
+  user_sessions: number;
   turns: number;
   seconds: number;
   turns_per_s: number;
@@ -303,6 +306,8 @@ interface RunOptions {
   sessions: number;
   turns: number;
   concurrency: number;
+  /** Sessions per simulated user (0 = no user): sessions k·K … k·K + K − 1 belong to user k, so reads search the user's logbook. */
+  userSessions: number;
   warmup: number;
   capacity: number;
   progress: boolean;
@@ -346,12 +351,12 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
     return words(input.reply as string);
   });
 
-  const oneTurn = async (session: string, hash: string, text: string, reply: string, timed: boolean): Promise<void> => {
+  const oneTurn = async (session: string, hash: string, text: string, reply: string, timed: boolean, user?: string): Promise<void> => {
     const done = new Promise<Outcome>((r) => pending.set(hash, r));
     let readUs = 0;
     const t0 = performance.now();
     try {
-      const stream = await wrapped({ session, text, reply, onMemory: (us: number) => (readUs = us) });
+      const stream = await wrapped({ session, text, reply, onMemory: (us: number) => (readUs = us), ...(user !== undefined ? { user } : {}) });
       for await (const _chunk of stream) {
         // consumed as a client would
       }
@@ -381,7 +386,8 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
         for (let t = 0; t < turns; t++) {
           for (let i = w; i < names.length; i += c) {
             const sc = convo[i]!;
-            await oneTurn(names[i]!, hashes[i]!, sc.user[t % sc.user.length]!, sc.reply[t % sc.reply.length]!, timed);
+            const user = o.userSessions > 0 ? `u${Math.floor(i / o.userSessions)}` : undefined;
+            await oneTurn(names[i]!, hashes[i]!, sc.user[t % sc.user.length]!, sc.reply[t % sc.reply.length]!, timed, user);
             done++;
             tick?.(done);
           }
@@ -422,6 +428,7 @@ async function runLoad(backend: Backend, o: RunOptions): Promise<LoadFigures> {
     sessions: o.sessions,
     turns_per_session: o.turns,
     concurrency: Math.min(o.concurrency, o.sessions),
+    user_sessions: o.userSessions,
     turns: total,
     seconds: round(seconds, 3),
     turns_per_s: Math.round(total / seconds),
@@ -618,6 +625,7 @@ export default async function main(argv: string[]): Promise<void> {
       sessions: num('sessions', 1000),
       turns: num('turns', 20),
       concurrency: num('concurrency', 64),
+      userSessions: num('user-sessions', 0, 0),
       warmup: num('warmup', 2000, 0),
       capacity,
       progress,
@@ -642,7 +650,7 @@ export default async function main(argv: string[]): Promise<void> {
         net_in_bytes: median(runs.map((x) => x.redis_per_turn!.net_in_bytes)), net_out_bytes: median(runs.map((x) => x.redis_per_turn!.net_out_bytes)),
       } : null,
     };
-    console.log(`load on ${kind}: ${f.sessions} sessions x ${f.turns_per_session} turns, concurrency ${f.concurrency}, capacity ${capacity}${repeat > 1 ? `, median of ${repeat} runs` : ''}`);
+    console.log(`load on ${kind}: ${f.sessions} sessions x ${f.turns_per_session} turns, concurrency ${f.concurrency}${f.user_sessions ? `, ${f.user_sessions} sessions per user` : ''}, capacity ${capacity}${repeat > 1 ? `, median of ${repeat} runs` : ''}`);
     console.log(asciiTable(['µs', 'p50', 'p95', 'p99', 'max'], [
       ['read', f.read_us.p50, f.read_us.p95, f.read_us.p99, f.read_us.max],
       ['write', f.write_us.p50, f.write_us.p95, f.write_us.p99, f.write_us.max],

@@ -1,13 +1,17 @@
 // `npm run bench -- memory [--lengths 10,200,1000,2000,5000] [--sessions 4] [--long-sessions 1] [--store redis|cluster] [--json]`:
 // Redis bytes per session by conversation length and by tier. Each session gets its exchanges (a user
 // message and the bot's reply) through tidemark's own write path on the Redis store, then MEMORY USAGE
-// is read per key: meta, slots (working memory), events, logbook entries (every turn kept, plus
-// demoted values) and the logbook's index (the arrival log readers fetch by). The logbook is set
-// beside the raw UTF-8 bytes of the turns it keeps. Commands never time out here (a 5,000-exchange
+// is read per key: meta, slots (working memory), events, and the logbook (every turn kept, plus
+// demoted values, in blocks of entries; logs written before blocks keep a hash of payloads and an
+// arrival log, counted here too). Redis holds no logbook index: each process builds its own from the
+// blocks. The logbook is set beside the raw UTF-8 bytes of the turns it keeps, and its record bytes
+// are split by kind (turns; demoted slot values, which carry their key vectors). Commands never time out here (a 5,000-exchange
 // session is a long run, not an outage), and every key is deleted afterwards, on error or Ctrl-C too.
 
 import { createTidemark } from '../src/middleware/tidemark.js';
 import type { RedisSlotStore } from '../adapters/redis/index.js';
+import { BLOCK_MARK, SEALED_MARK, decodeRecord, splitBlock } from '../adapters/redis/codec.js';
+import { turnEntryId } from '../src/middleware/write.js';
 import { loadAverage, openBackend, scripts, type StoreKind } from './load.js';
 import { deltaOf, describeDeltas, redisVersions, snapshot, totalPerTurn, type InfoDelta } from './lib/redis-info.js';
 import { asciiTable, lineChart, writeResult } from './lib/results.js';
@@ -22,6 +26,8 @@ export interface MemoryPoint {
   bytes: { meta: number; slots: number; events: number; logbook_entries: number; logbook_index: number; total: number };
   /** (logbook entries + index) / raw UTF-8 bytes of the turns kept; the target is ≤ 1.5. */
   logbook_ratio: number;
+  /** Record bytes in the blocks by kind, per session: turns, and demoted slot values (with their vectors). */
+  records: { turns: number; turn_bytes: number; demoted: number; demoted_bytes: number };
   seconds: number;
 }
 
@@ -85,19 +91,35 @@ export default async function main(argv: string[]): Promise<void> {
         }),
       );
       await tm.flush();
+      await (store as RedisSlotStore).settled();
       const seconds = (performance.now() - t0) / 1000;
       const rs = store as RedisSlotStore;
       const sum = { meta: 0, slots: 0, events: 0, logbook_entries: 0, logbook_index: 0 };
       let kept = 0;
+      const recs = { turns: 0, turn_bytes: 0, demoted: 0, demoted_bytes: 0 };
       for (let i = 0; i < count; i++) {
         const k = rs.sessionKeys('bench', `m${i}`);
         const usage = async (...keys: string[]): Promise<number> => Number(await client.eval(MEMORY_OF, keys.length, ...keys));
         sum.meta += await usage(k.meta);
         sum.slots += await usage(k.slots);
         sum.events += await usage(k.events);
-        sum.logbook_entries += await usage(k.arch, k.uarch);
-        sum.logbook_index += await usage(k.alog, k.ualog);
-        kept += (await client.hlen(k.arch)) + (await client.hlen(k.uarch));
+        // Blocks, and the payload hashes and arrival logs of logs written before blocks.
+        sum.logbook_entries += await usage(k.alog, k.ualog, k.arch, k.uarch);
+        const [an, aun] = await client.hmget(k.meta, 'an', 'aun');
+        kept += (an !== null ? Number(an) : await client.hlen(k.arch)) + (aun !== null ? Number(aun) : await client.hlen(k.uarch));
+        for (const el of await client.lrangeBuffer(k.alog, 0, -1)) {
+          if (el[0] !== BLOCK_MARK && el[0] !== SEALED_MARK) continue;
+          for (const r of splitBlock(el, 'block').records) {
+            const e = decodeRecord(r.body, r.at, 'record', { tenant: 'bench', session: `m${i}` }, turnEntryId);
+            if (e.kind === 'turn') {
+              recs.turns++;
+              recs.turn_bytes += r.raw.length;
+            } else {
+              recs.demoted++;
+              recs.demoted_bytes += r.raw.length;
+            }
+          }
+        }
       }
       await tm.close();
       const per = (x: number): number => Math.round(x / count);
@@ -106,6 +128,7 @@ export default async function main(argv: string[]): Promise<void> {
       points.push({
         exchanges: n, sessions: count, messages_kept: per(kept), raw_text_bytes: per(raw), bytes,
         logbook_ratio: round((bytes.logbook_entries + bytes.logbook_index) / Math.max(1, per(raw)), 2), seconds: round(seconds, 1),
+        records: { turns: per(recs.turns), turn_bytes: per(recs.turn_bytes), demoted: per(recs.demoted), demoted_bytes: per(recs.demoted_bytes) },
       });
       await cleanup();
       if (!json) console.error(`  ${n} exchanges x ${count} sessions: ${round(bytes.total / 1024, 1)} KB per session (${round(seconds, 1)} s)`);
@@ -125,11 +148,11 @@ export default async function main(argv: string[]): Promise<void> {
 
   console.log(`Redis bytes per session by length (${kind}, ${capacity} slots; MEMORY USAGE per key, mean over the sessions of each point; an exchange = a user message + the reply)`);
   console.log(asciiTable(
-    ['exchanges', 'sessions', 'kept', 'raw text B', 'meta', 'slots', 'events', 'logbook entries', 'logbook index', 'total KB', 'logbook / raw'],
-    points.map((p) => [p.exchanges, p.sessions, p.messages_kept, p.raw_text_bytes, p.bytes.meta, p.bytes.slots, p.bytes.events, p.bytes.logbook_entries, p.bytes.logbook_index, round(p.bytes.total / 1024, 1), p.logbook_ratio]),
+    ['exchanges', 'sessions', 'kept', 'raw text B', 'meta', 'slots', 'events', 'logbook', 'total KB', 'logbook / raw', 'turn records B', 'demoted (n)', 'demoted records B'],
+    points.map((p) => [p.exchanges, p.sessions, p.messages_kept, p.raw_text_bytes, p.bytes.meta, p.bytes.slots, p.bytes.events, p.bytes.logbook_entries + p.bytes.logbook_index, round(p.bytes.total / 1024, 1), p.logbook_ratio, p.records.turn_bytes, p.records.demoted, p.records.demoted_bytes]),
   ));
   const mean = percentile(points.map((p) => p.raw_text_bytes / Math.max(1, p.messages_kept)), 50);
-  console.log(`keys deleted afterwards: ${cleaned}, keys left: ${leftover}; mean text per kept message ≈ ${round(mean, 1)} B; target logbook / raw ≤ 1.5`);
+  console.log(`keys deleted afterwards: ${cleaned}, keys left: ${leftover}; mean text per kept message ≈ ${round(mean, 1)} B; target logbook / raw ≤ 1.5 (logbook = its blocks in Redis; the search index is built in each process)`);
   console.log(describeDeltas(info));
   const out = { store: kind, capacity, points, keys_deleted: cleaned, keys_left: leftover, redis_info: info, redis_per_write: totalPerTurn(info), load: loadAverage() };
   const xs = points.map((p) => p.exchanges);

@@ -9,7 +9,8 @@ import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Cluster, Redis } from 'ioredis';
 import { REDIS_CLIENT_OPTIONS, REDIS_CLUSTER_OPTIONS, RedisSlotStore, redisSlotStore } from '../adapters/redis/index.js';
-import { encodeLogbook, encodeSlot } from '../adapters/redis/codec.js';
+import { encodeRecord, encodeSlot } from '../adapters/redis/codec.js';
+import { turnEntryId } from '../src/middleware/write.js';
 import { createTidemark } from '../src/index.js';
 import type { Store } from '../src/store/store.js';
 import { barChart, writeResult } from './lib/results.js';
@@ -75,7 +76,7 @@ class TimedStore {
             if (self.sized < 200) {
               self.sized++;
               for (const op of req.ops) self.commitBytes += op.slot ? encodeSlot(op.slot, 'int8').payload.length : 1;
-              for (const it of req.logbook) self.commitBytes += encodeLogbook(it, ref.user, 'int8').length;
+              for (const it of req.logbook) self.commitBytes += encodeRecord(it, ref.user, 'int8', ref, turnEntryId).body.length;
             }
             const t0 = performance.now();
             try { return await target.commit(ref, req); } finally { self.commits.push(performance.now() - t0); }
@@ -243,10 +244,10 @@ export default async function main(argv: string[]): Promise<void> {
   log(`redis bench: ${CONCURRENCY} sessions in flight, ${CAPACITY} slots x 384 dims (hashing embedder), ${turnsPerSession} turns each, ${url}`);
   const one = await phase('single', single, turnsPerSession);
   log(`single: ${JSON.stringify(one)}`);
-  const item = encodeLogbook({
+  const item = encodeRecord({
     id: 'r0123456789ab', kind: 'capacity', tenant: 'bench', session: 'shop-0', key: new Float32Array(384).fill(1 / Math.sqrt(384)), keyText: 'my zobaki',
     value: 'tevomu', provenance: ['t100'], strength: 0.3, halfLife: 200, clock: 100, seq: 0, createdMs: Date.now(), atMs: Date.now(),
-  }, undefined, 'int8').length;
+  }, undefined, 'int8', { tenant: 'bench', session: 'shop-0' }, turnEntryId).body.length;
   const ceil = await ceiling(single, turnsPerSession, one.shape, item);
   // Latency without queueing: one session, turns one after another.
   const sequential = await phase('sequential', single, Math.max(50, turnsPerSession * 4), 1);

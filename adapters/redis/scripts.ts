@@ -3,6 +3,7 @@
 // sent by SHA (EVALSHA) and re-sent in full once when a server answers NOSCRIPT (e.g. after a restart).
 
 import { createHash } from 'node:crypto';
+import { BLOCK_BYTES, BLOCK_RECORDS } from './codec.js';
 
 export interface LuaScript {
   readonly name: string;
@@ -16,6 +17,123 @@ function script(name: string, keys: number, lua: string): LuaScript {
 }
 
 /**
+ * Lua helpers for logbook blocks (layout in codec.ts): unsigned and zigzag varints, and the records of a
+ * block as {start, time} (start = the record's first byte, time = block base + its delta).
+ */
+const BLOCK_LUA = `
+local function uvar(v)
+  local s = ''
+  while v >= 128 do
+    s = s .. string.char(v % 128 + 128)
+    v = math.floor(v / 128)
+  end
+  return s .. string.char(v)
+end
+local function zz(d) if d >= 0 then return uvar(2 * d) end return uvar(-2 * d - 1) end
+local function rvar(s, p)
+  local v, m = 0, 1
+  while true do
+    local b = string.byte(s, p)
+    p = p + 1
+    v = v + (b % 128) * m
+    if b < 128 then return v, p end
+    m = m * 128
+  end
+end
+local function brecs(el)
+  local colon = string.find(el, ':', 3, true)
+  local base = tonumber(string.sub(el, 3, colon - 1))
+  local out, p = {}, colon + 1
+  while p <= #el do
+    local len, q = rvar(el, p)
+    local z = rvar(el, q)
+    local d = (z % 2 == 0) and z / 2 or -(z + 1) / 2
+    out[#out + 1] = {p, base + d}
+    p = q + len
+  end
+  return out, colon
+end
+-- A sealed block (0x01): count, dead (records trimmed from its front), base, then the records' times
+-- as zigzag deltas; the bodies are compressed after them. Returns the times of every record (dead too).
+local function stimes(el)
+  local colon = string.find(el, ':', 4, true)
+  local base = tonumber(string.sub(el, 4, colon - 1))
+  local out, p = {}, colon + 1
+  for j = 1, string.byte(el, 2) do
+    local z
+    z, p = rvar(el, p)
+    out[j] = base + ((z % 2 == 0) and z / 2 or -(z + 1) / 2)
+  end
+  return out
+end
+local function bcount(el)
+  local m = string.byte(el, 1)
+  if m == 0 then return string.byte(el, 2) end
+  if m == 1 then return string.byte(el, 2) - string.byte(el, 3) end
+  return 1
+end
+-- The time of the oldest entry a log holds (nil when empty, or when its head block cannot be read).
+local function headAt(log)
+  local e = redis.call('LINDEX', log, 0)
+  if not e then return nil end
+  local m = string.byte(e, 1)
+  if m > 1 then return tonumber(string.match(e, '^(%-?%d+):')) end
+  local ok, at = pcall(function()
+    if m == 1 then return stimes(e)[string.byte(e, 3) + 1] end
+    local colon = string.find(e, ':', 3, true)
+    local _, q = rvar(e, colon + 1)
+    local z = rvar(e, q)
+    return tonumber(string.sub(e, 3, colon - 1)) + ((z % 2 == 0) and z / 2 or -(z + 1) / 2)
+  end)
+  if ok then return at end
+  return nil
+end
+-- Takes entries from the head of a log (h: the payload hash of a log written before blocks), oldest
+-- first, while take(time, id) says so (id: a 0.2 element's entry id; nil for a block record). A block
+-- loses records from its front (an open one is cut, a sealed one's dead count moves on) and goes when
+-- none is left. Returns the positions taken (the head moves by them) and the entries deleted (a 0.2
+-- element whose entry was already gone is a position, not an entry).
+local function headtrim(h, log, take)
+  local popped, removed = 0, 0
+  while true do
+    local el = redis.call('LINDEX', log, 0)
+    if not el then break end
+    local m = string.byte(el, 1)
+    if m == 0 then
+      local recs, colon = brecs(el)
+      local k = 0
+      for j = 1, #recs do
+        if take(recs[j][2], nil) then k = j else break end
+      end
+      if k == 0 then break end
+      if k == #recs then redis.call('LPOP', log)
+      else redis.call('LSET', log, 0, '\\0' .. string.char(#recs - k) .. string.sub(el, 3, colon) .. string.sub(el, recs[k + 1][1])) end
+      popped, removed = popped + k, removed + k
+      if k < #recs then break end
+    elseif m == 1 then
+      local times, c, dead = stimes(el), string.byte(el, 2), string.byte(el, 3)
+      local k = 0
+      for j = dead + 1, c do
+        if take(times[j], nil) then k = k + 1 else break end
+      end
+      if k == 0 then break end
+      if dead + k == c then redis.call('LPOP', log)
+      else redis.call('LSET', log, 0, string.sub(el, 1, 2) .. string.char(dead + k) .. string.sub(el, 4)) end
+      popped, removed = popped + k, removed + k
+      if dead + k < c then break end
+    else
+      local id = string.match(el, '^%-?%d+:(.*)$') or el
+      if not take(tonumber(string.match(el, '^(%-?%d+):')), id) then break end
+      redis.call('LPOP', log)
+      popped = popped + 1
+      removed = removed + redis.call('HDEL', h, id)
+    end
+  end
+  return popped, removed
+end
+`;
+
+/**
  * [stats] The store-wide figures, standalone Redis only (on Cluster these keys would cross hash slots,
  * so the store passes none and counts by SCAN). Appended to the KEYS of every script that changes a
  * session, from position `s`: the tenant's counters hash (sessions, slots, logbook), its tally (session
@@ -24,18 +142,17 @@ function script(name: string, keys: number, lua: string): LuaScript {
  * oldest logbook entry's time). `restat` counts the session again and moves the counters by the
  * difference from its tally (or, for a session counted before tallies existed, from the figures the
  * script saw first), so no path — commit, erase, quarantine, delete, sweep, TTL expiry found by the
- * sweep — leaves them drifting. Defines `figures(...)` and `restat(...)` for the script that includes it.
+ * sweep — leaves them drifting. Defines `figures(...)` and `restat(...)` for the script that includes it,
+ * after the block helpers (BLOCK_LUA).
  */
 function statsLua(s: number): string {
-  return `
+  return `${BLOCK_LUA}
 local S = ${s}
 local function figures(meta, slots, arch, uarch)
   if not KEYS[S] or redis.call('EXISTS', meta) == 0 then return {0, 0, 0} end
-  return {1, redis.call('HLEN', slots), redis.call('HLEN', arch) + redis.call('HLEN', uarch)}
-end
-local function headAt(log)
-  local e = redis.call('LINDEX', log, 0)
-  return e and tonumber(string.match(e, '^(%-?%d+):')) or nil
+  -- Entries in blocks are counted in meta (an / aun); a log written before blocks, by its hash.
+  local c = redis.call('HMGET', meta, 'an', 'aun')
+  return {1, redis.call('HLEN', slots), (tonumber(c[1] or '') or redis.call('HLEN', arch)) + (tonumber(c[2] or '') or redis.call('HLEN', uarch))}
 end
 -- expireAt: ms the session's keys expire at, 0 = never, -1 = unchanged.
 local function restat(before, meta, slots, arch, uarch, alog, ualog, born, expireAt)
@@ -97,14 +214,15 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  *       slice (0 = none), 12 retention: age cutoff in epoch ms (0 = none), 13 #ops, 14 #logbook entries,
  *       15 #events, 16 fence: the session's erase time the writer saw ('' = none), 17 fence: the
  *       writer's clock when it accepted the turn ('' = unfenced), 18 fence ttl seconds (how long
- *       ids and tombstones live), then #ops x (index, payload or '' to free, creation ms), #entries x (id, atMs, payload), #events x json,
+ *       ids and tombstones live), then #ops x (index, payload or '' to free, creation ms), #entries x (atMs, record body), #events x json,
  *       then [stats] counter increments as (field, delta) pairs to the end.
- * A logbook slice is a hash (id -> payload) and a log of `atMs:id` elements in arrival order; entries
- * trimmed by retention leave from the head of the log, and the meta field `ah` / `auh` counts them so
- * readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
+ * A logbook slice is a log of blocks of entries in arrival order (codec.ts; logs written before blocks
+ * hold `atMs:id` elements with the payloads in a hash, still read and trimmed); entries trimmed by
+ * retention leave from the head of the log, the meta field `ah` / `auh` counts them and `an` / `aun`
+ * counts the entries the log holds, so readers keep fetching only the new tail. Applied commit ids are kept in a sorted set scored by the
  * server's time, for ARGV[18] seconds: longer than any write may wait in an outbox, so a resend is
  * recognised however many commits came between.
- * Reply: {1, version, epoch, dropped by age, dropped by count} applied | {2, version, epoch} this commit
+ * Reply: {1, version, epoch, dropped by age, dropped by count, a block this commit closed or ''} applied | {2, version, epoch} this commit
  *        id was already applied | {0, version, epoch} version mismatch | {3, version, epoch} the
  *        session was erased after the writer's fence.
  */
@@ -164,40 +282,57 @@ if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
   fields[#fields + 1] = ARGV[8]
 end
-local h, log, headf = KEYS[4], KEYS[6], 'ah'
-if ARGV[8] ~= '' then h, log, headf = KEYS[5], KEYS[7], 'auh' end
+local h, log, headf, nf = KEYS[4], KEYS[6], 'ah', 'an'
+if ARGV[8] ~= '' then h, log, headf, nf = KEYS[5], KEYS[7], 'auh', 'aun' end
+-- Entries go into blocks (see codec.ts, logbook blocks): appended to the open block at the tail, or a new one.
+local n = tonumber(redis.call('HGET', KEYS[1], nf) or '-1')
+if n < 0 then n = redis.call('LLEN', log) end -- a log written before blocks: one entry per element
+local added = 0
+local tail = nil
+local sealed = '' -- an open block closed by this commit, for the writer to compress (SEAL)
 for i = 1, nlb do
-  -- An id already present is replaced in place (a resent turn); only a new one joins the log.
-  if redis.call('HSET', h, ARGV[a], ARGV[a + 2]) == 1 then redis.call('RPUSH', log, ARGV[a + 1] .. ':' .. ARGV[a]) end
-  a = a + 3
+  local at, body = tonumber(ARGV[a]), ARGV[a + 1]
+  a = a + 2
+  if tail == nil then tail = redis.call('LINDEX', log, -1) or false end
+  local open = tail and string.byte(tail, 1) == 0
+  if open and string.find(tail, body, 1, true) then
+    -- A resent entry already in the open block (same bytes): not added twice.
+  elseif open and string.byte(tail, 2) < ${BLOCK_RECORDS} and #tail < ${BLOCK_BYTES} then
+    local colon = string.find(tail, ':', 3, true)
+    local z = zz(at - tonumber(string.sub(tail, 3, colon - 1)))
+    tail = '\\0' .. string.char(string.byte(tail, 2) + 1) .. string.sub(tail, 3) .. uvar(#z + #body) .. z .. body
+    redis.call('LSET', log, -1, tail)
+    added = added + 1
+  else
+    if open then sealed = tail end
+    local z = zz(0)
+    tail = '\\0' .. string.char(1) .. string.format('%.0f', at) .. ':' .. uvar(#z + #body) .. z .. body
+    redis.call('RPUSH', log, tail)
+    added = added + 1
+  end
 end
--- Retention: oldest first from the head of the log, by age then by count. A popped element whose
--- entry was already deleted (a tombstone) is not counted.
+n = n + added
+-- Retention: oldest first from the head of the log, by age then by count (headtrim). A popped 0.2
+-- element whose entry was already deleted (a tombstone) is not counted.
 local dropAge, dropCount, popped = 0, 0, 0
 local maxn, cutoff = tonumber(ARGV[11]), tonumber(ARGV[12])
-local function pop()
-  local e = redis.call('LPOP', log)
-  if not e then return nil end
-  popped = popped + 1
-  local id = string.match(e, '^%-?%d+:(.*)$') or e
-  return redis.call('HDEL', h, id)
-end
 if cutoff > 0 then
-  while true do
-    local e = redis.call('LINDEX', log, 0)
-    if not e then break end
-    local at = tonumber(string.match(e, '^(%-?%d+):'))
-    if at == nil or at >= cutoff then break end
-    dropAge = dropAge + pop()
-  end
+  local p, d = headtrim(h, log, function(at) return at ~= nil and at < cutoff end)
+  popped, n, dropAge = popped + p, n - p, d
 end
 if maxn > 0 then
-  while redis.call('HLEN', h) > maxn do
-    local d = pop()
-    if d == nil then break end
-    dropCount = dropCount + d
-  end
+  -- take() counts n down as it agrees, so n is the entries left when it stops.
+  local p, d = headtrim(h, log, function()
+    if n > maxn then
+      n = n - 1
+      return true
+    end
+    return false
+  end)
+  popped, dropCount = popped + p, d
 end
+fields[#fields + 1] = nf
+fields[#fields + 1] = n
 if popped > 0 then
   fields[#fields + 1] = headf
   fields[#fields + 1] = tonumber(redis.call('HGET', KEYS[1], headf) or '0') + popped
@@ -224,69 +359,153 @@ if KEYS[S] then
     a = a + 2
   end
 end
-return {1, v + 1, ep, dropAge, dropCount}
+return {1, v + 1, ep, dropAge, dropCount, sealed}
 `);
 
 /**
  * Fetch what is new in one logbook slice of a session.
- * KEYS: meta, hash (arch | uarch), log (alog | ualog). ARGV: epoch field ('as' | 'au'), head field
- * ('ah' | 'auh'), '=' .. cached epoch or '' (nothing cached), cached absolute end of the log.
- * Positions are absolute: the head counts elements trimmed from the front since the session began.
- * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads}
- * (the elements after the cached end) | {epoch, head, end, 'f', elements, payloads} (everything: first
- * fetch, epoch moved, or too far behind). Payloads align with elements; a deleted entry's is false.
+ * KEYS: meta, hash (arch | uarch; payloads of logs written before blocks), log (alog | ualog).
+ * ARGV: epoch field ('as' | 'au'), head field ('ah' | 'auh'), '=' .. cached epoch or '' (nothing
+ * cached), cached absolute end of the log, count field ('an' | 'aun').
+ * Positions count entries and are absolute: the head counts entries trimmed from the front since the
+ * session began. A block holds several entries, so a delta starts at the element holding the cached
+ * end, cut to the entries after it (skip says how many entries of a first `atMs:id` element to pass over: 0).
+ * Reply: nil (no session) | {epoch, head, end} (unchanged) | {epoch, head, end, 'd', elements, payloads,
+ * skip} (the elements holding the entries after the cached end) | {epoch, head, end, 'f', elements,
+ * payloads, 0} (everything: first fetch, epoch moved, or too far behind). Payloads align with elements:
+ * false for a block, the hash payload for an `atMs:id` element (false when that entry was deleted).
  */
-export const LOG_FETCH = script('log_fetch', 3, `
-if redis.call('EXISTS', KEYS[1]) == 0 then return false end
-local mh = redis.call('HMGET', KEYS[1], ARGV[1], ARGV[2])
-local ep = mh[1] or ''
-local head = tonumber(mh[2] or '0')
-local n = redis.call('LLEN', KEYS[3])
+export const LOG_FETCH = script('log_fetch', 3, `${BLOCK_LUA}
+local mh = redis.call('HMGET', KEYS[1], 'v', ARGV[1], ARGV[2], ARGV[5])
+if not mh[1] then return false end -- no session (every commit writes v)
+local ep = mh[2] or ''
+local head = tonumber(mh[3] or '0')
+local n = tonumber(mh[4] or '-1')
+if n < 0 then n = redis.call('LLEN', KEYS[3]) end
 local stop = head + n
 local from = tonumber(ARGV[4])
-local mode = 'f'
+local mode, skip = 'f', 0
 local els
 if ARGV[3] ~= '' and ARGV[3] == ('=' .. ep) and from >= head and from <= stop and stop - from <= 1000 then
   if from == stop then return {ep, head, stop} end
   mode = 'd'
-  els = redis.call('LRANGE', KEYS[3], from - head, -1)
+  local need, got, i = stop - from, 0, 0
+  while got < need do
+    i = i - 1
+    local el = redis.call('LINDEX', KEYS[3], i)
+    if not el then break end
+    got = got + bcount(el)
+  end
+  els = redis.call('LRANGE', KEYS[3], i, -1)
+  skip = math.max(0, got - need)
+  -- Only the records the reader lacks: the first block is cut after its first skip records.
+  if skip > 0 and string.byte(els[1], 1) == 0 then
+    local recs, colon = brecs(els[1])
+    els[1] = '\\0' .. string.char(#recs - skip) .. string.sub(els[1], 3, colon) .. string.sub(els[1], recs[skip + 1][1])
+    skip = 0
+  end
 else
   els = redis.call('LRANGE', KEYS[3], 0, -1)
 end
-local vals = {}
--- HMGET in chunks: unpack() of thousands of arguments overflows Lua's C stack.
-for c = 1, #els, 500 do
-  local ids = {}
-  for i = c, math.min(c + 499, #els) do ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i] end
-  local got = redis.call('HMGET', KEYS[2], unpack(ids))
-  for i = 1, #got do vals[#vals + 1] = got[i] end
+local vals, ids, at = {}, {}, {}
+for i = 1, #els do
+  vals[i] = false
+  if string.byte(els[i], 1) > 1 then
+    ids[#ids + 1] = string.match(els[i], '^%-?%d+:(.*)$') or els[i]
+    at[#at + 1] = i
+  end
 end
-return {ep, head, stop, mode, els, vals}
+-- HMGET in chunks: unpack() of thousands of arguments overflows Lua's C stack.
+for c = 1, #ids, 500 do
+  local got = redis.call('HMGET', KEYS[2], unpack(ids, c, math.min(c + 499, #ids)))
+  for j = 1, #got do vals[at[c + j - 1]] = got[j] end
+end
+return {ep, head, stop, mode, els, vals, skip}
+`);
+
+/**
+ * Take entries out of blocks (deleteLogbook): the reader fetched the log, found the records, and sends
+ * each changed block as it saw it and as it should be ('' = remove the block). Applied only when every
+ * block is still as seen (else -1: fetch and try again); moves the epoch so cached copies refetch in full.
+ * KEYS: meta, slots, arch, uarch, alog, ualog, born, the slice's log (alog | ualog), [stats].
+ * ARGV: epoch field, new epoch, count field, entries removed, then (element index, block seen, new
+ * block) triples. Reply: entries removed, or -1.
+ */
+export const LOG_REWRITE = script('log_rewrite', 8, statsLua(9) + `
+local log = KEYS[8]
+for i = 5, #ARGV, 3 do
+  if redis.call('LINDEX', log, tonumber(ARGV[i])) ~= ARGV[i + 1] then return -1 end
+end
+local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
+local gone = false
+for i = 5, #ARGV, 3 do
+  if ARGV[i + 2] == '' then
+    redis.call('LSET', log, tonumber(ARGV[i]), '\\0\\0gone')
+    gone = true
+  else
+    redis.call('LSET', log, tonumber(ARGV[i]), ARGV[i + 2])
+  end
+end
+if gone then redis.call('LREM', log, 0, '\\0\\0gone') end
+local k = tonumber(ARGV[4])
+if redis.call('EXISTS', KEYS[1]) == 1 then
+  redis.call('HSET', KEYS[1], ARGV[1], ARGV[2])
+  local n = tonumber(redis.call('HGET', KEYS[1], ARGV[3]) or '-1')
+  if n >= 0 then redis.call('HSET', KEYS[1], ARGV[3], math.max(0, n - k)) end
+end
+restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
+return k
+`);
+
+/**
+ * Replace a closed block by its sealed (compressed) form, if it is still there as the writer saw it
+ * (near the tail: a commit closed it a moment ago). Positions and entries do not change, so the epoch
+ * stays. KEYS: log. ARGV: the block as closed, the sealed block. Reply: 1 replaced | 0 not found.
+ */
+export const SEAL = script('seal', 1, `
+for i = -1, -8, -1 do
+  local el = redis.call('LINDEX', KEYS[1], i)
+  if not el then return 0 end
+  if el == ARGV[1] then
+    redis.call('LSET', KEYS[1], i, ARGV[2])
+    return 1
+  end
+end
+return 0
 `);
 
 /**
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
- * O(log length): deletes are rare (a promotion, an edit), never per turn.
+ * O(log length): deletes are rare (a promotion, an edit), never per turn. This takes the entries of
+ * logs written before blocks (hash payloads); those in blocks go by LOG_REWRITE.
  * KEYS: meta, slots, arch, uarch, alog, ualog, born, then the hash and log of the slice (two of the
- * above), [stats]. ARGV: epoch field, new epoch, ids... Reply: number removed.
+ * above), [stats]. ARGV: epoch field, new epoch, count field ('an' | 'aun'), ids... Reply: number removed.
  */
 export const LOG_DELETE = script('log_delete', 9, statsLua(10) + `
 local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
 local h, log = KEYS[8], KEYS[9]
 local want, n = {}, 0
-for i = 3, #ARGV do
+for i = 4, #ARGV do
   if redis.call('HDEL', h, ARGV[i]) == 1 then
     want[ARGV[i]] = true
     n = n + 1
   end
 end
 if n == 0 then return 0 end
+local gone = 0
 for _, e in ipairs(redis.call('LRANGE', log, 0, -1)) do
-  local id = string.match(e, '^%-?%d+:(.*)$') or e
-  if want[id] then redis.call('LREM', log, 1, e) end
+  if string.byte(e, 1) > 1 then
+    local id = string.match(e, '^%-?%d+:(.*)$') or e
+    if want[id] then gone = gone + redis.call('LREM', log, 1, e) end
+  end
 end
-if redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], ARGV[1], ARGV[2]) end
+if redis.call('EXISTS', KEYS[1]) == 1 then
+  redis.call('HSET', KEYS[1], ARGV[1], ARGV[2])
+  -- The count of entries the log holds (logs that have blocks too): ARGV[3] names it.
+  local c = tonumber(redis.call('HGET', KEYS[1], ARGV[3]) or '-1')
+  if c >= 0 then redis.call('HSET', KEYS[1], ARGV[3], math.max(0, c - gone)) end
+end
 restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
 return n
 `);
@@ -305,7 +524,8 @@ redis.call('SET', KEYS[8], at, 'EX', tonumber(ARGV[1]))
 local existed = redis.call('EXISTS', KEYS[1])
 local user = redis.call('HGET', KEYS[1], 'u') or ''
 local slots = redis.call('HLEN', KEYS[2])
-local items = redis.call('HLEN', KEYS[4]) + redis.call('HLEN', KEYS[5])
+local cn = redis.call('HMGET', KEYS[1], 'an', 'aun') -- entries in the logs; logs from before blocks: their hashes
+local items = (tonumber(cn[1] or '') or redis.call('HLEN', KEYS[4])) + (tonumber(cn[2] or '') or redis.call('HLEN', KEYS[5]))
 local events = redis.call('XLEN', KEYS[3])
 local before = figures(KEYS[1], KEYS[2], KEYS[4], KEYS[5])
 redis.call('DEL', KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[9], KEYS[10], KEYS[11])
@@ -376,7 +596,7 @@ return moved
 /**
  * The retention sweep of one session: delete the slots created before a cutoff (found through the
  * `born` index, O(expired)) and the logbook entries (of both slices) older than a cutoff (from the head
- * of each log, O(expired)). Moves the version on when a slot goes, so every cached copy and every plan
+ * of each log, O(expired); blocks lose their expired records). Moves the version on when a slot goes, so every cached copy and every plan
  * made on one is refreshed; moves the logbook heads, so every process's index drops the entries on
  * its next look. Idempotent: any number of processes may sweep the same session at once.
  * KEYS: meta, slots, arch, uarch, alog, ualog, born, [stats]. ARGV: 1 slot cutoff (ms, 0 = none),
@@ -398,18 +618,15 @@ if sc > 0 then
   if slots > 0 then redis.call('HINCRBY', KEYS[1], 'v', 1) end
 end
 if lc > 0 then
-  for _, s in ipairs({{KEYS[3], KEYS[5], 'ah'}, {KEYS[4], KEYS[6], 'auh'}}) do
-    local popped = 0
-    while true do
-      local e = redis.call('LINDEX', s[2], 0)
-      if not e then break end
-      local at = tonumber(string.match(e, '^(%-?%d+):'))
-      if at == nil or at >= lc then break end
-      redis.call('LPOP', s[2])
-      popped = popped + 1
-      items = items + redis.call('HDEL', s[1], string.match(e, '^%-?%d+:(.*)$'))
+  -- Both slices, from the head of each log (headtrim): blocks lose their expired records.
+  for _, s in ipairs({{KEYS[3], KEYS[5], 'ah', 'an'}, {KEYS[4], KEYS[6], 'auh', 'aun'}}) do
+    local popped, removed = headtrim(s[1], s[2], function(at) return at ~= nil and at < lc end)
+    if popped > 0 then
+      redis.call('HINCRBY', KEYS[1], s[3], popped)
+      local c = tonumber(redis.call('HGET', KEYS[1], s[4]) or '-1')
+      if c >= 0 then redis.call('HSET', KEYS[1], s[4], math.max(0, c - popped)) end
     end
-    if popped > 0 then redis.call('HINCRBY', KEYS[1], s[3], popped) end
+    items = items + removed
   end
 end
 restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
@@ -431,27 +648,69 @@ return ttl == -2 and 1 or 0
 `);
 
 /**
- * Move logbook payloads that failed their check aside, so searches of the scope keep working: each one
- * still equal to what the reader saw goes from the slice's hash to the session's quarantine hash (field
- * `log:id@seconds`). Its log element stays as a deleted entry's does (readers skip it; retention pops it
- * uncounted), so no position moves and no cached copy needs a full refetch.
+ * Move logbook records that failed their check aside, so searches of the scope keep working.
+ * A payload of a log written before blocks, still equal to what the reader saw, goes from the slice's
+ * hash to the session's quarantine hash (field `log:id@seconds`); its log element stays as a deleted
+ * entry's does (readers skip it; retention pops it uncounted), so no position moves. A block holding a
+ * bad record is replaced, if still as the reader saw it, by the block without it ('' = the whole block
+ * goes, when it cannot be read at all), the bad bytes kept under `log:name@seconds`; positions move, so
+ * the slice's epoch moves (readers fetch it again in full) and its entry count (`an` / `aun`) is
+ * counted again from the elements left (O(log length); quarantine is rare).
  * KEYS: meta, slots, arch, uarch, alog, ualog, born, quarantine, [stats]. ARGV: 1 slice ('s' session,
- * 'u' user), 2 ttl seconds for the quarantine (0 = none), then id, payload pairs. Reply: the number moved.
+ * 'u' user), 2 ttl seconds for the quarantine (0 = none), 3 new epoch, 4 #pairs, then #pairs x (id,
+ * payload), then per block: element index, block seen, new block or '', #kept, #kept x (name, bytes).
+ * Reply: the number of entries moved.
  */
 export const LOG_QUARANTINE = script('log_quarantine', 8, statsLua(9) + `
 local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
-local h = ARGV[1] == 'u' and KEYS[4] or KEYS[3]
+local h, log, ef, cf = KEYS[3], KEYS[5], 'as', 'an'
+if ARGV[1] == 'u' then h, log, ef, cf = KEYS[4], KEYS[6], 'au', 'aun' end
 local t = redis.call('TIME')
 local moved = 0
-for i = 3, #ARGV, 2 do
-  local cur = redis.call('HGET', h, ARGV[i])
-  if cur and cur == ARGV[i + 1] then
-    redis.call('HSET', KEYS[8], 'log:' .. ARGV[i] .. '@' .. t[1], cur)
-    redis.call('HDEL', h, ARGV[i])
+local a = 5
+for i = 1, tonumber(ARGV[4]) do
+  local cur = redis.call('HGET', h, ARGV[a])
+  if cur and cur == ARGV[a + 1] then
+    redis.call('HSET', KEYS[8], 'log:' .. ARGV[a] .. '@' .. t[1], cur)
+    redis.call('HDEL', h, ARGV[a])
     moved = moved + 1
   end
+  a = a + 2
 end
-if moved > 0 then
+-- Blocks: every one still as seen is changed (checked first, so indexes hold while they change).
+local todo = {}
+while ARGV[a] do
+  local nk = tonumber(ARGV[a + 3])
+  if redis.call('LINDEX', log, tonumber(ARGV[a])) == ARGV[a + 1] then todo[#todo + 1] = a end
+  a = a + 4 + 2 * nk
+end
+local gone, lost = false, 0
+for _, b in ipairs(todo) do
+  local seen, new = ARGV[b + 1], ARGV[b + 2]
+  for j = 1, tonumber(ARGV[b + 3]) do
+    redis.call('HSET', KEYS[8], 'log:' .. ARGV[b + 2 + 2 * j] .. '@' .. t[1], ARGV[b + 3 + 2 * j])
+  end
+  if new == '' then
+    redis.call('LSET', log, tonumber(ARGV[b]), '\\0\\0gone')
+    gone = true
+    lost = lost + bcount(seen)
+  else
+    redis.call('LSET', log, tonumber(ARGV[b]), new)
+    lost = lost + bcount(seen) - bcount(new)
+  end
+end
+if gone then redis.call('LREM', log, 0, '\\0\\0gone') end
+if #todo > 0 and redis.call('EXISTS', KEYS[1]) == 1 then
+  -- The entry count is counted again from the elements left (as LOG_FETCH counts them): a block too
+  -- damaged to read may say any count in its header, so what it held is the count's drop.
+  local c = tonumber(redis.call('HGET', KEYS[1], cf) or '-1')
+  local left = 0
+  for _, e in ipairs(redis.call('LRANGE', log, 0, -1)) do left = left + bcount(e) end
+  if c >= 0 then lost = math.max(0, c - left) end
+  redis.call('HSET', KEYS[1], cf, left, ef, ARGV[3])
+end
+moved = moved + lost
+if moved > 0 or #todo > 0 then
   if tonumber(ARGV[2]) > 0 then redis.call('EXPIRE', KEYS[8], tonumber(ARGV[2])) end
   restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
 end
@@ -465,7 +724,7 @@ return moved
  * erase (its session is being erased; the index must not name it again).
  * KEYS: the user's entry index, the user's tombstone. ARGV: 1 max entries, 2 the user's erase time the
  * writer saw ('' = none), 3 the writer's clock when it accepted the turn ('' = unfenced), then
- * (time, "session id") pairs. Reply: {"session id", ...} the entries to delete.
+ * (time, "session id") pairs. Reply: {"session id", time, ...} the entries to delete.
  */
 export const USER_CAP = script('user_cap', 2, `
 local gone = tonumber(redis.call('GET', KEYS[2]) or '0')
@@ -473,55 +732,83 @@ if (ARGV[2] ~= '' and gone > tonumber(ARGV[2])) or (ARGV[3] ~= '' and gone >= to
 for i = 4, #ARGV, 2 do redis.call('ZADD', KEYS[1], tonumber(ARGV[i]), ARGV[i + 1]) end
 local over = redis.call('ZCARD', KEYS[1]) - tonumber(ARGV[1])
 if over <= 0 then return {} end
-local out = {}
-local popped = redis.call('ZPOPMIN', KEYS[1], over)
-for i = 1, #popped, 2 do out[#out + 1] = popped[i] end
-return out
+return redis.call('ZPOPMIN', KEYS[1], over)
 `);
 
 /**
- * Delete user-scope logbook entries of one session by id (the user's cap, USER_CAP). The oldest are
- * normally at the head of the session's user log: those leave as retention's do (popped, the head
- * moved on, so readers drop them without a full fetch); any other is deleted with its log element and
- * the slice's epoch moved (readers fetch it again in full), as LOG_DELETE does.
- * KEYS: meta, slots, arch, uarch, alog, ualog, born, [stats]. ARGV: 1 new epoch, then ids.
- * Reply: number deleted.
+ * Delete user-scope logbook entries of one session (the user's cap, USER_CAP), named by id and time.
+ * The oldest are normally at the head of the session's user log: those leave as retention's do
+ * (headtrim: a block record goes when its time is one named, a 0.2 element when its id is; the head
+ * moves on, so readers drop them without a full fetch). A 0.2 entry elsewhere is deleted with its log
+ * element and the slice's epoch moved (readers fetch it again in full), as LOG_DELETE does; a block
+ * record elsewhere is named in the reply for the store to take out (LOG_REWRITE).
+ * KEYS: meta, slots, arch, uarch, alog, ualog, born, [stats]. ARGV: 1 new epoch, then (time, id) pairs.
+ * Reply: {number deleted, {ids not found at the head or in the hash}}.
  */
 export const TRIM = script('trim', 7, statsLua(8) + `
 local before = figures(KEYS[1], KEYS[2], KEYS[3], KEYS[4])
-local want, left = {}, 0
-for i = 2, #ARGV do
-  want[ARGV[i]] = true
-  left = left + 1
-end
-local n, popped = 0, 0
-while left > 0 do
-  local e = redis.call('LINDEX', KEYS[6], 0)
-  if not e then break end
-  local id = string.match(e, '^%-?%d+:(.*)$') or e
-  if want[id] then
-    want[id] = nil
-    left = left - 1
-    n = n + redis.call('HDEL', KEYS[4], id)
-  elseif redis.call('HEXISTS', KEYS[4], id) == 1 then
-    break
+local want, atn, left = {}, {}, 0
+for i = 2, #ARGV, 2 do
+  local at = tonumber(ARGV[i])
+  if not want[ARGV[i + 1]] then
+    want[ARGV[i + 1]] = at
+    atn[at] = (atn[at] or 0) + 1
+    left = left + 1
   end
-  redis.call('LPOP', KEYS[6])
-  popped = popped + 1
 end
-if left > 0 then
-  local moved = false
-  for _, e in ipairs(redis.call('LRANGE', KEYS[6], 0, -1)) do
-    local id = string.match(e, '^%-?%d+:(.*)$') or e
+local function named(id)
+  atn[want[id]] = atn[want[id]] - 1
+  want[id] = nil
+  left = left - 1
+end
+local popped, n = headtrim(KEYS[4], KEYS[6], function(at, id)
+  if left == 0 then return false end
+  if id then
     if want[id] then
-      n = n + redis.call('HDEL', KEYS[4], id)
-      redis.call('LREM', KEYS[6], 1, e)
-      moved = true
+      named(id)
+      return true
+    end
+    -- A tombstone (its entry already gone) goes with them; a live entry not named stops the trim.
+    return redis.call('HEXISTS', KEYS[4], id) == 0
+  end
+  if at and (atn[at] or 0) > 0 then
+    for wid, wat in pairs(want) do
+      if wat == at then
+        named(wid)
+        break
+      end
+    end
+    return true
+  end
+  return false
+end)
+local rest = {}
+if left > 0 then
+  local gone, old = 0, {}
+  for id in pairs(want) do
+    if redis.call('HDEL', KEYS[4], id) == 1 then
+      old[id] = true
+      n = n + 1
+    else
+      rest[#rest + 1] = id
     end
   end
-  if moved and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HSET', KEYS[1], 'au', ARGV[1]) end
+  if next(old) then
+    for _, e in ipairs(redis.call('LRANGE', KEYS[6], 0, -1)) do
+      if string.byte(e, 1) > 1 and old[string.match(e, '^%-?%d+:(.*)$') or e] then gone = gone + redis.call('LREM', KEYS[6], 1, e) end
+    end
+  end
+  if next(old) and redis.call('EXISTS', KEYS[1]) == 1 then
+    redis.call('HSET', KEYS[1], 'au', ARGV[1])
+    local c = tonumber(redis.call('HGET', KEYS[1], 'aun') or '-1')
+    if c >= 0 then redis.call('HSET', KEYS[1], 'aun', math.max(0, c - gone)) end
+  end
 end
-if popped > 0 and redis.call('EXISTS', KEYS[1]) == 1 then redis.call('HINCRBY', KEYS[1], 'auh', popped) end
+if popped > 0 and redis.call('EXISTS', KEYS[1]) == 1 then
+  redis.call('HINCRBY', KEYS[1], 'auh', popped)
+  local c = tonumber(redis.call('HGET', KEYS[1], 'aun') or '-1')
+  if c >= 0 then redis.call('HSET', KEYS[1], 'aun', math.max(0, c - popped)) end
+end
 restat(before, KEYS[1], KEYS[2], KEYS[3], KEYS[4], KEYS[5], KEYS[6], KEYS[7], -1)
-return n
+return {n, rest}
 `);

@@ -19,9 +19,10 @@ import { listEntries } from '../../src/store/in-process.js';
 import type { CommitRequest, CommitResult, EraseReport, EraseTarget, ErasureMarks, FleetRecord, ListLogbookOptions, SessionSnapshot, Store, StoreStats, SweepReport, SweepRequest } from '../../src/store/store.js';
 import type { LogbookEntry, LogbookScope, SessionRef, StoredEvent } from '../../src/types.js';
 import { connectUrl, ensureReady, ioredisInstalled, isCluster, runScript, unavailable, type RedisClient } from './client.js';
-import { corrupt, decodeLogbook, decodeSlot, encodeLogbook, encodeSlot, type KeyFormat } from './codec.js';
+import { corrupt, decodeLogbook, decodeRecord, decodeSlot, encodeRecord, encodeSlot, joinBlock, sealBlock, splitBlock, type KeyFormat, type RawRecord, type RecordHome } from './codec.js';
+import { turnEntryId } from '../../src/middleware/write.js';
 import { KeySpace, type SessionKeys } from './keys.js';
-import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_QUARANTINE, QUARANTINE, RESTAT, STATS_KEYS, SWEEP, TRIM, USER_CAP, USER_ERASE, type LuaScript } from './scripts.js';
+import { COMMIT, ERASE, LINK, LOAD, LOG_DELETE, LOG_FETCH, LOG_QUARANTINE, LOG_REWRITE, QUARANTINE, RESTAT, SEAL, STATS_KEYS, SWEEP, TRIM, USER_CAP, USER_ERASE, type LuaScript } from './scripts.js';
 
 export interface RedisSlotStoreOptions extends DeprecatedStoreOptions {
   /**
@@ -112,6 +113,27 @@ const elementId = (e: string): string => {
 };
 
 const token = (): string => randomBytes(8).toString('hex');
+/** The whole-ms time a logbook entry is filed under in its block (as encodeRecord files it). */
+const fileTime = (atMs: number): number => (Number.isSafeInteger(atMs) && atMs >= 0 ? atMs : Math.max(0, Math.floor(Number.isFinite(atMs) ? atMs : 0)));
+/** First byte of a logbook block element, open or sealed (codec.ts, BLOCK_MARK and SEALED_MARK). */
+const isBlock = (el: Buffer): boolean => el[0] === 0 || el[0] === 1;
+/** The entries a block element holds, as the scripts count them (bcount): open, its count; sealed, count less dead. */
+const blockCount = (el: Buffer): number => (el[0] === 0 ? (el[1] ?? 0) : Math.max(0, (el[1] ?? 0) - (el[2] ?? 0)));
+/** A block's base time as written (digits only; '' when unreadable), to name it when kept aside. */
+const blockBase = (el: Buffer): string => /^\d*/.exec(el.toString('latin1', el[0] === 0 ? 2 : 3, Math.min(el.length, 40)))![0];
+/** null where a decode finds the bytes corrupt (STORE_CORRUPT); other errors go on up. */
+function decodeOrNull<T>(decode: () => T): T | null {
+  try {
+    return decode();
+  } catch (err) {
+    if (err instanceof StoreError && err.code === ErrorCodes.STORE_CORRUPT) return null;
+    throw err;
+  }
+}
+/** A block's live records, or null when the block cannot be read (corrupt). */
+const readBlock = (el: Buffer): ReturnType<typeof splitBlock> | null => decodeOrNull(() => splitBlock(el, 'logbook block'));
+/** A record's entry id, or null when its body fails its check. */
+const recordId = (rec: RawRecord, home: RecordHome): string | null => decodeOrNull(() => decodeRecord(rec.body, rec.at, 'logbook record', home, turnEntryId).id);
 const str = (b: unknown): string => (Buffer.isBuffer(b) ? b.toString('utf8') : String(b));
 
 function num(b: unknown, what: string, integer: boolean): number {
@@ -146,6 +168,10 @@ export class RedisSlotStore implements Store {
   private readonly watched = new WeakSet<object>();
   /** Where the Cluster sweep of each tenant goes on from: master index and SCAN cursor. */
   private readonly sweepAt = new Map<string, { node: number; cursor: string }>();
+  /** Seals in flight (see seal()); close() waits for them. */
+  private readonly sealing = new Set<Promise<unknown>>();
+  /** Blocks sealed by this process (compressed after a commit closed them). */
+  sealed = 0;
   /** Times the server was found empty after an outage (its marker key gone). */
   resets = 0;
   /** Slot payloads moved aside after failing their check (see `SessionSnapshot.quarantined`). */
@@ -338,6 +364,8 @@ export class RedisSlotStore implements Store {
       return { ok: true, version };
     }
     this.applyToCache(k.meta, req, epoch, version, keys);
+    const closed = r[5];
+    if (Buffer.isBuffer(closed) && closed.length > 0) this.seal(ref.user ? k.ualog : k.alog, closed);
     const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
     if (capping) dropped.count += await this.trimUser(ref.tenant, await capping);
     return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
@@ -354,10 +382,11 @@ export class RedisSlotStore implements Store {
     const user = ref.user!;
     const f = req.fence;
     const pairs: (string | number)[] = [];
-    for (const e of req.logbook) pairs.push(Math.floor(e.atMs), `${ref.session} ${e.id}`);
+    for (const e of req.logbook) pairs.push(fileTime(e.atMs), `${ref.session} ${e.id}`);
     return runScript(c, USER_CAP, [this.keys.userEntries(ref.tenant, user), this.keys.userGone(ref.tenant, user)], [maxEntries, f?.seen ? f.seen.user : '', f ? Math.floor(f.acceptedMs) : '', ...pairs]).then(
       (over) => (over as Buffer[]).map(str),
       () => [],
+      // Members and times alternate (ZPOPMIN): "session id", time, ...
     );
   }
 
@@ -372,25 +401,33 @@ export class RedisSlotStore implements Store {
     }
   }
 
-  /** Deletes the entries USER_CAP named (TRIM per session); resolves to how many went. */
+  /**
+   * Deletes the entries USER_CAP named (TRIM per session, by time at the head of the session's user
+   * log; any TRIM did not find there is taken out of its block as a delete is); resolves to how many went.
+   */
   private async trimUser(tenant: string, over: string[]): Promise<number> {
     if (over.length === 0) return 0;
     try {
       const c = await this.conn('commit');
-      const bySession = new Map<string, string[]>();
-      for (const m of over) {
+      const bySession = new Map<string, Array<string | number>>();
+      for (let i = 0; i + 1 < over.length; i += 2) {
+        const m = over[i]!;
         const at = m.indexOf(' ');
         const s = m.slice(0, at);
         if (!bySession.has(s)) bySession.set(s, []);
-        bySession.get(s)!.push(m.slice(at + 1));
+        bySession.get(s)!.push(Number(over[i + 1]), m.slice(at + 1));
       }
       const counts = await Promise.all(
-        [...bySession].map(([s, ids]) => {
+        [...bySession].map(async ([s, pairs]) => {
           const k = this.keys.session(tenant, s);
-          return this.counted(c, tenant, TRIM, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [token(), ...ids]);
+          const r = (await this.counted(c, tenant, TRIM, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born], [token(), ...pairs])) as unknown[];
+          const rest = ((r[1] as Buffer[] | undefined) ?? []).map(str);
+          const user = rest.length > 0 ? await c.hget(k.meta, 'u') : null;
+          const more = user ? await this.deleteFromBlocks(c, { tenant, user }, s, rest) : 0;
+          return Number(r[0]) + more;
         }),
       );
-      return counts.reduce<number>((n, x) => n + Number(x), 0);
+      return counts.reduce<number>((n, x) => n + x, 0);
     } catch {
       return 0;
     }
@@ -417,15 +454,52 @@ export class RedisSlotStore implements Store {
         if (members.length > 0) await c.zrem(this.keys.userEntries(scope.tenant, scope.user), ...members);
       }
       const counts = await Promise.all(
-        sessions.map((s) => {
+        sessions.map(async (s) => {
           const k = this.keys.session(scope.tenant, s);
-          return this.counted(c, scope.tenant, LOG_DELETE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, user ? k.uarch : k.arch, user ? k.ualog : k.alog], [user ? 'au' : 'as', token(), ...ids]);
+          const hk = user ? k.uarch : k.arch;
+          const log = user ? k.ualog : k.alog;
+          // Entries of logs written before blocks (hash payloads), then those in blocks.
+          const old = Number(await this.counted(c, scope.tenant, LOG_DELETE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, hk, log], [user ? 'au' : 'as', token(), user ? 'aun' : 'an', ...ids]));
+          return old + (await this.deleteFromBlocks(c, scope, s, ids));
         }),
       );
-      return counts.reduce<number>((sum, n) => sum + Number(n), 0);
+      return counts.reduce<number>((sum, n) => sum + n, 0);
     } catch (err) {
       throw unavailable('deleteLogbook', err);
     }
+  }
+
+  /**
+   * Takes records out of a slice's blocks: fetch the log, drop the records with these ids, send the
+   * changed blocks with the bytes they were seen with (LOG_REWRITE refuses if any moved meanwhile;
+   * then fetch again). Deletes are rare (a promotion, an edit), never per turn.
+   */
+  private async deleteFromBlocks(c: RedisClient, scope: LogbookScope, session: string, ids: readonly string[]): Promise<number> {
+    const user = 'user' in scope ? scope.user : undefined;
+    const k = this.keys.session(scope.tenant, session);
+    const log = user !== undefined ? k.ualog : k.alog;
+    const want = new Set(ids);
+    const home: RecordHome = { tenant: scope.tenant, session, ...(user !== undefined ? { user } : {}) };
+    const [ef, hf, cf] = user !== undefined ? ['au', 'auh', 'aun'] : ['as', 'ah', 'an'];
+    for (let attempt = 0; attempt < 8; attempt++) {
+      const r = (await runScript(c, LOG_FETCH, [k.meta, user !== undefined ? k.uarch : k.arch, log], [ef, hf, '', 0, cf])) as unknown[] | null;
+      if (r === null || r.length < 6) return 0;
+      const triples: (string | number | Buffer)[] = [];
+      let removed = 0;
+      (r[4] as Buffer[]).forEach((el, i) => {
+        if (!isBlock(el)) return;
+        const blk = readBlock(el);
+        if (!blk) return; // unreadable: left for the quarantine (a search moves it aside)
+        const keep = blk.records.filter((rec) => !want.has(recordId(rec, home) ?? ''));
+        if (keep.length === blk.records.length) return;
+        removed += blk.records.length - keep.length;
+        triples.push(i, el, keep.length > 0 ? joinBlock(blk.header, keep) : '');
+      });
+      if (removed === 0) return 0;
+      const n = Number(await this.counted(c, scope.tenant, LOG_REWRITE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, log], [ef, token(), cf, removed, ...triples]));
+      if (n >= 0) return n;
+    }
+    throw new StoreError(ErrorCodes.STORE_UNAVAILABLE, 'redis store: deleteLogbook: the log kept changing; try again');
   }
 
   async readEvents(ref: SessionRef, limit = 100): Promise<StoredEvent[]> {
@@ -646,10 +720,11 @@ export class RedisSlotStore implements Store {
           cursor = next;
           for (const meta of keys) {
             const base = meta.slice(0, -':meta'.length);
-            const [slots, arch, uarch] = await Promise.all([node.hlen(`${base}:slots`), node.hlen(`${base}:arch`), node.hlen(`${base}:uarch`)]);
+            const [slots, arch, uarch, counts] = await Promise.all([node.hlen(`${base}:slots`), node.hlen(`${base}:arch`), node.hlen(`${base}:uarch`), node.hmget(meta, 'an', 'aun')]);
             out.sessions += 1;
             out.slots += slots;
-            out.logbookEntries += arch + uarch;
+            // Entries in blocks are counted in meta (an / aun); logs from before blocks, by their hashes.
+            out.logbookEntries += (counts[0] !== null ? Number(counts[0]) : arch) + (counts[1] !== null ? Number(counts[1]) : uarch);
           }
         } while (cursor !== '0');
       }
@@ -679,9 +754,9 @@ export class RedisSlotStore implements Store {
           for (const meta of metas) {
             if (out.length >= sample || seen.has(meta)) continue;
             seen.add(meta);
-            const base = meta.slice(0, -':meta'.length);
+            const k = this.keys.sessionOfBase(meta.slice(0, -':meta'.length));
             const p = node.pipeline();
-            for (const suffix of ['meta', 'slots', 'events', 'arch', 'uarch', 'alog', 'ualog', 'born', 'cids']) p.call('MEMORY', 'USAGE', `${base}:${suffix}`);
+            for (const key of [...k.all, k.cids]) p.call('MEMORY', 'USAGE', key);
             const res = (await p.exec()) ?? [];
             out.push(res.reduce((n: number, [, v]: [Error | null, unknown]) => n + (Number(v) || 0), 0));
           }
@@ -733,6 +808,7 @@ export class RedisSlotStore implements Store {
 
   async close(): Promise<void> {
     if (this.closed) return;
+    await Promise.all([...this.sealing]);
     this.closed = true;
     this.cache.clear();
     this.scopes.clear();
@@ -826,8 +902,11 @@ export class RedisSlotStore implements Store {
         keys.push(null);
       }
     }
-    const home = { tenant: ref.tenant, session: ref.session };
-    for (const e of req.logbook) args.push(e.id, String(Math.floor(e.atMs)), encodeLogbook(e, ref.user, kf, { ...home, id: e.id }));
+    const home: RecordHome = { tenant: ref.tenant, session: ref.session, ...(ref.user !== undefined ? { user: ref.user } : {}) };
+    for (const e of req.logbook) {
+      const rec = encodeRecord(e, ref.user, kf, home, turnEntryId);
+      args.push(String(rec.at), rec.body);
+    }
     for (const ev of req.events) args.push(JSON.stringify(ev));
     // [stats] Counter increments (field, delta) close the list; the script adds them on a single Redis.
     for (const [field, n] of Object.entries(req.counters ?? {})) if (Number.isInteger(n) && n !== 0) args.push(field, n);
@@ -897,21 +976,34 @@ export class RedisSlotStore implements Store {
     let replies: unknown[];
     try {
       const c = await this.conn('searchLogbook');
-      sessions = user !== undefined ? await c.smembers(this.keys.userSessions(scope.tenant, user)) : [(scope as { session: string }).session];
-      replies = await Promise.all(
-        sessions.map((s) => {
-          const k = this.keys.session(scope.tenant, s);
-          const cached = sc.sessions.get(s);
-          const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
-          return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0]);
-        }),
-      );
+      const fetch = (s: string): Promise<unknown> => {
+        const k = this.keys.session(scope.tenant, s);
+        const cached = sc.sessions.get(s);
+        const keys = user !== undefined ? [k.meta, k.uarch, k.ualog] : [k.meta, k.arch, k.alog];
+        return runScript(c, LOG_FETCH, keys, [user !== undefined ? 'au' : 'as', user !== undefined ? 'auh' : 'ah', cached ? `=${cached.epoch}` : '', cached ? cached.end : 0, user !== undefined ? 'aun' : 'an']);
+      };
+      if (user === undefined) {
+        sessions = [(scope as { session: string }).session];
+        replies = [await fetch(sessions[0]!)];
+      } else {
+        // The slices this process already holds are fetched beside SMEMBERS (one round trip when the
+        // user's sessions are unchanged); a session new to the set is fetched after it. Every fetch
+        // starts after the search did, so each sees what was committed before.
+        const known = [...sc.sessions.keys()];
+        const [members, ...early] = await Promise.all([c.smembers(this.keys.userSessions(scope.tenant, user)), ...known.map(fetch)]);
+        sessions = members as string[];
+        const got = new Map<string, unknown>(known.map((s, i) => [s, early[i]]));
+        const missing = sessions.filter((s) => !got.has(s));
+        const late = await Promise.all(missing.map(fetch));
+        missing.forEach((s, i) => got.set(s, late[i]));
+        replies = sessions.map((s) => got.get(s));
+      }
     } catch (err) {
       throw unavailable('searchLogbook', err);
     }
     const live = new Set(sessions);
     /** Payloads that failed their check, per session: (id, payload) pairs to move aside. */
-    const bad = new Map<string, Array<string | Buffer>>();
+    const bad = new Map<string, { pairs: Array<string | Buffer>; blocks: boolean }>();
     for (const s of [...sc.sessions.keys()]) if (!live.has(s)) this.dropScopeSession(sc, s);
     sessions.forEach((s, i) => {
       const r = replies[i] as unknown[] | null;
@@ -938,34 +1030,69 @@ export class RedisSlotStore implements Store {
         this.dropScopeSession(sc, s);
         cached = undefined;
       }
-      const els = (r[4] as Buffer[]).map(str);
+      const els = r[4] as Buffer[];
       const vals = r[5] as Array<Buffer | null | false>;
+      let skip = delta ? num(r[6] ?? 0, 'logbook skip', true) : 0;
       const entry: ScopeSession = cached ?? { epoch, head, end: head, ids: [] };
       const fresh: LogbookEntry[] = [];
-      els.forEach((el, j) => {
-        const v = vals[j];
-        const id = elementId(el);
-        if (!v) {
-          entry.ids.push('');
-          return;
-        }
-        let e: LogbookEntry;
-        try {
-          e = decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id });
-        } catch (err) {
-          if (!(err instanceof StoreError) || err.code !== ErrorCodes.STORE_CORRUPT) throw err;
-          // Kept aside (below), not trusted and not fatal: the scope is searched without it.
-          if (!bad.has(s)) bad.set(s, []);
-          bad.get(s)!.push(id, v as Buffer);
-          entry.ids.push('');
-          return;
-        }
-        if (user !== undefined && e.user !== user) {
+      const home: RecordHome = { tenant: scope.tenant, session: s, ...(user !== undefined ? { user } : {}) };
+      const take = (e: LogbookEntry | null, id: string): void => {
+        if (!e || (user !== undefined && e.user !== user)) {
           entry.ids.push('');
           return;
         }
         entry.ids.push(id);
         fresh.push(e);
+      };
+      // A record or payload that fails its check is not trusted and not fatal: the scope is searched
+      // without it, and it is moved aside below (quarantineLog).
+      const spoilt = (): void => {
+        if (!bad.has(s)) bad.set(s, { pairs: [], blocks: false });
+        bad.get(s)!.blocks = true;
+      };
+      els.forEach((el, j) => {
+        if (isBlock(el)) {
+          const blk = readBlock(el);
+          if (!blk) {
+            // Unreadable as a whole: its positions stay (as the script counts them), its entries unknown.
+            spoilt();
+            for (let n = blockCount(el); n > 0; n--) {
+              if (skip > 0) skip--;
+              else entry.ids.push('');
+            }
+            return;
+          }
+          for (const rec of blk.records) {
+            if (skip > 0) {
+              skip--;
+              continue;
+            }
+            const e = decodeOrNull(() => decodeRecord(rec.body, rec.at, 'logbook record', home, turnEntryId));
+            if (e === null) {
+              spoilt();
+              entry.ids.push('');
+            } else take(e, e.id);
+          }
+          return;
+        }
+        const id = elementId(str(el));
+        const v = vals[j];
+        if (skip > 0) {
+          skip--;
+          return;
+        }
+        if (!v) {
+          entry.ids.push('');
+          return;
+        }
+        const e = decodeOrNull(() => decodeLogbook(v as Buffer, 'logbook entry payload', { tenant: scope.tenant, session: s, id }));
+        if (e === null) {
+          if (!bad.has(s)) bad.set(s, { pairs: [], blocks: false });
+          bad.get(s)!.pairs.push(id, v as Buffer);
+          entry.ids.push('');
+          return;
+        }
+        take(e, id);
       });
       // A full fetch comes in log order already; neighbours link by seq either way.
       for (const e of fresh) sc.index.add(e);
@@ -973,18 +1100,46 @@ export class RedisSlotStore implements Store {
       entry.end = end;
       sc.sessions.set(s, entry);
     });
-    for (const [s, pairs] of bad) await this.quarantineLog(scope.tenant, s, user !== undefined ? 'u' : 's', pairs);
+    for (const [s, b] of bad) await this.quarantineLog(scope, s, b.pairs, b.blocks);
     return sc;
   }
 
-  /** Moves logbook payloads that failed their check aside (LOG_QUARANTINE) and tells the listeners. */
-  private async quarantineLog(tenant: string, session: string, slice: 's' | 'u', pairs: Array<string | Buffer>): Promise<void> {
+  /**
+   * Moves logbook records that failed their check aside (LOG_QUARANTINE) and tells the listeners:
+   * payloads of a log written before blocks as the reader saw them; for blocks, the slice is fetched
+   * in full and every block holding a bad record is sent as seen and without it (the script changes
+   * only blocks still as seen; one changed meanwhile is left for the next search to find).
+   */
+  private async quarantineLog(scope: LogbookScope, session: string, pairs: Array<string | Buffer>, blocks: boolean): Promise<void> {
+    const tenant = scope.tenant;
+    const user = 'user' in scope ? scope.user : undefined;
     const k = this.keys.session(tenant, session);
     let moved: number;
     try {
       const c = await this.conn('quarantine');
+      const quads: Array<string | number | Buffer> = [];
+      if (blocks) {
+        const log = user !== undefined ? k.ualog : k.alog;
+        const args = user !== undefined ? ['au', 'auh', '', 0, 'aun'] : ['as', 'ah', '', 0, 'an'];
+        const r = (await runScript(c, LOG_FETCH, [k.meta, user !== undefined ? k.uarch : k.arch, log], args)) as unknown[] | null;
+        const home: RecordHome = { tenant, session, ...(user !== undefined ? { user } : {}) };
+        ((r?.[4] as Buffer[] | undefined) ?? []).forEach((el, i) => {
+          if (!isBlock(el)) return;
+          const blk = readBlock(el);
+          if (!blk) {
+            quads.push(i, el, '', 1, `block${blockBase(el)}`, el);
+            return;
+          }
+          const keep = blk.records.filter((rec) => recordId(rec, home) !== null);
+          if (keep.length === blk.records.length) return;
+          const kept = blk.records.filter((rec) => !keep.includes(rec));
+          quads.push(i, el, keep.length > 0 ? joinBlock(blk.header, keep) : '', kept.length);
+          kept.forEach((rec, j) => quads.push(`at${rec.at}.${j}`, rec.raw));
+        });
+      }
+      if (pairs.length === 0 && quads.length === 0) return;
       const ttl = Math.max(this.o.idleTtlSeconds, this.o.fenceTtlSeconds);
-      moved = Number(await this.counted(c, tenant, LOG_QUARANTINE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, k.quarantine], [slice, ttl, ...pairs]));
+      moved = Number(await this.counted(c, tenant, LOG_QUARANTINE, [k.meta, k.slots, k.arch, k.uarch, k.alog, k.ualog, k.born, k.quarantine], [user !== undefined ? 'u' : 's', ttl, token(), pairs.length / 2, ...pairs, ...quads]));
     } catch (err) {
       throw unavailable('quarantine', err);
     }
@@ -1011,6 +1166,34 @@ export class RedisSlotStore implements Store {
     this.scopes.delete(key);
     sc.index.clear();
     sc.sessions.clear();
+  }
+
+  /**
+   * Compresses a block a commit just closed and puts it in place of the open form, if still there
+   * (SEAL compares bytes). Off the commit's path: the turn does not wait; a failure leaves the block
+   * open, which reads the same.
+   */
+  private seal(log: string, closed: Buffer): void {
+    let sealedForm: Buffer;
+    try {
+      sealedForm = sealBlock(closed, 'closed logbook block');
+    } catch {
+      return;
+    }
+    if (sealedForm.length >= closed.length) return;
+    const p = this.conn('seal')
+      .then((c) => runScript(c, SEAL, [log], [closed, sealedForm]))
+      .then((n) => {
+        if (Number(n) === 1) this.sealed++;
+      })
+      .catch(() => undefined);
+    this.sealing.add(p);
+    void p.finally(() => this.sealing.delete(p));
+  }
+
+  /** Resolves when the seals this process started have settled (benchmarks measure after them). */
+  async settled(): Promise<void> {
+    while (this.sealing.size > 0) await Promise.all([...this.sealing]);
   }
 
   private forget(tenant: string, session: string, k: SessionKeys, user: string): void {

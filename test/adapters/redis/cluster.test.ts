@@ -79,8 +79,8 @@ describe.skipIf(down !== null)(`redis cluster store${down ? ` (skipped: ${down})
     const store = redisSlotStore({ redis: admin, prefix });
     const ref = { tenant: 'acme', session: 'bye', user: 'u-bye' };
     await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
-    // meta, slots, events, uarch, ualog, slot birth times, applied commit ids + the user's set
-    expect((await dataKeys()).length).toBe(8);
+    // meta, slots, events, ualog (the logbook's blocks), slot birth times, applied commit ids + the user's set
+    expect((await dataKeys()).length).toBe(7);
     await store.erase({ tenant: 'acme', session: 'bye' });
     // The session's keys are gone; the user's set no longer names it (it is empty, so Redis dropped it).
     expect(await dataKeys()).toEqual([]);

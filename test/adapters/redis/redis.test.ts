@@ -8,10 +8,36 @@ import type { Redis } from 'ioredis';
 import { REDIS_SLOT_STORE_DEFAULTS, RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { slotTermsCached } from '../../../src/memory/rank.js';
+import { buildBlocks, encodeLogbook, encodeRecord, splitBlock } from '../../../adapters/redis/codec.js';
+import { turnEntryId } from '../../../src/middleware/write.js';
 import { demotedItem, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
 import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
+
+/** The logbook entries a slice holds, counted from its log: a block's live records, an older element's payload in the hash. */
+async function entriesHeld(r: Redis, hash: string, log: string): Promise<number> {
+  let n = 0;
+  for (const el of await r.lrangeBuffer(log, 0, -1)) {
+    if (el[0] === 0 || el[0] === 1) n += splitBlock(el, 'test').records.length;
+    else n += await r.hexists(hash, el.toString().replace(/^-?\d+:/, ''));
+  }
+  return n;
+}
+
+/**
+ * Flips the last byte of one record's body in the open block at the tail of a log (so the block still
+ * splits, and that record fails its check); resolves to the record's bytes as now stored.
+ */
+async function tamperRecord(r: Redis, log: string, record: number): Promise<Buffer> {
+  const el = Buffer.from((await r.lindexBuffer(log, -1))!);
+  expect(el[0]).toBe(0);
+  const rec = splitBlock(el, 'test').records[record]!;
+  const at = el.indexOf(rec.raw) + rec.raw.length - 1;
+  el[at]! ^= 0x01;
+  await r.lset(log, -1, el);
+  return splitBlock(el, 'test').records[record]!.raw;
+}
 const prefixes: string[] = [];
 const prefixFor = (tag: string): string => {
   const p = uniquePrefix(tag);
@@ -88,7 +114,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
               if ((await admin.exists(k.meta)) === 0) continue;
               truth.sessions++;
               truth.slots += await admin.hlen(k.slots);
-              truth.logbookEntries += (await admin.hlen(k.arch)) + (await admin.hlen(k.uarch));
+              truth.logbookEntries += (await entriesHeld(admin, k.arch, k.alog)) + (await entriesHeld(admin, k.uarch, k.ualog));
             }
             expect(await figures(store, tenant)).toEqual(truth);
             await store.erase({ tenant, user: 'pu' });
@@ -275,9 +301,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 't', session: 'tamper-log', user: 'u-tl' };
       await store.commit(ref, commitOf({ logbook: [turnEntry(1, ref, 'my saddle is a brown leather one'), turnEntry(3, ref, 'my saddle bag is waxed canvas')] }));
       const k = store.sessionKeys('t', 'tamper-log');
-      const raw = (await admin.hgetBuffer(k.uarch, `T-tamper-log-1`))!;
-      raw[raw.length - 1] ^= 0x01;
-      await admin.hset(k.uarch, `T-tamper-log-1`, raw);
+      const raw = await tamperRecord(admin, k.ualog, 0);
       const fresh = redisSlotStore({ redis: await store.redis(), prefix });
       const heard: Array<{ session: string; entries: number }> = [];
       fresh.watchQuarantine((e) => heard.push({ session: e.session, entries: e.entries }));
@@ -288,9 +312,9 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(fresh.quarantinedEntries).toBe(1);
       const kept = await admin.hgetallBuffer(k.quarantine);
       expect(Object.keys(kept)).toHaveLength(1);
-      expect(Object.keys(kept)[0]).toMatch(/^log:T-tamper-log-1@\d+$/);
+      expect(Object.keys(kept)[0]).toMatch(/^log:at\d+\.0@\d+$/);
       expect(Object.values(kept)[0]!.equals(raw)).toBe(true);
-      expect(await admin.hexists(k.uarch, 'T-tamper-log-1')).toBe(0);
+      expect(await admin.hget(k.meta, 'aun')).toBe('1');
       // Another process reading afresh finds nothing left to move and reports nothing.
       const third = redisSlotStore({ redis: await store.redis(), prefix });
       third.watchQuarantine(() => heard.push({ session: 'again', entries: 0 }));
@@ -311,11 +335,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
         await writer.write({ session: 'lg', user: 'u-lg', text: 'My saddle is a brown leather one.' });
         await writer.write({ session: 'lg', user: 'u-lg', text: 'My pump is a yellow track pump.' });
         const k = redisSlotStore({ prefix: p3, redis: await store.redis() }).sessionKeys('default', 'lg');
-        const fields = await admin.hkeys(k.uarch);
-        const target = fields[0]!;
-        const raw = (await admin.hgetBuffer(k.uarch, target))!;
-        raw[raw.length - 1] ^= 0x01;
-        await admin.hset(k.uarch, target, raw);
+        await tamperRecord(admin, k.ualog, 0);
         const errors: Array<{ code: string; details: unknown }> = [];
         const degraded: string[] = [];
         reader.on('error', (e) => errors.push({ code: e.error.code, details: e.error.details }));
@@ -355,16 +375,115 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       }
     });
 
-    it('a truncated session-scope logbook payload is never decoded: search goes on without it, the payload kept aside', async () => {
+    it('a log written before blocks (hash payloads, atMs:id elements) still reads, and takes blocks after it: listing, delta reads, delete and retention span both', async () => {
+      const ref = { tenant: 't', session: 'legacy-log' };
+      const scope = { tenant: 't', session: 'legacy-log' };
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      const k = store.sessionKeys('t', 'legacy-log');
+      // As 0.2 wrote it: one hash field per entry, one log element `atMs:id`, no entry count in meta.
+      await admin.hdel(k.meta, 'an');
+      for (const n of [1, 2, 3]) {
+        const e = turnEntry(n, ref, `older note ${n} about canoes`);
+        await admin.hset(k.arch, e.id, encodeLogbook(e, undefined, 'int8', { tenant: 't', session: 'legacy-log', id: e.id }));
+        await admin.rpush(k.alog, `${e.atMs}:${e.id}`);
+      }
+      await admin.hset(k.meta, 'as', 'moved');
+      const reader = redisSlotStore({ redis: admin, prefix });
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([3, 2, 1]);
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [4, 5].map((n) => turnEntry(n, ref, `newer note ${n} about canoes`)) }));
+      expect(await admin.hget(k.meta, 'an')).toBe('5');
+      const els = await admin.lrangeBuffer(k.alog, 0, -1);
+      expect(els.map((e) => e[0] === 0)).toEqual([false, false, false, true]);
+      // The reader that saw the three old entries gets the two new ones as a delta.
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([5, 4, 3, 2, 1]);
+      expect((await searchText(reader, scope, 'canoes')).hits).toHaveLength(5);
+      expect(await reader.deleteLogbook(scope, [turnEntry(2, ref, '').id, turnEntry(5, ref, '').id, 'nope'])).toBe(2);
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([4, 3, 1]);
+      expect(await admin.hget(k.meta, 'an')).toBe('3');
+      // Retention by count takes the oldest first, across the old elements and into the block.
+      const r = await store.commit(ref, commitOf({ expectedVersion: 2, logbook: [turnEntry(6, ref, 'latest note about canoes')], retention: { policy: { maxAgeMs: 0, maxEntries: 2 }, nowMs: Date.now() } }));
+      expect(r).toEqual({ ok: true, version: 3, dropped: { age: 0, count: 2 } });
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([6, 4]);
+      expect(await admin.hlen(k.arch)).toBe(0);
+      expect(await store.erase({ tenant: 't', session: 'legacy-log' })).toMatchObject({ logbookEntries: 2 });
+    });
+
+    it('appended turns share blocks, cut where the codec\'s reference builder cuts them, and a reader that looked between commits gets the rest', async () => {
+      const ref = { tenant: 't', session: 'blocks' };
+      const scope = { tenant: 't', session: 'blocks' };
+      const reader = redisSlotStore({ redis: admin, prefix });
+      for (let v = 0; v < 75; v++) {
+        await store.commit(ref, commitOf({ expectedVersion: v, logbook: [2 * v + 1, 2 * v + 2].map((n) => turnEntry(n, ref, `note ${n} on the tandem`)) }));
+        if (v === 40) expect(await reader.listLogbook(scope, { limit: 1000 })).toHaveLength(82);
+      }
+      const k = store.sessionKeys('t', 'blocks');
+      const want = buildBlocks(Array.from({ length: 150 }, (_, i) => encodeRecord(turnEntry(i + 1, ref, `note ${i + 1} on the tandem`), undefined, 'int8', ref, turnEntryId)));
+      expect(want.length).toBeLessThan(10);
+      await store.settled();
+      const got = await admin.lrangeBuffer(k.alog, 0, -1);
+      // Every block the commits closed is sealed (compressed, shorter); the open one at the tail is as built.
+      expect(got.map((b) => b[0])).toEqual(want.map((_, i) => (i < want.length - 1 ? 1 : 0)));
+      got.slice(0, -1).forEach((b, i) => expect(b.length).toBeLessThan(want[i]!.length));
+      expect(got.map((b) => splitBlock(b, 'test').records.map((r) => r.raw.toString('hex')))).toEqual(want.map((b) => splitBlock(b, 'test').records.map((r) => r.raw.toString('hex'))));
+      expect(got.at(-1)).toEqual(want.at(-1));
+      expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 150 }, (_, i) => 150 - i));
+      // Retention and delete reach into sealed blocks: the oldest 70 go (a block and a part of the next),
+      // then one entry in the middle of a sealed block.
+      const kept = await store.commit(ref, commitOf({ expectedVersion: 75, retention: { policy: { maxAgeMs: 0, maxEntries: 80 }, nowMs: Date.now() } }));
+      expect(kept).toMatchObject({ ok: true, dropped: { age: 0, count: 70 } });
+      expect(await reader.deleteLogbook(scope, [turnEntry(100, ref, '').id])).toBe(1);
+      expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 80 }, (_, i) => 150 - i).filter((n) => n !== 100));
+      expect(await admin.hget(k.meta, 'an')).toBe('79');
+    });
+
+    it('a record of a logbook block that fails its check is never decoded: search goes on without it, the record kept aside', async () => {
       const ref = { tenant: 't', session: 'tamper-arch' };
       await store.commit(ref, commitOf({ logbook: [demotedItem(1, ref), demotedItem(2, ref)] }));
       const k = store.sessionKeys('t', 'tamper-arch');
-      const raw = (await admin.hgetBuffer(k.arch, 'a1'))!;
-      await admin.hset(k.arch, 'a1', raw.subarray(0, raw.length - 3));
+      const raw = Buffer.from((await admin.lindexBuffer(k.alog, -1))!);
+      raw[raw.length - 1] ^= 0x55; // one byte of the record's value
+      await admin.lset(k.alog, -1, raw);
       await admin.hset(k.meta, 'as', 'moved'); // as a real writer would, so the cached copy is refreshed
+      const bad = splitBlock(Buffer.from(raw), 'test').records[1]!; // the block still splits: only a2's body fails its check
+      const before = (await store.stats('t')).logbookEntries;
       const hits = (await searchText(store, { tenant: 't', session: 'tamper-arch' }, 'old value')).hits.map((h) => h.entry.id);
-      expect(hits).toEqual(['a2']);
-      expect(Object.keys(await admin.hgetall(k.quarantine))).toEqual([expect.stringMatching(/^log:a1@/)]);
+      expect(hits).toEqual(['a1']);
+      const kept = await admin.hgetallBuffer(k.quarantine);
+      expect(Object.keys(kept)).toEqual([expect.stringMatching(new RegExp(`^log:at${bad.at}\\.0@\\d+$`))]);
+      expect(Object.values(kept)[0]!.equals(bad.raw)).toBe(true);
+      // The block keeps its good record; the entry count and the store's counter drop by the one kept aside.
+      expect(splitBlock((await admin.lindexBuffer(k.alog, -1))!, 'test').records).toHaveLength(1);
+      expect(await admin.hget(k.meta, 'an')).toBe('1');
+      expect((await store.stats('t')).logbookEntries).toBe(before - 1);
+      expect((await searchText(redisSlotStore({ redis: admin, prefix }), { tenant: 't', session: 'tamper-arch' }, 'old value')).hits.map((h) => h.entry.id)).toEqual(['a1']);
+      expect(Object.keys(await admin.hgetall(k.quarantine))).toHaveLength(1);
+    });
+
+    it('a logbook block that cannot be read at all is kept aside whole; the entries after it stay searchable and counted', async () => {
+      const ref = { tenant: 't', session: 'tamper-block' };
+      const scope = { tenant: 't', session: 'tamper-block' };
+      const home = { tenant: 't', session: 'tamper-block' };
+      const k = store.sessionKeys('t', 'tamper-block');
+      await store.commit(ref, commitOf({ logbook: [turnEntry(1, ref, 'my bell is brass')] }));
+      // A second block after the first (as the commit script starts one past BLOCK_RECORDS or BLOCK_BYTES).
+      const [second] = buildBlocks([encodeRecord(turnEntry(2, ref, 'my bell is loud'), undefined, 'int8', home, turnEntryId)]);
+      await admin.rpush(k.alog, second!);
+      await admin.hset(k.meta, 'an', 2, 'as', 'moved');
+      const first = Buffer.from((await admin.lindexBuffer(k.alog, 0))!);
+      first[1] = 9; // the header names 9 records: the block no longer splits
+      await admin.lset(k.alog, 0, first);
+      const reader = redisSlotStore({ redis: admin, prefix });
+      const heard: number[] = [];
+      reader.watchQuarantine((e) => heard.push(e.entries));
+      expect((await searchText(reader, scope, 'bell')).hits.map((h) => h.entry.seq)).toEqual([2]);
+      // The header's 9 is not trusted: the entry count is counted again from what is left, so one went.
+      expect(heard).toEqual([1]);
+      const kept = await admin.hgetallBuffer(k.quarantine);
+      expect(Object.keys(kept)).toEqual([expect.stringMatching(/^log:block\d+@\d+$/)]);
+      expect(Object.values(kept)[0]!.equals(first)).toBe(true);
+      expect(await admin.llen(k.alog)).toBe(1);
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([2]);
+      expect(await store.erase({ tenant: 't', session: 'tamper-block' })).toMatchObject({ logbookEntries: 1 });
     });
   });
 
@@ -522,7 +641,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       const k = store.sessionKeys('acme', 'ttl');
-      for (const key of [k.meta, k.slots, k.events, k.uarch, k.ualog]) {
+      for (const key of [k.meta, k.slots, k.events, k.ualog]) {
         const ttl = await client.ttl(key);
         expect(ttl, key).toBeGreaterThan(110);
         expect(ttl, key).toBeLessThanOrEqual(120);
@@ -541,8 +660,8 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       for (const ref of [a, b, c]) {
         await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
       }
-      // meta, slots, events, (u)arch, (u)alog, slot birth times, plus the applied commit ids
-      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(7 * 3);
+      // meta, slots, events, (u)alog (the logbook's blocks), slot birth times, plus the applied commit ids
+      expect(await scanKeys(client, `${prefix}{acme:gone-*`)).toHaveLength(6 * 3);
       expect(await scanKeys(client, store.userSessionsKey('acme', 'u-gone'))).toHaveLength(1);
       expect(await store.erase({ tenant: 'acme', user: 'u-gone' })).toEqual({ sessions: 2, slots: 2, logbookEntries: 2, events: 2 });
       expect(await store.erase({ tenant: 'acme', session: 'gone-3' })).toEqual({ sessions: 1, slots: 1, logbookEntries: 1, events: 1 });
