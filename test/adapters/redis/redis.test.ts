@@ -375,6 +375,68 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       }
     });
 
+    it('the retention sweep takes expired entries from old elements and into a sealed block; counts, heads and readers follow', async () => {
+      const T = 1_600_000_000_000;
+      const ref = { tenant: 'tsw', session: 'swept' };
+      const scope = { tenant: 'tsw', session: 'swept' };
+      const k = store.sessionKeys('tsw', 'swept');
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      await admin.hdel(k.meta, 'an');
+      for (const n of [1, 2, 3]) {
+        const e = turnEntry(n, ref, `older note ${n} about the trailer`, { atMs: T + n });
+        await admin.hset(k.arch, e.id, encodeLogbook(e, undefined, 'int8', { tenant: 'tsw', session: 'swept', id: e.id }));
+        await admin.rpush(k.alog, `${e.atMs}:${e.id}`);
+      }
+      // 130 entries in one commit: a block cut at the block size (closed, then sealed) and an open one.
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: Array.from({ length: 130 }, (_, i) => turnEntry(i + 4, ref, `note ${i + 4} about the trailer`, { atMs: T + i + 4 })) }));
+      await store.settled();
+      expect((await admin.lrangeBuffer(k.alog, 0, -1)).map((e) => (e[0]! > 1 ? 'old' : e[0]))).toEqual(['old', 'old', 'old', 1, 0]);
+      const reader = redisSlotStore({ redis: admin, prefix });
+      expect(await reader.listLogbook(scope, { limit: 1000 })).toHaveLength(133);
+      expect((await store.stats('tsw')).logbookEntries).toBe(133);
+      // Entries before T + 54: the 3 old ones and the first 50 of the sealed block.
+      expect(await store.sweep({ tenant: 'tsw', slotCutoffMs: 0, logbookCutoffMs: T + 54 })).toMatchObject({ logbookEntries: 53 });
+      expect(await admin.hlen(k.arch)).toBe(0);
+      const head = (await admin.lindexBuffer(k.alog, 0))!;
+      // Sealed, its dead count moved on by 50 (its records past them still there).
+      expect([head[0], head[2]]).toEqual([1, 50]);
+      expect(head[1]).toBeGreaterThan(50);
+      expect(await admin.hmget(k.meta, 'an', 'ah')).toEqual(['80', '53']);
+      expect((await store.stats('tsw')).logbookEntries).toBe(80);
+      expect((await reader.listLogbook(scope, { limit: 1000 })).map((e) => e.seq)).toEqual(Array.from({ length: 80 }, (_, i) => 133 - i));
+      // A second pass finds nothing more; the oldest-entry index now names the sealed block's first live time.
+      expect(await store.sweep({ tenant: 'tsw', slotCutoffMs: 0, logbookCutoffMs: T + 54 })).toMatchObject({ logbookEntries: 0 });
+      expect(await admin.zscore(`${store.sessionKeys('tsw', '').meta.slice(0, -':meta'.length)}:oldlog`, k.meta.slice(0, -':meta'.length))).toBe(String(T + 54));
+      await store.erase({ tenant: 'tsw', session: 'swept' });
+      expect((await store.stats('tsw')).logbookEntries).toBe(0);
+    });
+
+    it('the per-user cap takes named records from the head of blocks, and one elsewhere in a block as a delete does', async () => {
+      const T = 1_600_000_000_000;
+      const c1 = { tenant: 'tcap', session: 'c1', user: 'ucap' };
+      const c2 = { tenant: 'tcap', session: 'c2', user: 'ucap' };
+      const scope = { tenant: 'tcap', user: 'ucap' };
+      const k1 = store.sessionKeys('tcap', 'c1');
+      const retention = { policy: { maxAgeMs: 0, maxEntries: 4 }, nowMs: T + 200 };
+      await store.commit(c1, commitOf({ logbook: [1, 2].map((n) => turnEntry(n, c1, `bell note ${n}`, { atMs: T + 100 + n })), retention }));
+      // An entry filed with an older time than those c1 already holds: the scope's oldest is not at c1's head.
+      await store.commit(c1, commitOf({ expectedVersion: 1, logbook: [turnEntry(3, c1, 'bell note 3', { atMs: T + 3 })], retention }));
+      const r = await store.commit(c2, commitOf({ logbook: [4, 5].map((n) => turnEntry(n, c2, `bell note ${n}`, { atMs: T + 150 + n })), retention }));
+      expect(r).toMatchObject({ ok: true, dropped: { count: 1 } });
+      const seqs = async (): Promise<number[]> => (await redisSlotStore({ redis: admin, prefix }).listLogbook(scope, { limit: 100 })).map((e) => e.seq).sort();
+      expect(await seqs()).toEqual([1, 2, 4, 5]);
+      expect(await admin.hget(k1.meta, 'aun')).toBe('2');
+      // Then the head: the next entry pushes out the oldest by time, c1's first record.
+      const r2 = await store.commit(c2, commitOf({ expectedVersion: 1, logbook: [turnEntry(6, c2, 'bell note 6', { atMs: T + 160 })], retention }));
+      expect(r2).toMatchObject({ ok: true, dropped: { count: 1 } });
+      expect(await seqs()).toEqual([2, 4, 5, 6]);
+      expect(await admin.hmget(k1.meta, 'aun', 'auh')).toEqual(['1', '1']);
+      expect((await store.stats('tcap')).logbookEntries).toBe(4);
+      expect(await admin.zcard(`${prefix}{tcap:u:ucap}:entries`)).toBe(4);
+      await store.erase({ tenant: 'tcap', user: 'ucap' });
+      expect((await store.stats('tcap')).logbookEntries).toBe(0);
+    });
+
     it('a log written before blocks (hash payloads, atMs:id elements) still reads, and takes blocks after it: listing, delta reads, delete and retention span both', async () => {
       const ref = { tenant: 't', session: 'legacy-log' };
       const scope = { tenant: 't', session: 'legacy-log' };
