@@ -651,7 +651,8 @@ return ttl == -2 and 1 or 0
  * Move logbook records that failed their check aside, so searches of the scope keep working.
  * A payload of a log written before blocks, still equal to what the reader saw, goes from the slice's
  * hash to the session's quarantine hash (field `log:id@seconds`); its log element stays as a deleted
- * entry's does (readers skip it; retention pops it uncounted), so no position moves. A block holding a
+ * entry's does (readers skip it; retention pops it uncounted), so no position moves — unless blocks
+ * follow the old elements (meta counts the log's entries, `an` / `aun`): then the element goes too. A block holding a
  * bad record is replaced, if still as the reader saw it, by the block without it ('' = the whole block
  * goes, when it cannot be read at all), the bad bytes kept under `log:name@seconds`; positions move, so
  * the slice's epoch moves (readers fetch it again in full) and its entry count (`an` / `aun`) is
@@ -668,11 +669,13 @@ if ARGV[1] == 'u' then h, log, ef, cf = KEYS[4], KEYS[6], 'au', 'aun' end
 local t = redis.call('TIME')
 local moved = 0
 local a = 5
+local olds = {}
 for i = 1, tonumber(ARGV[4]) do
   local cur = redis.call('HGET', h, ARGV[a])
   if cur and cur == ARGV[a + 1] then
     redis.call('HSET', KEYS[8], 'log:' .. ARGV[a] .. '@' .. t[1], cur)
     redis.call('HDEL', h, ARGV[a])
+    olds[ARGV[a]] = true
     moved = moved + 1
   end
   a = a + 2
@@ -700,13 +703,22 @@ for _, b in ipairs(todo) do
   end
 end
 if gone then redis.call('LREM', log, 0, '\\0\\0gone') end
-if #todo > 0 and redis.call('EXISTS', KEYS[1]) == 1 then
+-- A log that has blocks after its old elements counts entries in meta (an / aun), one per element:
+-- there the element goes too (the count is counted again and the epoch moves).
+local recount, unlisted = false, 0
+if moved > 0 and redis.call('HEXISTS', KEYS[1], cf) == 1 then
+  for _, e in ipairs(redis.call('LRANGE', log, 0, -1)) do
+    if string.byte(e, 1) > 1 and olds[string.match(e, '^%-?%d+:(.*)$') or e] then unlisted = unlisted + redis.call('LREM', log, 1, e) end
+  end
+  recount = true
+end
+if (#todo > 0 or recount) and redis.call('EXISTS', KEYS[1]) == 1 then
   -- The entry count is counted again from the elements left (as LOG_FETCH counts them): a block too
   -- damaged to read may say any count in its header, so what it held is the count's drop.
   local c = tonumber(redis.call('HGET', KEYS[1], cf) or '-1')
   local left = 0
   for _, e in ipairs(redis.call('LRANGE', log, 0, -1)) do left = left + bcount(e) end
-  if c >= 0 then lost = math.max(0, c - left) end
+  if c >= 0 and #todo > 0 then lost = math.max(0, c - left - unlisted) end
   redis.call('HSET', KEYS[1], cf, left, ef, ARGV[3])
 end
 moved = moved + lost

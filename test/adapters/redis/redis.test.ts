@@ -437,6 +437,33 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect((await store.stats('tcap')).logbookEntries).toBe(0);
     });
 
+    it('a bad payload of a log written before blocks, with blocks after it, is kept aside with its element: count and counter follow', async () => {
+      const ref = { tenant: 'tmix', session: 'mixed' };
+      const scope = { tenant: 'tmix', session: 'mixed' };
+      const k = store.sessionKeys('tmix', 'mixed');
+      await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      await admin.hdel(k.meta, 'an');
+      for (const n of [1, 2, 3]) {
+        const e = turnEntry(n, ref, `older note ${n} about kayaks`);
+        await admin.hset(k.arch, e.id, encodeLogbook(e, undefined, 'int8', { tenant: 'tmix', session: 'mixed', id: e.id }));
+        await admin.rpush(k.alog, `${e.atMs}:${e.id}`);
+      }
+      await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [4, 5].map((n) => turnEntry(n, ref, `newer note ${n} about kayaks`)) }));
+      expect((await store.stats('tmix')).logbookEntries).toBe(5);
+      const id2 = turnEntry(2, ref, '').id;
+      const raw = (await admin.hgetBuffer(k.arch, id2))!;
+      await admin.hset(k.arch, id2, raw.subarray(0, raw.length - 3));
+      const reader = redisSlotStore({ redis: admin, prefix });
+      expect((await searchText(reader, scope, 'kayaks')).hits.map((h) => h.entry.seq).sort()).toEqual([1, 3, 4, 5]);
+      expect(Object.keys(await admin.hgetall(k.quarantine))).toEqual([expect.stringMatching(new RegExp(`^log:${id2}@\\d+$`))]);
+      expect(await admin.llen(k.alog)).toBe(3);
+      expect(await admin.hget(k.meta, 'an')).toBe('4');
+      expect((await store.stats('tmix')).logbookEntries).toBe(4);
+      expect((await reader.listLogbook(scope)).map((e) => e.seq)).toEqual([5, 4, 3, 1]);
+      expect(await store.erase({ tenant: 'tmix', session: 'mixed' })).toMatchObject({ logbookEntries: 4 });
+      expect((await store.stats('tmix')).logbookEntries).toBe(0);
+    });
+
     it('a log written before blocks (hash payloads, atMs:id elements) still reads, and takes blocks after it: listing, delta reads, delete and retention span both', async () => {
       const ref = { tenant: 't', session: 'legacy-log' };
       const scope = { tenant: 't', session: 'legacy-log' };
