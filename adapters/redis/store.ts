@@ -881,9 +881,13 @@ export class RedisSlotStore implements Store {
     const policy = req.retention?.policy;
     const cutoff = policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
     const f = req.fence;
+    // A user's slice is held to \`maxEntries\` by the user's cap over the whole scope (capUser), which
+    // takes the oldest from the head of the slices; the commit trimming its slice as well would leave
+    // the cap index naming entries already gone (each then looked for through the whole slice).
+    const maxEntries = ref.user && req.logbook.length > 0 ? 0 : (policy?.maxEntries ?? 0);
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
-      this.o.idleTtlSeconds, this.o.maxEvents, policy?.maxEntries ?? 0, cutoff, req.ops.length, req.logbook.length, req.events.length,
+      this.o.idleTtlSeconds, this.o.maxEvents, maxEntries, cutoff, req.ops.length, req.logbook.length, req.events.length,
       f?.seen ? f.seen.session : '', f ? Math.floor(f.acceptedMs) : '', this.o.fenceTtlSeconds,
     ];
     const keys: (Float32Array | null)[] = [];
