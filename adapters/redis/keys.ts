@@ -35,11 +35,15 @@ export interface SessionKeys {
   slots: string;
   /** Stream of events, field `e` = JSON. */
   events: string;
-  /** Hash: entry id -> logbook entry payload, items of the session scope. */
+  /** Hash: entry id -> logbook entry payload, of the session scope, for logs written before blocks (read, trimmed, erased; no longer written). */
   arch: string;
-  /** Hash: entry id -> logbook entry payload, items this session put in its user's scope. */
+  /** Hash: as `arch`, for the entries this session put in its user's scope. */
   uarch: string;
-  /** Lists of the item ids appended to arch / uarch, in order (readers fetch only the new tail). */
+  /**
+   * Lists of the session's and its user-scope logbook entries in arrival order: blocks of records
+   * (codec.ts, logbook blocks); logs written before blocks begin with `atMs:id` elements whose payloads
+   * are in arch / uarch. Readers fetch only the new tail.
+   */
   alog: string;
   ualog: string;
   /** All of the above (the session's data), for EXPIRE/DEL/SCAN checks. */
