@@ -486,16 +486,7 @@ export function decodeLogbook(buf: Buffer, what: string, home?: LogbookHome): Lo
   const key = flags & LB_KEY ? r.key() : undefined;
   r.end();
   const e: LogbookEntry = { id, kind: kind!, tenant, session, value, keyText, provenance, atMs, createdMs, clock, seq };
-  if (user !== undefined) e.user = user;
-  if (role) e.role = role;
-  if (speaker !== undefined) e.speaker = speaker;
-  if (owner !== undefined) e.owner = owner;
-  if (dates.length > 0) e.dates = dates;
-  if (key) e.key = key;
-  if (strength !== undefined) e.strength = strength;
-  if (halfLife !== undefined) e.halfLife = halfLife;
-  if (successor !== undefined) e.successor = successor;
-  return e;
+  return withOptional(e, { user, role, speaker, owner, dates, key, strength, halfLife, successor });
 }
 
 const ARCH_USER = 1;
@@ -838,16 +829,7 @@ export function decodeRecord(body: Buffer, at: number, what: string, home: Recor
   if (explicitId === undefined && provenance.length === 0) r.fail('turn record without provenance');
   const id = explicitId ?? turnId(home.session, provenance[0]!);
   const e: LogbookEntry = { id, kind: kind!, tenant, session, value, keyText, provenance, atMs, createdMs, clock, seq };
-  if (user !== undefined) e.user = user;
-  if (role) e.role = role;
-  if (speaker !== undefined) e.speaker = speaker;
-  if (owner !== undefined) e.owner = owner;
-  if (dates.length > 0) e.dates = dates;
-  if (key) e.key = key;
-  if (strength !== undefined) e.strength = strength;
-  if (halfLife !== undefined) e.halfLife = halfLife;
-  if (successor !== undefined) e.successor = successor;
-  return e;
+  return withOptional(e, { user, role, speaker, owner, dates, key, strength, halfLife, successor });
 }
 
 function decodePlain(r: Reader, body: Buffer, flags: number, at: number, home: RecordHome, turnId: TurnIdOf): LogbookEntry {
@@ -903,4 +885,21 @@ function uvarBytes(v: number): Buffer {
   w.pos = 0;
   w.uvar(v);
   return Buffer.from(w.buf.subarray(0, w.pos));
+}
+
+/** Sets on `e` the optional fields a record carried (absent ones stay absent, not `undefined`). */
+function withOptional(
+  e: LogbookEntry,
+  o: Pick<LogbookEntry, 'user' | 'role' | 'speaker' | 'owner' | 'key' | 'strength' | 'halfLife' | 'successor'> & { dates: MentionedDate[] },
+): LogbookEntry {
+  if (o.user !== undefined) e.user = o.user;
+  if (o.role) e.role = o.role;
+  if (o.speaker !== undefined) e.speaker = o.speaker;
+  if (o.owner !== undefined) e.owner = o.owner;
+  if (o.dates.length > 0) e.dates = o.dates;
+  if (o.key) e.key = o.key;
+  if (o.strength !== undefined) e.strength = o.strength;
+  if (o.halfLife !== undefined) e.halfLife = o.halfLife;
+  if (o.successor !== undefined) e.successor = o.successor;
+  return e;
 }
