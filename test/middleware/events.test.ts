@@ -57,7 +57,7 @@ describe('erase seen through events and memos', () => {
   it('forgets the logbook values a read remembered for promotion: an erased value is never promoted back', async () => {
     // A store without erasure fences (ControlledStore implements none): the memo alone must be cleared.
     const store = new ControlledStore();
-    expect(store.fence).toBeUndefined();
+    expect((store as Store).fence).toBeUndefined();
     // Capacity 1 and no turns kept: the first fact leaves for the logbook and only it can answer.
     const tm = createTidemark({ store, capacity: 1, logbook: { roles: [] } });
     await tm.write({ session: 's', text: 'My bike is a green Harlow Tourer.' });
