@@ -71,10 +71,10 @@ describe.skipIf(down !== null)(`overwrites from several processes${down ? ` (ski
         cp.stdout.on('data', () => out.includes('ready\n') && resolve());
         cp.once('exit', (code) => reject(new Error(`writer ${p} exited ${code} before ready: ${err}`)));
       });
-      const exit = new Promise<{ writes: number; retries: number }>((resolve, reject) => {
+      const exit = new Promise<{ writes: number; retries: number; abandoned: number }>((resolve, reject) => {
         cp.once('exit', (code) => {
           if (code !== 0) return reject(new Error(`writer ${p} exited ${code}: ${err}`));
-          resolve(JSON.parse(out.trim().split('\n').pop()!) as { writes: number; retries: number });
+          resolve(JSON.parse(out.trim().split('\n').pop()!) as { writes: number; retries: number; abandoned: number });
         });
       });
       return { ready, exit };
@@ -83,6 +83,7 @@ describe.skipIf(down !== null)(`overwrites from several processes${down ? ` (ski
     await admin.set(`${prefix}go`, '1');
     const results = await Promise.all(procs.map((p) => p.exit));
     expect(results.map((r) => r.writes)).toEqual(Array(PROCS).fill(SESSIONS * FACTS));
+    expect(results.map((r) => r.abandoned)).toEqual(Array(PROCS).fill(0));
     expect(results.reduce((s, r) => s + r.retries, 0)).toBeGreaterThan(0); // they really collided
 
     const a = redisSlotStore({ redis: REDIS_URL, prefix, cacheSessions: 0 });
