@@ -8,6 +8,7 @@ import { EmbeddingCache } from '../embed/cache.js';
 import type { Embedder } from '../embed/embedder.js';
 import { EmbedderError, ErrorCodes, StoreError, TidemarkError, isTidemarkError } from '../errors.js';
 import type { Extractor } from '../memory/extract.js';
+import { forgetSlotTerms } from '../memory/rank.js';
 import type { MemoryParams } from '../memory/params.js';
 import type { ErasureFence, ErasureMarks, SessionSnapshot, Store } from '../store/store.js';
 import type { LogbookEntry, MemoryContext, SessionRef } from '../types.js';
@@ -232,5 +233,6 @@ export class Core {
     this.lastRead.clear();
     this.said.clear();
     this.recalledFence.clear();
+    forgetSlotTerms();
   }
 }

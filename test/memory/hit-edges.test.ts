@@ -88,3 +88,13 @@ describe('hit: cosine of the top item with a dense list', () => {
     expect(rank(up(0.62)).hit).toBe(false);
   });
 });
+
+describe('slot terms are counted per revision id and text', () => {
+  it('an id seen again with other text is scored on its own words', () => {
+    const lb = search([turn(1, 'See you soon.')], 'What is my phone number?');
+    const first = rankTiers([slot('same', 'my phone number', '07700 900123')], lb, P);
+    expect(first.items.map((x) => x.id)).toEqual(['same']);
+    const second = rankTiers([slot('same', 'my name', 'Dana')], lb, P);
+    expect(second.items).toEqual([]);
+  });
+});

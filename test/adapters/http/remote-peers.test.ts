@@ -3,7 +3,7 @@
 // IPv4-mapped form of a remote address, a look-alike of 127.x) gets a 401 and no data, while the whole
 // 127.0.0.0/8 block, ::1 and ::ffff:127.x pass. Peers are given as the socket would report them.
 
-import { afterAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createHttpAdapter, type ChatHandler } from '../../../adapters/http/index.js';
 import { isLoopback } from '../../../adapters/http/core.js';
 import { createTidemark } from '../../../src/middleware/tidemark.js';
@@ -39,6 +39,9 @@ const ADMIN: Array<[string, string]> = [
 const handler: ChatHandler = () => 'ok';
 const tm = createTidemark();
 const adapter = createHttpAdapter({ tidemark: tm, handler });
+beforeAll(async () => {
+  await tm.write({ session: 'desk-1', text: 'My name is Dana.' });
+});
 afterAll(async () => {
   await tm.close({ timeoutMs: 200 });
 });
@@ -58,7 +61,6 @@ describe('isLoopback', () => {
 
 describe('admin routes without a token', () => {
   it('refuse every remote IPv4 and IPv6 peer with a 401 and no data', async () => {
-    await tm.write({ session: 'desk-1', text: 'My name is Dana.' });
     for (const [method, path] of ADMIN) {
       for (const remoteAddress of [...REMOTE, undefined]) {
         const res = await adapter.fetch(new Request(`http://h${path}`, { method }), { remoteAddress });
