@@ -188,6 +188,10 @@ describe('bad requests get 4xx JSON with the error code', () => {
 
 describe('admin endpoints', () => {
   it('serves /metrics, /sessions/:id, /dashboard and its feed to loopback clients', async () => {
+    // Its own turns (two reads, a stored fact), so it passes alone and in any order.
+    await (await post('/chat', JSON.stringify({ session: 'rider-1', text: 'My name is Dana and my bike is a green Quenby.' }))).text();
+    await (await post('/chat', JSON.stringify({ session: 'rider-1', text: 'What bike do I ride?' }))).text();
+    await tm.flush();
     const metrics = await fetch(`${base}/metrics`);
     expect(metrics.status).toBe(200);
     const parsed = parsePrometheusTextFormat(await metrics.text());
