@@ -165,3 +165,38 @@ describe('edges: a bare correction (no value of its own)', () => {
     });
   });
 });
+
+describe('edges: maximum age', () => {
+  const at = (ageMs: number) => plan(table(2, 3, [rec('a', basis(3, 0), { createdMs: 5000 - ageMs })]), [], { nowMs: 5000 }, { maxAgeMs: 1000 });
+  it('keeps a slot exactly maxAgeMs old and younger; expires it one ms older', () => {
+    expect(at(999).evictions).toEqual([]);
+    expect(at(1000).evictions).toEqual([]);
+    expect(at(1001).evictions).toEqual([expect.objectContaining({ slot: 0, reason: 'expired' })]);
+  });
+});
+
+describe('what an overwrite or a restatement carries', () => {
+  const bike = (over = {}) => table(2, 3, [rec('bike', basis(3, 0), { keyText: 'my bike', value: 'a green Harlow', strength: 1, halfLife: 10, ...over })]);
+  it('a restated fact keeps a reinforced strength above the gate', () => {
+    const p = plan(bike(), [cand(basis(3, 0), { key: 'my bike', value: 'a green Harlow' })]);
+    expect(p.outcomes[0]!.outcome).toBe('reinforced');
+    expect(p.ops[0]!.slot!.strength).toBe(1); // reinforce(1) = 1 > gate 0.88
+    expect(p.events).toEqual([{ type: 'reinforce', slot: 0, id: 'bike', clock: 0, atMs: 1000 }]);
+  });
+  it('pinned stays pinned through an overwrite, and a pin request pins', () => {
+    expect(plan(bike({ pinned: true }), [cand(basis(3, 0), { key: 'my bike', value: 'a red Pennick' })]).ops[0]!.slot!.pinned).toBe(true);
+    expect(plan(bike(), [cand(basis(3, 0), { key: 'my bike', value: 'a red Pennick', pin: true })]).ops[0]!.slot!.pinned).toBe(true);
+    expect(plan(bike(), [cand(basis(3, 0), { key: 'my bike', value: 'a red Pennick' })]).ops[0]!.slot!.pinned).toBe(false);
+    expect(plan(bike(), [cand(basis(3, 0), { key: 'my bike', value: 'a green Harlow', pin: true })]).ops[0]!.slot!.pinned).toBe(true);
+  });
+  it('an overwrite keeps the old owner, or takes the speaker when the old had none', () => {
+    const ana = { ...cand(basis(3, 0), { key: 'my bike', value: 'a red Pennick' }), owner: 'Ana' };
+    expect(plan(bike(), [ana]).ops[0]!.slot!.owner).toBe('Ana');
+    expect(plan(bike({ owner: 'ana' }), [ana]).ops[0]!.slot!.owner).toBe('ana');
+    expect(plan(bike(), [cand(basis(3, 0), { key: 'my bike', value: 'a red Pennick' })]).ops[0]!.slot!.owner).toBeUndefined();
+  });
+  it('what a read used is reinforced with an event per slot', () => {
+    const p = plan(bike(), [], { now: 10, reinforce: ['bike'] });
+    expect(p.events).toEqual([{ type: 'reinforce', slot: 0, id: 'bike', clock: 10, atMs: 1000 }]);
+  });
+});
