@@ -88,6 +88,8 @@ export class LogbookIndex {
   private readonly byId = new Map<string, number>();
   // Terms: id -> postings; df counts live documents only.
   private readonly termIds = new Map<string, number>();
+  /** The term of each id, so a term no live document holds leaves the dictionary (erasure). */
+  private termOf: string[] = [];
   private postings: Posting[] = [];
   private df: number[] = [];
   private live = 0;
@@ -203,7 +205,15 @@ export class LogbookIndex {
     if (d === undefined) return false;
     const e = this.entries[d]!;
     const ids = this.docTerms[d]!;
-    for (let i = 0; i < ids.length; i++) this.df[ids[i]!]!--;
+    for (let i = 0; i < ids.length; i++) {
+      const t = ids[i]!;
+      // A word no live entry holds any more leaves the dictionary: an erased turn's words do not stay
+      // in memory as terms (its id is not reused; a later mention gets a fresh one).
+      if (--this.df[t]! === 0 && this.termIds.get(this.termOf[t]!) === t) {
+        this.termIds.delete(this.termOf[t]!);
+        this.termOf[t] = '';
+      }
+    }
     this.live--;
     this.totalLen -= this.meta[4 * d]!;
     this.byId.delete(id);
@@ -247,6 +257,7 @@ export class LogbookIndex {
     this.meta = new Int32Array(4 * 64);
     this.byId.clear();
     this.termIds.clear();
+    this.termOf = [];
     this.postings = [];
     this.df = [];
     this.live = 0;
@@ -473,6 +484,7 @@ export class LogbookIndex {
     if (id === undefined) {
       id = this.postings.length;
       this.termIds.set(t, id);
+      this.termOf.push(t);
       this.postings.push({ docs: new Int32Array(4), tfs: new Uint16Array(4), n: 0 });
       this.df.push(0);
     }

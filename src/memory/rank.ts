@@ -98,20 +98,23 @@ export interface RankResult {
   hit: boolean;
 }
 
-// Analysed terms of a slot's text and their counts, per revision id (bounded; a revision's text never
-// changes), so a read does not re-count every slot's words.
+// Analysed terms of a slot's text and their counts, per revision id (bounded), so a read does not
+// re-count every slot's words. The text is kept beside them and checked: an id seen again with other
+// text (another store, a test) is counted afresh. Erasure drops them all (`forgetSlotTerms`).
 interface SlotTerms {
+  text: string;
   len: number;
   tf: Map<string, number>;
 }
 const slotTerms = new Map<string, SlotTerms>();
 function termsOf(c: SlotCandidate): SlotTerms {
+  const text = c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value;
   let t = slotTerms.get(c.id);
-  if (!t) {
-    const terms = analyze(c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value);
+  if (!t || t.text !== text) {
+    const terms = analyze(text);
     const tf = new Map<string, number>();
     for (const w of terms) tf.set(w, (tf.get(w) ?? 0) + 1);
-    t = { len: terms.length, tf };
+    t = { text, len: terms.length, tf };
     if (slotTerms.size >= 20_000) slotTerms.clear();
     slotTerms.set(c.id, t);
   }

@@ -254,11 +254,11 @@ export class Core {
 
   /** Drops every memo that holds session text (erasure). */
   clearMemos(): void {
-    forgetSlotTerms();
     this.cache.clear();
     this.recalled.clear();
     this.lastRead.clear();
     this.said.clear();
     this.recalledFence.clear();
+    forgetSlotTerms();
   }
 }

@@ -4,18 +4,13 @@
 
 import { describe, expect, it } from 'vitest';
 import * as tf from '@tensorflow/tfjs-core';
+import '@tensorflow/tfjs-backend-cpu';
 import { attend, nextQuery } from '../../src/memory/attention.js';
 import { readParams, rec, table, vec } from './helpers.js';
 
-// tfjs-core ships no kernels: the CPU backend is the separate package @tensorflow/tfjs-backend-cpu,
-// which is not a dependency yet. Until it is, these checks are skipped (reason: no tfjs CPU backend
-// installed); the specifier is a variable so the type check passes without the package.
-const cpuBackend = '@tensorflow/tfjs-backend-cpu';
-const hasCpu = await import(cpuBackend).then(
-  () => true,
-  () => false,
-);
-if (hasCpu) await tf.setBackend('cpu');
+// tfjs-core ships no kernels: the CPU backend (@tensorflow/tfjs-backend-cpu, a dev dependency)
+// registers them on import. A missing backend is a failure, not a skip.
+await tf.setBackend('cpu');
 
 /** Eight slots in dimension 6 with deterministic pseudo-random keys and strengths. */
 function fixture() {
@@ -33,7 +28,7 @@ function fixture() {
   return { t: table(cap, dim, recs), q: vec(...Array.from({ length: dim }, rnd)), dim, cap };
 }
 
-describe.skipIf(!hasCpu)('attention against tfjs-core (CPU backend)', () => {
+describe('attention against tfjs-core (CPU backend)', () => {
   const p = readParams({ beta: 5, gamma: 2, delta: 0.5, temperature: 0.7, k: 3, minWeight: 0, maxMass: 1, minCosine: -1, hitCosine: -1 });
 
   it('softmax(z / tau) matches tf.softmax', () => {

@@ -62,6 +62,8 @@ describe('memory invariants (fast-check)', () => {
               else expect(read.weight[i]).toBe(0);
             }
             expect(sum).toBeCloseTo(1, 9);
+          } else {
+            expect(read.selected).toEqual([]); // an empty memory selects nothing
           }
           const candidates: KeyedCandidate[] = step.candidates.map((c) => ({
             candidate: {

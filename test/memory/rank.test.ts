@@ -79,7 +79,8 @@ describe('rankTiers', () => {
     const ids = r.items.map((x) => x.id);
     expect(ids.indexOf('mv')).toBeLessThan(ids.indexOf('exam'));
     const examTurn = r.items.find((x) => x.entry?.seq === 3);
-    if (examTurn) expect(ids.indexOf('mv')).toBeLessThan(r.items.indexOf(examTurn));
+    expect(examTurn).toBeDefined(); // the turn that stated the exam date is recalled too
+    expect(ids.indexOf('mv')).toBeLessThan(r.items.indexOf(examTurn!));
     expect(r.items.find((x) => x.id === 'mv')!.placed).toBe('ambiguous');
   });
 

@@ -13,6 +13,9 @@ export class ControlledStore implements Store {
   searchDelayMs = 0;
   loadDelayMs = 0;
   commitDelayMs = 0;
+  /** While set, load / commit of a session wait for it (opened by the test: ordering without timers). */
+  loadGate: Promise<void> | undefined;
+  commitGate: ((session: string) => Promise<void> | undefined) | undefined;
   failLoad = false;
   failCommit = false;
   loads = 0;
@@ -27,6 +30,7 @@ export class ControlledStore implements Store {
   async load(...a: Parameters<Store['load']>): ReturnType<Store['load']> {
     this.loads++;
     if (this.loadDelayMs > 0) await sleep(this.loadDelayMs);
+    if (this.loadGate) await this.loadGate;
     if (this.failLoad) throw new Error('connection refused (test)');
     return this.inner.load(...a);
   }
@@ -34,6 +38,8 @@ export class ControlledStore implements Store {
   async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
     this.commits++;
     if (this.commitDelayMs > 0) await sleep(this.commitDelayMs);
+    const held = this.commitGate?.(a[0].session);
+    if (held) await held;
     if (this.failCommit) throw new Error('connection reset (test)');
     const r = await this.inner.commit(...a);
     this.commitDone.push(performance.now());
@@ -62,6 +68,13 @@ export class ControlledStore implements Store {
   close(): Promise<void> {
     return this.inner.close();
   }
+}
+
+/** A promise the test opens by hand. */
+export function gate(): { promise: Promise<void>; open: () => void } {
+  let open!: () => void;
+  const promise = new Promise<void>((r) => (open = r));
+  return { promise, open };
 }
 
 /** An async iterable that yields `chunks`, waiting `gapMs` before each one. */

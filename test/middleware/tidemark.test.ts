@@ -7,7 +7,7 @@ import type { Embedder } from '../../src/embed/embedder.js';
 import { HashingEmbedder } from '../../src/embed/hashing.js';
 import { Tidemark, createTidemark, type TidemarkOptions } from '../../src/middleware/tidemark.js';
 import { InProcessStore } from '../../src/store/in-process.js';
-import { ControlledStore, sleep } from './helpers.js';
+import { ControlledStore, gate } from './helpers.js';
 
 const open: Tidemark[] = [];
 function make(options: TidemarkOptions = {}): Tidemark {
@@ -385,13 +385,16 @@ describe('concurrency', () => {
   it('different sessions run in parallel: a slow commit of one does not hold up another', async () => {
     const store = new ControlledStore();
     const tm = make({ store });
-    store.commitDelayMs = 400;
-    const slow = tm.write({ session: 'slow', text: 'My name is Dana' });
-    await sleep(5);
-    store.commitDelayMs = 0;
-    const t0 = performance.now();
+    // The slow session's commit waits until the fast one has finished: if sessions were serialised,
+    // the fast write would wait for it and the test would never get past it (a timeout, not a pass).
+    const hold = gate();
+    store.commitGate = (session) => (session === 'slow' ? hold.promise : undefined);
+    const order: string[] = [];
+    const slow = tm.write({ session: 'slow', text: 'My name is Dana' }).then(() => order.push('slow'));
     await tm.write({ session: 'fast', text: 'My name is Rowan' });
-    expect(performance.now() - t0).toBeLessThan(200); // the other session's commit takes 400
+    order.push('fast');
+    hold.open();
     await slow;
+    expect(order).toEqual(['fast', 'slow']);
   });
 });

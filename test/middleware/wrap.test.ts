@@ -3,10 +3,10 @@
 // user turn only (unless onAbort: 'all'), a throwing handler keeps its error, and a failing store
 // gives a degraded but complete reply whose write waits in the outbox until flush().
 
-import { afterEach, describe, expect, it } from 'vitest';
+import { afterEach, describe, expect, it, vi } from 'vitest';
 import type { MemoryContext } from '../../src/types.js';
 import { Tidemark, createTidemark, type TidemarkOptions, type WrapContext } from '../../src/middleware/tidemark.js';
-import { ControlledStore, collect, sleep, slowChunks, streamOf } from './helpers.js';
+import { ControlledStore, collect, gate, slowChunks, streamOf } from './helpers.js';
 
 const open: Tidemark[] = [];
 function make(options: TidemarkOptions = {}): Tidemark {
@@ -73,7 +73,10 @@ describe('passthrough', () => {
 describe('a slow store does not hold back the reply', () => {
   it('a slow load is cut at readTimeoutMs: the handler runs degraded and the first chunk comes soon after', async () => {
     const store = new ControlledStore();
-    store.loadDelayMs = 600;
+    // The load waits until the test opens it, after the first chunk: the chunk can only come from a
+    // read cut at readTimeoutMs (no elapsed time is asserted).
+    const load = gate();
+    store.loadGate = load.promise;
     const tm = make({ store, readTimeoutMs: 50 });
     const degraded: string[] = [];
     tm.on('degraded', (e) => degraded.push(e.stage));
@@ -82,17 +85,16 @@ describe('a slow store does not hold back the reply', () => {
       memory = ctx.memory;
       return slowChunks(['first ', 'second'], 0);
     });
-    const t0 = performance.now();
     const it = (await bot({ session: 's', text: 'My name is Dana' }))[Symbol.asyncIterator]();
     const first = await it.next();
-    const firstMs = performance.now() - t0;
     expect(first.value).toBe('first ');
-    expect(firstMs).toBeLessThan(300); // budget 50 ms, generous margin for a shared machine; the load takes 600
+    expect(store.loads).toBe(1); // the load is still held
     expect(memory!.degraded).toBe(true);
     expect(degraded).toEqual(['read']);
     await it.next();
     await it.next();
-    store.loadDelayMs = 0;
+    load.open();
+    store.loadGate = undefined;
     await tm.flush();
     expect(await values(tm, 's')).toEqual(['Dana']);
   });
@@ -189,12 +191,15 @@ describe('abort while the producer is stalled', () => {
   it('ends the reply at once, forwards nothing more, and writes only the user turn', async () => {
     const tm = make({ writeReplies: true });
     const ac = new AbortController();
+    const thinking = gate();
+    let stalledNow = false;
     let sourceClosed = false;
     const bot = tm.wrap(async () =>
       (async function* () {
         try {
           yield 'Let me check. ';
-          await sleep(400); // the model is thinking
+          stalledNow = true;
+          await thinking.promise; // the model is thinking, until the test lets it go on
           yield 'My workshop is Spokes. ';
         } finally {
           sourceClosed = true;
@@ -202,37 +207,45 @@ describe('abort while the producer is stalled', () => {
       })(),
     );
     const reply = await bot({ session: 's', text: 'I am allergic to chain wax.' }, { signal: ac.signal });
-    const got: string[] = [];
-    setTimeout(() => ac.abort(), 30);
-    const t0 = performance.now();
-    for await (const c of reply) got.push(c);
-    expect(performance.now() - t0).toBeLessThan(250);
+    // Abort while the consumer waits for the second chunk and the producer is stalled: that wait can
+    // only end because the abort ended it (the producer stays stalled until after).
+    const it = reply[Symbol.asyncIterator]();
+    const got = [(await it.next()).value];
+    const pending = it.next();
+    await vi.waitFor(() => expect(stalledNow).toBe(true));
+    ac.abort();
+    expect((await pending).done).toBe(true);
     expect(got).toEqual(['Let me check. ']);
+    expect(sourceClosed).toBe(false);
     await tm.flush();
     const v = await tm.inspect('s');
     expect(v.turns).toBe(1);
     expect(v.slots.map((x) => x.value)).toEqual(['chain wax']);
-    await sleep(450);
-    expect(sourceClosed).toBe(true); // the source is told to stop once its pending chunk settles
+    thinking.open();
+    await vi.waitFor(() => expect(sourceClosed).toBe(true)); // told to stop once its pending chunk settles
   });
   it('(stream) ends a ReadableStream reply at once too', async () => {
     const tm = make({ writeReplies: true });
     const ac = new AbortController();
+    const stalled = gate();
     let pulls = 0;
     const source = new ReadableStream<string>({
       async pull(c) {
         pulls++;
-        if (pulls > 1) await sleep(400);
+        if (pulls > 1) await stalled.promise;
         c.enqueue(pulls === 1 ? 'Let me check. ' : 'My workshop is Spokes. ');
         if (pulls > 1) c.close();
       },
     }, { highWaterMark: 0 });
     const reply = await tm.wrap(async () => source)({ session: 's', text: 'I am allergic to chain wax.' }, { signal: ac.signal });
-    setTimeout(() => ac.abort(), 30);
-    const t0 = performance.now();
-    const got = await collect(reply);
-    expect(performance.now() - t0).toBeLessThan(250);
+    const reader = reply.getReader();
+    const got = [(await reader.read()).value];
+    const pending = reader.read();
+    await vi.waitFor(() => expect(pulls).toBe(2)); // the second pull is stalled
+    ac.abort(); // only the abort can end the wait
+    expect((await pending).done).toBe(true);
     expect(got).toEqual(['Let me check. ']);
+    stalled.open();
     await tm.flush();
     expect((await tm.inspect('s')).slots.map((x) => x.value)).toEqual(['chain wax']);
   });

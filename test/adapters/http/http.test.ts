@@ -188,6 +188,10 @@ describe('bad requests get 4xx JSON with the error code', () => {
 
 describe('admin endpoints', () => {
   it('serves /metrics, /sessions/:id, /dashboard and its feed to loopback clients', async () => {
+    // Its own session and turns (two reads, a stored fact), so it passes alone and in any order.
+    await (await post('/chat', JSON.stringify({ session: 'rider-9', text: 'My name is Dana and my bike is a green Corvane.' }))).text();
+    await (await post('/chat', JSON.stringify({ session: 'rider-9', text: 'What bike do I ride?' }))).text();
+    await tm.flush();
     const metrics = await fetch(`${base}/metrics`);
     expect(metrics.status).toBe(200);
     const parsed = parsePrometheusTextFormat(await metrics.text());
@@ -195,8 +199,8 @@ describe('admin endpoints', () => {
     const total = reads.metrics.reduce((s, m) => s + Number(m.value), 0);
     expect(total).toBeGreaterThanOrEqual(2);
 
-    const view = (await (await fetch(`${base}/sessions/rider-1`)).json()) as { session: string; slots: unknown[] };
-    expect(view.session).toBe('rider-1');
+    const view = (await (await fetch(`${base}/sessions/rider-9`)).json()) as { session: string; slots: unknown[] };
+    expect(view.session).toBe('rider-9');
     expect(view.slots.length).toBeGreaterThan(0);
 
     const page = await fetch(`${base}/dashboard`);

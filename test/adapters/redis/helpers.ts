@@ -78,14 +78,15 @@ export async function freePort(): Promise<number> {
 }
 
 /**
- * A redis-server of our own on `port`, with an append-only file fsynced on every write
- * (`appendfsync always`), so a SIGKILL loses no acknowledged write — or, with `persist: false`, with
- * no persistence at all, so a restart comes back empty.
+ * A redis-server of our own on `port`, with an append-only file fsynced per `fsync` (default
+ * `always`). A SIGKILL of the server is a process crash: what it wrote to the file is in the OS page
+ * cache, so the restart reads it back under any fsync policy (a power loss, not simulated here, is
+ * what needs `always`). With `persist: false`, no persistence at all, so a restart comes back empty.
  */
 export class ThrowawayRedis {
   readonly dir = mkdtempSync(join(tmpdir(), 'tidemark-redis-'));
   private proc: ChildProcess | undefined;
-  constructor(readonly port: number, readonly persist = true) {}
+  constructor(readonly port: number, readonly persist = true, readonly fsync: 'always' | 'everysec' | 'no' = 'always') {}
 
   get url(): string {
     return `redis://127.0.0.1:${this.port}`;
@@ -94,7 +95,7 @@ export class ThrowawayRedis {
   async start(): Promise<void> {
     this.proc = spawn('redis-server', [
       '--port', String(this.port), '--bind', '127.0.0.1', '--dir', this.dir, '--save', '',
-      ...(this.persist ? ['--appendonly', 'yes', '--appendfsync', 'always'] : ['--appendonly', 'no']),
+      ...(this.persist ? ['--appendonly', 'yes', '--appendfsync', this.fsync] : ['--appendonly', 'no']),
     ], { stdio: 'ignore' });
     const probe = new Redis(this.url, { lazyConnect: true, retryStrategy: () => null, enableOfflineQueue: false });
     probe.on('error', () => undefined);
