@@ -156,3 +156,42 @@ export function newCluster(ports: number[]): Cluster {
   c.on('error', () => undefined);
   return c;
 }
+
+/** What a writer child (writer-child.ts) reports when it exits. */
+export interface WriterResult {
+  writes: number;
+  retries: number;
+  abandoned: number;
+}
+
+/**
+ * Starts `count` writer children (writer-child.ts) on one key prefix, waits until each is ready, then
+ * sets the start signal so they all write at once; resolves with each child's report.
+ */
+export async function runWriters(admin: Redis, prefix: string, count: number, args: readonly string[]): Promise<WriterResult[]> {
+  const child = join(repoRoot, 'test', 'adapters', 'redis', 'writer-child.ts');
+  const procs = Array.from({ length: count }, (_, p) => {
+    const cp = spawn(process.execPath, ['--import', 'tsx', child, REDIS_URL, prefix, String(p), ...args], {
+      cwd: repoRoot,
+      stdio: ['ignore', 'pipe', 'pipe'],
+    });
+    let out = '';
+    let err = '';
+    cp.stdout.on('data', (d: Buffer) => (out += d.toString()));
+    cp.stderr.on('data', (d: Buffer) => (err += d.toString()));
+    const ready = new Promise<void>((resolve, reject) => {
+      cp.stdout.on('data', () => out.includes('ready\n') && resolve());
+      cp.once('exit', (code) => reject(new Error(`writer ${p} exited ${code} before ready: ${err}`)));
+    });
+    const exit = new Promise<WriterResult>((resolve, reject) => {
+      cp.once('exit', (code) => {
+        if (code !== 0) return reject(new Error(`writer ${p} exited ${code}: ${err}`));
+        resolve(JSON.parse(out.trim().split('\n').pop()!) as WriterResult);
+      });
+    });
+    return { ready, exit };
+  });
+  await Promise.all(procs.map((p) => p.ready));
+  await admin.set(`${prefix}go`, '1');
+  return Promise.all(procs.map((p) => p.exit));
+}

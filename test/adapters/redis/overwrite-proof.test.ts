@@ -4,14 +4,12 @@
 // provenance, superseded values, versions and events. No write is lost (every turn is in the logbook
 // once, every replaced value is in it as superseded) and none is applied twice.
 
-import { spawn } from 'node:child_process';
-import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { OVERWRITE_TOPICS, overwriteText } from './facts.js';
-import { REDIS_URL, deletePrefix, newClient, probeRedis, repoRoot, uniquePrefix } from './helpers.js';
+import { REDIS_URL, deletePrefix, newClient, probeRedis, runWriters, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
 
@@ -57,31 +55,7 @@ describe.skipIf(down !== null)(`overwrites from several processes${down ? ` (ski
     const prefix = uniquePrefix('mp-over');
     const serialPrefix = uniquePrefix('mp-over-serial');
     prefixes.push(prefix, serialPrefix);
-    const child = join(repoRoot, 'test', 'adapters', 'redis', 'writer-child.ts');
-    const procs = Array.from({ length: PROCS }, (_, p) => {
-      const cp = spawn(process.execPath, ['--import', 'tsx', child, REDIS_URL, prefix, String(p), String(SESSIONS), String(FACTS), 'overwrite'], {
-        cwd: repoRoot,
-        stdio: ['ignore', 'pipe', 'pipe'],
-      });
-      let out = '';
-      let err = '';
-      cp.stdout.on('data', (d: Buffer) => (out += d.toString()));
-      cp.stderr.on('data', (d: Buffer) => (err += d.toString()));
-      const ready = new Promise<void>((resolve, reject) => {
-        cp.stdout.on('data', () => out.includes('ready\n') && resolve());
-        cp.once('exit', (code) => reject(new Error(`writer ${p} exited ${code} before ready: ${err}`)));
-      });
-      const exit = new Promise<{ writes: number; retries: number; abandoned: number }>((resolve, reject) => {
-        cp.once('exit', (code) => {
-          if (code !== 0) return reject(new Error(`writer ${p} exited ${code}: ${err}`));
-          resolve(JSON.parse(out.trim().split('\n').pop()!) as { writes: number; retries: number; abandoned: number });
-        });
-      });
-      return { ready, exit };
-    });
-    await Promise.all(procs.map((p) => p.ready));
-    await admin.set(`${prefix}go`, '1');
-    const results = await Promise.all(procs.map((p) => p.exit));
+    const results = await runWriters(admin, prefix, PROCS, [String(SESSIONS), String(FACTS), 'overwrite']);
     expect(results.map((r) => r.writes)).toEqual(Array(PROCS).fill(SESSIONS * FACTS));
     expect(results.map((r) => r.abandoned)).toEqual(Array(PROCS).fill(0));
     expect(results.reduce((s, r) => s + r.retries, 0)).toBeGreaterThan(0); // they really collided

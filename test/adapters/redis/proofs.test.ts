@@ -3,14 +3,12 @@
 // (b) a redis-server SIGKILLed mid-load and restarted: replies keep flowing (reads degrade), the outbox
 // drains, and every acknowledged write is present exactly once.
 
-import { spawn } from 'node:child_process';
-import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Redis } from 'ioredis';
 import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { factText } from './facts.js';
-import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, repoRoot, uniquePrefix } from './helpers.js';
+import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, runWriters, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
 
@@ -55,31 +53,7 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
     const prefix = uniquePrefix('mp');
     const serialPrefix = uniquePrefix('serial');
     prefixes.push(prefix, serialPrefix);
-    const child = join(repoRoot, 'test', 'adapters', 'redis', 'writer-child.ts');
-    const procs = Array.from({ length: PROCS }, (_, p) => {
-      const cp = spawn(process.execPath, ['--import', 'tsx', child, REDIS_URL, prefix, String(p), String(SESSIONS), String(FACTS)], {
-        cwd: repoRoot,
-        stdio: ['ignore', 'pipe', 'pipe'],
-      });
-      let out = '';
-      let err = '';
-      cp.stdout.on('data', (d: Buffer) => (out += d.toString()));
-      cp.stderr.on('data', (d: Buffer) => (err += d.toString()));
-      const ready = new Promise<void>((resolve, reject) => {
-        cp.stdout.on('data', () => out.includes('ready\n') && resolve());
-        cp.once('exit', (code) => reject(new Error(`writer ${p} exited ${code} before ready: ${err}`)));
-      });
-      const exit = new Promise<{ writes: number; retries: number; abandoned: number }>((resolve, reject) => {
-        cp.once('exit', (code) => {
-          if (code !== 0) return reject(new Error(`writer ${p} exited ${code}: ${err}`));
-          resolve(JSON.parse(out.trim().split('\n').pop()!) as { writes: number; retries: number; abandoned: number });
-        });
-      });
-      return { ready, exit };
-    });
-    await Promise.all(procs.map((p) => p.ready));
-    await admin.set(`${prefix}go`, '1');
-    const results = await Promise.all(procs.map((p) => p.exit));
+    const results = await runWriters(admin, prefix, PROCS, [String(SESSIONS), String(FACTS)]);
     expect(results.map((r) => r.writes)).toEqual(Array(PROCS).fill(SESSIONS * FACTS));
     expect(results.map((r) => r.abandoned)).toEqual(Array(PROCS).fill(0));
     // The processes really did collide: some commits lost the version race and were redone.
