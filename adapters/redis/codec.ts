@@ -473,16 +473,7 @@ export function decodeLogbook(buf: Buffer, what: string, home?: LogbookHome): Lo
   const n = r.varint();
   const provenance: string[] = [];
   for (let i = 0; i < n; i++) provenance.push(r.str());
-  const dates: MentionedDate[] = [];
-  if (flags & LB_DATES) {
-    for (let i = 0, m = r.varint(); i < m; i++) {
-      const text = r.str();
-      const day = r.str();
-      const grain = GRAINS[r.u8()];
-      if (grain === undefined) r.fail('unknown date grain');
-      dates.push({ text, day, grain });
-    }
-  }
+  const dates = readDates(r, flags);
   const key = flags & LB_KEY ? r.key() : undefined;
   r.end();
   const e: LogbookEntry = { id, kind: kind!, tenant, session, value, keyText, provenance, atMs, createdMs, clock, seq };
