@@ -262,6 +262,7 @@ end
 local ep = m[2]
 -- What this commit may have changed or created, for restat and the idle TTL.
 local slotsMoved, slotsFreed, slotsSet, headMoved, logNew, eventsNew = not m[1], not m[1], false, not m[1], false, false
+local slotsWiped, slotsDelta = not m[1], 0 -- slots added less slots removed, from HSET/HDEL replies
 if not m[1] then
   -- A new session (or one erased or expired) starts from nothing, whatever a partial state left behind.
   ep = ARGV[3]
@@ -272,11 +273,11 @@ if m[1] then
   local oldcap = tonumber(m[3] or '0')
   if tonumber(m[4] or '0') ~= tonumber(ARGV[7]) then
     redis.call('DEL', KEYS[2], KEYS[10])
-    slotsMoved, slotsFreed = true, true
+    slotsMoved, slotsFreed, slotsWiped = true, true, true
   elseif oldcap > cap then
     slotsMoved, slotsFreed = true, true
     for i = cap, oldcap - 1 do
-      redis.call('HDEL', KEYS[2], tostring(i))
+      slotsDelta = slotsDelta - redis.call('HDEL', KEYS[2], tostring(i))
       redis.call('ZREM', KEYS[10], tostring(i))
     end
   end
@@ -287,11 +288,11 @@ if nops > 0 then slotsMoved = true end
 for i = 1, nops do
   if ARGV[a + 1] == '' then
     slotsFreed = true
-    redis.call('HDEL', KEYS[2], ARGV[a])
+    slotsDelta = slotsDelta - redis.call('HDEL', KEYS[2], ARGV[a])
     redis.call('ZREM', KEYS[10], ARGV[a])
   else
     slotsSet = true
-    redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1])
+    slotsDelta = slotsDelta + redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1])
     redis.call('ZADD', KEYS[10], tonumber(ARGV[a + 2]), ARGV[a])
   end
   a = a + 3
@@ -299,7 +300,8 @@ end
 local fields = {'v', v + 1, 'ep', ep, 'c', ARGV[4], 'n', ARGV[5], 'cap', ARGV[6], 'dim', ARGV[7]}
 if not m[1] then
   -- Logbook epochs and heads start fresh with the session, so no cached copy of an erased one can match.
-  for _, f in ipairs({'as', ep, 'au', ep, 'ah', 0, 'auh', 0}) do fields[#fields + 1] = f end
+  -- Both slices counted from the start (the one written is set below), so no figure needs an HLEN.
+  for _, f in ipairs({'as', ep, 'au', ep, 'ah', 0, 'auh', 0, 'an', 0, 'aun', 0}) do fields[#fields + 1] = f end
 end
 if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
@@ -417,7 +419,9 @@ elseif ttl > 0 then
 end
 local after = nil
 if KEYS[S] then
-  after = {1, redis.call('HLEN', KEYS[2]), n + (tonumber(m[ARGV[8] ~= '' and 6 or 7] or '') or redis.call('HLEN', ARGV[8] ~= '' and KEYS[4] or KEYS[5]))}
+  local other = nil -- the other slice's count, as meta holds it after this commit
+  if m[1] then other = tonumber(m[ARGV[8] ~= '' and 6 or 7] or '') else other = 0 end
+  after = {1, slotsWiped and redis.call('HLEN', KEYS[2]) or (before[2] + slotsDelta), n + (other or redis.call('HLEN', ARGV[8] ~= '' and KEYS[4] or KEYS[5]))}
 end
 restat(before, KEYS[1], KEYS[2], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[10], expireAt, {after, slotsMoved or due, headMoved or due})
 -- The commit's own counter increments (field, delta pairs after the events): slot survival counts.
