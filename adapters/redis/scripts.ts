@@ -216,7 +216,7 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 /**
  * Commit one turn in one round trip: refuse a write fenced before an erase, recognise a commit id
  * already applied, check the version, apply slot ops, add logbook entries, apply the retention policy
- * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL.
+ * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL (at most every tenth of it).
  * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone (erase tombstone), cids (applied commit ids),
  * born (slot creation times), [stats] (see statsLua; standalone only).
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,

@@ -725,7 +725,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(await store.listSessions('a:b')).toEqual(['c']);
     });
 
-    it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
+    it('a new session gets the idle TTL on all its keys; 0 means none', async () => {
       const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
