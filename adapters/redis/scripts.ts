@@ -154,16 +154,20 @@ local function figures(meta, slots, arch, uarch)
   local c = redis.call('HMGET', meta, 'an', 'aun')
   return {1, redis.call('HLEN', slots), (tonumber(c[1] or '') or redis.call('HLEN', arch)) + (tonumber(c[2] or '') or redis.call('HLEN', uarch))}
 end
--- expireAt: ms the session's keys expire at, 0 = never, -1 = unchanged.
-local function restat(before, meta, slots, arch, uarch, alog, ualog, born, expireAt)
+-- expireAt: ms the session's keys expire at, 0 = never, -1 = unchanged. A caller that knows more
+-- passes \`known\`: {figures after the change (nil: count them), slots or births may have changed, a
+-- log's head may have changed}; an age index is then read again only when its source may have moved
+-- (or the session has no tally yet), and the tally written only when the figures moved.
+local function restat(before, meta, slots, arch, uarch, alog, ualog, born, expireAt, known)
   if not KEYS[S] then return end
   local member = string.sub(meta, 1, -6)
-  local now = figures(meta, slots, arch, uarch)
+  local now = (known and known[1]) or figures(meta, slots, arch, uarch)
   local old = before
   local t = redis.call('HGET', KEYS[S + 1], member)
+  local tallied = false
   if t then
     local a, b, c = string.match(t, '^(%d+) (%d+) (%d+)$')
-    if a then old = {tonumber(a), tonumber(b), tonumber(c)} end
+    if a then old, tallied = {tonumber(a), tonumber(b), tonumber(c)}, true end
   end
   if now[1] ~= old[1] then redis.call('HINCRBY', KEYS[S], 'sessions', now[1] - old[1]) end
   if now[2] ~= old[2] then redis.call('HINCRBY', KEYS[S], 'slots', now[2] - old[2]) end
@@ -175,14 +179,20 @@ local function restat(before, meta, slots, arch, uarch, alog, ualog, born, expir
     redis.call('ZREM', KEYS[S + 4], member)
     return
   end
-  redis.call('HSET', KEYS[S + 1], member, now[1] .. ' ' .. now[2] .. ' ' .. now[3])
+  if not tallied or now[1] ~= old[1] or now[2] ~= old[2] or now[3] ~= old[3] then
+    redis.call('HSET', KEYS[S + 1], member, now[1] .. ' ' .. now[2] .. ' ' .. now[3])
+  end
   if expireAt > 0 then redis.call('ZADD', KEYS[S + 2], expireAt, member) elseif expireAt == 0 then redis.call('ZREM', KEYS[S + 2], member) end
-  local first = redis.call('ZRANGE', born, 0, 0, 'WITHSCORES')
-  if first[2] then redis.call('ZADD', KEYS[S + 3], first[2], member) else redis.call('ZREM', KEYS[S + 3], member) end
-  local la, lu = headAt(alog), headAt(ualog)
-  local oldest = la
-  if lu and (not oldest or lu < oldest) then oldest = lu end
-  if oldest then redis.call('ZADD', KEYS[S + 4], oldest, member) else redis.call('ZREM', KEYS[S + 4], member) end
+  if not known or not tallied or known[2] then
+    local first = redis.call('ZRANGE', born, 0, 0, 'WITHSCORES')
+    if first[2] then redis.call('ZADD', KEYS[S + 3], first[2], member) else redis.call('ZREM', KEYS[S + 3], member) end
+  end
+  if not known or not tallied or known[3] then
+    local la, lu = headAt(alog), headAt(ualog)
+    local oldest = la
+    if lu and (not oldest or lu < oldest) then oldest = lu end
+    if oldest then redis.call('ZADD', KEYS[S + 4], oldest, member) else redis.call('ZREM', KEYS[S + 4], member) end
+  end
 end
 `;
 }
@@ -206,7 +216,7 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
 /**
  * Commit one turn in one round trip: refuse a write fenced before an erase, recognise a commit id
  * already applied, check the version, apply slot ops, add logbook entries, apply the retention policy
- * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL.
+ * to the logbook slice written, append events (capped), bump the version, refresh the idle TTL (at most every tenth of it).
  * KEYS: meta, slots, events, arch, uarch, alog, ualog, gone (erase tombstone), cids (applied commit ids),
  * born (slot creation times), [stats] (see statsLua; standalone only).
  * ARGV: 1 expected version, 2 commit id, 3 epoch for a new session, 4 clock, 5 turns, 6 capacity,
@@ -227,7 +237,7 @@ return {m[1], ep, m[3] or '', m[4] or '', m[5] or '', m[6] or '', redis.call('HG
  *        session was erased after the writer's fence.
  */
 export const COMMIT = script('commit', 10, statsLua(11) + `
-local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc')
+local m = redis.call('HMGET', KEYS[1], 'v', 'ep', 'cap', 'dim', 'rc', 'an', 'aun', 'ah', 'auh', 'xr')
 local v = tonumber(m[1] or '0')
 -- Fenced: refused when the session was erased after the writer looked, or not before it accepted the turn.
 local gone = tonumber(redis.call('GET', KEYS[8]) or '0')
@@ -242,8 +252,17 @@ if redis.call('ZSCORE', KEYS[9], ARGV[2]) then return {2, v, m[2] or ''} end
 local rc = m[5] or ''
 if string.find(' ' .. rc, ' ' .. ARGV[2] .. '=', 1, true) then return {2, v, m[2] or ''} end
 if v ~= tonumber(ARGV[1]) then return {0, v, m[2] or ''} end
-local before = figures(KEYS[1], KEYS[2], KEYS[4], KEYS[5]) -- [stats]
+-- [stats] The figures before, from what meta already said (figures() for a partial state).
+local before = {0, 0, 0}
+if KEYS[S] and m[1] then
+  before = {1, redis.call('HLEN', KEYS[2]), (tonumber(m[6] or '') or redis.call('HLEN', KEYS[4])) + (tonumber(m[7] or '') or redis.call('HLEN', KEYS[5]))}
+elseif KEYS[S] then
+  before = figures(KEYS[1], KEYS[2], KEYS[4], KEYS[5])
+end
 local ep = m[2]
+-- What this commit may have changed or created, for restat and the idle TTL.
+local slotsMoved, slotsFreed, slotsSet, headMoved, logNew, eventsNew = not m[1], not m[1], false, not m[1], false, false
+local slotsWiped, slotsDelta = not m[1], 0 -- slots added less slots removed, from HSET/HDEL replies
 if not m[1] then
   -- A new session (or one erased or expired) starts from nothing, whatever a partial state left behind.
   ep = ARGV[3]
@@ -254,21 +273,26 @@ if m[1] then
   local oldcap = tonumber(m[3] or '0')
   if tonumber(m[4] or '0') ~= tonumber(ARGV[7]) then
     redis.call('DEL', KEYS[2], KEYS[10])
+    slotsMoved, slotsFreed, slotsWiped = true, true, true
   elseif oldcap > cap then
+    slotsMoved, slotsFreed = true, true
     for i = cap, oldcap - 1 do
-      redis.call('HDEL', KEYS[2], tostring(i))
+      slotsDelta = slotsDelta - redis.call('HDEL', KEYS[2], tostring(i))
       redis.call('ZREM', KEYS[10], tostring(i))
     end
   end
 end
 local nops, nlb, nev = tonumber(ARGV[13]), tonumber(ARGV[14]), tonumber(ARGV[15])
 local a = 19
+if nops > 0 then slotsMoved = true end
 for i = 1, nops do
   if ARGV[a + 1] == '' then
-    redis.call('HDEL', KEYS[2], ARGV[a])
+    slotsFreed = true
+    slotsDelta = slotsDelta - redis.call('HDEL', KEYS[2], ARGV[a])
     redis.call('ZREM', KEYS[10], ARGV[a])
   else
-    redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1])
+    slotsSet = true
+    slotsDelta = slotsDelta + redis.call('HSET', KEYS[2], ARGV[a], ARGV[a + 1])
     redis.call('ZADD', KEYS[10], tonumber(ARGV[a + 2]), ARGV[a])
   end
   a = a + 3
@@ -276,7 +300,8 @@ end
 local fields = {'v', v + 1, 'ep', ep, 'c', ARGV[4], 'n', ARGV[5], 'cap', ARGV[6], 'dim', ARGV[7]}
 if not m[1] then
   -- Logbook epochs and heads start fresh with the session, so no cached copy of an erased one can match.
-  for _, f in ipairs({'as', ep, 'au', ep, 'ah', 0, 'auh', 0}) do fields[#fields + 1] = f end
+  -- Both slices counted from the start (the one written is set below), so no figure needs an HLEN.
+  for _, f in ipairs({'as', ep, 'au', ep, 'ah', 0, 'auh', 0, 'an', 0, 'aun', 0}) do fields[#fields + 1] = f end
 end
 if ARGV[8] ~= '' then
   fields[#fields + 1] = 'u'
@@ -285,15 +310,22 @@ end
 local h, log, headf, nf = KEYS[4], KEYS[6], 'ah', 'an'
 if ARGV[8] ~= '' then h, log, headf, nf = KEYS[5], KEYS[7], 'auh', 'aun' end
 -- Entries go into blocks (see codec.ts, logbook blocks): appended to the open block at the tail, or a new one.
-local n = tonumber(redis.call('HGET', KEYS[1], nf) or '-1')
-if n < 0 then n = redis.call('LLEN', log) end -- a log written before blocks: one entry per element
+local n = tonumber(m[ARGV[8] ~= '' and 7 or 6] or '-1')
+if n < 0 then
+  -- A log written before blocks: one entry per element; its head is indexed again (count it from now on).
+  n, headMoved = redis.call('LLEN', log), true
+end
 local added = 0
 local tail = nil
 local sealed = '' -- an open block closed by this commit, for the writer to compress (SEAL)
 for i = 1, nlb do
   local at, body = tonumber(ARGV[a]), ARGV[a + 1]
   a = a + 2
-  if tail == nil then tail = redis.call('LINDEX', log, -1) or false end
+  if tail == nil then
+    tail = redis.call('LINDEX', log, -1) or false
+    -- An empty log: RPUSH creates the key, and its first entry becomes the head.
+    if not tail then logNew, headMoved = true, true end
+  end
   local open = tail and string.byte(tail, 1) == 0
   if open and string.find(tail, body, 1, true) then
     -- A resent entry already in the open block (same bytes): not added twice.
@@ -335,23 +367,63 @@ fields[#fields + 1] = nf
 fields[#fields + 1] = n
 if popped > 0 then
   fields[#fields + 1] = headf
-  fields[#fields + 1] = tonumber(redis.call('HGET', KEYS[1], headf) or '0') + popped
+  fields[#fields + 1] = tonumber(m[ARGV[8] ~= '' and 9 or 8] or '0') + popped
+  headMoved = true
 end
 local maxe = tonumber(ARGV[10])
 for i = 1, nev do
-  if maxe > 0 then redis.call('XADD', KEYS[3], 'MAXLEN', '~', maxe, '*', 'e', ARGV[a]) end
+  if maxe > 0 then
+    -- NOMKSTREAM: nil when the stream does not exist yet; then it is made, and needs its TTL.
+    if not redis.call('XADD', KEYS[3], 'NOMKSTREAM', 'MAXLEN', '~', maxe, '*', 'e', ARGV[a]) then
+      redis.call('XADD', KEYS[3], 'MAXLEN', '~', maxe, '*', 'e', ARGV[a])
+      eventsNew = true
+    end
+  end
   a = a + 1
 end
-redis.call('ZREMRANGEBYSCORE', KEYS[9], '-inf', nowms - keepfor * 1000)
-redis.call('ZADD', KEYS[9], nowms, ARGV[2])
-redis.call('EXPIRE', KEYS[9], keepfor)
+-- The idle TTL is refreshed on every key of the session at most every \`every\` ms (a tenth of the TTL,
+-- at most a minute), and always for a new session or a changed TTL; meta field xr holds "ms:ttl" of
+-- the last refresh. Between refreshes only a key this commit created gets it (a key that exists keeps
+-- its TTL through HSET, RPUSH, LSET, ZADD, XADD), to the same time as the rest. So a session's keys go
+-- between ttl - every and ttl after its last commit. Applied ids live keepfor + every from the
+-- refresh (at least keepfor after any commit), and are pruned at refreshes.
+local ttl = tonumber(ARGV[9])
+local every = ttl > 0 and math.min(60000, ttl * 100) or 60000
+local xat, xttl = string.match(m[10] or '', '^(%d+):(%d+)$')
+local due = not m[1] or xttl == nil or tonumber(xttl) ~= ttl or nowms - tonumber(xat) >= every
+if due then
+  redis.call('ZREMRANGEBYSCORE', KEYS[9], '-inf', nowms - keepfor * 1000)
+  redis.call('ZADD', KEYS[9], nowms, ARGV[2])
+  redis.call('PEXPIRE', KEYS[9], keepfor * 1000 + every)
+  fields[#fields + 1] = 'xr'
+  fields[#fields + 1] = nowms .. ':' .. ttl
+else
+  redis.call('ZADD', KEYS[9], nowms, ARGV[2])
+end
 if rc ~= '' then redis.call('HDEL', KEYS[1], 'rc') end
 redis.call('HSET', KEYS[1], unpack(fields))
-local ttl = tonumber(ARGV[9])
-for _, i in ipairs({1, 2, 3, 4, 5, 6, 7, 10}) do
-  if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
+local expireAt = -1
+if due then
+  for _, i in ipairs({1, 2, 3, 4, 5, 6, 7, 10}) do
+    if ttl > 0 then redis.call('EXPIRE', KEYS[i], ttl) else redis.call('PERSIST', KEYS[i]) end
+  end
+  expireAt = ttl > 0 and (nowms + ttl * 1000) or 0
+elseif ttl > 0 then
+  -- Keys this commit may have created: the slots hash and births (when set into one that was empty,
+  -- wiped or freed from, or not counted), the log (empty before), the event stream (made above).
+  local made = {}
+  if slotsSet and (slotsFreed or not KEYS[S] or before[2] == 0) then made[#made + 1] = KEYS[2]; made[#made + 1] = KEYS[10] end
+  if logNew then made[#made + 1] = log end
+  if eventsNew then made[#made + 1] = KEYS[3] end
+  for _, key in ipairs(made) do redis.call('PEXPIREAT', key, tonumber(xat) + ttl * 1000) end
 end
-restat(before, KEYS[1], KEYS[2], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[10], ttl > 0 and (nowms + ttl * 1000) or 0)
+local after = nil
+if KEYS[S] then
+  local other = nil -- the other slice's count, as meta holds it after this commit
+  if m[1] then other = tonumber(m[ARGV[8] ~= '' and 6 or 7] or '') else other = 0 end
+  after = {1, slotsWiped and redis.call('HLEN', KEYS[2]) or (before[2] + slotsDelta), n + (other or redis.call('HLEN', ARGV[8] ~= '' and KEYS[4] or KEYS[5]))}
+end
+restat(before, KEYS[1], KEYS[2], KEYS[4], KEYS[5], KEYS[6], KEYS[7], KEYS[10], expireAt, {after, slotsMoved or due, headMoved or due})
 -- The commit's own counter increments (field, delta pairs after the events): slot survival counts.
 if KEYS[S] then
   while ARGV[a] do

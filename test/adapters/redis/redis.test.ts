@@ -725,7 +725,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect(await store.listSessions('a:b')).toEqual(['c']);
     });
 
-    it('every commit refreshes the idle TTL on all keys of the session; 0 means none', async () => {
+    it('a new session gets the idle TTL on all its keys; 0 means none', async () => {
       const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
       const ref = { tenant: 'acme', session: 'ttl', user: 'u-ttl' };
       await store.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
@@ -739,6 +739,36 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       await forever.commit(ref, commitOf({ expectedVersion: 1 }));
       expect(await client.ttl(k.meta)).toBe(-1);
       await forever.erase({ tenant: 'acme', user: 'u-ttl' });
+    });
+
+    it('between TTL refreshes a key a commit creates gets the TTL of the rest; the refresh time stays put', async () => {
+      const store = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 3600 });
+      const ref = { tenant: 'acme', session: 'ttl-new', user: 'u-ttl-new' };
+      const k = store.sessionKeys('acme', 'ttl-new');
+      // A session with nothing but meta: no slots, no logbook, no events yet.
+      await store.commit(ref, commitOf({}));
+      const refreshed = await client.hget(k.meta, 'xr');
+      expect(refreshed).toMatch(/^\d+:3600$/);
+      // The next commit (well within a tenth of the TTL) creates the slots, births, logbook and events keys.
+      await store.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 0, slot: slot(1) }], logbook: [demotedItem(1, ref)], events: [{ type: 'allocate', slot: 0, id: 'r1', clock: 1, atMs: 1 }] }));
+      expect(await client.hget(k.meta, 'xr')).toBe(refreshed);
+      for (const key of [k.meta, k.slots, k.born, k.events, k.ualog]) {
+        expect(await client.exists(key), key).toBe(1);
+        const ttl = await client.ttl(key);
+        expect(ttl, key).toBeGreaterThan(3500);
+        expect(ttl, key).toBeLessThanOrEqual(3600);
+      }
+      // A slot freed (the hash goes when empty) and set again: the hash made again gets it too.
+      await store.commit(ref, commitOf({ expectedVersion: 2, ops: [{ index: 0, slot: null }] }));
+      expect(await client.exists(k.slots)).toBe(0);
+      await store.commit(ref, commitOf({ expectedVersion: 3, ops: [{ index: 1, slot: slot(2) }] }));
+      expect(await client.ttl(k.slots)).toBeGreaterThan(3500);
+      expect(await client.ttl(k.born)).toBeGreaterThan(3500);
+      // A changed TTL is applied at once.
+      const shorter = redisSlotStore({ redis: client, prefix, idleTtlSeconds: 120 });
+      await shorter.commit(ref, commitOf({ expectedVersion: 4 }));
+      expect(await client.ttl(k.slots)).toBeLessThanOrEqual(120);
+      await store.erase({ tenant: 'acme', user: 'u-ttl-new' });
     });
 
     it('erasure leaves no data key of the session or of the user, only tombstones holding a time (SCAN proves it)', async () => {
