@@ -12,13 +12,22 @@ import { deltaOf, snapshot, snapshotOf } from '../../bench/lib/redis-info.js';
 import { timeStamp, writeResult } from '../../bench/lib/results.js';
 import { probeRedis } from '../adapters/redis/helpers.js';
 
-const dir = mkdtempSync(join(tmpdir(), 'tidemark-results-'));
-afterAll(() => rmSync(dir, { recursive: true, force: true }));
+// Each test writes into a folder of its own, so no test sees another's files in any order.
+const dirs: string[] = [];
+const freshDir = (): string => {
+  const d = mkdtempSync(join(tmpdir(), 'tidemark-results-'));
+  dirs.push(d);
+  return d;
+};
+afterAll(() => {
+  for (const d of dirs) rmSync(d, { recursive: true, force: true });
+});
 
 describe('results files', () => {
   const date = new Date('2026-03-04T05:06:07.089Z');
 
   it('names each run by UTC date-time and a short id, so two runs in the same second never share a file', () => {
+    const dir = freshDir();
     const a = writeResult('load-redis', { turns_per_s: 1 }, '<svg/>', ['load'], { dir, date });
     const b = writeResult('load-redis', { turns_per_s: 2 }, '<svg/>', ['load'], { dir, date });
     expect(timeStamp(date)).toBe('2026-03-04T05-06-07Z');
@@ -28,13 +37,16 @@ describe('results files', () => {
   });
 
   it('writes to the committed folder only with --save, and records commit, versions, machine and load', () => {
+    const dir = freshDir();
     const before = readdirSync(dir).filter((f) => f.endsWith('.json'));
+    expect(before).toEqual([]);
     writeResult('memory-redis', { points: [] }, '<svg/>', ['memory'], { dir, date, redis: ['7.0.15'] });
     expect(readdirSync(dir).filter((f) => f.endsWith('.json'))).toEqual(before);
     const saved = writeResult('memory-redis', { points: [] }, '<svg/>', ['memory', '--save'], { dir, date, redis: ['7.0.15'] });
     const committed = readdirSync(dir).filter((f) => f.endsWith('.json'));
-    expect(committed).toHaveLength(before.length + 1);
-    const doc = JSON.parse(readFileSync(join(dir, committed[committed.length - 1]!), 'utf8'));
+    expect(committed).toHaveLength(1);
+    expect(saved.json.endsWith(`/${committed[0]}`)).toBe(true);
+    const doc = JSON.parse(readFileSync(join(dir, committed[0]!), 'utf8'));
     expect(saved.json).not.toContain('/runs/');
     expect(doc.command).toBe('npm run bench -- memory --save');
     expect(doc.meta.git_commit).toMatch(/^[0-9a-f]{12}$/);
@@ -71,6 +83,7 @@ describe('bench compare', () => {
   });
 
   it('exits non-zero past the threshold and zero within it', async () => {
+    const dir = freshDir();
     const fa = join(dir, 'a.json');
     const fb = join(dir, 'b.json');
     writeFileSync(fa, JSON.stringify(a));

@@ -25,7 +25,9 @@ const TURNS = [
   'Do you stock terracotta pots?',
 ];
 
-run('dashboard through a store outage, in a real browser', () => {
+// The tests are ordered steps of one story (idle → load → outage → recovery → server gone) sharing one
+// server, page and redis-server: `shuffle: false` keeps their order under `--sequence.shuffle`.
+run('dashboard through a store outage, in a real browser', { shuffle: false }, () => {
   let redis: ThrowawayRedis;
   let s: Serving;
   let browser: Browser;
