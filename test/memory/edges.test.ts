@@ -7,18 +7,10 @@
 
 import { describe, expect, it } from 'vitest';
 import type { Candidate } from '../../src/memory/extract.js';
-import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
 import type { SlotTable } from '../../src/memory/slots.js';
 import { BARE_CORRECTION_WINDOW, CORRECTION_WINDOW, planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
-import { basis, rec, table, vec, writeParams } from './helpers.js';
+import { basis, flatGate, rec, sigma, table, vec, writeParams } from './helpers.js';
 
-const flat = (bias: number): GateWeights => {
-  const w = { ...DEFAULT_GATE_WEIGHTS };
-  for (const k of Object.keys(w) as Array<keyof GateWeights>) w[k] = 0;
-  w.bias = bias;
-  return w;
-};
-const sigma = (x: number): number => 1 / (1 + Math.exp(-x));
 const GATE = sigma(2);
 
 /** The next double above / below x (x > 0). */
@@ -42,7 +34,7 @@ function cand(key: Float32Array, over: Partial<Candidate> = {}, turn = 't9'): Ke
 function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePlanInput> = {}, params = {}) {
   let n = 0;
   return planWrite({
-    table: t, now: 0, nowMs: 1000, params: writeParams({ gateWeights: flat(2), gateThreshold: 0.5, ...params }),
+    table: t, now: 0, nowMs: 1000, params: writeParams({ gateWeights: flatGate(2), gateThreshold: 0.5, ...params }),
     tenant: 'shop', session: 's1', candidates, reinforce: [], newId: () => `new${++n}`, ...over,
   });
 }

@@ -1,5 +1,6 @@
 // Test helpers for the memory math: slot records and tables built from hand-made vectors.
 
+import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { READ_DEFAULTS, WRITE_DEFAULTS, type ReadParams, type WriteParams } from '../../src/memory/params.js';
 import type { SlotRecord } from '../../src/types.js';
@@ -57,3 +58,14 @@ export function softmaxRef(z: number[], tau = 1): number[] {
   const s = e.reduce((a, b) => a + b, 0);
   return e.map((x) => x / s);
 }
+
+/** Gate weights that ignore every feature: the gate is sigma(bias) for any candidate. */
+export function flatGate(bias: number): GateWeights {
+  const w = { ...DEFAULT_GATE_WEIGHTS };
+  for (const k of Object.keys(w) as Array<keyof GateWeights>) w[k] = 0;
+  w.bias = bias;
+  return w;
+}
+
+/** The logistic function. */
+export const sigma = (x: number): number => 1 / (1 + Math.exp(-x));

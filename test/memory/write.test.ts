@@ -7,18 +7,10 @@
 
 import { describe, expect, it } from 'vitest';
 import type { Candidate } from '../../src/memory/extract.js';
-import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
 import type { SlotTable } from '../../src/memory/slots.js';
 import { MAX_PROVENANCE, planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
-import { basis, rec, table, vec, writeParams } from './helpers.js';
+import { basis, flatGate, rec, sigma, table, vec, writeParams } from './helpers.js';
 
-const flat = (bias: number): GateWeights => {
-  const w = { ...DEFAULT_GATE_WEIGHTS };
-  for (const k of Object.keys(w) as Array<keyof GateWeights>) w[k] = 0;
-  w.bias = bias;
-  return w;
-};
-const sigma = (x: number): number => 1 / (1 + Math.exp(-x));
 const GATE = sigma(2); // 0.8807970779778823
 
 function cand(key: Float32Array, over: Partial<Candidate> = {}, turn = 't9'): KeyedCandidate {
@@ -31,7 +23,7 @@ function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePla
     table: t,
     now: 0,
     nowMs: 1000,
-    params: writeParams({ gateWeights: flat(2), gateThreshold: 0.5, ...params }),
+    params: writeParams({ gateWeights: flatGate(2), gateThreshold: 0.5, ...params }),
     tenant: 'shop',
     session: 's1',
     candidates,
@@ -318,11 +310,11 @@ describe('planWrite: fidelity', () => {
 describe('planWrite: gate and reinforcement of what was read', () => {
   it('drops a candidate under the threshold, unless it asks to be pinned', () => {
     const t = table(2, 3, []);
-    const low = plan(t, [cand(basis(3, 0))], {}, { gateWeights: flat(-3) });
+    const low = plan(t, [cand(basis(3, 0))], {}, { gateWeights: flatGate(-3) });
     expect(low.outcomes[0]).toMatchObject({ outcome: 'gated_out', slot: -1 });
     expect(low.outcomes[0]!.gate).toBeCloseTo(sigma(-3), 15);
     expect(low.ops).toEqual([]);
-    const pinned = plan(t, [cand(basis(3, 0), { pin: true })], {}, { gateWeights: flat(-3) });
+    const pinned = plan(t, [cand(basis(3, 0), { pin: true })], {}, { gateWeights: flatGate(-3) });
     expect(pinned.outcomes[0]!.outcome).toBe('allocated');
     expect(pinned.ops[0]!.slot).toMatchObject({ pinned: true });
     expect(pinned.ops[0]!.slot!.strength).toBeCloseTo(sigma(-3), 15);
