@@ -57,6 +57,19 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
     open.push(tm);
     return tm;
   };
+  /**
+   * Processes A (plain) and B (a store whose commits run a hook first, so A can get in before them) on
+   * a fresh prefix; B makes no in-commit retries, so a lost race sends its write to the outbox.
+   */
+  const racers = (tag: string, retryMs: number): { prefix: string; a: Tidemark; b: Tidemark; hooked: HookedStore } => {
+    const prefix = uniquePrefix(tag);
+    prefixes.push(prefix);
+    const a = proc(prefix);
+    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
+    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs, maxRetryMs: retryMs * 2 } });
+    open.push(b);
+    return { prefix, a, b, hooked };
+  };
   /** Data keys (not tombstones) left under a prefix. */
   // Tombstones hold a time, the marker a constant, the tenant's counters and fleet hash only figures:
   // none holds anything a user said, so none is a data key.
@@ -224,12 +237,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
   });
 
   it('3: a queued write that meets a conflict while draining is planned again, not dropped', async () => {
-    const prefix = uniquePrefix('race-3');
-    prefixes.push(prefix);
-    const a = proc(prefix);
-    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
-    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 20, maxRetryMs: 40 } });
-    open.push(b);
+    const { a, b, hooked } = racers('race-3', 20);
     const changes: string[] = [];
     b.on('outbox', (e) => changes.push(e.change));
     await b.write({ session: 'q', text: 'My name is Ola.' });
@@ -246,12 +254,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
   });
 
   it('3: under wrap() a conflict on a normal write is queued and stored, not dropped', async () => {
-    const prefix = uniquePrefix('race-3w');
-    prefixes.push(prefix);
-    const a = proc(prefix);
-    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
-    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 20, maxRetryMs: 40 } });
-    open.push(b);
+    const { a, b, hooked } = racers('race-3w', 20);
     await b.write({ session: 'w', text: 'My name is Ola.' });
     hooked.before = async () => void (await a.write({ session: 'w', text: 'My lesson is on Monday.' }));
     const bot = b.wrap(async () => 'Noted.');
@@ -263,12 +266,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
 
   // The four defects the test-suite audit found with probes (each must stay fixed).
   it('4a: a conflict storm during an outbox retry: the write is planned again every pass and reported drained once, when stored', async () => {
-    const prefix = uniquePrefix('race-4a');
-    prefixes.push(prefix);
-    const a = proc(prefix);
-    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
-    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 5, maxRetryMs: 10 } });
-    open.push(b);
+    const { a, b, hooked } = racers('race-4a', 5);
     const changes: string[] = [];
     b.on('outbox', (e) => changes.push(e.change));
     await b.write({ session: 'storm', text: 'My name is Ola.' });
@@ -291,12 +289,7 @@ describe.skipIf(down !== null)(`races and faults across processes${down ? ` (ski
   });
 
   it('4b: an erase while the outbox is committing that session: the commit is refused, nothing lands after the erase', async () => {
-    const prefix = uniquePrefix('race-4b');
-    prefixes.push(prefix);
-    const a = proc(prefix);
-    const hooked = new HookedStore({ redis: REDIS_URL, prefix });
-    const b = createTidemark({ store: hooked, tenant: 'shop', commitRetries: 0, outbox: { retryMs: 5, maxRetryMs: 10 } });
-    open.push(b);
+    const { prefix, a, b, hooked } = racers('race-4b', 5);
     const changes: string[] = [];
     b.on('outbox', (e) => changes.push(e.change));
     await b.write({ session: 'mid', user: 'u-mid', text: 'My name is Ola.' });
