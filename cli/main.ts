@@ -97,8 +97,9 @@ program
   });
 
 program
-  .command('sweep')
-  .description('try a grid of settings on a transcript + probes and print the recall/cost frontier')
+  .command('tune')
+  .alias('sweep')
+  .description('try a grid of settings on a transcript + probes and print the recall/cost frontier (`sweep` is its 0.1 name)')
   .argument('<transcript>', 'transcript file, JSON Lines')
   .requiredOption('--probes <file>', 'probes file, JSON Lines')
   .option('--k <n>', 'items per probe read', int('--k'), 5)
@@ -108,8 +109,10 @@ program
   .option('--strict', 'stop at the first malformed line instead of skipping it')
   .option('--json', 'print one JSON object on stdout')
   .action(async (transcript: string, o: Record<string, unknown>) => {
-    const { sweepCli } = await import('./sweep.js');
-    process.exitCode = await sweepCli(transcript, o);
+    // The 0.1 name clashed with the retention sweep (`retention.sweepMs`, `sweep()`); it works until 0.3.
+    if (program.args[0] === 'sweep') process.stderr.write('tidemark: `sweep` was renamed `tune`; the old name goes in 0.3\n');
+    const { tuneCli } = await import('./tune.js');
+    process.exitCode = await tuneCli(transcript, o);
   });
 
 try {

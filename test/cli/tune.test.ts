@@ -1,9 +1,10 @@
+import { spawnSync } from 'node:child_process';
 import { describe, expect, it } from 'vitest';
 import { parseProbes, parseTranscript } from '../../cli/jsonl.js';
-import { checkGrid, gridPoints, paretoFrontier, pickPoint, runSweep, sweepSvg, withParam, type SweepPoint } from '../../cli/sweep.js';
+import { checkGrid, gridPoints, paretoFrontier, pickPoint, runTune, tuneSvg, withParam, type TunePoint } from '../../cli/tune.js';
 import { TINY_PROBES, TINY_TRANSCRIPT } from './fixtures.js';
 
-const pt = (capacity: number, recall: number, us: number): SweepPoint => ({ settings: { capacity }, capacity, recall_at_k: recall, by_kind: {}, slots_per_session: capacity, read_us_p50: us, turns_per_s: 1 });
+const pt = (capacity: number, recall: number, us: number): TunePoint => ({ settings: { capacity }, capacity, recall_at_k: recall, by_kind: {}, slots_per_session: capacity, read_us_p50: us, turns_per_s: 1 });
 
 describe('paretoFrontier', () => {
   it('keeps the points no other point beats on both axes, by increasing x', () => {
@@ -45,12 +46,12 @@ describe('grids', () => {
   });
 });
 
-describe('runSweep', () => {
+describe('runTune', () => {
   it('finds that more slots buy recall on the tiny transcript and plots every point', async () => {
     const turns = parseTranscript(TINY_TRANSCRIPT).items;
     const probes = parseProbes(TINY_PROBES).items;
     // Reading working memory alone, what leaves the slots is out of reach, so capacity shows in recall.
-    const r = await runSweep({ turns, probes, k: 3, config: { read: { tiers: 'slots' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8, 64] } } });
+    const r = await runTune({ turns, probes, k: 3, config: { read: { tiers: 'slots' } }, grid: { mode: 'axes', axes: { capacity: [1, 2, 8, 64] } } });
     expect(r.points.map((p) => p.capacity)).toEqual([64, 1, 2, 8]);
     expect(r.points.map((p) => p.slots_per_session)).toEqual([2, 1, 1.5, 2]);
     const recall = r.points.map((p) => p.recall_at_k);
@@ -61,8 +62,24 @@ describe('runSweep', () => {
     // 8 and 64 slots hold the same 2 slots per session at the same recall: either may be picked.
     expect(r.points[r.pick]!.slots_per_session).toBe(2);
     expect(r.advice).toMatch(/^pick (base|capacity=8) /);
-    const svg = sweepSvg(r);
+    const svg = tuneSvg(r);
     expect(svg.startsWith('<svg xmlns="http://www.w3.org/2000/svg"')).toBe(true);
     expect(svg.match(/<circle /g)).toHaveLength(2 * r.points.length);
+  });
+});
+
+describe('the command name', () => {
+  const run = (...args: string[]) =>
+    spawnSync(process.execPath, ['--import', 'tsx', 'cli/main.ts', ...args, 'no-such-transcript.jsonl', '--probes', 'no-such-probes.jsonl'], { encoding: 'utf8' });
+
+  it('`tune` runs the grid; `sweep`, its 0.1 name, runs the same and says it was renamed', () => {
+    const tune = run('tune');
+    const old = run('sweep');
+    // Both reach the grid runner, which reports the missing transcript with its code.
+    expect(tune.stderr).toContain('tidemark tune: TIDEMARK_E_REPLAY_FORMAT');
+    expect(old.stderr).toContain('tidemark tune: TIDEMARK_E_REPLAY_FORMAT');
+    expect(tune.stderr).not.toContain('renamed');
+    expect(old.stderr).toContain("`sweep` was renamed `tune`");
+    expect([tune.status, old.status]).toEqual([2, 2]);
   });
 });

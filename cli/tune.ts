@@ -1,4 +1,4 @@
-// `tidemark sweep`: replays one transcript + probes under a grid of settings (capacity, gate and
+// `tidemark tune`: replays one transcript + probes under a grid of settings (capacity, gate and
 // overwrite thresholds, the read's speaker, neighbour, slot and recency weights, BM25's b), prints the
 // frontier of recall against slots and against read cost, writes a self-contained SVG/HTML plot,
 // and says which setting to pick: the cheapest one within 0.01 of the best recall.
@@ -13,19 +13,19 @@ import { runReplay } from './replay.js';
 import { defaultIo, loadConfig, loadReplayFiles, parseK, type CliIo } from './replay-cli.js';
 
 /** Parameter path (`capacity`, `read.gamma`, `write.halfLife`, ...) -> values to try. */
-export type SweepAxes = Record<string, number[]>;
+export type TuneAxes = Record<string, number[]>;
 
-export interface SweepGrid {
+export interface TuneGrid {
   /** `axes`: the base point plus one axis changed at a time; `full`: every combination. @default 'axes' */
   mode?: 'axes' | 'full';
-  axes: SweepAxes;
+  axes: TuneAxes;
 }
 
 /**
  * 15 replays (the base point once): the levers of the merged read (speakers, neighbours, the slot
  * tier's priors, BM25's length normalisation) and of working memory (capacity, gate, overwrite).
  */
-export const DEFAULT_GRID: SweepGrid = {
+export const DEFAULT_GRID: TuneGrid = {
   mode: 'axes',
   axes: {
     capacity: [16, 128],
@@ -47,12 +47,12 @@ const PATHS = new Set([
 ]);
 
 /** Checks a grid read from a file; names the bad path or value. */
-export function checkGrid(v: unknown): SweepGrid {
+export function checkGrid(v: unknown): TuneGrid {
   if (typeof v !== 'object' || v === null || Array.isArray(v)) throw new ConfigError(`grid must be a JSON object { "mode"?, "axes": { path: [values] } }, got ${describeValue(v)}`, { details: { option: 'grid' } });
   const g = v as { mode?: unknown; axes?: unknown };
   if (g.mode !== undefined && g.mode !== 'axes' && g.mode !== 'full') throw new ConfigError(`grid.mode must be "axes" or "full", got ${describeValue(g.mode)}`, { details: { option: 'grid.mode' } });
   if (typeof g.axes !== 'object' || g.axes === null || Array.isArray(g.axes)) throw new ConfigError(`grid.axes must be an object of parameter path -> array of numbers, got ${describeValue(g.axes)}`, { details: { option: 'grid.axes' } });
-  const axes: SweepAxes = {};
+  const axes: TuneAxes = {};
   for (const [path, values] of Object.entries(g.axes as Record<string, unknown>)) {
     if (!PATHS.has(path)) throw new ConfigError(`grid.axes has unknown parameter ${describeValue(path)}; expected one of ${[...PATHS].join(', ')}`, { details: { option: 'grid.axes', value: path } });
     if (!Array.isArray(values) || values.length === 0 || !values.every((x) => typeof x === 'number' && Number.isFinite(x))) {
@@ -71,7 +71,7 @@ export function withParam(base: TidemarkOptions, path: string, value: number): T
 }
 
 /** The settings a grid asks for: each a map path -> value (empty = the base config). */
-export function gridPoints(grid: SweepGrid): Array<Record<string, number>> {
+export function gridPoints(grid: TuneGrid): Array<Record<string, number>> {
   const entries = Object.entries(grid.axes);
   if (grid.mode === 'full') {
     let pts: Array<Record<string, number>> = [{}];
@@ -83,7 +83,7 @@ export function gridPoints(grid: SweepGrid): Array<Record<string, number>> {
   return pts;
 }
 
-export interface SweepPoint {
+export interface TunePoint {
   settings: Record<string, number>;
   capacity: number;
   recall_at_k: number;
@@ -94,9 +94,9 @@ export interface SweepPoint {
   turns_per_s: number;
 }
 
-export interface SweepResult {
+export interface TuneResult {
   k: number;
-  points: SweepPoint[];
+  points: TunePoint[];
   /** Indices into points, by increasing x. */
   frontier: { slots: number[]; cost: number[] };
   /** Index of the recommended point. */
@@ -125,7 +125,7 @@ export function paretoFrontier(xs: readonly number[], ys: readonly number[]): nu
  * The cheapest point within `tolerance` of the best recall: fewest slots in use per session (what
  * memory costs to hold and to scan), then lowest read cost.
  */
-export function pickPoint(points: readonly SweepPoint[], tolerance = 0.01): number {
+export function pickPoint(points: readonly TunePoint[], tolerance = 0.01): number {
   const best = Math.max(...points.map((p) => p.recall_at_k));
   let pick = -1;
   points.forEach((p, i) => {
@@ -138,23 +138,23 @@ export function pickPoint(points: readonly SweepPoint[], tolerance = 0.01): numb
 
 const label = (s: Record<string, number>): string => (Object.keys(s).length === 0 ? 'base' : Object.entries(s).map(([k, v]) => `${k}=${v}`).join(' '));
 
-export interface SweepOptions {
+export interface TuneOptions {
   turns: readonly TranscriptTurn[];
   probes: readonly Probe[];
   k?: number;
   config?: TidemarkOptions;
-  grid?: SweepGrid;
+  grid?: TuneGrid;
   onProgress?: (done: number, total: number) => void;
 }
 
 /** Runs every grid point and computes the frontiers and the pick. */
-export async function runSweep(o: SweepOptions): Promise<SweepResult> {
-  if (o.probes.length === 0) throw new ConfigError('sweep needs probes (--probes FILE): recall cannot be measured without them', { details: { option: 'probes' } });
+export async function runTune(o: TuneOptions): Promise<TuneResult> {
+  if (o.probes.length === 0) throw new ConfigError('tune needs probes (--probes FILE): recall cannot be measured without them', { details: { option: 'probes' } });
   const grid = o.grid ?? DEFAULT_GRID;
   const base = o.config ?? {};
   const k = o.k ?? 5;
   const settings = gridPoints(grid);
-  const points: SweepPoint[] = [];
+  const points: TunePoint[] = [];
   // An axis value equal to the base setting would replay the base again: run each setting once.
   const seen = new Set<string>();
   for (const [n, s] of settings.entries()) {
@@ -187,7 +187,7 @@ export async function runSweep(o: SweepOptions): Promise<SweepResult> {
 
 const esc = (s: string): string => s.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;');
 
-function panel(points: readonly SweepPoint[], xOf: (p: SweepPoint) => number, frontier: readonly number[], pick: number, title: string, xLabel: string, ox: number, log: boolean): string {
+function panel(points: readonly TunePoint[], xOf: (p: TunePoint) => number, frontier: readonly number[], pick: number, title: string, xLabel: string, ox: number, log: boolean): string {
   const W = 420, H = 300, L = 50, B = 40, T = 30, R = 15;
   const xs = points.map(xOf).map((x) => (log ? Math.log2(Math.max(x, 1e-6)) : x));
   const ys = points.map((p) => p.recall_at_k);
@@ -218,18 +218,18 @@ function panel(points: readonly SweepPoint[], xOf: (p: SweepPoint) => number, fr
 }
 
 /** A self-contained SVG: recall vs slots in use (log2 axis) and recall vs read p50 µs, frontiers in orange. */
-export function sweepSvg(r: SweepResult): string {
+export function tuneSvg(r: TuneResult): string {
   const body = panel(r.points, (p) => p.slots_per_session, r.frontier.slots, r.pick, 'recall vs slots', 'slots in use per session (log scale)', 0, true) +
     panel(r.points, (p) => p.read_us_p50, r.frontier.cost, r.pick, 'recall vs read cost', 'read p50 (µs)', 430, false);
   return `<svg xmlns="http://www.w3.org/2000/svg" width="860" height="330" viewBox="0 0 860 330" font-family="sans-serif"><rect width="860" height="330" fill="#fff"/>${body}<text x="10" y="322" font-size="11">${esc(r.advice)}</text></svg>\n`;
 }
 
-export function sweepHtml(r: SweepResult): string {
+export function tuneHtml(r: TuneResult): string {
   const rows = r.points.map((p, i) => `<tr${i === r.pick ? ' style="font-weight:bold"' : ''}><td>${esc(label(p.settings))}</td><td>${p.capacity}</td><td>${p.recall_at_k.toFixed(3)}</td><td>${p.slots_per_session}</td><td>${p.read_us_p50.toFixed(0)}</td></tr>`).join('');
-  return `<!doctype html><html><head><meta charset="utf-8"><title>tidemark sweep</title></head><body style="font-family:sans-serif">${sweepSvg(r)}<p>${esc(r.advice)}</p><table border="1" cellpadding="4" style="border-collapse:collapse"><tr><th>settings</th><th>capacity</th><th>recall@${r.k}</th><th>slots/session</th><th>read p50 µs</th></tr>${rows}</table></body></html>\n`;
+  return `<!doctype html><html><head><meta charset="utf-8"><title>tidemark tune</title></head><body style="font-family:sans-serif">${tuneSvg(r)}<p>${esc(r.advice)}</p><table border="1" cellpadding="4" style="border-collapse:collapse"><tr><th>settings</th><th>capacity</th><th>recall@${r.k}</th><th>slots/session</th><th>read p50 µs</th></tr>${rows}</table></body></html>\n`;
 }
 
-export function formatSweepTable(r: SweepResult): string {
+export function formatTuneTable(r: TuneResult): string {
   const kinds = [...new Set(r.points.flatMap((p) => Object.keys(p.by_kind)))].sort();
   const head = ['settings', 'capacity', `recall@${r.k}`, ...kinds.flatMap((k) => [`${k}@1`, `${k}@${r.k}`]), 'slots/session', 'read p50 µs', 'turns/s', 'frontier'];
   const rows = [head, ...r.points.map((p, i) => [
@@ -242,7 +242,7 @@ export function formatSweepTable(r: SweepResult): string {
   return rows.map((x) => x.map((cell, c) => (c === 0 ? cell.padEnd(widths[c]!) : cell.padStart(widths[c]!))).join('  ')).join('\n') + `\n\n${r.advice}\n`;
 }
 
-export interface SweepCliOptions {
+export interface TuneCliOptions {
   probes?: string;
   k?: number | string;
   grid?: string;
@@ -252,10 +252,10 @@ export interface SweepCliOptions {
   strict?: boolean;
 }
 
-/** `tidemark sweep TRANSCRIPT --probes FILE [--grid FILE] [--config FILE] [--k N] [--json] [--out plot.svg|html]`. Returns the exit code. */
-export async function sweepCli(transcriptPath: string, cli: SweepCliOptions, io: CliIo = defaultIo()): Promise<number> {
+/** `tidemark tune TRANSCRIPT --probes FILE [--grid FILE] [--config FILE] [--k N] [--json] [--out plot.svg|html]`. Returns the exit code. */
+export async function tuneCli(transcriptPath: string, cli: TuneCliOptions, io: CliIo = defaultIo()): Promise<number> {
   try {
-    if (!cli.probes) throw new ConfigError('sweep needs --probes FILE', { details: { option: 'probes' } });
+    if (!cli.probes) throw new ConfigError('tune needs --probes FILE', { details: { option: 'probes' } });
     if (cli.out && !/\.(svg|html?)$/i.test(cli.out)) throw new ConfigError(`--out must end in .svg or .html, got ${describeValue(cli.out)}`, { details: { option: 'out' } });
     const k = parseK(cli.k);
     const config = await loadConfig(cli.config);
@@ -272,14 +272,14 @@ export async function sweepCli(transcriptPath: string, cli: SweepCliOptions, io:
     }
     const files = await loadReplayFiles(transcriptPath, cli.probes, cli.strict === true);
     for (const i of files.issues) io.stderr.write(`${i.file} line ${i.line}: ${i.message}\n`);
-    const bar = cli.json ? null : progressBar(gridPoints(grid).length, 'sweep', io.stderr as NodeJS.WriteStream, 1);
-    const r = await runSweep({ turns: files.turns, probes: files.probes, ...(k !== undefined ? { k } : {}), config, grid, ...(bar ? { onProgress: (d: number) => bar.tick(d) } : {}) });
+    const bar = cli.json ? null : progressBar(gridPoints(grid).length, 'tune', io.stderr as NodeJS.WriteStream, 1);
+    const r = await runTune({ turns: files.turns, probes: files.probes, ...(k !== undefined ? { k } : {}), config, grid, ...(bar ? { onProgress: (d: number) => bar.tick(d) } : {}) });
     bar?.done();
-    if (cli.out) await writeFile(cli.out, /\.svg$/i.test(cli.out) ? sweepSvg(r) : sweepHtml(r));
-    io.stdout(cli.json ? JSON.stringify(r) + '\n' : formatSweepTable(r) + (cli.out ? `plot written to ${cli.out}\n` : ''));
+    if (cli.out) await writeFile(cli.out, /\.svg$/i.test(cli.out) ? tuneSvg(r) : tuneHtml(r));
+    io.stdout(cli.json ? JSON.stringify(r) + '\n' : formatTuneTable(r) + (cli.out ? `plot written to ${cli.out}\n` : ''));
     return 0;
   } catch (err) {
-    io.stderr.write(`tidemark sweep: ${isTidemarkError(err) ? `${(err as { code: string }).code}: ` : ''}${(err as Error).message}\n`);
+    io.stderr.write(`tidemark tune: ${isTidemarkError(err) ? `${(err as { code: string }).code}: ` : ''}${(err as Error).message}\n`);
     return isTidemarkError(err) ? 2 : 1;
   }
 }
