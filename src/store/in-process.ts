@@ -462,7 +462,10 @@ export class InProcessStore implements Store {
 
 const EMPTY = new LogbookIndex();
 
-/** Whether an erase happened after a writer's fence (see ErasureFence). */
+/**
+ * Whether an erase happened after a writer's fence (see ErasureFence). An erase in the very millisecond
+ * the turn was accepted counts as later (`>=`): the order cannot be told, and the erase must win.
+ */
 export function fencedOut(fence: ErasureFence, now: ErasureMarks): boolean {
   const s = fence.seen;
   if (s && (now.session > s.session || now.user > s.user)) return true;

@@ -2,7 +2,7 @@ import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it, vi } from 'vitest';
-import { InProcessStore } from '../../src/store/in-process.js';
+import { fencedOut, InProcessStore } from '../../src/store/in-process.js';
 import { MemoryStore } from '../../src/deprecated.js';
 import { demotedItem, commitOf, searchText, slot, storeConformance, turnEntry } from './conformance.js';
 
@@ -110,5 +110,22 @@ describe('InProcessStore bounds', () => {
     } finally {
       vi.useRealTimers();
     }
+  });
+});
+
+describe('fencedOut', () => {
+  const marks = (session: number, user = 0) => ({ session, user });
+
+  it('refuses a turn accepted in the same millisecond as an erase: the order cannot be told, so the erase wins', () => {
+    expect(fencedOut({ acceptedMs: 1_000 }, marks(1_000))).toBe(true);
+    expect(fencedOut({ acceptedMs: 1_000 }, marks(0, 1_000))).toBe(true);
+  });
+  it('keeps a turn accepted one millisecond after the erase, and refuses one accepted before it', () => {
+    expect(fencedOut({ acceptedMs: 1_001 }, marks(1_000, 1_000))).toBe(false);
+    expect(fencedOut({ acceptedMs: 999 }, marks(1_000))).toBe(true);
+  });
+  it('refuses a turn whose reader saw an older erase than the store now holds', () => {
+    expect(fencedOut({ acceptedMs: 5_000, seen: marks(1_000, 0) }, marks(2_000, 0))).toBe(true);
+    expect(fencedOut({ acceptedMs: 5_000, seen: marks(2_000, 3_000) }, marks(2_000, 3_000))).toBe(false);
   });
 });
