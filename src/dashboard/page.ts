@@ -136,14 +136,17 @@ const SCRIPT = String.raw`
     series.forEach(function (s) { for (var i = first; i < t.length; i++) if (s.values[i] > max) max = s.values[i]; });
     var top = niceMax(max * 1.1), out = yAxis(top, W, H, function (v) { return v === 0 ? '0' : v < 10 ? fmt(v, 1) : fmt(v); }) + unitLabel('ms');
     series.forEach(function (s) {
-      var d = '', pen = false;
+      var d = '', dots = '', run = [];
+      // A bucket with no neighbour to join (the first 5 s of traffic, or one between gaps) is a dot, not an invisible path.
+      function endRun() { if (run.length === 1) dots += '<circle class="dot" cx="' + run[0][0] + '" cy="' + run[0][1] + '" r="' + ((s.width || 2) + 1) + '" fill="' + s.color + '"/>'; run = []; }
       for (var i = first; i < t.length; i++) {
         var v = s.values[i];
-        if (v === null || v === undefined) { pen = false; continue; }
-        var x = PAD.l + (i - first + 0.5) * iw / n, y = H - PAD.b - v / top * ih;
-        d += (pen ? 'L' : 'M') + x.toFixed(1) + ' ' + y.toFixed(1); pen = true;
+        if (v === null || v === undefined) { endRun(); continue; }
+        var x = (PAD.l + (i - first + 0.5) * iw / n).toFixed(1), y = (H - PAD.b - v / top * ih).toFixed(1);
+        d += (run.length ? 'L' : 'M') + x + ' ' + y; run.push([x, y]);
       }
-      out += '<path d="' + d + '" fill="none" stroke="' + s.color + '" stroke-width="' + (s.width || 2) + '" stroke-linejoin="round" stroke-linecap="round"' + (s.dash ? ' stroke-dasharray="' + s.dash + '"' : '') + '/>';
+      endRun();
+      out += '<path d="' + d + '" fill="none" stroke="' + s.color + '" stroke-width="' + (s.width || 2) + '" stroke-linejoin="round" stroke-linecap="round"' + (s.dash ? ' stroke-dasharray="' + s.dash + '"' : '') + '/>' + dots;
     });
     return svg(W, H, out + xAxis(t, first, W, H, now));
   }
