@@ -13,7 +13,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { redisSlotStore } from '../../adapters/redis/index.js';
 import { createTidemark } from '../../src/index.js';
 import { FaultProxy } from '../adapters/redis/proxy.js';
-import { ThrowawayRedis, freePort, repoRoot } from '../adapters/redis/helpers.js';
+import { ThrowawayRedis, repoRoot } from '../adapters/redis/helpers.js';
 
 const PROCS = 3;
 const M = 20;
@@ -46,7 +46,7 @@ describe.skipIf(!hasRedisServer)(`chaos${hasRedisServer ? '' : ' (skipped: redis
   });
 
   it('3 processes, replies cut, Redis SIGKILLed and restarted, a user erased: 0 lost, 0 duplicated, 0 resurrected', async () => {
-    const server = new ThrowawayRedis(await freePort());
+    const server = new ThrowawayRedis();
     await server.start();
     cleanup.push(() => server.stop());
     const proxy = new FaultProxy({ host: '127.0.0.1', port: server.port });

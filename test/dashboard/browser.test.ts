@@ -111,7 +111,7 @@ run('dashboard in a real browser', () => {
     // The latency lines show a mark a person can see: a joined line, or a dot for a bucket alone (a
     // chat shorter than one 5 s bucket has no line to join, and an unjoined path draws nothing).
     const visible = await page.locator('[data-panel="latency"] .chart').evaluate((el) =>
-      [...el.querySelectorAll('path')].filter((p) => (p.getAttribute('d') ?? '').includes('L')).length + el.querySelectorAll('circle.dot').length);
+      Array.from(el.querySelectorAll('path')).filter((p) => (p.getAttribute('d') ?? '').includes('L')).length + el.querySelectorAll('circle.dot').length);
     expect(visible).toBeGreaterThanOrEqual(1);
     // The figures a person reads, against the traffic sent and the store itself.
     const reads = SESSIONS * TURNS_PER_SESSION;

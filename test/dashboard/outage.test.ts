@@ -7,7 +7,7 @@ import { existsSync, mkdirSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { chromium, type Browser, type Page } from 'playwright-core';
 import { serve, type Serving } from '../../cli/serve.js';
-import { ThrowawayRedis, freePort } from '../adapters/redis/helpers.js';
+import { ThrowawayRedis } from '../adapters/redis/helpers.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 const ARTIFACTS = fileURLToPath(new URL('../artifacts/', import.meta.url));
@@ -52,7 +52,7 @@ run('dashboard through a store outage, in a real browser', { shuffle: false }, (
   };
 
   beforeAll(async () => {
-    redis = new ThrowawayRedis(await freePort());
+    redis = new ThrowawayRedis();
     await redis.start();
     s = await serve({ port: 0, redis: redis.url, capacity: 4, instance: 'nursery-desk-1', feedIntervalMs: 500, secret: 'nursery-secret-0123456789', log: false });
     browser = await chromium.launch({

@@ -34,7 +34,7 @@ run('rules and dashboard queries on a real Prometheus scraping two serve process
     (await (await fetch(`${promUrl}/api/v1/query?query=${encodeURIComponent(expr)}`)).json()) as PromResult;
 
   beforeAll(async () => {
-    redis = new ThrowawayRedis(await freePort());
+    redis = new ThrowawayRedis();
     await redis.start();
     procs = await Promise.all([
       startServe(['--redis', redis.url, '--instance', 'nursery-a'], { TIDEMARK_SECRET: 'live-test-secret-0123456789' }),

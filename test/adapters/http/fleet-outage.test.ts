@@ -7,7 +7,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import parsePrometheusTextFormat from 'parse-prometheus-text-format';
 import type { DashboardSnapshot } from '../../../src/metrics/collector.js';
-import { ThrowawayRedis, freePort, newClient, scanKeys } from '../redis/helpers.js';
+import { ThrowawayRedis, newClient, scanKeys } from '../redis/helpers.js';
 import { TURNS, chat, startServe, waitFor, type ServeProc } from './serve-procs.js';
 
 const SECRET = 'fleet-test-secret-0123456789';
@@ -41,7 +41,7 @@ run('two serve processes on one Redis through an outage', () => {
   let b: ServeProc;
 
   beforeAll(async () => {
-    redis = new ThrowawayRedis(await freePort());
+    redis = new ThrowawayRedis();
     await redis.start();
     [a, b] = await Promise.all([
       startServe(['--redis', redis.url, '--instance', 'bikes-a', '--capacity', '8'], { TIDEMARK_SECRET: SECRET }),

@@ -78,39 +78,71 @@ export async function freePort(): Promise<number> {
 }
 
 /**
- * A redis-server of our own on `port`, with an append-only file fsynced per `fsync` (default
- * `always`). A SIGKILL of the server is a process crash: what it wrote to the file is in the OS page
- * cache, so the restart reads it back under any fsync policy (a power loss, not simulated here, is
- * what needs `always`). With `persist: false`, no persistence at all, so a restart comes back empty.
+ * A redis-server of our own, with an append-only file fsynced per `fsync` (default `always`). A SIGKILL
+ * of the server is a process crash: what it wrote to the file is in the OS page cache, so the restart
+ * reads it back under any fsync policy (a power loss, not simulated here, is what needs `always`). With
+ * `persist: false`, no persistence at all, so a restart comes back empty.
+ *
+ * Ports: without a `port`, the first start takes a free one and, should another process bind it between
+ * the pick and redis-server's own bind, starts again on a fresh one (a lost race is a retry, not a failed
+ * test). Restarts keep the port the server first bound, as a restarted host would.
  */
 export class ThrowawayRedis {
   readonly dir = mkdtempSync(join(tmpdir(), 'tidemark-redis-'));
   private proc: ChildProcess | undefined;
-  constructor(readonly port: number, readonly persist = true, readonly fsync: 'always' | 'everysec' | 'no' = 'always') {}
+  private bound: number | undefined;
+  constructor(port?: number, readonly persist = true, readonly fsync: 'always' | 'everysec' | 'no' = 'always') {
+    this.bound = port;
+  }
+
+  get port(): number {
+    if (this.bound === undefined) throw new Error('ThrowawayRedis: start() it first; the port is the one it binds');
+    return this.bound;
+  }
 
   get url(): string {
     return `redis://127.0.0.1:${this.port}`;
   }
 
   async start(): Promise<void> {
-    this.proc = spawn('redis-server', [
-      '--port', String(this.port), '--bind', '127.0.0.1', '--dir', this.dir, '--save', '',
-      ...(this.persist ? ['--appendonly', 'yes', '--appendfsync', this.fsync] : ['--appendonly', 'no']),
-    ], { stdio: 'ignore' });
-    const probe = new Redis(this.url, { lazyConnect: true, retryStrategy: () => null, enableOfflineQueue: false });
-    probe.on('error', () => undefined);
-    for (let i = 0; i < 100; i++) {
+    if (this.bound !== undefined) return this.startOn(this.bound);
+    for (let attempt = 1; ; attempt++) {
+      const port = await freePort();
       try {
-        await probe.connect();
-        await probe.ping();
-        probe.disconnect();
+        await this.startOn(port);
+        this.bound = port;
         return;
-      } catch {
-        await new Promise((r) => setTimeout(r, 50));
+      } catch (err) {
+        if (attempt >= 5) throw err;
       }
     }
-    probe.disconnect();
-    throw new Error(`redis-server on port ${this.port} did not start`);
+  }
+
+  private async startOn(port: number): Promise<void> {
+    const proc = spawn('redis-server', [
+      '--port', String(port), '--bind', '127.0.0.1', '--dir', this.dir, '--save', '',
+      ...(this.persist ? ['--appendonly', 'yes', '--appendfsync', this.fsync] : ['--appendonly', 'no']),
+    ], { stdio: 'ignore' });
+    this.proc = proc;
+    const probe = new Redis(`redis://127.0.0.1:${port}`, { lazyConnect: true, retryStrategy: () => null, enableOfflineQueue: false });
+    probe.on('error', () => undefined);
+    try {
+      for (let i = 0; i < 100; i++) {
+        // A server that exited (its port taken) will never answer; whoever answers then is not ours.
+        if (proc.exitCode !== null) break;
+        try {
+          await probe.connect();
+          await probe.ping();
+          if (proc.exitCode === null) return;
+        } catch {
+          await new Promise((r) => setTimeout(r, 50));
+        }
+      }
+    } finally {
+      probe.disconnect();
+    }
+    if (proc.exitCode === null) proc.kill('SIGKILL');
+    throw new Error(`redis-server on port ${port} did not start`);
   }
 
   /** SIGKILL: no shutdown, no final save — what a crashed host looks like to clients. */

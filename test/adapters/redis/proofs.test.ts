@@ -8,7 +8,7 @@ import type { Redis } from 'ioredis';
 import { RedisSlotStore, redisSlotStore } from '../../../adapters/redis/index.js';
 import { createTidemark } from '../../../src/index.js';
 import { factText } from './facts.js';
-import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, runWriters, uniquePrefix } from './helpers.js';
+import { REDIS_URL, ThrowawayRedis, deletePrefix, newClient, probeRedis, runWriters, uniquePrefix } from './helpers.js';
 
 const down = await probeRedis();
 
@@ -86,7 +86,7 @@ describe.skipIf(down !== null)(`redis store under the middleware${down ? ` (skip
   // can show is checked: no acknowledged write lost, none applied twice. A power loss (which needs
   // `appendfsync always`, per Redis's persistence documentation) cannot be simulated here.
   it.each(['always', 'no'] as const)('(b) SIGKILL mid-load (appendfsync %s): replies keep flowing, the outbox drains, every acknowledged write is there once', async (fsync) => {
-    const server = new ThrowawayRedis(await freePort(), true, fsync);
+    const server = new ThrowawayRedis(undefined, true, fsync);
     await server.start();
     const tm = createTidemark({
       store: redisSlotStore({ redis: server.url }),

@@ -822,7 +822,7 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
     });
 
     it('a SIGKILLed server: calls fail fast while it is down, then the store reconnects and nothing acknowledged is lost', async () => {
-      const server = new ThrowawayRedis(await freePort());
+      const server = new ThrowawayRedis();
       await server.start();
       const store = redisSlotStore({ redis: server.url, prefix: 'tidemark:' });
       try {
