@@ -1,5 +1,3 @@
-// Over 400 lines: the closed-loop driver, the store backends (shared by every bench) and the idle fill
-// share their helpers here; the fixed-rate driver lives in lib/fixed-rate.ts and lib/load-rate.ts.
 // `npm run bench -- load --store memory|redis|cluster --sessions N --turns M --concurrency C [--json]`:
 // simulated users on many sessions, each turn read -> streamed reply -> write, through `tm.wrap()`.
 // `--auto-pipeline` runs the bench's Redis client with ioredis auto-pipelining (a what-if for the adapter).
@@ -21,6 +19,8 @@
 //   write = end of the stream -> `commit` event (queue wait, extract, embed, plan, store round trips)
 //   turn  = the wrapped call -> stream consumed -> `commit` event, end to end
 // A turn whose write failed resolves from the `error` event (stage write) and counts as an error.
+// Over 400 lines: the closed-loop driver, the store backends (shared by every bench) and the idle fill
+// share their helpers here; the fixed-rate driver lives in lib/fixed-rate.ts and lib/load-rate.ts.
 
 import { execFileSync } from 'node:child_process';
 import { loadavg } from 'node:os';
