@@ -1,5 +1,6 @@
 // The sizing arithmetic of `bench plan`, with expected values worked out by hand from the model its
 // header states (sessions held = daily users × sessions per week / 7 × expiry days, each at full length).
+import { spawnSync } from 'node:child_process';
 import { describe, expect, it } from 'vitest';
 import { bytesAt, parseMix, plan, type Measured, type PlanInputs } from '../../bench/plan.js';
 
@@ -55,5 +56,16 @@ describe('bench plan', () => {
     expect(() => plan({ ...inputs, turns_per_session: parseMix('10:0.5,2000:0.4') }, measured)).toThrow(/sum to 1/);
     expect(() => plan({ ...inputs, target_utilisation: 0 }, measured)).toThrow(/utilisation/);
     expect(() => parseMix('10:x')).toThrow(/turns-mix/);
+  });
+});
+
+describe('npm run bench -- NAME --help', () => {
+  it("prints the benchmark's usage from the comment that opens its file, and runs nothing", () => {
+    const r = spawnSync(process.execPath, ['--import', 'tsx', 'bench/run.ts', 'plan', '--help'], { encoding: 'utf8' });
+    expect(r.status).toBe(0);
+    expect(r.stdout.split('\n')[0]).toMatch(/^`npm run bench -- plan --daily-users N/);
+    // The plan itself would have failed for want of its required inputs.
+    expect(r.stderr).not.toContain('RangeError');
+    expect(r.stdout).not.toMatch(/^\/\//m);
   });
 });
