@@ -114,6 +114,11 @@ const elementId = (e: string): string => {
 
 const token = (): string => randomBytes(8).toString('hex');
 /** The whole-ms time a logbook entry is filed under in its block (as encodeRecord files it). */
+/** The logbook's age cutoff a commit applies (ms; 0 = no age limit). */
+const ageCutoff = (req: CommitRequest): number => {
+  const policy = req.retention?.policy;
+  return policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
+};
 const fileTime = (atMs: number): number => (Number.isSafeInteger(atMs) && atMs >= 0 ? atMs : Math.max(0, Math.floor(Number.isFinite(atMs) ? atMs : 0)));
 /** First byte of a logbook block element, open or sealed (codec.ts, BLOCK_MARK and SEALED_MARK). */
 const isBlock = (el: Buffer): boolean => el[0] === 0 || el[0] === 1;
@@ -367,6 +372,7 @@ export class RedisSlotStore implements Store {
     const closed = r[5];
     if (Buffer.isBuffer(closed) && closed.length > 0) this.seal(ref.user ? k.ualog : k.alog, closed);
     const dropped = { age: Number(r[3] ?? 0), count: Number(r[4] ?? 0) };
+    if (ref.user && dropped.age > 0) await this.unindexAged(ref.tenant, ref.user, ageCutoff(req));
     if (capping) dropped.count += await this.trimUser(ref.tenant, await capping);
     return dropped.age > 0 || dropped.count > 0 ? { ok: true, version, dropped } : { ok: true, version };
   }
@@ -388,6 +394,23 @@ export class RedisSlotStore implements Store {
       () => [],
       // Members and times alternate (ZPOPMIN): "session id", time, ...
     );
+  }
+
+  /**
+   * Entries that retention deleted by age leave the user's cap index too (scored by turn time, so one
+   * range covers every session of the user), or the cap would later count them and pay a slice read to
+   * find each gone. Entries of the user's other sessions not swept yet leave the index a little early:
+   * the cap then counts fewer than the scope holds, until the sweep reaches them. A failure leaves the
+   * index as it was (the cap deletes a missing entry as a no-op).
+   */
+  private async unindexAged(tenant: string, user: string, cutoffMs: number): Promise<void> {
+    if (cutoffMs <= 0) return;
+    try {
+      const c = await this.conn('sweep');
+      await c.zremrangebyscore(this.keys.userEntries(tenant, user), '-inf', `(${cutoffMs}`);
+    } catch {
+      // Left as it is; see above.
+    }
   }
 
   /** A refused commit's entries leave the user's index again (they were never stored). */
@@ -622,7 +645,10 @@ export class RedisSlotStore implements Store {
           // This process's indexes let the entries go now, not at their next search.
           this.scopes.delete(scopeKeyOf({ tenant: req.tenant, session }));
           const user = r[2] ? str(r[2]) : '';
-          if (user) this.scopes.delete(scopeKeyOf({ tenant: req.tenant, user }));
+          if (user) {
+            this.scopes.delete(scopeKeyOf({ tenant: req.tenant, user }));
+            await this.unindexAged(req.tenant, user, logCut);
+          }
         }
       };
       const sessionOf = (base: string): string | null => this.keys.sessionOfMeta(req.tenant, `${base}:meta`);
@@ -878,13 +904,12 @@ export class RedisSlotStore implements Store {
     let id = typeof given === 'string' && /^[^\s=]{1,128}$/.test(given) ? given : this.commitIds.get(req);
     if (!id) this.commitIds.set(req, (id = token()));
     const kf = this.o.keyFormat;
-    const policy = req.retention?.policy;
-    const cutoff = policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
+    const cutoff = ageCutoff(req);
     const f = req.fence;
     // A user's slice is held to \`maxEntries\` by the user's cap over the whole scope (capUser), which
     // takes the oldest from the head of the slices; the commit trimming its slice as well would leave
     // the cap index naming entries already gone (each then looked for through the whole slice).
-    const maxEntries = ref.user && req.logbook.length > 0 ? 0 : (policy?.maxEntries ?? 0);
+    const maxEntries = ref.user && req.logbook.length > 0 ? 0 : (req.retention?.policy.maxEntries ?? 0);
     const args: (string | Buffer | number)[] = [
       req.expectedVersion, id, token(), String(req.clock), String(req.turns), req.capacity, req.dim, ref.user ?? '',
       this.o.idleTtlSeconds, this.o.maxEvents, maxEntries, cutoff, req.ops.length, req.logbook.length, req.events.length,

@@ -411,6 +411,24 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect((await store.stats('tsw')).logbookEntries).toBe(0);
     });
 
+    it('entries deleted by age, by the sweep or at a commit, leave the user cap index as well', async () => {
+      const T = Date.now() - 60_000;
+      const ref = { tenant: 'tcap', session: 'capped', user: 'rider-7' };
+      const index = store.userSessionsKey('tcap', 'rider-7').replace(/:sessions$/, ':entries');
+      const at = (n: number) => turnEntry(n, ref, `note ${n} about the saddle`, { atMs: T + n });
+      const cap = (nowMs: number, maxAgeMs = 0) => ({ policy: { maxAgeMs, maxEntries: 1000 }, nowMs });
+      await store.commit(ref, commitOf({ logbook: [1, 2, 3, 4, 5, 6].map(at), retention: cap(T + 10) }));
+      expect(await admin.zcard(index)).toBe(6);
+      // The sweep deletes entries 1-3 (before T + 4) and their index members with them.
+      expect(await store.sweep({ tenant: 'tcap', slotCutoffMs: 0, logbookCutoffMs: T + 4 })).toMatchObject({ logbookEntries: 3 });
+      expect(await admin.zrange(index, 0, -1)).toEqual(['capped T-capped-4', 'capped T-capped-5', 'capped T-capped-6']);
+      // A commit whose age limit (100 ms at T + 106: before T + 6) deletes 4 and 5 does the same.
+      const r = await store.commit(ref, commitOf({ expectedVersion: 1, logbook: [at(7)], retention: cap(T + 106, 100) }));
+      expect(r).toMatchObject({ ok: true, dropped: { age: 2 } });
+      expect(await admin.zrange(index, 0, -1)).toEqual(['capped T-capped-6', 'capped T-capped-7']);
+      await store.erase({ tenant: 'tcap', user: 'rider-7' });
+    });
+
     it('the per-user cap takes named records from the head of blocks, and one elsewhere in a block as a delete does', async () => {
       const T = 1_600_000_000_000;
       const c1 = { tenant: 'tcap', session: 'c1', user: 'ucap' };
