@@ -411,6 +411,23 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
       expect((await store.stats('tsw')).logbookEntries).toBe(0);
     });
 
+    it('a session written before slot births were kept gets its births key with the idle TTL at its next commit', async () => {
+      const ttlStore = redisSlotStore({ redis: admin, prefix: prefixFor('born'), idleTtlSeconds: 3600 });
+      const ref = { tenant: 'tborn', session: 'older' };
+      const k = ttlStore.sessionKeys('tborn', 'older');
+      await ttlStore.commit(ref, commitOf({ ops: [{ index: 0, slot: slot(1) }] }));
+      // The older layout: slots but no births key, and no record of the last TTL refresh.
+      await admin.del(k.born);
+      await admin.hdel(k.meta, 'xr');
+      expect(await admin.exists(k.born)).toBe(0);
+      await ttlStore.commit(ref, commitOf({ expectedVersion: 1, ops: [{ index: 1, slot: slot(2) }] }));
+      expect(await admin.zcard(k.born)).toBe(1);
+      const ttl = await admin.pttl(k.born);
+      expect(ttl).toBeGreaterThan(3_500_000);
+      expect(ttl).toBeLessThanOrEqual(3_600_000);
+      await ttlStore.erase({ tenant: 'tborn', session: 'older' });
+    });
+
     it('entries deleted by age, by the sweep or at a commit, leave the user cap index as well', async () => {
       const T = Date.now() - 60_000;
       const ref = { tenant: 'tcap', session: 'capped', user: 'rider-7' };
