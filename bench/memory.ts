@@ -4,8 +4,11 @@
 // is read per key: meta, slots (working memory), events, and the logbook (every turn kept, plus
 // demoted values, in blocks of entries; logs written before blocks keep a hash of payloads and an
 // arrival log, counted here too). Redis holds no logbook index: each process builds its own from the
-// blocks. The logbook is set beside the raw UTF-8 bytes of the turns it keeps, and its record bytes
-// are split by kind (turns; demoted slot values, which carry their key vectors). Commands never time out here (a 5,000-exchange
+// blocks. The logbook is set beside the raw UTF-8 bytes of the turns it keeps, twice: right after the
+// writes ("active": each session's tail block still open) and at rest, after the seal a store runs once a
+// session pauses (sealIdleMs; run here at once with sealIdle). Its record bytes are split by kind (turns;
+// demoted slot values, which carry their key vectors) and by part (text, vectors, metadata, block headers,
+// what compression saved, Redis's overhead). Commands never time out here (a 5,000-exchange
 // session is a long run, not an outage), and every key is deleted afterwards, on error or Ctrl-C too.
 
 import { createTidemark } from '../src/middleware/tidemark.js';
