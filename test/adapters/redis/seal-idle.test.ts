@@ -49,6 +49,12 @@ describe.skipIf(down !== null)(`redis store: logbook slices sealed at rest${down
       return { all, hits };
     };
     const k = store.sessionKeys('t', 'short');
+    // A reader that keeps its copy between calls: it fetches only what follows the end it has seen,
+    // and must follow the seals (the elements change, the entries and their positions do not).
+    const cached = redisSlotStore({ redis: admin, prefix });
+    const list = async () => cached.listLogbook(scope, { limit: 100 });
+    // Another that does not look between the burst and the merge: its next fetch spans both.
+    const late = redisSlotStore({ redis: admin, prefix });
     await say(0, 7);
     const open = await read();
     expect(open.all.filter((e) => e.kind === 'turn')).toHaveLength(14);
@@ -60,11 +66,14 @@ describe.skipIf(down !== null)(`redis store: logbook slices sealed at rest${down
     expect(await marks(admin, k.alog)).toEqual([1]);
     expect((await admin.lindexBuffer(k.alog, 0))!.length).toBeLessThan(openBytes * 0.8);
     expect(await read()).toEqual(open);
+    expect(await list()).toEqual(open.all);
+    expect(await late.listLogbook(scope, { limit: 100 })).toEqual(open.all);
     expect(await admin.hget(k.meta, 'an')).toBe(String(open.all.length));
 
     // A later burst starts an open block after the sealed one; at rest again, the two are one sealed block.
     await say(7, 10);
     expect(await marks(admin, k.alog)).toEqual([1, 0]);
+    const beforeMerge = await list();
     await store.sealIdle();
     expect(await marks(admin, k.alog)).toEqual([1]);
     const rest = await read();
@@ -73,7 +82,12 @@ describe.skipIf(down !== null)(`redis store: logbook slices sealed at rest${down
     expect(turns.map((e) => e.value)).toEqual(user.flatMap((u, i) => [u, reply[i]!]).reverse());
     expect(rest.all).toEqual(expect.arrayContaining(open.all));
     expect(await admin.hget(k.meta, 'an')).toBe(String(rest.all.length));
+    expect(beforeMerge).toEqual(rest.all);
+    expect(await list()).toEqual(rest.all);
+    expect(await late.listLogbook(scope, { limit: 100 })).toEqual(rest.all);
     await tm.close();
+    await cached.close();
+    await late.close();
   });
 
   it('the idle timer seals both slices of a session after their last commit; a user\'s slice too', async () => {
