@@ -739,7 +739,7 @@ export function sealBlock(open: Buffer, what: string): Buffer {
   const { base, records } = splitBlock(open, what);
   const times = records.map((x) => uvarBytes(zig(x.at - base)));
   const bodies = Buffer.concat(records.flatMap((x) => [uvarBytes(x.body.length), x.body]));
-  const packed = zlib.deflateRawSync(bodies, { level: 9, dictionary: SEAL_DICTIONARIES.get(SEAL_DICTIONARY)! });
+  const packed = zlib.deflateRawSync(bodies, { dictionary: SEAL_DICTIONARIES.get(SEAL_DICTIONARY)! });
   return Buffer.concat([Buffer.from([SEALED_MARK, records.length, 0]), Buffer.from(`${base}:`, 'latin1'), ...times, Buffer.from([SEAL_WITH_DICTIONARY, SEAL_DICTIONARY]), packed]);
 }
 
