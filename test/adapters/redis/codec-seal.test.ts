@@ -59,6 +59,11 @@ describe('sealed blocks with a preset dictionary', () => {
     const now = sealBlock(buildBlocks(got.map(recordOf))[0]!, 'test');
     expect(now.length).toBeLessThan(old.length);
     expect(live(now)).toEqual(live(old));
+    // At rest, an open tail after it is merged into it: the result is the dictionary layout, every record kept.
+    const [tail] = buildBlocks([recordOf(turn(5, 'Can I bring it in on Monday instead?')), recordOf(turn(6, 'Yes, Monday works.'))]);
+    const merged = sealTail(old, tail!, 'test');
+    expect(merged).toMatchObject({ merged: true });
+    expect(live(merged!.block)).toEqual([...live(old), ...live(tail!)]);
   });
 
   it('names its dictionary; an unknown one is corrupt, not guessed', () => {
