@@ -10,6 +10,7 @@
 
 import * as zlib from 'node:zlib';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
+import { SEAL_DICTIONARIES, SEAL_DICTIONARY } from './dictionary.js';
 import type { DemotionReason, LogbookEntry, LogbookKind, MentionedDate, Role, SlotRecord } from '../../src/types.js';
 
 /** Bumped when the layout below changes; a reader refuses versions it does not know. */
@@ -727,15 +728,60 @@ function baseOf(buf: Buffer, from: number, colon: number, what: string): number 
 /**
  * The sealed form of a closed open block: 0x01, count, dead (0; retention moves it on), base, ':',
  * each record's time as a zigzag delta (the script reads them for retention by age), then the records
- * `varint(length) body` compressed together (deflate, raw). Short chat messages of one block
- * compress to about 0.4–0.6 of their size (measured with zlib on the bench's chat and on Schema-Guided
- * Dialogue utterances); each body keeps its own check, so a damaged block still fails as corrupt.
+ * `varint(length) body` compressed together: SEAL_WITH_DICTIONARY, the dictionary's id, and raw deflate
+ * with that preset dictionary (dictionary.ts). Blocks sealed before dictionaries hold the raw deflate
+ * stream alone there and still read: a deflate stream never opens with SEAL_WITH_DICTIONARY's block
+ * type. Short chat messages of one full block compress to about 0.4–0.6 of their size; the dictionary
+ * matters most for a short session's only block (bench memory: 20 messages, 0.94 of their records
+ * without it). Each body keeps its own check, so a damaged block still fails as corrupt.
  */
 export function sealBlock(open: Buffer, what: string): Buffer {
   const { base, records } = splitBlock(open, what);
   const times = records.map((x) => uvarBytes(zig(x.at - base)));
   const bodies = Buffer.concat(records.flatMap((x) => [uvarBytes(x.body.length), x.body]));
-  return Buffer.concat([Buffer.from([SEALED_MARK, records.length, 0]), Buffer.from(`${base}:`, 'latin1'), ...times, zlib.deflateRawSync(bodies)]);
+  const packed = zlib.deflateRawSync(bodies, { dictionary: SEAL_DICTIONARIES.get(SEAL_DICTIONARY)! });
+  return Buffer.concat([Buffer.from([SEALED_MARK, records.length, 0]), Buffer.from(`${base}:`, 'latin1'), ...times, Buffer.from([SEAL_WITH_DICTIONARY, SEAL_DICTIONARY]), packed]);
+}
+
+/**
+ * First byte of a dictionary-sealed block's compressed part. Its bits 1–2 are deflate's reserved block
+ * type 11 (RFC 1951, 3.2.3), so no deflate stream — a block sealed before dictionaries — starts so.
+ */
+const SEAL_WITH_DICTIONARY = 0x06;
+
+/** The records' bytes of a sealed block (from its compressed part on), with or without a dictionary. */
+function inflateSealed(packed: Buffer, what: string): Buffer {
+  let dictionary: Buffer | undefined;
+  if (packed.length > 0 && (packed[0]! & SEAL_WITH_DICTIONARY) === SEAL_WITH_DICTIONARY) {
+    dictionary = SEAL_DICTIONARIES.get(packed[1] ?? -1);
+    if (!dictionary) throw corrupt(what, `sealed with unknown dictionary ${packed[1]}`);
+  }
+  try {
+    return dictionary ? zlib.inflateRawSync(packed.subarray(2), { dictionary }) : zlib.inflateRawSync(packed);
+  } catch {
+    throw corrupt(what, 'sealed block does not inflate');
+  }
+}
+
+/**
+ * The sealed form of a log's tail at rest (the writer seals it once the session has been idle): the
+ * open block at the tail, merged with the block before it (`prev`, sealed or open) when their live
+ * records fit one block, else alone. A short session's only block is thus compressed too, and pauses
+ * do not leave a trail of small blocks. Dead records of `prev` are dropped (they were trimmed already,
+ * so positions do not move). Null when `tail` is not an open block or sealing would not save bytes.
+ */
+export function sealTail(prev: Buffer | undefined, tail: Buffer, what: string): { block: Buffer; merged: boolean } | null {
+  if (tail[0] !== BLOCK_MARK) return null;
+  const last = splitBlock(tail, what).records;
+  if (prev !== undefined && (prev[0] === BLOCK_MARK || prev[0] === SEALED_MARK)) {
+    const joined = buildBlocks([...splitBlock(prev, what).records, ...last]);
+    if (joined.length === 1) {
+      const block = sealBlock(joined[0]!, what);
+      return block.length < prev.length + tail.length ? { block, merged: true } : null;
+    }
+  }
+  const block = sealBlock(tail, what);
+  return block.length < tail.length ? { block, merged: false } : null;
 }
 
 function splitSealed(buf: Buffer, what: string): { base: number; header: Buffer; records: RawRecord[] } {
@@ -749,12 +795,7 @@ function splitSealed(buf: Buffer, what: string): { base: number; header: Buffer;
   r.pos = colon + 1;
   const times: number[] = [];
   for (let j = 0; j < count; j++) times.push(base + unzig(r.varint()));
-  let bodies: Buffer;
-  try {
-    bodies = zlib.inflateRawSync(buf.subarray(r.pos));
-  } catch {
-    throw corrupt(what, 'sealed block does not inflate');
-  }
+  const bodies = inflateSealed(buf.subarray(r.pos), what);
   const b = new Reader(bodies, what);
   b.pos = 0;
   const records: RawRecord[] = [];

@@ -547,6 +547,25 @@ return 0
 `);
 
 /**
+ * Replace the tail of a log at rest by its sealed form (codec.ts, sealTail), if the tail — and, when
+ * merging, the block before it — are still as the writer fetched them: a commit that appended since,
+ * or a trim, makes it a no-op (the next idle seal tries again). Entries and positions do not change, so
+ * the epoch and the counts stay. KEYS: log. ARGV: the tail as fetched, the block before it as fetched
+ * ('' = the tail alone is replaced), the sealed block. Reply: 1 replaced | 0 changed meanwhile.
+ */
+export const SEAL_TAIL = script('seal_tail', 1, `
+if redis.call('LINDEX', KEYS[1], -1) ~= ARGV[1] then return 0 end
+if ARGV[2] == '' then
+  redis.call('LSET', KEYS[1], -1, ARGV[3])
+  return 1
+end
+if redis.call('LINDEX', KEYS[1], -2) ~= ARGV[2] then return 0 end
+redis.call('LSET', KEYS[1], -2, ARGV[3])
+redis.call('RPOP', KEYS[1])
+return 1
+`);
+
+/**
  * Delete logbook entries of one session slice by id, with their log elements (so an id added again
  * later is not popped early by an old element); moves the epoch so cached copies refetch in full.
  * O(log length): deletes are rare (a promotion, an edit), never per turn. This takes the entries of
