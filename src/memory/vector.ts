@@ -41,20 +41,29 @@ export function cosine(a: ArrayLike<number>, b: ArrayLike<number>): number {
 }
 
 /**
+ * Whether the item at rank `j` stays ahead of a newcomer (`i`, `s`): a higher score, or an equal one
+ * unless later items win ties and the newcomer is later. A top-level function, not a closure made per
+ * push: pushTopK runs once per candidate of every search.
+ */
+function keepsPlace(idx: readonly number[], score: readonly number[], j: number, i: number, s: number, laterWins: boolean): boolean {
+  const t = score[j]!;
+  return t > s || (t === s && !(laterWins && idx[j]! < i));
+}
+
+/**
  * Keeps the k best (index, score) pairs in two parallel arrays sorted best first. Insertion into a
  * short sorted array beats a heap for the small k used here. On equal scores the pair offered first
  * wins, or, with `laterWins`, the higher index (the logbook's newer entry).
  */
 export function pushTopK(idx: number[], score: number[], i: number, s: number, k: number, laterWins = false): void {
   if (k <= 0) return;
-  const above = (j: number): boolean => score[j]! > s || (score[j] === s && !(laterWins && idx[j]! < i));
-  if (score.length === k && above(k - 1)) return;
+  if (score.length === k && keepsPlace(idx, score, k - 1, i, s, laterWins)) return;
   let p = score.length < k ? score.length : k - 1;
   if (score.length < k) {
     idx.push(i);
     score.push(s);
   }
-  while (p > 0 && !above(p - 1)) {
+  while (p > 0 && !keepsPlace(idx, score, p - 1, i, s, laterWins)) {
     idx[p] = idx[p - 1]!;
     score[p] = score[p - 1]!;
     p--;
