@@ -4,7 +4,7 @@
 
 import { execFileSync, spawn, type ChildProcess } from 'node:child_process';
 import { mkdtempSync, rmSync } from 'node:fs';
-import { createServer } from 'node:net';
+import { connect, createServer } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -41,6 +41,51 @@ export function newClient(url = REDIS_URL): Redis {
   const c = new Redis(url, { ...REDIS_CLIENT_OPTIONS });
   c.on('error', () => undefined);
   return c;
+}
+
+/** One command a MONITOR connection reported: its arguments and its source (`127.0.0.1:port`, or `lua`). */
+export interface SeenCommand {
+  args: string[];
+  source: string;
+}
+
+/** Decodes one quoted MONITOR argument (Redis escapes `"`, `\\`, control characters and `\xNN`). */
+function unquote(s: string): string {
+  return s.replace(/\\(x[0-9a-fA-F]{2}|.)/g, (_m, e: string) =>
+    e.length === 3 ? String.fromCharCode(parseInt(e.slice(1), 16)) : ({ n: '\n', r: '\r', t: '\t', a: '\x07', b: '\b' } as Record<string, string>)[e] ?? e);
+}
+
+/**
+ * Every command the Redis at `url` runs, from a MONITOR connection of its own: a plain socket, not
+ * ioredis, whose monitor mode can mistake a line that arrives with its own handshake for a reply
+ * ("Command queue state error") while other clients are busy. Resolves once MONITOR is on.
+ */
+export async function watchCommands(url: string, onCommand: (c: SeenCommand) => void): Promise<{ close(): void }> {
+  const { hostname, port } = new URL(url);
+  const socket = connect(Number(port || 6379), hostname || '127.0.0.1');
+  let buffered = '';
+  let on = false;
+  await new Promise<void>((resolveOn, reject) => {
+    socket.once('error', reject);
+    socket.on('data', (chunk) => {
+      buffered += chunk.toString('latin1');
+      let nl: number;
+      while ((nl = buffered.indexOf('\r\n')) >= 0) {
+        const line = buffered.slice(0, nl);
+        buffered = buffered.slice(nl + 2);
+        if (!on) {
+          on = line === '+OK';
+          if (on) resolveOn();
+          continue;
+        }
+        const m = /^\+\d+\.\d+ \[\d+ ([^\]]+)\] (.*)$/.exec(line);
+        if (m) onCommand({ source: m[1]!, args: [...m[2]!.matchAll(/"((?:[^"\\]|\\.)*)"/g)].map((a) => unquote(a[1]!)) });
+      }
+    });
+    socket.write('MONITOR\r\n');
+  });
+  socket.on('error', () => undefined);
+  return { close: () => socket.destroy() };
 }
 
 /** Every key under `pattern` on a single node or on each master of a cluster. */

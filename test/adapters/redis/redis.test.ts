@@ -11,7 +11,7 @@ import { slotTermsCached } from '../../../src/memory/rank.js';
 import { buildBlocks, encodeLogbook, encodeRecord, splitBlock } from '../../../adapters/redis/codec.js';
 import { turnEntryId } from '../../../src/middleware/write.js';
 import { demotedItem, commitOf, searchText, slot, storeConformance, turnEntry, unit } from '../../store/conformance.js';
-import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix } from './helpers.js';
+import { REDIS_URL, ThrowawayRedis, deletePrefix, freePort, newClient, probeRedis, scanKeys, uniquePrefix, watchCommands, type SeenCommand } from './helpers.js';
 
 const down = await probeRedis();
 
@@ -614,25 +614,30 @@ describe.skipIf(down !== null)(`redis store${down ? ` (skipped: ${down})` : ''}`
   describe('round trips, caching, isolation', () => {
     let prefix: string;
     let client: Redis;
-    let monitor: Redis;
-    let seen: { args: string[]; source: string }[] = [];
+    let monitor: { close(): void } | undefined;
+    let seen: SeenCommand[] = [];
+    let marks = new Set<string>();
     beforeAll(async () => {
       prefix = prefixFor('rt');
       client = newClient();
-      monitor = await newClient().monitor();
-      monitor.on('monitor', (_time: string, args: string[], source: string) => {
+      monitor = await watchCommands(REDIS_URL, (c) => {
+        if (c.args[0]?.toLowerCase() === 'echo' && c.args[1]?.startsWith(prefix)) marks.add(c.args[1]);
         // Commands run inside our Lua scripts show as "lua" sources; only client calls count as round trips.
-        if (!source.includes('lua') && args.some((a) => a.includes(prefix))) seen.push({ args, source });
+        else if (!c.source.includes('lua') && c.args.some((a) => a.includes(prefix))) seen.push(c);
       });
     });
     afterAll(async () => {
-      monitor.disconnect();
+      monitor?.close();
       client.disconnect();
     });
-    // MONITOR lines arrive asynchronously; a PING through the monitored server orders them.
-    const settle = async (): Promise<{ args: string[] }[]> => {
-      await client.ping();
-      await new Promise((r) => setTimeout(r, 50));
+    // MONITOR lines arrive asynchronously but in the server's order: once the monitor has seen an
+    // ECHO sent after the calls, it has seen every call before it.
+    let marker = 0;
+    const settle = async (): Promise<SeenCommand[]> => {
+      const mark = `${prefix}mark-${++marker}`;
+      await client.echo(mark);
+      while (!marks.has(mark)) await new Promise((r) => setImmediate(r));
+      marks = new Set();
       const out = seen;
       seen = [];
       return out;
