@@ -168,6 +168,17 @@ describe('findAll', () => {
     expect(findAll('98 Fennel Street, 2 bikes', 'quantity')).toEqual([at('98 Fennel Street, 2 bikes', 'quantity', '2')]);
   });
 
+  it('judges a number by its own neighbours, not by words further along or further back', () => {
+    const q = (t: string) => findAll(t, 'quantity').map((e) => e.text);
+    expect(q('table for 3 at 10:30')).toEqual(['3']); // a time later on does not make 3 an hour
+    expect(q('room for 4 with Dana')).toEqual(['4']); // a name later on does not make 4 a house number
+    expect(q('1. 2 more')).toEqual(['1', '2']); // "1." two characters back is not a time
+    expect(q('2.5 Tonnes')).toEqual(['2.5']); // a decimal before a capital is an amount, not a house number
+    expect(q('98  Fennel Street')).toEqual([]); // however many spaces before the street name
+    expect(q('9:5')).toEqual(['9']); // the 5 of "9:5" belongs to the 9
+    expect(q('É5')).toEqual([]); // a code, also when its letter is the text's first character
+  });
+
   it('finds nothing in text without values', () => {
     expect(findAll('nothing concrete here', 'date')).toEqual([]);
   });

@@ -6,6 +6,7 @@
 
 import { describe, expect, it } from 'vitest';
 import type { Candidate } from '../../src/memory/extract.js';
+import { demotedEntry } from '../../src/memory/plan.js';
 import { basis, keyed, planTurn, rec, table, vec } from './helpers.js';
 
 /** An update candidate: its key matches nothing (basis 2), so only the update rules can target a slot. */
@@ -29,6 +30,10 @@ describe('addressing: ties and generic words', () => {
     const t = table(3, 3, [rec('name', basis(3, 0), { keyText: 'my name', value: 'Dana' }), rec('bike', basis(3, 1), { keyText: 'my bike', value: 'a red Corvane' })]);
     const p = planTurn(t, [keyed(basis(3, 1), { key: 'my bike', value: 'a blue Pennick' })]);
     expect(p.outcomes[0]).toMatchObject({ outcome: 'overwritten', slot: 1, supersededId: 'bike', cosine: 1 });
+    // The same with keys of a hashing embedder's shape: few non-zero entries in a wide vector.
+    const wide = table(3, 8, [rec('name', basis(8, 0), { keyText: 'my name', value: 'Dana' }), rec('bike', basis(8, 5), { keyText: 'my bike', value: 'a red Corvane' })]);
+    const q = planTurn(wide, [keyed(basis(8, 5), { key: 'my bike', value: 'a blue Pennick' })]);
+    expect(q.outcomes[0]).toMatchObject({ outcome: 'overwritten', slot: 1, supersededId: 'bike', cosine: 1 });
   });
 
   it('sharing only a word that names no fact ("new") is not the same fact', () => {
@@ -123,6 +128,15 @@ describe('strength, pinning and eviction order', () => {
     const t = table(2, 3, [rec('faded', basis(3, 0), { strength: 0.01 })]);
     expect(planTurn(t, [], { user: 'u7' }).demoted[0]).toMatchObject({ user: 'u7', tenant: 'shop', session: 's1' });
     expect(planTurn(t, []).demoted[0]).not.toHaveProperty('user');
+  });
+
+  it("a value leaving working memory keeps its speaker and a copy of its sources", () => {
+    const r = rec('job', basis(3, 0), { owner: 'Ana', provenance: ['t2', 't1'] });
+    const e = demotedEntry(r, { tenant: 'shop', session: 's1' }, 'capacity', 0.3, 7, 9000);
+    expect(e).toMatchObject({ id: 'job', kind: 'capacity', owner: 'Ana', provenance: ['t2', 't1'], strength: 0.3, clock: 7, atMs: 9000 });
+    expect(e.provenance).not.toBe(r.provenance);
+    expect(e).not.toHaveProperty('successor');
+    expect(demotedEntry(rec('x', basis(3, 0)), { tenant: 'shop', session: 's1' }, 'decayed', 0.01, 7, 9000)).not.toHaveProperty('owner');
   });
 });
 
