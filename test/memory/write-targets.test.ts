@@ -73,6 +73,12 @@ describe("the bot's replies and named speakers", () => {
     expect(two.outcomes.map((o) => o.outcome)).toEqual(['allocated', 'overwritten']);
   });
 
+  it("a bot's reply never overwrites a user's fact written earlier in the same plan", () => {
+    const user = keyed(basis(3, 0), { key: 'the slot offered', value: 'Tuesday at 9' }, 't4');
+    const reply = { ...keyed(basis(3, 0), { key: 'the slot offered', value: 'Wednesday at 10' }, 't5'), role: 'assistant' as const };
+    expect(planTurn(table(3, 3, []), [user, reply]).outcomes.map((o) => o.outcome)).toEqual(['allocated', 'allocated']);
+  });
+
   it("an assistant turn naming its speaker is that speaker's fact, and may change it", () => {
     const t = table(2, 3, [rec('job', basis(3, 0), { keyText: 'my job', value: 'nurse', owner: 'Ana' })]);
     const ana = { ...keyed(basis(3, 0), { key: 'my job', value: 'midwife' }), role: 'assistant' as const, owner: 'Ana' };
@@ -151,10 +157,11 @@ describe('an update of a fact named by its topic', () => {
   });
 
   it('when the old fact holds no value of that kind, is kept beside it', () => {
-    const t = table(3, 3, [rec('lessons', basis(3, 0), { keyText: 'my lessons', value: 'with Mr Obi' })]);
+    const t = table(3, 3, [rec('lessons', basis(3, 0), { keyText: 'my lessons', value: 'with Mr Obi' }), rec('booking', basis(3, 1), { keyText: 'my booking', value: 'a service on Tuesday' })]);
     const c = keyed(basis(3, 0), { key: 'my lessons', value: 'lessons on Friday', text: 'lessons on Friday', pattern: 'update', updates: { kind: 'date', expr: 'Friday' } });
     const p = planTurn(t, [c]);
-    expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 1, maybeReplaces: ['lessons'] });
+    // Not the other dated fact either: the update named its topic.
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', slot: 2, maybeReplaces: ['lessons'] });
     expect(p.demoted).toEqual([]);
   });
 
@@ -176,13 +183,19 @@ describe('a contrast ("Saturday, not Sunday")', () => {
     const p = planTurn(byMs, [c], { now: 6 });
     expect(p.outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'new' });
     expect(p.ops[0]!.slot!.value).toBe('meetup on Saturday morning');
+    const byMsSecond = table(3, 3, [rec('old', basis(3, 0), sunday({ stamp: 5, updatedMs: 100 })), rec('new', basis(3, 1), sunday({ stamp: 5, updatedMs: 200 }))]);
+    expect(planTurn(byMsSecond, [c], { now: 6 }).outcomes[0]).toMatchObject({ supersededId: 'new' });
+    // Written at the same moment: the first.
+    const tie = table(3, 3, [rec('first', basis(3, 0), sunday({ stamp: 5, updatedMs: 100 })), rec('second', basis(3, 1), sunday({ stamp: 5, updatedMs: 100 }))]);
+    expect(planTurn(tie, [c], { now: 6 }).outcomes[0]).toMatchObject({ supersededId: 'first' });
   });
 
   it('swaps the number for the number', () => {
     const t = table(2, 3, [rec('table', basis(3, 0), { keyText: 'the booking', value: 'a table for 10 people', provenance: ['t1'] })]);
     const p = planTurn(t, [update('12 people, not 10', { kind: 'quantity', expr: '12 people' })]);
     expect(p.ops[0]!.slot!).toMatchObject({ value: 'a table for 12 people', provenance: ['t9', 't1'] });
-    const d = table(2, 3, [rec('ride', basis(3, 0), { keyText: 'the ride', value: 'a 2.5 hours ride' })]);
+    // The rejected "2.5" is matched as written (its dot is no wildcard), not by the kind of value alone.
+    const d = table(3, 3, [rec('ride', basis(3, 0), { keyText: 'the ride', value: 'a 2.5 hours ride', stamp: 0 }), rec('party', basis(3, 1), { keyText: 'the party', value: 'a table for 4 people', stamp: 0 })]);
     expect(planTurn(d, [update('3.25 hours, not 2.5', { kind: 'quantity', expr: '3.25 hours' })]).ops[0]!.slot!.value).toBe('a 3.25 hours ride');
   });
 
@@ -237,7 +250,9 @@ describe('a correction without a value ("no, the patio instead")', () => {
       rec('name', basis(3, 1), { keyText: 'my name', value: 'Dana', stamp: 5 }),
     ]);
     const c = update('No, the other one.', { kind: 'latest' }, { context: 'The music is too loud.' });
-    expect(planTurn(t, [c], { now: 6 }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'music' });
+    const p = planTurn(t, [c], { now: 6 });
+    expect(p.outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'music' });
+    expect(p.ops[0]!.slot!.provenance).toEqual(['t9', 't-music']);
   });
 
   it('of two related facts, replaces the one written last', () => {
@@ -246,6 +261,23 @@ describe('a correction without a value ("no, the patio instead")', () => {
       rec('old', basis(3, 1), { keyText: 'kitchen light', value: 'the kitchen light on', stamp: 4 }),
     ]);
     expect(planTurn(t, [update('No, the kitchen radio.', { kind: 'latest' })], { now: 6 }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'new' });
+  });
+
+  it('finds the fact written last wherever it sits, and of two written at once the first', () => {
+    const related = (a: number, b: number) => table(3, 3, [
+      rec('a', basis(3, 0), { keyText: 'kitchen light', value: 'the kitchen light on', stamp: a }),
+      rec('b', basis(3, 1), { keyText: 'kitchen speaker', value: 'play it in the kitchen', stamp: b }),
+    ]);
+    const radio = update('No, the kitchen radio.', { kind: 'latest' });
+    expect(planTurn(related(4, 5), [radio], { now: 6 }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'b' });
+    expect(planTurn(related(5, 5), [radio], { now: 6 }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'a' });
+    const unrelated = (a: number, b: number) => table(3, 3, [
+      rec('a', basis(3, 0), { keyText: 'my name', value: 'Dana', stamp: a }),
+      rec('b', basis(3, 1), { keyText: 'my bike', value: 'a red Corvane', stamp: b }),
+    ]);
+    const other = update('No, the other one.', { kind: 'latest' });
+    expect(planTurn(unrelated(4, 5), [other], { now: 6 }).outcomes[0]).toMatchObject({ maybeReplaces: ['b'] });
+    expect(planTurn(unrelated(5, 5), [other], { now: 6 }).outcomes[0]).toMatchObject({ maybeReplaces: ['a'] });
   });
 
   it('never replaces a pinned fact, nor is kept beside one', () => {
@@ -320,6 +352,17 @@ describe('an update naming a value but not its topic ("make it Friday")', () => 
     const t = table(6, 3, Array.from({ length: 5 }, (_, i) => rec(`d${i}`, basis(3, 0), { keyText: `fact ${i}`, value: `on the ${i + 1}th of May`, stamp: i })));
     const p = planTurn(t, [update('make it the 9th of June', { kind: 'date', expr: 'the 9th of June' })], { now: 6 });
     expect(p.outcomes[0]).toMatchObject({ outcome: 'allocated', maybeReplaces: ['d4', 'd3', 'd2', 'd1'] });
+  });
+
+  it("the update's own words, or its turn's sentence before it, may name the fact", () => {
+    const t = () => table(4, 3, [
+      rec('exam', basis(3, 0), { keyText: 'my exam', value: 'on the 14th of October', stamp: 4 }),
+      rec('wedding', basis(3, 1), { keyText: 'the wedding', value: 'on the 18th of October', stamp: 5 }),
+    ]);
+    const before = update('they moved it to November', { kind: 'date', expr: 'November' }, { context: 'My exam is a worry.' });
+    expect(planTurn(t(), [before], { now: 6 }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'exam' });
+    const own = update('they moved the exam to November', { kind: 'date', expr: 'November' }, { key: 'the exam' });
+    expect(planTurn(t(), [own], { now: 6, context: ['Sure'] }).outcomes[0]).toMatchObject({ outcome: 'overwritten', supersededId: 'exam' });
   });
 
   it('when the turns before talk of two of the facts, is kept beside those two', () => {
