@@ -51,6 +51,18 @@ describe('resolveDates', () => {
     expect(one('tonight')).toMatchObject({ grain: 'day', day: '2023-05-08' });
   });
 
+  it("resolves in UTC whatever the machine's time zone", () => {
+    // At UTC+14 the implied noon of a date is 22:00 UTC the day before: a local parse would shift it.
+    const tz = process.env.TZ;
+    process.env.TZ = 'Pacific/Kiritimati';
+    try {
+      expect(one('booked for the 15th of October')).toMatchObject({ grain: 'day', day: '2023-10-15' });
+    } finally {
+      if (tz === undefined) delete process.env.TZ;
+      else process.env.TZ = tz;
+    }
+  });
+
   it('a time of day alone is no date, even beside a hint word', () => {
     expect(resolveDates('this is at 5pm', SAID)).toEqual([]);
   });
