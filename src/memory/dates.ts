@@ -97,7 +97,7 @@ function parseDates(text: string, atMs: number): DateMention[] {
     let ms = r.start.date().getTime();
     const next = NEXT_WEEKDAY.exec(r.text.trim());
     if (next) {
-      const want = WEEKDAYS.findIndex((w) => w.startsWith(next[1]!.toLowerCase().slice(0, 3)));
+      const want = WEEKDAYS.findIndex((w) => w.startsWith(next[1]!.toLowerCase()));
       const today = new Date(atMs).getUTCDay();
       const ahead = ((want - today + 7) % 7) || 7;
       ms = Math.floor(atMs / DAY_MS) * DAY_MS + ahead * DAY_MS;

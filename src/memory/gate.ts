@@ -71,7 +71,7 @@ export function gateFeatures(c: Candidate, role: Role, novelty: number): GateFea
   const words = tokenize(text);
   const content = words.filter((w) => !STOPWORDS.has(w)).length;
   const trimmed = text.trim();
-  const isQuestion = !REQUEST.test(trimmed) && (/\?\s*$/.test(trimmed) || (QUESTION_START.test(trimmed) && !c.remember && c.pattern === 'sentence'));
+  const isQuestion = !REQUEST.test(trimmed) && (/\?$/.test(trimmed) || (QUESTION_START.test(trimmed) && !c.remember && c.pattern === 'sentence'));
   // Proper nouns: a capitalised word after the first word, excluding the pronoun "I".
   const tokens = trimmed.split(/\s+/);
   let proper = 0;

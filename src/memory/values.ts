@@ -60,7 +60,6 @@ function globalOf(re: RegExp): RegExp {
 
 function matchAt(text: string, kind: ValueKind, re: RegExp): ValueExpr | null {
   for (const m of text.matchAll(globalOf(re))) {
-    if (m[0].trim().length === 0) continue;
     const lead = m[0].length - m[0].trimStart().length;
     const expr = { kind, text: m[0].trim(), index: (m.index ?? 0) + lead };
     if (kind === 'quantity' && isIdentifierNumber(text, expr.index, expr.text)) continue;
@@ -84,7 +83,6 @@ export function findAll(text: string, kind: ValueKind): ValueExpr[] {
   for (const p of PATTERNS) {
     if (p.kind !== kind) continue;
     for (const m of text.matchAll(globalOf(p.re))) {
-      if (m[0].trim().length === 0) continue;
       const lead = m[0].length - m[0].trimStart().length;
       const expr = { kind, text: m[0].trim(), index: (m.index ?? 0) + lead };
       if (kind === 'quantity' && isIdentifierNumber(text, expr.index, expr.text)) continue;

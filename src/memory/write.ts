@@ -45,7 +45,7 @@ const GENERIC = new Set(
       'really kind sort much lot way make made put change changed move moved switch sorry wait mean meant correct correction rather',
   ),
 );
-const topicWords = (text: string): Set<string> => new Set(analyze(text).filter((w) => !GENERIC.has(w) && !w.startsWith('§')));
+const topicWords = (text: string): Set<string> => new Set(analyze(text).filter((w) => !GENERIC.has(w)));
 function shares(a: Set<string>, b: Set<string>): boolean {
   for (const w of a) if (b.has(w)) return true;
   return false;

@@ -38,6 +38,35 @@ describe('resolveDates', () => {
     expect(one('the 14th of October')).toMatchObject({ grain: 'day', day: '2023-10-14' });
   });
 
+  it('a month mention starts on the 1st, a week mention on its Monday, whatever day they resolve to', () => {
+    const WEDNESDAY = SAID + 2 * DAY; // 2023-05-10
+    expect(one('a month ago')).toMatchObject({ grain: 'month', day: '2023-04-01' }); // 8 April -> April
+    expect(one('We adopted a puppy last week!', WEDNESDAY)).toMatchObject({ grain: 'week', day: '2023-05-01' }); // 3 May -> its Monday
+    expect(one('see you next week', WEDNESDAY)).toMatchObject({ grain: 'week', day: '2023-05-15' });
+  });
+
+  it('a weekday named in a week is a day; a part of the day of speaking is that day', () => {
+    expect(one('Friday next week')).toMatchObject({ grain: 'day', day: '2023-05-19' });
+    expect(one('I watered the ferns this morning')).toMatchObject({ grain: 'day', day: '2023-05-08' });
+    expect(one('tonight')).toMatchObject({ grain: 'day', day: '2023-05-08' });
+  });
+
+  it("resolves in UTC whatever the machine's time zone", () => {
+    // At UTC+14 the implied noon of a date is 22:00 UTC the day before: a local parse would shift it.
+    const tz = process.env.TZ;
+    process.env.TZ = 'Pacific/Kiritimati';
+    try {
+      expect(one('booked for the 15th of October')).toMatchObject({ grain: 'day', day: '2023-10-15' });
+    } finally {
+      if (tz === undefined) delete process.env.TZ;
+      else process.env.TZ = tz;
+    }
+  });
+
+  it('a time of day alone is no date, even beside a hint word', () => {
+    expect(resolveDates('this is at 5pm', SAID)).toEqual([]);
+  });
+
   it('finds nothing in texts without a date, and skips the parser on them', () => {
     expect(resolveDates('hello there, how are you', SAID)).toEqual([]);
     expect(resolveDates('It may rain', SAID)).toEqual([]);

@@ -24,6 +24,21 @@ describe('RuleExtractor', () => {
     expect(one('Call me Dana Whitfield.')).toMatchObject({ key: 'my name', value: 'Dana Whitfield' });
   });
 
+  it('keys a possession by its noun (up to the first preposition, skipping model numbers), and lets possessions add up', () => {
+    const has = (text: string) => {
+      const c = one(text);
+      return [c.key, c.value, c.accumulate];
+    };
+    expect(has("I've got two bikes")).toEqual(['my bikes', 'bikes', true]);
+    expect(has('I own an Orrin Sprint 2')).toEqual(['my sprint', 'Orrin Sprint 2', true]);
+    expect(has('I bought a new saddle from the shop')).toEqual(['my saddle', 'new saddle from the shop', true]);
+    expect(has('I have a cat named Tess')).toEqual(['my cat', 'cat named Tess', true]);
+    // Other verbs stay in the key, so a question about riding finds it.
+    expect(has('I ride a green Corvane with a basket')).toEqual(['what I ride: my corvane', 'green Corvane with a basket', true]);
+    expect(has('I drive the old van for deliveries')).toEqual(['what I drive: my van', 'old van for deliveries', true]);
+    expect(has('I use a 3 litre kettle')).toEqual(['what I use: my kettle', '3 litre kettle', true]);
+  });
+
   it('splits "my X is Y" statements', () => {
     expect(one('My bike is a green Corvane.')).toMatchObject({ key: 'my bike', value: 'a green Corvane' });
   });

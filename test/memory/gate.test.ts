@@ -23,6 +23,11 @@ describe('gateFeatures', () => {
     expect(gateFeatures(c('x'), 'user', -0.3).novelty).toBe(0);
   });
 
+  it('a plain sentence (the fallback pattern) is no statement', () => {
+    expect(gateFeatures(c('the shop is open'), 'user', 1).statement).toBe(0);
+    expect(gateFeatures(c('the shop is open', { pattern: 'my-x-is-y' }), 'user', 1).statement).toBe(1);
+  });
+
   it('"I" alone, or as a contraction, is not a proper noun; a capitalised word after the first is', () => {
     expect(gateFeatures(c('so I think I’ll go'), 'user', 1).properNoun).toBe(0);
     expect(gateFeatures(c("then I'd say I am"), 'user', 1).properNoun).toBe(0);
@@ -30,12 +35,18 @@ describe('gateFeatures', () => {
     expect(gateFeatures(c('we ride to "Corvane" often'), 'user', 1).properNoun).toBe(1); // leading punctuation stripped
     expect(gateFeatures(c('we ride to Ilkeston'), 'user', 1).properNoun).toBe(1); // starts with I but is a name
     expect(gateFeatures(c('we ride to harlow'), 'user', 1).properNoun).toBe(0);
+    expect(gateFeatures(c('we met at ("Corvane") today'), 'user', 1).properNoun).toBe(1); // all leading punctuation
+    expect(gateFeatures(c('we ride to "harlow"'), 'user', 1).properNoun).toBe(0);
+    expect(gateFeatures(c('my old iPhone'), 'user', 1).properNoun).toBe(0); // the first letter decides
+    expect(gateFeatures(c('we use AI daily'), 'user', 1).properNoun).toBe(1); // "I" only as the whole word
+    expect(gateFeatures(c('  Dana rides'), 'user', 1).properNoun).toBe(0); // leading spaces: still the first word
   });
 
   it('questions: a trailing "?" (spaces allowed), or a question word opening a plain sentence', () => {
     expect(gateFeatures(c('Is my bike ready?  '), 'user', 1).question).toBe(1);
     expect(gateFeatures(c('my bike is ready ?'), 'user', 1).question).toBe(1);
     expect(gateFeatures(c('what a day that was'), 'user', 1).question).toBe(1);
+    expect(gateFeatures(c('  what a day that was'), 'user', 1).question).toBe(1);
     expect(gateFeatures(c('what a day that was', { pattern: 'my-x-is-y' }), 'user', 1).question).toBe(0);
     expect(gateFeatures(c('what a day that was', { remember: true }), 'user', 1).question).toBe(0);
     expect(gateFeatures(c('my bike is ready'), 'user', 1).question).toBe(0);

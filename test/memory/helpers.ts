@@ -1,8 +1,10 @@
 // Test helpers for the memory math: slot records and tables built from hand-made vectors.
 
+import type { Candidate } from '../../src/memory/extract.js';
 import { DEFAULT_GATE_WEIGHTS, type GateWeights } from '../../src/memory/gate.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { READ_DEFAULTS, WRITE_DEFAULTS, type ReadParams, type WriteParams } from '../../src/memory/params.js';
+import { planWrite, type KeyedCandidate, type WritePlan, type WritePlanInput } from '../../src/memory/write.js';
 import type { SlotRecord } from '../../src/types.js';
 
 /** A unit vector from components (normalised here, so [3, 4] gives [0.6, 0.8]). */
@@ -69,3 +71,28 @@ export function flatGate(bias: number): GateWeights {
 
 /** The logistic function. */
 export const sigma = (x: number): number => 1 / (1 + Math.exp(-x));
+
+/** A user's candidate "my topic is a value" with the given key vector, from turn `turn`. */
+export function keyed(key: Float32Array, over: Partial<Candidate> = {}, turn = 't9'): KeyedCandidate {
+  return { candidate: { key: 'my topic', value: 'a value', text: 'my topic is a value', pattern: 'my-x-is-y', ...over }, key, turn, role: 'user' };
+}
+
+/**
+ * One turn's write plan against `t` at clock 0, 1000 ms, tenant "shop", session "s1", with the gate
+ * flat at sigma(2) over a threshold of 0.5 (every candidate passes) and ids new1, new2, ...
+ */
+export function planTurn(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePlanInput> = {}, params: Partial<WriteParams> = {}): WritePlan {
+  let n = 0;
+  return planWrite({
+    table: t,
+    now: 0,
+    nowMs: 1000,
+    params: writeParams({ gateWeights: flatGate(2), gateThreshold: 0.5, ...params }),
+    tenant: 'shop',
+    session: 's1',
+    candidates,
+    reinforce: [],
+    newId: () => `new${++n}`,
+    ...over,
+  });
+}

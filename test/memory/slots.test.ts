@@ -44,6 +44,55 @@ describe('SlotTable', () => {
 
   it('rejects a key of the wrong dimension', () => {
     expect(() => new SlotTable(1, 3).set(0, rec('a', vec(1, 0)))).toThrow(RangeError);
+    expect(() => new SlotTable(1, 3).set(0, rec('a', vec(1, 0)))).toThrow('slot key has 2 dims, table holds 3');
+  });
+
+  it('a new table has one empty entry per slot in every column', () => {
+    const t = new SlotTable(2, 2);
+    expect(t.ids).toStrictEqual(['', '']);
+    expect(t.keyText).toStrictEqual(['', '']);
+    expect(t.value).toStrictEqual(['', '']);
+    expect(t.provenance).toStrictEqual([[], []]);
+    expect(t.provenance[0]).not.toBe(t.provenance[1]); // one list per slot, not one shared
+    for (const col of [t.previous, t.owner, t.subject, t.maybeReplaces]) expect(col).toStrictEqual([undefined, undefined]);
+  });
+
+  it('gives back exactly the optional fields a record has, as copies', () => {
+    const t = new SlotTable(2, 2);
+    const plain = rec('a', vec(1, 0));
+    t.set(0, plain);
+    expect(t.get(0)).toStrictEqual(plain); // no previous, owner, subject, reply or maybeReplaces keys
+    const full = rec('b', vec(0, 1), { previous: 'a', owner: 'Ana', subject: 'my sister', reply: true, maybeReplaces: ['x', 'y'] });
+    t.set(1, full);
+    expect(t.get(1)).toStrictEqual(full);
+    full.maybeReplaces!.push('z');
+    const out = t.get(1)!;
+    expect(out.maybeReplaces).toEqual(['x', 'y']);
+    out.maybeReplaces!.push('w');
+    out.provenance.push('w');
+    expect(t.get(1)).toMatchObject({ maybeReplaces: ['x', 'y'], provenance: ['t-b'] });
+    // An empty maybeReplaces list is no list.
+    t.set(0, rec('c', vec(1, 0), { maybeReplaces: [] }));
+    expect(t.get(0)).not.toHaveProperty('maybeReplaces');
+  });
+
+  it('clear() empties every column of that slot only', () => {
+    const t = new SlotTable(2, 2);
+    t.set(0, rec('a', vec(1, 0), { owner: 'Ana', subject: 'my sister', reply: true, previous: 'z', maybeReplaces: ['x'] }));
+    t.set(1, rec('b', vec(0, 1)));
+    t.clear(1);
+    expect([...t.keys]).toEqual([1, 0, 0, 0]);
+    t.clear(0);
+    expect([...t.keys]).toEqual([0, 0, 0, 0]);
+    expect([t.ids[0], t.keyText[0], t.value[0], t.provenance[0]]).toStrictEqual(['', '', '', []]);
+    expect([t.previous[0], t.owner[0], t.subject[0], t.reply[0], t.maybeReplaces[0]]).toStrictEqual([undefined, undefined, undefined, 0, undefined]);
+    expect([t.strength[0], t.halfLife[0], t.stamp[0], t.created[0], t.createdMs[0], t.updatedMs[0], t.reads[0], t.flags[0]]).toEqual([0, 0, 0, 0, 0, 0, 0, 0]);
+  });
+
+  it('firstFree() finds a free slot after a used one', () => {
+    const t = new SlotTable(3, 2);
+    t.set(0, rec('a', vec(1, 0)));
+    expect(t.firstFree()).toBe(1);
   });
 
   it('clone() deep-copies, and to a smaller capacity drops the slots beyond it', () => {

@@ -7,31 +7,10 @@
 
 import { describe, expect, it } from 'vitest';
 import type { Candidate } from '../../src/memory/extract.js';
-import type { SlotTable } from '../../src/memory/slots.js';
-import { MAX_PROVENANCE, planWrite, type KeyedCandidate, type WritePlanInput } from '../../src/memory/write.js';
-import { basis, flatGate, rec, sigma, table, vec, writeParams } from './helpers.js';
+import { MAX_PROVENANCE } from '../../src/memory/write.js';
+import { basis, flatGate, keyed as cand, planTurn as plan, rec, sigma, table, vec } from './helpers.js';
 
 const GATE = sigma(2); // 0.8807970779778823
-
-function cand(key: Float32Array, over: Partial<Candidate> = {}, turn = 't9'): KeyedCandidate {
-  return { candidate: { key: 'my topic', value: 'a value', text: 'my topic is a value', pattern: 'my-x-is-y', ...over }, key, turn, role: 'user' };
-}
-
-function plan(t: SlotTable, candidates: KeyedCandidate[], over: Partial<WritePlanInput> = {}, params = {}) {
-  let n = 0;
-  return planWrite({
-    table: t,
-    now: 0,
-    nowMs: 1000,
-    params: writeParams({ gateWeights: flatGate(2), gateThreshold: 0.5, ...params }),
-    tenant: 'shop',
-    session: 's1',
-    candidates,
-    reinforce: [],
-    newId: () => `new${++n}`,
-    ...over,
-  });
-}
 
 describe('planWrite: allocation', () => {
   it('puts a new fact into the first free slot with the gate as its strength', () => {
