@@ -26,10 +26,11 @@ export interface DateMention {
  * (about 40 µs a text, measured here) on most chat turns.
  */
 const HINT =
-  /\b(?:today|tonight|yesterday|tomorrow|ago|last|next|this|coming|past|since|weekend|week|month|year|morning|afternoon|evening|night|mon|tue|wed|thu|fri|sat|sun|monday|tuesday|wednesday|thursday|friday|saturday|sunday|jan|feb|mar|apr|may|jun|jul|aug|sep|sept|oct|nov|dec|january|february|march|april|june|july|august|september|october|november|december|\d{4}|\d{1,2}(?:st|nd|rd|th)|\d{1,2}[/.-]\d{1,2})\b/i;
+  /\b(?:today|tonight|yesterday|tomorrow|ago|last|next|this|coming|past|since|weekends?|weeks?|months?|years?|days?|morning|afternoon|evening|night|mon|tue|wed|thu|fri|sat|sun|monday|tuesday|wednesday|thursday|friday|saturday|sunday|jan|feb|mar|apr|may|jun|jul|aug|sep|sept|oct|nov|dec|january|february|march|april|june|july|august|september|october|november|december|\d{4}|\d{1,2}(?:st|nd|rd|th)|\d{1,2}[/.-]\d{1,2})\b/i;
 
 const WEEKDAYS = ['sunday', 'monday', 'tuesday', 'wednesday', 'thursday', 'friday', 'saturday'];
-const NEXT_WEEKDAY = /^next\s+(sun|mon|tue|wed|thu|fri|sat)[a-z]*\b/i;
+// A weekday's name or abbreviation, whole: "next month" is not "next Monday".
+const NEXT_WEEKDAY = /^next\s+((?:mon|tues|wednes|thurs|fri|satur|sun)day|mon|tue|tues|wed|thu|thur|thurs|fri|sat|sun)(?![a-z])/i;
 const DAY_MS = 86_400_000;
 
 const iso = (ms: number): string => new Date(ms).toISOString().slice(0, 10);
@@ -97,7 +98,7 @@ function parseDates(text: string, atMs: number): DateMention[] {
     let ms = r.start.date().getTime();
     const next = NEXT_WEEKDAY.exec(r.text.trim());
     if (next) {
-      const want = WEEKDAYS.findIndex((w) => w.startsWith(next[1]!.toLowerCase()));
+      const want = WEEKDAYS.findIndex((w) => w.startsWith(next[1]!.toLowerCase().slice(0, 3)));
       const today = new Date(atMs).getUTCDay();
       const ahead = ((want - today + 7) % 7) || 7;
       ms = Math.floor(atMs / DAY_MS) * DAY_MS + ahead * DAY_MS;

@@ -17,7 +17,7 @@ const MONTH = '(?:jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|jul
 const ORD = '\\d{1,2}(?:st|nd|rd|th)?';
 
 const PATTERNS: Array<{ kind: ValueKind; re: RegExp }> = [
-  { kind: 'date', re: new RegExp(`\\b(?:next|this|coming|last)?\\s*${WEEKDAY}s?\\b(?:,?\\s+(?:the\\s+)?${ORD}(?:\\s+(?:of\\s+)?${MONTH})?)?`, 'i') },
+  { kind: 'date', re: new RegExp(`\\b(?:next|this|coming|last)?\\s*${WEEKDAY}(?:s?\\b|(?<=\\.))(?:,?\\s+(?:the\\s+)?${ORD}(?:\\s+(?:of\\s+)?${MONTH})?)?`, 'i') },
   { kind: 'date', re: new RegExp(`\\b(?:the\\s+)?${ORD}\\s+(?:of\\s+)?${MONTH}\\b|\\b${MONTH}\\s+(?:the\\s+)?${ORD}\\b`, 'i') },
   { kind: 'date', re: /\b\d{4}-\d{2}-\d{2}\b|\b\d{1,2}\/\d{1,2}(?:\/\d{2,4})?\b/ },
   { kind: 'date', re: /\b(?:tomorrow|day after tomorrow|tonight|next week|next month|the weekend|this weekend|later this week)\b/i },

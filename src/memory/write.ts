@@ -16,7 +16,7 @@ import type { DemotionReason, EvictReason, LogbookEntry, SlotRecord } from '../t
 import { decayed, reinforce } from './decay.js';
 import { gateFeatures, gateScore } from './gate.js';
 import { analyze, normalizeText } from './text.js';
-import { findAll, type ValueKind } from './values.js';
+import { findAll, type ValueExpr, type ValueKind } from './values.js';
 import { dot, dotSparse, sparseOf, type SparseVector } from './vector.js';
 import { demotedEntry, type KeyedCandidate, type WritePlan, type WritePlanInput } from './plan.js';
 
@@ -62,6 +62,23 @@ function dateShape(expr: string): 'weekday' | 'calendar' | 'other' {
   if (/\b(?:mon|tue|wed|thu|fri|sat|sun)[a-z]*\b/i.test(expr)) return 'weekday';
   if (/\b(?:jan|feb|mar|apr|may|jun|jul|aug|sep|oct|nov|dec)[a-z]*\b|\d/i.test(expr)) return 'calendar';
   return 'other';
+}
+
+/**
+ * `expr` without its first word when the text before it already ends with that word: "dinner at 6"
+ * corrected by "at 7pm" reads "dinner at 7pm", not "dinner at at 7pm".
+ */
+function withoutRepeatedWord(before: string, expr: string): string {
+  const first = /^([a-z]+)\s+/i.exec(expr);
+  return first && new RegExp(`\\b${first[1]}\\s*$`, 'i').test(before) ? expr.slice(first[0].length) : expr;
+}
+
+const MONTH_ONLY = /^(?:jan|feb|mar|apr|may|jun|jul|aug|sep|oct|nov|dec)[a-z]*$/i;
+
+/** The expressions no other one contains (the rules also report the parts of a longer one). */
+function outermost(exprs: readonly ValueExpr[]): ValueExpr[] {
+  const end = (e: ValueExpr): number => e.index + e.text.length;
+  return exprs.filter((e) => !exprs.some((o) => o !== e && o.text.length > e.text.length && o.index <= e.index && end(o) >= end(e)));
 }
 
 /** Plans the changes of one turn. Pure: reads `table`, returns operations. */
@@ -209,14 +226,18 @@ export function planWrite(input: WritePlanInput): WritePlan {
     const sameFact = (i: number): boolean => normalizeText(keyTextAt(i)) === normalizeText(c.key) || shares(cTopic, topicWords(keyTextAt(i)));
     // Overwrite by key: close in meaning *and* sharing the fact's words. Facts that add up ("I like
     // X") replace one another only when the sentence says so.
-    let target = bestCos >= p.overwriteThreshold && sameFact(best) && (!c.accumulate || c.updates !== undefined || c.revises === true || normalizeText(valueAt(best)) === normalizeText(c.value)) ? best : -1;
+    let target = best >= 0 && bestCos >= p.overwriteThreshold && sameFact(best) && (!c.accumulate || c.updates !== undefined || c.revises === true || normalizeText(valueAt(best)) === normalizeText(c.value)) ? best : -1;
     let value = c.value;
     let provenanceTail: string[] = [];
     let maybe: number[] = [];
     const swapIn = (i: number, kind: ValueKind, expr: string): boolean => {
       const old = record(i)!;
       const exprs = findAll(old.value, kind);
-      const last = exprs[exprs.length - 1];
+      // The rules find a date and its parts ("the 14th of October", "the 14th", "October"): a bare month
+      // ("make it November") swaps the month alone; anything else swaps the whole expression, so
+      // "the 20th of October" replaces "the 14th of October" rather than the "October" inside it.
+      const pool = kind === 'date' && MONTH_ONLY.test(expr.trim()) ? exprs : outermost(exprs);
+      const last = pool[pool.length - 1];
       if (!last) return false;
       value = old.value.slice(0, last.index) + expr + old.value.slice(last.index + last.text.length);
       provenanceTail = old.provenance;
@@ -249,7 +270,8 @@ export function planWrite(input: WritePlanInput): WritePlan {
           // replaces the fact with its own sentence.
           if (c.updates.kind !== 'latest') {
             const lead = /^\d+(?:[.,]\d+)?/.exec(c.updates.expr);
-            value = old.value.replace(y, /^\d/.test(contrast[1]!) && lead ? lead[0] : c.updates.expr);
+            const swap = /^\d/.test(contrast[1]!) && lead ? lead[0] : c.updates.expr;
+            value = old.value.replace(y, (_m, at: number) => withoutRepeatedWord(old.value.slice(0, at), swap));
           }
           provenanceTail = old.provenance;
         }
