@@ -7,6 +7,7 @@ import { describe, expect, it } from 'vitest';
 import { ErrorCodes } from '../../src/errors.js';
 import type { CommitEvent, DemoteEvent, EvictEvent, GateEvent, LogbookEvent, OverwriteEvent, WriteEvent } from '../../src/middleware/events.js';
 import { createTidemark, type Tidemark, type WriteReport } from '../../src/middleware/tidemark.js';
+import { mixVectors, newRevisionId, turnEntryId } from '../../src/middleware/write.js';
 import { InProcessStore } from '../../src/store/in-process.js';
 import type { Store } from '../../src/store/store.js';
 import { ControlledStore } from './helpers.js';
@@ -157,6 +158,23 @@ describe('a capacity change between instances sharing a store', () => {
   });
 });
 
+describe('a capacity change and a new fact in one commit', () => {
+  it('the new fact takes the slot the plan freed, on top of the resized table', async () => {
+    const shared = new InProcessStore();
+    const wide = createTidemark({ store: shared, capacity: 3 });
+    for (const text of ['My name is Dana.', 'My bike is a green Corvane Tourer.', 'Can I book a service for Tuesday?']) await wide.write({ session: 's', text });
+    const narrow = createTidemark({ store: shared, capacity: 2 });
+    const report = await narrow.write({ session: 's', text: 'I am allergic to chain wax.' });
+    expect(report).toMatchObject({ allocated: 1, evicted: 2 });
+    const after = await narrow.inspect('s');
+    expect(after.slots).toHaveLength(2);
+    expect(after.slots.map((x) => x.value)).toContain('chain wax');
+    expect(after.slots.map((x) => x.index).sort()).toEqual([0, 1]);
+    await wide.close();
+    await narrow.close();
+  });
+});
+
 /** Answers the first `conflicts` commits as if another writer had won. */
 class BusyStore extends ControlledStore {
   conflicts = 0;
@@ -244,5 +262,63 @@ describe('which turns are read for facts and which are kept', () => {
     await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.', at: 1_000_000 });
     expect(writes.map((e) => e.clock)).toEqual([2000, 2000]);
     await tm.close();
+  });
+});
+
+describe('what leaves working memory, and the survival counters', () => {
+  it('a slot past write.maxAgeMs is evicted as `expired`: not demoted, not in the logbook', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), write: { maxAgeMs: 60_000 } });
+    const seen = record(tm, ['evict', 'demote', 'logbook']);
+    const t0 = Date.UTC(2026, 11, 3, 12);
+    await tm.write({ session: 's', text: 'My name is Dana.', at: t0 });
+    const dana = (await tm.inspect('s')).slots[0]!;
+    seen.length = 0;
+    const report = await tm.write({ session: 's', text: 'ok', at: t0 + 60_001 });
+    expect(report).toMatchObject({ evicted: 1, logbook: 1 });
+    expect(seen.map(([n, e]) => [n, e.id ?? null, e.reason ?? null, e.logged ?? null])).toEqual([['logbook', null, null, null], ['evict', dana.id, 'expired', false]]);
+    expect(seen[0]![1]).toMatchObject({ turns: 1, demoted: 0 });
+    const view = await tm.inspect('s');
+    expect(view.slots).toEqual([]);
+    expect(view.logbook.filter((e) => e.kind !== 'turn')).toEqual([]);
+    await tm.close();
+  });
+
+  it('each commit adds the survival counts of its slots: every lifetime bound reached, and the evicted one\'s end', async () => {
+    // Bounds in turns are 0, 1, 2, 4, ...: a slot counts once per bound its age reaches. Dana (born
+    // at clock 1) is evicted at clock 3, age 2; the bike (2) and the booking (3, overwritten in place,
+    // the same slot living on) stay.
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, capacity: 2 });
+    const counts: Array<Record<string, number>> = [];
+    for (const text of SCRIPT) {
+      await tm.write({ session: 's', text });
+      counts.push((await store.stats('default')).counters ?? {});
+    }
+    expect(counts).toEqual([
+      { 'survival.reached.0': 1 },
+      { 'survival.reached.0': 2, 'survival.reached.1': 1 },
+      { 'survival.reached.0': 3, 'survival.reached.1': 2, 'survival.reached.2': 1, 'survival.ended.2': 1 },
+      { 'survival.reached.0': 3, 'survival.reached.1': 3, 'survival.reached.2': 2, 'survival.ended.2': 1 },
+      { 'survival.reached.0': 3, 'survival.reached.1': 3, 'survival.reached.2': 3, 'survival.ended.2': 1 },
+    ]);
+    await tm.close();
+  });
+});
+
+describe('write path helpers', () => {
+  it('mixVectors gives the unit vector of a + mix * b, and zeros for a zero sum', () => {
+    const out = mixVectors(new Float32Array([1, 0]), new Float32Array([0, 1]), 0.75);
+    expect(Array.from(out)).toEqual([expect.closeTo(0.8, 6), expect.closeTo(0.6, 6)]);
+    expect(Array.from(mixVectors(new Float32Array([1, -1]), new Float32Array([-1, 1]), 1))).toEqual([0, 0]);
+  });
+
+  it('revision ids are 16 hex chars, fresh each time; turn entry ids depend on session and turn, unambiguously', () => {
+    const a = newRevisionId();
+    expect(a).toMatch(/^[0-9a-f]{16}$/);
+    expect(newRevisionId()).not.toBe(a);
+    expect(turnEntryId('s', 't1')).toBe(turnEntryId('s', 't1'));
+    expect(turnEntryId('s', 't1')).toMatch(/^T\S+$/);
+    expect(turnEntryId('s', 't1')).not.toBe(turnEntryId('s', 't2'));
+    expect(turnEntryId('ab', 'c')).not.toBe(turnEntryId('a', 'bc'));
   });
 });
