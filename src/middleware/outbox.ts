@@ -107,7 +107,7 @@ export class Outbox {
   /** Stops the retry timer (on close) and gives up what is still queued; resolves to how many. */
   stop(): number {
     this.closed = true;
-    if (this.drainTimer) clearTimeout(this.drainTimer);
+    clearTimeout(this.drainTimer);
     this.drainTimer = undefined;
     const left = this.entries.splice(0);
     for (const e of left) {
@@ -127,10 +127,8 @@ export class Outbox {
 
   /** Drains now (cancelling a scheduled retry); resolves when this pass ends. */
   drainNow(): Promise<void> {
-    if (this.drainTimer) {
-      clearTimeout(this.drainTimer);
-      this.drainTimer = undefined;
-    }
+    clearTimeout(this.drainTimer);
+    this.drainTimer = undefined;
     return this.drain();
   }
 
