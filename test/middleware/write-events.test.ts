@@ -322,3 +322,31 @@ describe('write path helpers', () => {
     expect(turnEntryId('ab', 'c')).not.toBe(turnEntryId('a', 'bc'));
   });
 });
+
+describe('a short answer takes its topic from what was said just before', () => {
+  const question = { session: 's', role: 'assistant' as const, text: "What's the best number to reach you on?" };
+  const answer = { session: 's', text: "It's 07700 900814." };
+  const keys = async (tm: Tidemark): Promise<string[]> => (await tm.inspect('s')).slots.map((x) => x.key);
+
+  it('within one write call', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    await tm.write([question, answer]);
+    expect(await keys(tm)).toEqual(['my phone number (mobile)']);
+    await tm.close();
+  });
+
+  it('across write calls: the last turn of the previous write, not an earlier one', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    await tm.write([{ session: 's', text: 'Hi, I would like to book a service.' }, question]);
+    await tm.write(answer);
+    expect(await keys(tm)).toContain('my phone number (mobile)');
+    await tm.close();
+  });
+
+  it('and without the question there is no such topic', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    await tm.write(answer);
+    expect(await keys(tm)).not.toContain('my phone number (mobile)');
+    await tm.close();
+  });
+});
