@@ -56,6 +56,18 @@ describe('the read event', () => {
   });
 });
 
+describe('attention hops', () => {
+  it('a second hop runs when the first selected slots, and none runs over an empty session', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), read: { hops: 2 } });
+    expect((await tm.read({ session: 's', text: 'What is my name?' })).trace).toMatchObject({ hops: 0, scanned: 0, topCosine: -1 });
+    for (const text of FACTS) await tm.write({ session: 's', text });
+    const ctx = await tm.read({ session: 's', text: 'What is my name?' });
+    expect(ctx.trace.hops).toBe(2);
+    expect(ctx.items[0]?.value).toBe('Dana');
+    await tm.close();
+  });
+});
+
 describe('items carry what their tier knows', () => {
   it('a slot item has its key, provenance and the dates its value meant; a logbook turn its role and time; a demoted value its reason and successor', async () => {
     const tm = createTidemark({ store: new InProcessStore() });
