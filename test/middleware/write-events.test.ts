@@ -48,6 +48,13 @@ describe('write events of a scripted conversation', () => {
       'logbook gate commit',
     ]);
     for (const t of turns) for (const [, e] of t) expect(e).toMatchObject(h);
+    // Durations are measured, never negative (their size is bench/'s business).
+    for (const t of turns) {
+      const c = t.find(([n]) => n === 'commit')![1] as unknown as CommitEvent;
+      expect(c.planUs).toBeGreaterThan(0);
+      expect(c.durationUs).toBeGreaterThan(0);
+      expect(c.embedUs).toBeGreaterThanOrEqual(0);
+    }
     const ev = <T>(turn: number, name: Name): T => turns[turn]!.find(([n]) => n === name)![1] as T;
     const stored = (turn: number): string => reports[turn]!.detail!.stored[0]!.id;
 
