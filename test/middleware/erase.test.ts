@@ -4,7 +4,9 @@
 
 import { describe, expect, it, vi } from 'vitest';
 import { ErrorCodes } from '../../src/errors.js';
+import type { EvictEvent } from '../../src/middleware/events.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
+import { InProcessStore } from '../../src/store/in-process.js';
 import type { Store } from '../../src/store/store.js';
 import { ControlledStore, gate, sleep } from './helpers.js';
 
@@ -75,6 +77,25 @@ describe('erase input and failures', () => {
     await expect(tm.erase({ user: '' })).rejects.toMatchObject({ code: ErrorCodes.INPUT_ID, message: expect.stringMatching(/^user /) });
     await expect(tm.erase({ session: 's' }, '')).rejects.toMatchObject({ code: ErrorCodes.INPUT_ID, message: expect.stringMatching(/^tenant /) });
     await expect(tm.erase({ session: 's' })).rejects.toMatchObject({ code: ErrorCodes.STORE_UNAVAILABLE, message: 'store controlled failed (erase): connection reset (test)' });
+    await tm.close();
+  });
+});
+
+describe('erase announces the slots it removes', () => {
+  it('one `erased` evict event per slot, with its slot, lifetime on the session clock and half-life', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    for (const text of ['My name is Dana.', 'My bike is a green Corvane Tourer.', 'I am allergic to chain wax.']) await tm.write({ session: 's', text });
+    const view = await tm.inspect('s');
+    const evicted: EvictEvent[] = [];
+    tm.on('evict', (e) => evicted.push(e));
+    await tm.erase({ session: 's' });
+    expect(evicted.map((e) => [e.slot, e.id, e.lifetime, e.halfLife])).toEqual(view.slots.map((x) => [x.index, x.id, x.age, x.halfLife]));
+    for (const e of evicted) {
+      expect(e.lifetimeMs).toBeGreaterThanOrEqual(0);
+      expect(e.strength).toBeGreaterThan(0);
+    }
+    // The newest slot was stamped at this clock: its stored strength is the one inspect shows.
+    expect(evicted.at(-1)!.strength).toBeCloseTo(view.slots.at(-1)!.strength, 9);
     await tm.close();
   });
 });
