@@ -3,7 +3,7 @@
 // emitted with only its own listener attached, a capacity change between instances, conflicts that
 // retry or exhaust commitRetries, and which turns are read for facts and kept in the logbook.
 
-import { describe, expect, it } from 'vitest';
+import { describe, expect, it, vi } from 'vitest';
 import { ErrorCodes } from '../../src/errors.js';
 import type { CommitEvent, DemoteEvent, EvictEvent, GateEvent, LogbookEvent, OverwriteEvent, WriteEvent } from '../../src/middleware/events.js';
 import { createTidemark, type Tidemark, type WriteReport } from '../../src/middleware/tidemark.js';
@@ -33,6 +33,7 @@ describe('write events of a scripted conversation', () => {
     const halfLife = tm.params.write.halfLife;
     const h = { sessionHash: tm.hashSession('default', 's'), tenant: tm.hashTenant('default') };
     const reports: WriteReport[] = [];
+    const born = Date.now();
     const turns: Array<Array<[Name, Record<string, unknown>]>> = [];
     for (const text of SCRIPT) {
       const from = seen.length;
@@ -62,6 +63,7 @@ describe('write events of a scripted conversation', () => {
     const gate1 = ev<GateEvent>(0, 'gate');
     expect(gate1).toMatchObject({ threshold, passed: true });
     expect(gate1.score).toBeGreaterThan(threshold);
+    expect(Object.keys(gate1.features)).toEqual(expect.arrayContaining(['novelty', 'statement', 'userRole']));
     expect(ev<WriteEvent>(0, 'write')).toMatchObject({ outcome: 'allocated', slot: 0, id: stored(0), clock: 1, gate: gate1.score, strength: gate1.score, halfLife, slotsInUse: 1, capacity: 2 });
     expect(ev<LogbookEvent>(0, 'logbook')).toMatchObject({ turns: 1, demoted: 0, droppedAge: 0, droppedCount: 0 });
     expect(ev<CommitEvent>(0, 'commit')).toMatchObject({ ops: 1, demoted: 0, logbook: 1, retries: 0, slotsInUse: 1, capacity: 2, version: 1 });
@@ -72,6 +74,7 @@ describe('write events of a scripted conversation', () => {
     const evict = ev<EvictEvent>(2, 'evict');
     expect(evict).toMatchObject({ slot: 0, id: stored(0), reason: 'capacity', logged: true, lifetime: 2, halfLife });
     expect(evict.lifetimeMs).toBeGreaterThanOrEqual(0);
+    expect(evict.lifetimeMs).toBeLessThanOrEqual(Date.now() - born);
     expect(evict.strength).toBeGreaterThan(0);
     expect(evict.strength).toBeLessThan(gate1.score);
     expect(ev<DemoteEvent>(2, 'demote')).toMatchObject({ reason: 'capacity', id: stored(0) });
@@ -355,5 +358,92 @@ describe('a short answer takes its topic from what was said just before', () => 
     await tm.write(answer);
     expect(await keys(tm)).not.toContain('my phone number (mobile)');
     await tm.close();
+  });
+});
+
+describe('what a write stores besides the slot value', () => {
+  it('a turn entry carries its user and speaker, an empty key text and no dates field when it names none; a slot its owner', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), capacity: 1 });
+    await tm.write({ session: 's', user: 'u1', speaker: 'Dana', text: 'My name is Dana.' });
+    await tm.write({ session: 's', user: 'u1', speaker: 'Dana', text: 'My bike is a green Corvane Tourer.' });
+    const view = await tm.inspect('s', 'default', { user: 'u1' });
+    expect(view.slots.map((x) => [x.value, x.owner])).toEqual([['a green Corvane Tourer', 'Dana']]);
+    const turn = view.logbook.find((e) => e.kind === 'turn' && e.value === 'My name is Dana.')!;
+    expect(turn).toMatchObject({ user: 'u1', speaker: 'Dana', keyText: '', seq: 1 });
+    expect(turn).not.toHaveProperty('dates');
+    // The value evicted to make room keeps the user too.
+    expect(view.logbook.find((e) => e.kind !== 'turn')).toMatchObject({ value: 'Dana', user: 'u1' });
+    await tm.close();
+  });
+
+  it('a repeated fact reinforces its slot and the report counts it; detail carries values only when asked', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    const first = await tm.write({ session: 's', text: 'My name is Dana.' }, { text: true });
+    expect(first.detail?.stored.map((x) => x.value)).toEqual(['Dana']);
+    const again = await tm.write({ session: 's', text: 'My name is Dana.' });
+    expect(again).toMatchObject({ allocated: 0, overwritten: 0, reinforced: 1 });
+    expect(again.detail?.stored).toEqual([]);
+    await tm.close();
+  });
+
+  it('a write plans on the snapshot its read just loaded: no second load', async () => {
+    const store = new ControlledStore();
+    const tm = createTidemark({ store });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    await tm.read({ session: 's', text: 'What is my name?' });
+    const loads = store.loads;
+    await tm.write({ session: 's', text: 'My bike is red.' });
+    expect(store.loads).toBe(loads);
+    await tm.close();
+  });
+
+  it('a store failure names the call that failed; an erase just before a write refuses it with a coded error', async () => {
+    const store = new ControlledStore();
+    const tm = createTidemark({ store, outbox: { retryMs: 60_000, maxRetryMs: 60_000 } });
+    const messages: string[] = [];
+    tm.on('error', (e) => messages.push(e.error.message));
+    store.failLoad = true;
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    store.failLoad = false;
+    store.failCommit = true;
+    await tm.write({ session: 't', text: 'My name is Dana.' });
+    expect(messages).toEqual(['store controlled failed (load): connection refused (test)', 'store controlled failed (commit): connection reset (test)']);
+    store.failCommit = false;
+    await tm.close();
+    const fenced = createTidemark({ store: new InProcessStore() });
+    // The clock stands still: the write is accepted in the erase's own millisecond, and the erase wins.
+    vi.useFakeTimers({ toFake: ['Date'] });
+    try {
+      vi.setSystemTime(Date.UTC(2026, 11, 3, 12));
+      await fenced.erase({ session: 's' });
+      await expect(fenced.write({ session: 's', text: 'My name is Dana.' })).rejects.toMatchObject({
+        code: ErrorCodes.STORE_ERASED, message: `session #${fenced.hashSession('default', 's')} or its user was erased after this write was accepted; it was not stored`,
+      });
+    } finally {
+      vi.useRealTimers();
+    }
+    await fenced.close();
+  });
+
+  it('with the clock in seconds, the survival counts use the bounds in seconds', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, decayUnit: 'seconds' });
+    const t0 = Date.UTC(2026, 11, 3, 12);
+    await tm.write({ session: 's', text: 'My name is Dana.', at: t0 });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.', at: t0 + 120_000 });
+    // Dana is 120 s old at the second commit: past the 60 s bound, short of 300 s.
+    expect((await store.stats('default')).counters).toEqual({ 'survival.reached.0': 2, 'survival.reached.60': 1 });
+    await tm.close();
+  });
+
+  it('a resize skips empty slots', async () => {
+    const shared = new InProcessStore();
+    const wide = createTidemark({ store: shared, capacity: 4 });
+    for (const text of ['My name is Dana.', 'My bike is a green Corvane Tourer.']) await wide.write({ session: 's', text });
+    const narrow = createTidemark({ store: shared, capacity: 2 });
+    expect(await narrow.write({ session: 's', text: 'ok' })).toMatchObject({ evicted: 0, committed: true });
+    expect((await narrow.inspect('s')).slots.map((x) => x.value).sort()).toEqual(['Dana', 'a green Corvane Tourer']);
+    await wide.close();
+    await narrow.close();
   });
 });
