@@ -23,7 +23,6 @@ interface OutboxEntry {
   fence: ErasureFence | undefined;
   /** When the write was accepted (this process's clock), for `outbox.maxAgeMs`. */
   acceptedMs: number;
-  attempts: number;
 }
 
 /** Whether an error leaves a write worth retrying later (the store was away, or another writer kept winning). */
@@ -58,7 +57,7 @@ export class Outbox {
     // read; conflict re-plans reuse them, a write that goes to the outbox commits without promoting
     // (promotion is an optimisation, not a fact).
     const items: LogbookEntry[] = promote.length > 0 && this.core.recalledUnder(ref, fence) ? this.core.recalledEntries(ref, promote) : [];
-    const entry: OutboxEntry = { key, commitId, ref, turns, reinforce, fence, acceptedMs, attempts: 0 };
+    const entry: OutboxEntry = { key, commitId, ref, turns, reinforce, fence, acceptedMs };
     return this.core.chain(key, () => this.commitOrQueue(entry, items));
   }
 
@@ -71,7 +70,6 @@ export class Outbox {
       this.core.emitError('write', err, ref);
       if (retryable(err)) {
         this.core.events.emit('degraded', { ...this.core.base(ref), stage: 'write', code: (err as StoreError).code });
-        entry.attempts = 1;
         return this.park(entry);
       }
       throw err;
@@ -109,7 +107,7 @@ export class Outbox {
   /** Stops the retry timer (on close) and gives up what is still queued; resolves to how many. */
   stop(): number {
     this.closed = true;
-    if (this.drainTimer) clearTimeout(this.drainTimer);
+    clearTimeout(this.drainTimer);
     this.drainTimer = undefined;
     const left = this.entries.splice(0);
     for (const e of left) {
@@ -129,10 +127,8 @@ export class Outbox {
 
   /** Drains now (cancelling a scheduled retry); resolves when this pass ends. */
   drainNow(): Promise<void> {
-    if (this.drainTimer) {
-      clearTimeout(this.drainTimer);
-      this.drainTimer = undefined;
-    }
+    clearTimeout(this.drainTimer);
+    this.drainTimer = undefined;
     return this.drain();
   }
 
@@ -171,7 +167,6 @@ export class Outbox {
             await this.writes.commit(entry.ref, entry.turns, entry.reinforce, entry.commitId, [], entry.fence);
             this.remove(entry, 'drained');
           } catch (err) {
-            entry.attempts++;
             if (err instanceof StoreError && err.code === ErrorCodes.STORE_UNAVAILABLE) {
               failed = true;
             } else if (err instanceof StoreError && err.code === ErrorCodes.STORE_CONFLICT) {
