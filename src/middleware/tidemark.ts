@@ -210,8 +210,10 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       }
     }
     const ref = refOf(first);
-    // The erasure fence the turns are accepted under: an erase from here on (any process) wins.
-    const fence = await this.core.fenceNow(ref, acceptedMs);
+    // The erasure fence the turns are accepted under: an erase from here on (any process) wins. A
+    // store without fences has only the order of calls: the turns join their session's queue before
+    // write() yields, so an erase called after it waits for them.
+    const fence = this.store.fence ? await this.core.fenceNow(ref, acceptedMs) : undefined;
     const report = await this.outbox.enqueue(ref, list, [...(options.reinforce ?? [])], [...(options.promote ?? [])], fence, acceptedMs);
     if (report.detail && options.text !== true) report.detail = withoutText(report.detail);
     return report;

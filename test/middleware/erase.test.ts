@@ -99,3 +99,21 @@ describe('erase announces the slots it removes', () => {
     await tm.close();
   });
 });
+
+describe('erase straight after write, on a store without fences', () => {
+  it('the write joins its session before write() returns control, so the erase waits for it', async () => {
+    // A store of one's own may leave out the optional `fence`: then nothing but the order of calls
+    // keeps an erase after a write.
+    const inner = new InProcessStore();
+    const store = new Proxy(inner, { get: (t, k) => (k === 'fence' ? undefined : Reflect.get(t, k, t)) }) as Store;
+    expect(store.fence).toBeUndefined();
+    const tm = createTidemark({ store });
+    const write = tm.write({ session: 's', text: 'My name is Dana.' });
+    const erase = tm.erase({ session: 's' });
+    await Promise.all([write, erase]);
+    const view = await tm.inspect('s');
+    expect(view.slots).toEqual([]);
+    expect(view.logbook).toEqual([]);
+    await tm.close();
+  });
+});
