@@ -122,10 +122,11 @@ export interface OutboxEvent {
   depth: number;
   /**
    * `queued`: a failed write was queued; `drained`: one was committed; `overflow`: one was refused;
-   * `retry`: a conflict or failure left one queued for another pass; `erased`: one was accepted before
-   * an erase of its session or user and is not stored; `expired`: one waited past `outbox.maxAgeMs`;
-   * `failed`: the store refused one for good (reported in an `error` event); `abandoned`: `close()`
-   * ran out of time with it still queued.
+   * `retry`: a conflict (another writer kept winning) left one queued for another pass — a store
+   * still unreachable leaves it queued without an event; `erased`: one was accepted before an erase of
+   * its session or user and is not stored; `expired`: one waited past `outbox.maxAgeMs`; `failed`: the
+   * store refused one for good (reported in an `error` event); `abandoned`: `close()` ran out of time
+   * with it still queued, or its commit failed after `close()` stopped the outbox.
    */
   change: 'queued' | 'drained' | 'overflow' | 'retry' | 'erased' | 'expired' | 'failed' | 'abandoned';
   sessionHash?: string;

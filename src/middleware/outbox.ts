@@ -83,6 +83,14 @@ export class Outbox {
       committed: false, version: -1, turns: turns.map((t) => t.turn ?? ''),
     };
     const sessionHash = this.core.hashSession(ref.tenant, ref.session);
+    if (this.closed) {
+      // A commit still running when close() stopped waiting failed afterwards: no retry will come, so
+      // the write is given up here and says so, rather than waiting in a stopped outbox.
+      const error = new StoreError(ErrorCodes.CLOSED, `close() stopped the outbox before this write was stored (store ${this.core.store.name}); it was not stored`);
+      this.core.events.emit('outbox', { depth: this.entries.length, change: 'abandoned', sessionHash });
+      this.core.emitError('outbox', error, ref);
+      throw error;
+    }
     if (this.entries.length >= this.core.o.outbox.max) {
       const error = new StoreError(ErrorCodes.STORE_OUTBOX_FULL, `outbox is full (${this.core.o.outbox.max} pending writes) while store ${this.core.store.name} is unreachable; this write was refused — raise outbox.max or restore the store`);
       this.core.events.emit('outbox', { depth: this.entries.length, change: 'overflow', sessionHash });

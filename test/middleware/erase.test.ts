@@ -117,3 +117,21 @@ describe('erase straight after write, on a store without fences', () => {
     await tm.close();
   });
 });
+
+describe('a commit that fails after close() stopped waiting', () => {
+  it('rejects its write with TIDEMARK_E_CLOSED instead of parking it in a stopped outbox, where it was lost without a word', async () => {
+    const store = new ControlledStore();
+    const tm = createTidemark({ store });
+    const held = gate();
+    store.commitGate = () => held.promise;
+    const write = tm.write({ session: 's', text: 'My name is Dana.' }).then((r) => `resolved, committed: ${r.committed}`, (e: { code?: string }) => e.code);
+    await vi.waitFor(() => expect(store.commits).toBe(1));
+    // close() gives up waiting after its deadline and stops the outbox; only then does the commit fail.
+    tm.once('closed', () => {
+      store.failCommit = true;
+      held.open();
+    });
+    expect(await tm.close({ timeoutMs: 10 })).toEqual({ abandoned: 0 });
+    expect(await write).toBe(ErrorCodes.CLOSED);
+  });
+});

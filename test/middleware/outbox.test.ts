@@ -384,7 +384,8 @@ describe('outbox: one pass at a time, and nothing left behind', () => {
     expect(await tm.close({ timeoutMs: 0 })).toEqual({ abandoned: 1 });
     expect(vi.getTimerCount()).toBe(0);
     held.open();
-    expect((await late).committed).toBe(false);
+    // Not stored and not parked in the stopped outbox: the write says so.
+    await expect(late).rejects.toMatchObject({ code: ErrorCodes.CLOSED });
     expect(vi.getTimerCount()).toBe(0);
   });
 });
