@@ -121,12 +121,12 @@ const elementId = (e: string): string => {
 };
 
 const token = (): string => randomBytes(8).toString('hex');
-/** The whole-ms time a logbook entry is filed under in its block (as encodeRecord files it). */
 /** The logbook's age cutoff a commit applies (ms; 0 = no age limit). */
 const ageCutoff = (req: CommitRequest): number => {
   const policy = req.retention?.policy;
   return policy && policy.maxAgeMs > 0 ? Math.floor(req.retention!.nowMs - policy.maxAgeMs) : 0;
 };
+/** The whole-ms time a logbook entry is filed under in its block (as encodeRecord files it). */
 const fileTime = (atMs: number): number => (Number.isSafeInteger(atMs) && atMs >= 0 ? atMs : Math.max(0, Math.floor(Number.isFinite(atMs) ? atMs : 0)));
 /** First byte of a logbook block element, open or sealed (codec.ts, BLOCK_MARK and SEALED_MARK). */
 const isBlock = (el: Buffer): boolean => el[0] === 0 || el[0] === 1;

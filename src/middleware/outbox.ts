@@ -78,10 +78,6 @@ export class Outbox {
 
   private park(entry: OutboxEntry): WriteReport {
     const { ref, turns } = entry;
-    const report: WriteReport = {
-      allocated: 0, overwritten: 0, reinforced: 0, gatedOut: 0, evicted: 0, logbook: 0, dropped: { age: 0, count: 0 },
-      committed: false, version: -1, turns: turns.map((t) => t.turn ?? ''),
-    };
     const sessionHash = this.core.hashSession(ref.tenant, ref.session);
     if (this.closed) {
       // A commit still running when close() stopped waiting failed afterwards: no retry will come, so
@@ -97,6 +93,10 @@ export class Outbox {
       this.core.emitError('outbox', error, ref);
       throw error;
     }
+    const report: WriteReport = {
+      allocated: 0, overwritten: 0, reinforced: 0, gatedOut: 0, evicted: 0, logbook: 0, dropped: { age: 0, count: 0 },
+      committed: false, version: -1, turns: turns.map((t) => t.turn ?? ''),
+    };
     this.entries.push(entry);
     this.core.events.emit('outbox', { depth: this.entries.length, change: 'queued', sessionHash });
     this.schedule();
