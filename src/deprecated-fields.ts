@@ -60,19 +60,19 @@ export interface DeprecatedEvents {
 /** The old name of the `demote` event, emitted beside it. */
 export const DEPRECATED_DEMOTE_EVENT = 'archive' satisfies keyof DeprecatedEvents;
 
-/** A `read` payload with its old field. */
+/** A `read` payload with its old field, added to `e` (a payload just built; a copy would cost more than the event, see `payload`). */
 export function withDeprecatedReadFields<T extends { logbookItems: number }>(e: T): T & DeprecatedReadEventFields {
-  return { ...e, archiveItems: e.logbookItems };
+  return Object.assign(e, { archiveItems: e.logbookItems });
 }
 
-/** An `evict` payload with its old field. */
+/** An `evict` payload with its old field, added to `e` (a payload just built). */
 export function withDeprecatedEvictFields<T extends { logged: boolean }>(e: T): T & DeprecatedEvictEventFields {
-  return { ...e, archived: e.logged };
+  return Object.assign(e, { archived: e.logged });
 }
 
-/** A `commit` payload with its old field. */
+/** A `commit` payload with its old field, added to `e` (a payload just built). */
 export function withDeprecatedCommitFields<T extends { demoted: number }>(e: T): T & DeprecatedCommitEventFields {
-  return { ...e, archived: e.demoted };
+  return Object.assign(e, { archived: e.demoted });
 }
 
 // ------------------------------------------------------------------ replay figures (`tidemark replay --json`)

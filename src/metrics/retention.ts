@@ -188,6 +188,8 @@ interface AliveSlot {
   startClock: number;
   startMs: number;
   halfLife: number;
+  sessionHash: string;
+  slot: number;
 }
 
 interface Finished {
@@ -207,6 +209,8 @@ export class RetentionTracker {
   private readonly o: Required<RetentionTrackerOptions>;
   private readonly ends: ReadonlySet<EvictReason>;
   private readonly alive = new Map<string, AliveSlot>();
+  /** The same live slots by session hash and slot index: a reinforcement or overwrite (every turn) finds its slot without building a key. */
+  private readonly bySession = new Map<string, { slots: Array<AliveSlot | undefined>; n: number }>();
   /** Latest clock seen per session, to censor live slots in clock units. */
   private readonly clocks = new Map<string, number>();
   private readonly finished: Finished[] = [];
@@ -238,24 +242,40 @@ export class RetentionTracker {
   onWrite(e: WriteEvent): void {
     this.seeClock(e.sessionHash, e.clock);
     if (e.outcome !== 'allocated') {
-      const a = this.alive.get(`${e.sessionHash}#${e.slot}`);
+      const a = this.bySession.get(e.sessionHash)?.slots[e.slot];
       if (a) a.halfLife = e.halfLife;
       return;
     }
     const key = `${e.sessionHash}#${e.slot}`;
-    this.alive.delete(key);
-    this.alive.set(key, { startClock: e.clock, startMs: e.atMs, halfLife: e.halfLife });
+    this.forget(key);
+    const a: AliveSlot = { startClock: e.clock, startMs: e.atMs, halfLife: e.halfLife, sessionHash: e.sessionHash, slot: e.slot };
+    this.alive.set(key, a);
+    let s = this.bySession.get(e.sessionHash);
+    if (!s) this.bySession.set(e.sessionHash, (s = { slots: [], n: 0 }));
+    s.slots[e.slot] = a;
+    s.n++;
     if (this.alive.size > this.o.maxAlive) {
       const oldest = this.alive.keys().next().value;
-      if (oldest !== undefined) this.alive.delete(oldest);
+      if (oldest !== undefined) this.forget(oldest);
     }
+  }
+
+  /** Drops a live slot from both indexes; returns it. */
+  private forget(key: string): AliveSlot | undefined {
+    const a = this.alive.get(key);
+    if (!a) return undefined;
+    this.alive.delete(key);
+    const s = this.bySession.get(a.sessionHash);
+    if (s && s.slots[a.slot] === a) {
+      s.slots[a.slot] = undefined;
+      if (--s.n === 0) this.bySession.delete(a.sessionHash);
+    }
+    return a;
   }
 
   /** Feed an `evict` event. Lifetimes come from the event, so slots allocated before the tracker started count too. */
   onEvict(e: EvictEvent): void {
-    const key = `${e.sessionHash}#${e.slot}`;
-    const a = this.alive.get(key);
-    this.alive.delete(key);
+    const a = this.forget(`${e.sessionHash}#${e.slot}`);
     if (a) this.seeClock(e.sessionHash, a.startClock + e.lifetime);
     this.byReason[e.reason] += 1;
     const obs: Finished = {

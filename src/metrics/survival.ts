@@ -18,6 +18,8 @@ export type SurvivalUnit = keyof typeof SURVIVAL_BOUNDS;
 /** Eviction reasons that end a lifetime (an erase is the user's wish, not forgetting: censored). */
 export const SURVIVAL_END_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired'];
 
+const DEFAULT_ENDS: ReadonlySet<EvictReason> = new Set(SURVIVAL_END_REASONS);
+
 /** Store counter field names: `survival.reached.<bound>` and `survival.ended.<bound>`. */
 export const SURVIVAL_FIELD = { reached: 'survival.reached.', ended: 'survival.ended.' } as const;
 
@@ -51,21 +53,26 @@ export function survivalIncrements(input: {
   endReasons?: readonly EvictReason[];
 }): Record<string, number> {
   const bounds = SURVIVAL_BOUNDS[input.unit];
-  const ends = new Set(input.endReasons ?? SURVIVAL_END_REASONS);
-  const known = new Map<string, number>();
-  const key = (s: SlotBirth): string => `${s.created}/${s.createdMs}`;
-  for (const s of input.before) known.set(key(s), (known.get(key(s)) ?? 0) + 1);
+  const ends = input.endReasons ? new Set(input.endReasons) : DEFAULT_ENDS;
+  // Slots alive before, counted by birth (created, then createdMs): numbers as keys, so a commit builds
+  // no strings for its 64 slots (this runs on every commit).
+  const known = new Map<number, Map<number, number>>();
+  for (const s of input.before) {
+    let m = known.get(s.created);
+    if (!m) known.set(s.created, (m = new Map()));
+    m.set(s.createdMs, (m.get(s.createdMs) ?? 0) + 1);
+  }
   const out: Record<string, number> = {};
   const add = (field: string, n: number): void => {
     out[field] = (out[field] ?? 0) + n;
   };
   const cross = (s: SlotBirth): number => {
     const age = Math.max(0, input.clock - s.created);
-    const k = key(s);
-    const seen = known.get(k) ?? 0;
+    const m = known.get(s.created);
+    const seen = m?.get(s.createdMs) ?? 0;
     // Known before: counted up to its age then. New: counted from nothing (below bound 0).
     const from = seen > 0 ? survivalInterval(bounds, Math.max(0, input.prevClock - s.created)) : -1;
-    if (seen > 0) known.set(k, seen - 1);
+    if (seen > 0) m!.set(s.createdMs, seen - 1);
     const to = survivalInterval(bounds, age);
     for (let j = from + 1; j <= to; j++) add(`${SURVIVAL_FIELD.reached}${bounds[j]}`, 1);
     return to;

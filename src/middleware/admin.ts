@@ -9,7 +9,7 @@ import { decayed } from '../memory/decay.js';
 import { scopeOf } from '../store/in-process.js';
 import type { EraseReport, SessionSnapshot, SlotOp } from '../store/store.js';
 import type { LogbookEntry, SessionRef, SlotRecord, StoredEvent } from '../types.js';
-import { Core, keyOf, sleep } from './core.js';
+import { Core, keyOf, payload, sleep } from './core.js';
 import type { Outbox } from './outbox.js';
 import { checkId } from './validate.js';
 import { mixVectors } from './write.js';
@@ -166,10 +166,10 @@ export class Admin {
     const t = snap.table;
     for (let i = 0; i < t.capacity; i++) {
       if (!t.isUsed(i)) continue;
-      core.events.emit('evict', withDeprecatedEvictFields({
-        ...base, slot: i, id: t.ids[i]!, reason: 'erased', logged: false, lifetime: snap.clock - t.created[i]!,
+      core.events.emit('evict', withDeprecatedEvictFields(payload(base, {
+        slot: i, id: t.ids[i]!, reason: 'erased', logged: false, lifetime: snap.clock - t.created[i]!,
         lifetimeMs: base.atMs - t.createdMs[i]!, halfLife: t.halfLife[i]!, strength: t.strength[i]!,
-      }));
+      })));
     }
   }
 

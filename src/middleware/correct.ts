@@ -11,7 +11,7 @@ import { InProcessStore, scopeOf } from '../store/in-process.js';
 import type { SessionSnapshot } from '../store/store.js';
 import type { LogbookEntry, SessionRef, SlotRecord, StoredEvent } from '../types.js';
 import type { Admin } from './admin.js';
-import { Core, keyOf } from './core.js';
+import { Core, keyOf, payload } from './core.js';
 import { checkId } from './validate.js';
 import { mixVectors, newRevisionId, turnEntryId } from './write.js';
 
@@ -188,10 +188,10 @@ export class Corrections {
     const base = core.base(ref);
     let slot = -1;
     for (let i = 0; i < snap.table.capacity; i++) if (snap.table.ids[i] === rec.id) slot = i;
-    core.events.emit('evict', withDeprecatedEvictFields({
-      ...base, slot, id: rec.id, reason: 'erased', logged: false, lifetime: snap.clock - rec.created,
+    core.events.emit('evict', withDeprecatedEvictFields(payload(base, {
+      slot, id: rec.id, reason: 'erased', logged: false, lifetime: snap.clock - rec.created,
       lifetimeMs: base.atMs - rec.createdMs, halfLife: rec.halfLife, strength: rec.strength,
-    }));
+    })));
   }
 
   private event(type: StoredEvent['type'], slot: number, id: string, snap: SessionSnapshot, reason?: 'erased'): StoredEvent {

@@ -8,7 +8,7 @@ import { randomUUID } from 'node:crypto';
 import { ErrorCodes, StoreError } from '../errors.js';
 import type { ErasureFence } from '../store/store.js';
 import type { LogbookEntry, SessionRef } from '../types.js';
-import { Core, keyOf } from './core.js';
+import { Core, keyOf, payload } from './core.js';
 import type { Turn } from './validate.js';
 import type { WritePath, WriteReport } from './write.js';
 
@@ -69,7 +69,7 @@ export class Outbox {
     } catch (err) {
       this.core.emitError('write', err, ref);
       if (retryable(err)) {
-        this.core.events.emit('degraded', { ...this.core.base(ref), stage: 'write', code: (err as StoreError).code });
+        this.core.events.emit('degraded', payload(this.core.base(ref), { stage: 'write', code: (err as StoreError).code }));
         return this.park(entry);
       }
       throw err;

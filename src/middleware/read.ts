@@ -16,7 +16,7 @@ import { analyseQuery } from '../logbook/query.js';
 import { scopeOf } from '../store/in-process.js';
 import type { ErasureFence, SessionSnapshot } from '../store/store.js';
 import type { MemoryContext, ReadTrace, RecallItem, SessionRef } from '../types.js';
-import { Core, errMessage, keyOf, refOf, sleep, usSince } from './core.js';
+import { Core, errMessage, keyOf, payload, refOf, sleep, usSince } from './core.js';
 import type { Turn } from './validate.js';
 
 /** An empty logbook, searched when a read leaves the logbook out. */
@@ -137,12 +137,12 @@ export class ReadPath {
     if (fence) core.rememberFence(ref, ctx, fence);
     if (core.events.listenerCount('read') > 0) {
       const slotItems = items.filter((i) => i.source === 'slot').length;
-      core.events.emit('read', withDeprecatedReadFields({
-        ...core.base(ref), result, items: items.length, slotItems, logbookItems: items.length - slotItems,
+      core.events.emit('read', withDeprecatedReadFields(payload(core.base(ref), {
+        result, items: items.length, slotItems, logbookItems: items.length - slotItems,
         scanned: trace.scanned, slotsInUse: trace.scanned, capacity: table?.capacity ?? core.params.capacity, logbookSize: lb.size,
         topWeight: trace.topWeight, entropy: trace.entropy, topCosine: trace.topCosine, topCoverage: trace.topCoverage,
         durationUs: trace.durationUs, searchUs, embedUs,
-      }));
+      })));
     }
     return ctx;
   }
@@ -204,7 +204,7 @@ export class ReadPath {
   degraded(turn: Turn, err: unknown, durationUs: number): MemoryContext {
     const ref = refOf(turn);
     const error = this.core.emitError('read', err, ref);
-    this.core.events.emit('degraded', { ...this.core.base(ref), stage: 'read', code: error.code });
+    this.core.events.emit('degraded', payload(this.core.base(ref), { stage: 'read', code: error.code }));
     return {
       items: [],
       prompt: '',

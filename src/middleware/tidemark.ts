@@ -244,7 +244,7 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
       const ref = refOf(turn);
       const after = (text: string, end: ReplyEnd): void => {
         const turns: Turn[] = [turn];
-        const reply: Turn | null = text.trim().length > 0 ? { ...refOf(turn), role: 'assistant', text: text.slice(0, this.core.o.maxTextBytes), atMs: Date.now() } : null;
+        const reply: Turn | null = text.trim().length > 0 ? Object.assign(refOf(turn), { role: 'assistant' as const, text: text.slice(0, this.core.o.maxTextBytes), atMs: Date.now() }) : null;
         if (end === 'done' && reply) turns.push(reply);
         if (end === 'aborted') {
           if (this.core.o.onAbort === 'none') return;

@@ -13,11 +13,11 @@ import type { Candidate } from '../memory/extract.js';
 import { SlotTable, emptyTable } from '../memory/slots.js';
 import { textDigest } from '../memory/text.js';
 import { demotedEntry, planWrite, type Eviction, type KeyedCandidate, type WritePlan } from '../memory/write.js';
-import { survivalIncrements } from '../metrics/survival.js';
+import { survivalIncrements, type SlotBirth } from '../metrics/survival.js';
 import { scopeOf } from '../store/in-process.js';
 import type { CommitRequest, ErasureFence, SlotOp } from '../store/store.js';
 import type { LogbookEntry, MentionedDate, SessionRef, SlotRecord } from '../types.js';
-import { Core, sleep, usSince } from './core.js';
+import { Core, payload, sleep, usSince } from './core.js';
 import type { DemoteEvent } from './events.js';
 import { retentionOf } from './options.js';
 import { writeDetail, type WriteDetail } from './report.js';
@@ -199,10 +199,10 @@ export class WritePath {
       }
       report.detail = writeDetail(plan, keyed, true);
       if (core.events.listenerCount('commit') > 0) {
-        core.events.emit('commit', withDeprecatedCommitFields({
-          ...core.base(ref), ops: ops.length, demoted: demoted.length, logbook: entries.length + demoted.length, retries: attempt,
+        core.events.emit('commit', withDeprecatedCommitFields(payload(core.base(ref), {
+          ops: ops.length, demoted: demoted.length, logbook: entries.length + demoted.length, retries: attempt,
           durationUs: usSince(c0), planUs, embedUs, slotsInUse: plan.slotsInUse, capacity: table.capacity, version: res.version,
-        }));
+        })));
       }
       return report;
     }
@@ -223,51 +223,56 @@ export class WritePath {
     const wantLogbook = ev.listenerCount('logbook') > 0;
     if (!wantEvict && !wantDemote && !wantWrite && !wantGate && !wantOverwrite && !wantLogbook) return;
     const base = this.core.base(ref);
-    if (wantLogbook) ev.emit('logbook', { ...base, turns: turnsKept, demoted, droppedAge: dropped.age, droppedCount: dropped.count });
+    if (wantLogbook) ev.emit('logbook', payload(base, { turns: turnsKept, demoted, droppedAge: dropped.age, droppedCount: dropped.count }));
     for (const e of plan.evictions) {
       if (wantEvict) {
-        ev.emit('evict', withDeprecatedEvictFields({
-          ...base, slot: e.slot, id: e.record.id, reason: e.reason, logged: e.logged,
+        ev.emit('evict', withDeprecatedEvictFields(payload(base, {
+          slot: e.slot, id: e.record.id, reason: e.reason, logged: e.logged,
           lifetime: clock - e.record.created, lifetimeMs: base.atMs - e.record.createdMs, halfLife: e.record.halfLife, strength: e.strength,
-        }));
+        })));
       }
-      if (e.logged && wantDemote) demote({ ...base, reason: e.reason as 'capacity', id: e.record.id });
+      if (e.logged && wantDemote) demote(payload(base, { reason: e.reason as 'capacity', id: e.record.id }));
     }
     if (wantWrite) {
       for (const r of plan.reinforced) {
-        ev.emit('write', { ...base, outcome: 'reinforced', slot: r.slot, id: r.id, clock, gate: 1, strength: r.strength, halfLife: r.halfLife, slotsInUse: plan.slotsInUse, capacity });
+        ev.emit('write', payload(base, { outcome: 'reinforced', slot: r.slot, id: r.id, clock, gate: 1, strength: r.strength, halfLife: r.halfLife, slotsInUse: plan.slotsInUse, capacity }));
       }
     }
     for (const o of plan.outcomes) {
       if (wantGate) {
-        ev.emit('gate', { ...base, score: o.gate, threshold: this.core.params.write.gateThreshold, passed: o.outcome !== 'gated_out', features: { ...o.features } });
+        ev.emit('gate', payload(base, { score: o.gate, threshold: this.core.params.write.gateThreshold, passed: o.outcome !== 'gated_out', features: { ...o.features } }));
       }
       if (o.outcome === 'gated_out') continue;
       if (wantWrite) {
         let op: SlotRecord | null | undefined;
         for (const x of plan.ops) if (x.index === o.slot) op = x.slot;
-        ev.emit('write', {
-          ...base, outcome: o.outcome, slot: o.slot, id: o.id ?? '', clock, gate: o.gate,
+        ev.emit('write', payload(base, {
+          outcome: o.outcome, slot: o.slot, id: o.id ?? '', clock, gate: o.gate,
           strength: op?.strength ?? o.gate, halfLife: op?.halfLife ?? this.core.params.write.halfLife, slotsInUse: plan.slotsInUse, capacity,
           ...(o.maybeReplaces ? { ambiguous: true } : {}),
-        });
+        }));
       }
       if (o.outcome === 'overwritten' && o.supersededId) {
-        if (wantOverwrite) ev.emit('overwrite', { ...base, slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine });
-        if (wantDemote) demote({ ...base, reason: 'superseded', id: o.supersededId });
+        if (wantOverwrite) ev.emit('overwrite', payload(base, { slot: o.slot, id: o.id ?? '', supersededId: o.supersededId, cosine: o.cosine }));
+        if (wantDemote) demote(payload(base, { reason: 'superseded', id: o.supersededId }));
       }
     }
   }
 }
 
 /** Birth times of the slots in `table`, with `ops` applied on top (for the survival counts). */
-function births(table: SlotTable | undefined, ops: readonly SlotOp[] = []): Array<{ created: number; createdMs: number }> {
+function births(table: SlotTable | undefined, ops: readonly SlotOp[] = []): SlotBirth[] {
   if (!table) return [];
-  const at = new Map<number, { created: number; createdMs: number } | null>();
-  for (let i = 0; i < table.capacity; i++) if (table.isUsed(i)) at.set(i, { created: table.created[i]!, createdMs: table.createdMs[i]! });
-  for (const op of ops) at.set(op.index, op.slot ? { created: op.slot.created, createdMs: op.slot.createdMs } : null);
-  const out: Array<{ created: number; createdMs: number }> = [];
-  for (const b of at.values()) if (b) out.push(b);
+  // Runs on every commit: an array of the op per index (usually a handful), no map of the whole table.
+  const op: Array<SlotOp | undefined> = [];
+  for (const o of ops) op[o.index] = o;
+  const out: SlotBirth[] = [];
+  for (let i = 0; i < Math.max(table.capacity, op.length); i++) {
+    const o = op[i];
+    if (o) {
+      if (o.slot) out.push({ created: o.slot.created, createdMs: o.slot.createdMs });
+    } else if (i < table.capacity && table.isUsed(i)) out.push({ created: table.created[i]!, createdMs: table.createdMs[i]! });
+  }
   return out;
 }
 
