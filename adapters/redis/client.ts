@@ -146,13 +146,21 @@ export function unavailable(op: string, cause: unknown): StoreError {
   );
 }
 
+/** ioredis's binary-reply script commands (built from its command list; its typings leave them out). */
+interface ScriptCommands {
+  evalshaBuffer(sha: string, numKeys: number, ...rest: (string | Buffer | number)[]): Promise<unknown>;
+  evalBuffer(lua: string, numKeys: number, ...rest: (string | Buffer | number)[]): Promise<unknown>;
+}
+
 /** EVALSHA with binary replies; on NOSCRIPT (script cache empty, e.g. after a restart) sends the script once in full. */
 export async function runScript(client: RedisClient, s: LuaScript, keys: readonly string[], args: readonly (string | Buffer | number)[]): Promise<unknown> {
   try {
-    return await client.callBuffer('evalsha', [s.sha, s.keys, ...keys, ...args]);
+    // The typed command, not callBuffer('evalsha', [...]): with ioredis auto-pipelining on, callBuffer
+    // with an argument array throws inside ioredis (5.11); the typed form pipelines like any command.
+    return await (client as unknown as ScriptCommands).evalshaBuffer(s.sha, s.keys, ...keys, ...args);
   } catch (err) {
     if (err instanceof Error && err.message.startsWith('NOSCRIPT')) {
-      return client.callBuffer('eval', [s.lua, s.keys, ...keys, ...args]);
+      return (client as unknown as ScriptCommands).evalBuffer(s.lua, s.keys, ...keys, ...args);
     }
     throw err;
   }

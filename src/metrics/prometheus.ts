@@ -220,7 +220,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
   // With tenantLabels, the event counters carry a bounded `tenant` label too.
   const tl = (names: string[]): string[] => (tenantOf ? [...names, 'tenant'] : names);
   const tenantValues: ReadonlyArray<string | null> = tenantOf ? tenantOf.labels : [null];
-  const withTenant = <L extends Record<string, string>>(labels: L, tenant: string | null): L => (tenant === null ? labels : { ...labels, tenant });
+  const withTenant = <L extends Record<string, string>>(labels: L, tenant: string | null): L => (tenant === null ? labels : Object.assign({}, labels, { tenant }));
   const at = <L extends Record<string, string>>(labels: L, e: { tenant: string }): L => withTenant(labels, tenantOf ? tenantOf.of(e.tenant) : null);
   const reads = new client.Counter({ name: `${p}reads_total`, help: 'Memory reads by result: the top item was a relevant slot (slot) or a relevant logbook entry (logbook), nothing relevant was found (miss), or the store could not be read and the handler ran with empty memory (degraded).', labelNames: tl(['result']), registers });
   const writes = new client.Counter({ name: `${p}writes_total`, help: 'Slot writes by outcome: new slot (allocated), replaced a value (overwritten), strengthened a slot (reinforced). Gated-out candidates are not writes: see candidates_total.', labelNames: tl(['outcome']), registers });
