@@ -186,21 +186,6 @@ function tableBytes(t: SlotTable): number {
   return b;
 }
 
-/**
- * ioredis 5.11 with `enableAutoPipelining` throws (TypeError in Command, uncaught) on
- * `callBuffer('evalsha', [args])`, which the store's runScript uses; `evalshaBuffer(...args)` works.
- * For the what-if run only, this client sends the store's script calls through the typed methods.
- */
-function routeScriptsForAutoPipelining(client: RedisClient): void {
-  const c = client as unknown as Record<string, (...a: unknown[]) => Promise<unknown>>;
-  const orig = c.callBuffer!.bind(client);
-  c.callBuffer = (cmd: unknown, args: unknown) => {
-    if (Array.isArray(args) && cmd === 'evalsha') return c.evalshaBuffer!.call(client, ...args);
-    if (Array.isArray(args) && cmd === 'eval') return c.evalBuffer!.call(client, ...args);
-    return orig(cmd, args);
-  };
-}
-
 /** Limits and targets of a backend that used to be fixed in code. */
 export interface BackendOptions {
   /** `host:port,...` of any Redis Cluster (default: the repo's own, started if need be). */
@@ -262,7 +247,6 @@ export async function openBackend(kind: StoreKind, redisUrl: string, autoPipelin
     client = new Cluster(seeds, { ...REDIS_CLUSTER_OPTIONS, redisOptions: nodeOptions, enableAutoPipelining: autoPipeline });
   }
   client.on('error', () => undefined);
-  if (autoPipeline) routeScriptsForAutoPipelining(client);
   await waitReady(client);
   const c = client;
   return {
