@@ -184,6 +184,38 @@ describe('RetentionTracker', () => {
     expect(tracker.observations(0).clock.map((o) => o.time).sort()).toEqual([7, 8, 9]);
   });
 
+  it("follows a live slot's half-life through reinforcements and overwrites, and only that slot's", () => {
+    const tracker = new RetentionTracker({ maxAlive: 3 });
+    const hl = (e: WriteEvent, halfLife: number): WriteEvent => ({ ...e, halfLife });
+    const alive = (): number[] => {
+      const d = tracker.snapshot(0).halfLife.alive;
+      return [d.n, d.p10!, d.p50!, d.p90!];
+    };
+    tracker.onWrite(write('a', 0, 1, 0)); // half-life 10
+    tracker.onWrite(write('a', 1, 1, 0));
+    tracker.onWrite(write('b', 0, 1, 0));
+    tracker.onWrite(hl(write('a', 1, 2, 0, 'reinforced'), 16));
+    tracker.onWrite(hl(write('b', 0, 2, 0, 'overwritten'), 40));
+    expect(alive()).toEqual([3, 10 + 0.2 * 6, 16, 16 + 0.8 * 24]);
+    // A slot of another session, or one never allocated, changes nothing.
+    tracker.onWrite(hl(write('c', 1, 2, 0, 'reinforced'), 99));
+    tracker.onWrite(hl(write('a', 5, 2, 0, 'reinforced'), 99));
+    expect(alive()).toEqual([3, 10 + 0.2 * 6, 16, 16 + 0.8 * 24]);
+    // Past maxAlive the oldest-started (a#0) is forgotten: its reinforcement finds nothing.
+    tracker.onWrite(write('c', 0, 3, 0));
+    tracker.onWrite(hl(write('a', 0, 4, 0, 'reinforced'), 99));
+    expect(alive()).toEqual([3, 10 + 0.2 * 6, 16, 16 + 0.8 * 24]);
+    // An evicted slot is gone too; the same index allocated again starts afresh at its own half-life.
+    tracker.onEvict(evict('a', 1, 3, 3, 'capacity'));
+    tracker.onWrite(hl(write('a', 1, 5, 0, 'reinforced'), 99));
+    expect(alive()).toEqual([2, 10 + 0.1 * 30, 25, 40 - 0.1 * 30]);
+    tracker.onWrite(hl(write('a', 1, 6, 0), 2));
+    expect(alive()).toEqual([3, 2 + 0.2 * 8, 10, 10 + 0.8 * 30]);
+    tracker.onWrite(hl(write('a', 1, 7, 0, 'reinforced'), 30));
+    expect(alive()).toEqual([3, 10 + 0.2 * 20, 30, 30 + 0.8 * 10]);
+    expect(tracker.aliveCount).toBe(3);
+  });
+
   it('rejects bad options naming the option', () => {
     expect(() => new RetentionTracker({ maxFinished: 0 })).toThrow(/maxFinished must be a positive integer, got 0/);
   });
