@@ -53,7 +53,7 @@ export class ReadPath {
           // With the logbook left out, the search still runs on an empty scope: its statistics score the slots.
           const r = p.tiers === 'slots'
             ? NO_LOGBOOK.search(analysed, this.search)
-            : await core.store.searchLogbook(scopeOf(ref), { ...analysed, ...(core.dense ? { vector: q!, denseK: p.logbookLimit } : {}) }, this.search);
+            : await core.store.searchLogbook(scopeOf(ref), core.dense ? { vector: q!, denseK: p.logbookLimit, ...analysed } : analysed, this.search);
           searchUs = usSince(s0);
           return r;
         };
