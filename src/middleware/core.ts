@@ -116,8 +116,8 @@ export class Core {
     return this.hashSession(tenant, '\u0000tenant');
   }
 
-  validate(input: unknown): Turn {
-    return validateTurn(input, { tenant: this.o.tenant, maxTextBytes: this.o.maxTextBytes, truncate: this.o.truncate });
+  validate(input: unknown, role?: Turn['role']): Turn {
+    return validateTurn(input, { tenant: this.o.tenant, maxTextBytes: this.o.maxTextBytes, truncate: this.o.truncate, ...(role ? { role } : {}) });
   }
 
   /** The session clock at `atMs`: turns seen, or seconds (never moving backwards). */

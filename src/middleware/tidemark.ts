@@ -187,9 +187,8 @@ export class Tidemark extends EventEmitter<TidemarkEvents> {
   /** Recalls what is relevant to `input.text` for its session. Store failures give `degraded: true`. */
   async read(input: Pick<TurnInput, 'session' | 'text' | 'user' | 'tenant' | 'at'> & { history?: boolean }): Promise<MemoryContext> {
     this.refuseClosed('read');
-    // Not an object: the same error write() gives, before any field is looked at.
-    if (typeof input !== 'object' || input === null || Array.isArray(input)) this.core.validate(input);
-    const turn = this.core.validate({ ...input, role: 'user' });
+    // Validated as write() validates a turn (a non-object gets the same error), with the user's role.
+    const turn = this.core.validate(input, 'user');
     return this.reads.read(turn, input.history === true);
   }
 

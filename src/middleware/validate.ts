@@ -82,12 +82,16 @@ function checkAt(v: unknown, now: number): number {
 
 const ROLES: ReadonlySet<string> = new Set(['user', 'assistant', 'system']);
 
-export function validateTurn(input: unknown, defaults: { tenant: string; maxTextBytes: number; truncate: boolean; now?: number }): Turn {
+/**
+ * A turn from what a caller passed. `defaults.role`, when given, is the turn's role whatever the input
+ * says (a read's turn is always the user's).
+ */
+export function validateTurn(input: unknown, defaults: { tenant: string; maxTextBytes: number; truncate: boolean; now?: number; role?: Turn['role'] }): Turn {
   if (typeof input !== 'object' || input === null) {
     throw new InputError(ErrorCodes.INPUT_FIELD, `a turn must be an object, got ${describeValue(input)}`);
   }
   const t = input as TurnInput;
-  const role = t.role ?? 'user';
+  const role = defaults.role ?? t.role ?? 'user';
   if (!ROLES.has(role)) {
     throw new InputError(ErrorCodes.INPUT_FIELD, `role must be 'user', 'assistant' or 'system', got ${describeValue(role)}`, { details: { field: 'role' } });
   }

@@ -18,7 +18,7 @@ const TURN_PATH = [
   'src/memory/plan.ts', 'src/memory/prompt.ts', 'src/memory/rank.ts', 'src/memory/slots.ts', 'src/memory/text.ts',
   'src/memory/values.ts', 'src/memory/vector.ts', 'src/memory/write.ts',
   'src/middleware/core.ts', 'src/middleware/outbox.ts', 'src/middleware/read.ts', 'src/middleware/write.ts',
-  'src/middleware/stream.ts', 'src/middleware/validate.ts',
+  'src/middleware/stream.ts', 'src/middleware/validate.ts', 'src/middleware/tidemark.ts',
   'src/logbook/index.ts', 'src/logbook/postings.ts', 'src/logbook/query.ts',
   'src/store/in-process.ts', 'src/embed/cache.ts', 'src/embed/hashing.ts', 'src/vectors/exact.ts',
   'src/metrics/retention.ts', 'src/metrics/survival.ts', 'src/deprecated-fields.ts',

@@ -56,6 +56,12 @@ describe('validateTurn', () => {
     expect(validateTurn({ session: 's1', text: 'hi' }, defaults)).toEqual({ tenant: 'default', session: 's1', text: 'hi', role: 'user', atMs: 1234 });
   });
 
+  it('takes the role it is given over the input\'s (a read\'s turn is the user\'s), and only then', () => {
+    expect(validateTurn({ session: 's', text: 'x', role: 'assistant' }, { ...defaults, role: 'user' }).role).toBe('user');
+    expect(validateTurn({ session: 's', text: 'x', role: 'bot' as never }, { ...defaults, role: 'user' }).role).toBe('user');
+    expect(validateTurn({ session: 's', text: 'x', role: 'assistant' }, defaults).role).toBe('assistant');
+  });
+
   it('parses at as ISO-8601, epoch ms or Date', () => {
     expect(validateTurn({ session: 's', text: 'x', at: '2024-05-01T00:00:00Z' }, { ...defaults, now: Date.UTC(2026, 0, 1) }).atMs).toBe(Date.UTC(2024, 4, 1));
     expect(validateTurn({ session: 's', text: 'x', at: 5 }, defaults).atMs).toBe(5);
