@@ -313,3 +313,43 @@ describe('rankTiers: order, places, floor and hit', () => {
     expect(rankTiers([], result(), P)).toEqual({ items: [], hit: false });
   });
 });
+
+describe('rankTiers: ambiguous updates', () => {
+  const lb = (hits: LogbookHit[]): LogbookSearchResult => result({ hits, weight: new Map([['exam', 1]]) });
+
+  it('stands just above each value it may replace and above the turn that stated it, placed "ambiguous"', () => {
+    const said = entry(3, 'My exam is on the 14th', { provenance: ['t3'] });
+    const elsewhere = entry(3, 'exam elsewhere', { provenance: ['t3'], session: 'other' });
+    const exam = slot('exam', 'my exam', 'on the 14th', { provenance: ['t3'] });
+    const moved = slot('mv', 'they moved it', 'to November', { provenance: ['t9'], maybeReplaces: ['exam', 'gone'] });
+    const r = rankTiers([exam, moved], lb([hit(said, 5), hit(elsewhere, 4)]), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([['mv', 'ambiguous'], [said.id, 'score'], [elsewhere.id, 'score']]);
+    // The turn of another session that shares the turn id is not one it is lifted over; the slot it
+    // may replace, whose source turn that one carries, gives way to it.
+    const only = rankTiers([moved, exam], lb([hit(elsewhere, 4)]), P);
+    expect(only.items.map((x) => [x.id, x.placed])).toEqual([[elsewhere.id, 'score'], ['mv', 'ambiguous']]);
+  });
+
+  it('is not moved when it already stands above what it may replace', () => {
+    const exam = slot('exam', 'my exam', 'on the 14th', { provenance: ['t3'] });
+    const moved = slot('mv', 'my exam moved', 'exam to November', { provenance: ['t9'], maybeReplaces: ['exam'] });
+    const r = rankTiers([exam, moved], lb([]), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([['mv', 'score'], ['exam', 'score']]);
+  });
+
+  it('with history the ranking is by score alone', () => {
+    const said = entry(3, 'My exam is on the 14th', { provenance: ['t3'] });
+    const exam = slot('exam', 'my exam', 'on the 14th', { provenance: ['t3'] });
+    const moved = slot('mv', 'they moved it', 'to November', { provenance: ['t9'], maybeReplaces: ['exam'] });
+    const r = rankTiers([exam, moved], lb([hit(said, 5)]), { ...P, history: true });
+    expect(r.items.map((x) => x.id)).toEqual([said.id, 'exam']);
+  });
+
+  it('follows a chain of successors over more than one pass', () => {
+    const a = entry(1, 'a', { id: 'a', provenance: ['t1'], kind: 'superseded' });
+    const b = entry(2, 'b', { id: 'b', provenance: ['t2'], kind: 'superseded' });
+    const c = entry(3, 'c', { id: 'c', provenance: ['t3'] });
+    const r = rankTiers([], result({ hits: [hit(a, 3, { supersededBy: 'b' }), hit(b, 2, { supersededBy: 'c' }), hit(c, 1)] }), P);
+    expect(r.items.map((x) => x.id)).toEqual(['c', 'b', 'a']);
+  });
+});
