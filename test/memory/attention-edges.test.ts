@@ -3,7 +3,7 @@
 // softmax whose masked-out entries would overflow, and a multi-hop query that cancels out.
 
 import { describe, expect, it } from 'vitest';
-import { attend, nextQuery, slotDocStats, softmaxMasked, textStats } from '../../src/memory/attention.js';
+import { attend, nextQuery, queryTermsOf, slotDocStats, softmaxMasked, textStats } from '../../src/memory/attention.js';
 import { basis, readParams, rec, softmaxRef, table, vec } from './helpers.js';
 
 const open = readParams({ beta: 1, gamma: 0, delta: 0, temperature: 1, k: 10, minWeight: 0, maxMass: 1, minCosine: -1, minLexical: 1000, hitCosine: 1 });
@@ -15,6 +15,12 @@ describe('softmaxMasked', () => {
     expect(out[0]).toBeCloseTo(0.25, 15);
     expect(out[1]).toBeCloseTo(0.75, 15);
     expect(out[2]).toBe(0);
+  });
+
+  it('subtracts the largest score, not the last one, so a large first score does not overflow', () => {
+    const out = new Float64Array(3);
+    softmaxMasked(Float64Array.from([1e6, 0, -5]), () => true, 1, out);
+    expect([...out]).toEqual([1, 0, 0]);
   });
 
   it('agrees with the textbook softmax on any temperature (entries masked out stay 0)', () => {
@@ -133,9 +139,20 @@ describe('slot statistics cache', () => {
     expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'green']);
     t.clear(0);
     expect(slotDocStats(t)[0]).toBeNull();
+    expect(slotDocStats(t)).toHaveLength(2); // one entry per slot, no more
     t.set(0, rec('a', basis(2, 0), { keyText: 'my bike', value: 'blue' }));
     expect([...slotDocStats(t)[0]!.tf.keys()]).toEqual(['bike', 'blue']);
     expect(textStats('my fern', 'the fern pot')).toEqual({ tf: new Map([['fern', 2], ['pot', 1]]), len: 3 });
+  });
+});
+
+describe('queryTermsOf', () => {
+  it('hands back its own array even when it falls back to every word', () => {
+    const words = ['what', 'is', 'it'];
+    const terms = queryTermsOf(words);
+    expect(terms).toEqual(words);
+    terms.push('fern');
+    expect(words).toEqual(['what', 'is', 'it']);
   });
 });
 

@@ -40,6 +40,8 @@ describe('itemLine for values', () => {
     expect(itemLine(dated)).toBe('- my booking: Friday (Friday = 2025-06-13)');
     expect(itemLine({ ...dated, kind: 'superseded', source: 'logbook' })).toBe('- my booking: Friday (Friday = 2025-06-13) (earlier, since replaced)');
     expect(itemLine(item('my booking', 'Friday', { dates: [] }))).toBe('- my booking: Friday');
+    const both = item('my lessons', 'Monday and Friday', { dates: [{ text: 'Monday', day: '2025-06-09', grain: 'day' }, { text: 'Friday', day: '2025-06-13', grain: 'day' }] });
+    expect(itemLine(both)).toBe('- my lessons: Monday and Friday (Monday = 2025-06-09; Friday = 2025-06-13)');
     expect(itemLine(item('', 'a green Corvane'))).toBe('- a green Corvane');
     expect(itemLine(item('', 'a green Corvane', { kind: 'capacity', source: 'logbook' }))).toBe('- a green Corvane (older)');
   });

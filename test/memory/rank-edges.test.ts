@@ -353,3 +353,110 @@ describe('rankTiers: ambiguous updates', () => {
     expect(r.items.map((x) => x.id)).toEqual(['c', 'b', 'a']);
   });
 });
+
+describe('rankTiers: precedence edge cases', () => {
+  it('lifts a successor that is also a hit with its own score, once', () => {
+    const old = entry(1, 'Tuesday', { id: 'old', kind: 'superseded', provenance: ['t1'] });
+    const nw = entry(2, 'Friday', { id: 'new', kind: 'capacity', provenance: ['t2'] });
+    const mid = entry(3, 'mid', { provenance: ['t3'] });
+    const lb = result({ hits: [hit(old, 3, { supersededBy: 'new' }), hit(mid, 2), hit(nw, 1)], successors: new Map([['new', nw]]) });
+    const r = rankTiers([], lb, P);
+    expect(r.items.map((x) => [x.id, x.score, x.placed])).toEqual([['new', 1, 'successor'], ['old', 3, 'score'], [mid.id, 2, 'score']]);
+  });
+
+  it('brings a resolved successor in as a logbook item with no speaker match', () => {
+    const succ = entry(9, 'service on Friday', { id: 'new', kind: 'capacity', provenance: ['t9'] });
+    const old = entry(2, 'service on Tuesday', { id: 'old', kind: 'superseded', provenance: ['t2'] });
+    const r = rankTiers([], result({ hits: [hit(old, 1, { supersededBy: 'new', speakerMatch: true })], successors: new Map([['new', succ]]) }), P);
+    expect(r.items[0]).toMatchObject({ id: 'new', source: 'logbook', entry: succ, speakerMatch: false, lexical: 0, coverage: 0, lexicalRank: 0, denseRank: 0 });
+  });
+
+  it('with a dense list, leaves out a resolved successor nobody lifts, and hits with neither rank', () => {
+    const succ = entry(9, 'Friday', { id: 'new', kind: 'capacity', provenance: ['t9'] });
+    const t = entry(1, 'fern', { provenance: ['t1'] });
+    const r = rankTiers([], result({ hits: [hit(t, 1)], successors: new Map([['new', succ]]) }), { ...P, denseWeight: 1 });
+    expect(r.items.map((x) => x.id)).toEqual([t.id]);
+  });
+
+  it('ignores a successor id that names nothing it holds', () => {
+    const old = entry(1, 'Tuesday', { id: 'old', kind: 'superseded', provenance: ['t1'] });
+    const r = rankTiers([], result({ hits: [hit(old, 1, { supersededBy: 'ghost' })] }), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([['old', 'score']]);
+  });
+
+  it('leaves two values that name each other as successors in place, placed by score', () => {
+    const a = entry(1, 'a', { id: 'a', provenance: ['t1'] });
+    const b = entry(2, 'b', { id: 'b', provenance: ['t2'] });
+    const loop = rankTiers([], result({ hits: [hit(a, 2, { supersededBy: 'b' }), hit(b, 1, { supersededBy: 'a' })] }), P);
+    expect(loop.items.map((x) => [x.id, x.placed])).toEqual([['a', 'score'], ['b', 'score']]);
+  });
+
+  it('ends after its bounded passes on a longer successor cycle, each id once', () => {
+    // a -> b -> c -> a: no pair names each other, so every pass moves something.
+    const [a, b, c] = ['a', 'b', 'c'].map((id, i) => entry(i + 1, id, { id, provenance: [`t${i + 1}`] }));
+    const r = rankTiers([], result({ hits: [hit(a!, 3, { supersededBy: 'b' }), hit(b!, 2, { supersededBy: 'c' }), hit(c!, 1, { supersededBy: 'a' })] }), P);
+    expect(r.items.map((x) => x.id).sort()).toEqual(['a', 'b', 'c']);
+    // The order four passes leave (one pass more or less would leave another).
+    expect(r.items.map((x) => x.id)).toEqual(['b', 'a', 'c']);
+  });
+
+  it('ends after its bounded passes on two updates that may each replace the other', () => {
+    const u1 = slot('u1', 'my lesson', 'moved to Monday', { provenance: ['t1'], maybeReplaces: ['u2'] });
+    const u2 = slot('u2', 'my lesson', 'moved to Tuesday', { provenance: ['t2'], maybeReplaces: ['u1'] });
+    const x = entry(5, 'lesson fees', { provenance: ['t5'] });
+    const r = rankTiers([u1, u2], result({ hits: [hit(x, 0.01)], weight: new Map([['lesson', 1]]) }), { ...P, history: false });
+    expect(r.items.map((i) => i.id).sort()).toEqual([x.id, 'u1', 'u2'].sort());
+    expect(r.items.map((i) => i.id)).toEqual(['u2', 'u1', x.id]); // the order four passes leave
+    expect(r.items.slice(0, 2).map((i) => i.placed)).toEqual(['ambiguous', 'ambiguous']);
+  });
+
+  it('does not move an ambiguous update none of whose older values is listed', () => {
+    const u = slot('u', 'my lesson', 'moved', { provenance: ['t9'], maybeReplaces: ['gone'] });
+    const t1 = entry(1, 'lesson one', { provenance: ['t1'] });
+    const t2 = entry(2, 'lesson two', { provenance: ['t2'] });
+    const r = rankTiers([u], result({ hits: [hit(t1, 100), hit(t2, 50)], weight: new Map([['lesson', 1]]) }), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([[t1.id, 'score'], [t2.id, 'score'], ['u', 'score']]);
+  });
+
+  it('brings in an unlisted ambiguous update above its older value, losing no other item', () => {
+    const exam = slot('exam', 'my exam', 'on the 14th', { provenance: ['t3'] });
+    const mv = slot('mv', 'they moved it', 'to November', { provenance: ['t9'], maybeReplaces: ['exam'] });
+    const tail = entry(7, 'exam hall', { provenance: ['t7'] });
+    const r = rankTiers([exam, mv], result({ hits: [hit(tail, 1e-6)], weight: new Map([['exam', 1]]) }), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([['mv', 'ambiguous'], ['exam', 'score'], [tail.id, 'score']]);
+  });
+
+  it('stands above the turn that stated the older value, not above a demoted value from the same turn', () => {
+    const dem = entry(3, 'on the 14th', { kind: 'capacity', keyText: 'my exam', provenance: ['t3'] });
+    const said = entry(3, 'My exam is on the 14th', { provenance: ['t3'] });
+    const exam = slot('exam', 'my exam', 'on the 14th', { provenance: ['t3'] });
+    const mv = slot('mv', 'they moved it', 'to November', { provenance: ['t9'], maybeReplaces: ['exam'] });
+    const r = rankTiers([exam, mv], result({ hits: [hit(dem, 9), hit(said, 5)], weight: new Map([['exam', 1]]) }), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([[dem.id, 'score'], ['mv', 'ambiguous'], [said.id, 'score']]);
+  });
+
+  it('on equal scores keeps two slots in their order and puts the newer of two turns first either way round', () => {
+    const twin = rankTiers([slot('s1', 'my fern', 'repotted'), slot('s2', 'my fern', 'repotted', { provenance: ['p-s2'] })], result({ weight: new Map([['fern', 1]]) }), P);
+    expect(twin.items.map((x) => x.id)).toEqual(['s1', 's2']);
+    const lb = result({ hits: [hit(entry(7, 'new', { provenance: ['t7'] }), 1), hit(entry(1, 'old', { provenance: ['t1'] }), 1)] });
+    expect(rankTiers([], lb, P).items.map((x) => x.entry!.seq)).toEqual([7, 1]);
+  });
+
+  it('takes the floor from the first three places even when lifted successors hold them', () => {
+    const chain = ['a', 'b', 'c'].map((id, i) => ({
+      old: entry(i + 1, `old ${id}`, { id: `old-${id}`, kind: 'superseded' as const, provenance: [`t${id}`] }),
+      succ: entry(10 + i, `new ${id}`, { id: `new-${id}`, kind: 'capacity' as const, provenance: [`t${id}`] }),
+      score: 10 - i,
+    }));
+    const x = entry(20, 'x', { provenance: ['tx'] });
+    const y = entry(21, 'y', { provenance: ['ty'] });
+    const lb = result({
+      hits: [...chain.map((c) => hit(c.old, c.score, { supersededBy: c.succ.id })), hit(x, 5), hit(y, 1)],
+      successors: new Map(chain.map((c) => [c.succ.id, c.succ])),
+    });
+    const r = rankTiers([], lb, { ...P, minShare: 0.5 });
+    // Each old value's one source turn is carried by its successor, so it gives way; the three
+    // successors (score 0) hold the first places and the floor is 0.5 × 0: x and y both stay.
+    expect(r.items.map((i) => i.id)).toEqual(['new-a', 'new-b', 'new-c', x.id, y.id]);
+  });
+});

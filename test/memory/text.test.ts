@@ -55,6 +55,7 @@ describe('stem', () => {
     expect(stem('3pm')).toBe('3pm');
     expect(stem('ranked2')).toBe('ranked2');
     expect(stem('2ranked')).toBe('2ranked');
+    expect(stem('mp3players')).toBe('mp3players'); // letters first, but not only letters
   });
 
   it('gives the same stem on every call (the cache holds what the stemmer gave)', () => {
@@ -89,5 +90,8 @@ describe('fnv1a and textDigest', () => {
     expect(textDigest('a')).toBe('e40c292c' + fnv1a('a', 0x9747b28c).toString(16).padStart(8, '0'));
     const short = Array.from({ length: 5000 }, (_, i) => `k${i}`).find((s) => fnv1a(s) < 0x10000000)!;
     expect(textDigest(short).slice(0, 8)).toBe('0' + fnv1a(short).toString(16).padStart(7, '0'));
+    const short2 = Array.from({ length: 5000 }, (_, i) => `k${i}`).find((x) => fnv1a(x, 0x9747b28c) < 0x10000000)!;
+    expect(textDigest(short2)).toHaveLength(16);
+    expect(textDigest(short2).slice(8)).toBe('0' + fnv1a(short2, 0x9747b28c).toString(16).padStart(7, '0'));
   });
 });
