@@ -369,3 +369,131 @@ describe('RuleExtractor rules: other people and bookings', () => {
     plain('Can I book a service?');
   });
 });
+
+describe('RuleExtractor: remember cues and whom a fact is about', () => {
+  it('"remember/note/don\'t forget/keep in mind (that) X" marks X remembered and reads X by the rules', () => {
+    fact("Remember that I'm vegan", 'my diet', 'vegan', 'diet', { remember: true });
+    expect(one('please remember my gate code is 4412')).toEqual({
+      key: 'my gate code', value: '4412', text: 'please remember my gate code is 4412', pattern: 'my-x-is-y', remember: true,
+    });
+    fact("Keep in mind that I'm a nurse", 'my job (what I do for work)', 'nurse', 'job', { remember: true });
+    fact("don't forget my bike is blue", 'my bike', 'blue', 'my-x-is-y', { remember: true });
+    fact('Can you note that the shed key is under the pot', 'the shed key is under the pot', 'the shed key is under the pot', 'sentence', { remember: true });
+    fact('Could you remember 2 trays', 'trays', '2 trays', 'with-quantity', { remember: true });
+    expect(one('Remember   that  I am vegan ')).toEqual({ key: 'my diet', value: 'vegan', text: 'Remember   that  I am vegan', pattern: 'diet', remember: true });
+    // A note with a colon is not the cue.
+    fact("Make a note: I'm vegan", 'my diet', 'vegan', 'diet');
+  });
+
+  it('a sentence about a relation carries the relation as subject, except a name the speaker gives', () => {
+    fact('My brother wants 8 plant labels too', 'My brother wants plant labels too', 'My brother wants 8 plant labels too', 'with-quantity', { subject: 'brother' });
+    fact('My Friend Ana Rides a Wren', 'My Friend Ana Rides a Wren', 'My Friend Ana Rides a Wren', 'sentence', { subject: 'friend' });
+    fact('By the way, our neighbour lives in Hull', 'By the way, our neighbour lives in Hull', 'By the way, our neighbour lives in Hull', 'sentence', { subject: 'neighbour' });
+    fact('My boss says call me on 07700 900123', 'my phone number (mobile)', '07700 900123', 'contact', { subject: 'boss' });
+    fact('My brother says to call me Dana', 'my name', 'Dana', 'name');
+    fact('My sister, she rides', 'My sister, she rides', 'My sister, she rides', 'sentence');
+  });
+});
+
+describe('RuleExtractor: updates and corrections', () => {
+  it('an update without a named topic is keyed by what is left without the value and the cue words', () => {
+    fact('Actually, can we move it to Friday instead?', ', can we move it to instead?', 'Actually, can we move it to Friday instead?', 'update', { updates: { kind: 'date', expr: 'Friday' } });
+    fact('make it 4 trays', 'trays', 'make it 4 trays', 'update', { updates: { kind: 'quantity', expr: '4' } });
+    fact('change the order to 6', 'the order', 'change the order to 6', 'update', { updates: { kind: 'quantity', expr: '6' } });
+    fact('Can it be Friday instead?', 'Can it be ?', 'Can it be Friday instead?', 'update', { updates: { kind: 'date', expr: 'Friday' } });
+    // Nothing left but cue words: the key is the sentence.
+    fact('I meant 4', 'I meant 4', 'I meant 4', 'update', { updates: { kind: 'quantity', expr: '4' } });
+    // Only the first cue's words go: "instead" stays after "make it".
+    fact('Make it 5 instead', 'instead', 'Make it 5 instead', 'update', { updates: { kind: 'quantity', expr: '5' } });
+  });
+
+  it('an update that names its topic is keyed by that topic and says which rule named it', () => {
+    fact('Could we move my lessons to Friday?', 'my booking (lesson)', 'Could we move my lessons to Friday?', 'update-booking', { updates: { kind: 'date', expr: 'Friday' } });
+    fact('My exam is now on May 3', 'my exam', 'on May 3', 'update-my-x-is-y', { updates: { kind: 'date', expr: 'May 3' } });
+    fact("I'm now at B2 level, I moved up 1 level", 'my level', 'B2', 'update-level', { updates: { kind: 'quantity', expr: '1' } });
+  });
+
+  it('a later clause is an update only when it says so ("actually", "instead", "I meant" or a correction word)', () => {
+    const [paid, update] = all("I paid, and I'd make it 4 instead");
+    expect(paid).toEqual({ key: 'I paid', value: 'I paid', text: 'I paid', pattern: 'sentence' });
+    expect(update).toEqual({
+      key: "I'd instead", value: "I'd make it 4 instead", text: "I'd make it 4 instead", pattern: 'update',
+      updates: { kind: 'quantity', expr: '4' }, clause: true, context: 'I paid',
+    });
+    expect(all('I paid, and I meant 4')[1]).toEqual({
+      key: 'I meant 4', value: 'I meant 4', text: 'I meant 4', pattern: 'update', updates: { kind: 'quantity', expr: '4' }, clause: true, context: 'I paid',
+    });
+    expect(all('I paid, and I actually want 4')[1]).toMatchObject({ pattern: 'update', updates: { kind: 'quantity', expr: '4' } });
+    expect(all("I paid, and I'll switch it to 5")[1]).toEqual({ key: "I'll", value: "I'll switch it to 5", text: "I'll switch it to 5", pattern: 'with-quantity', clause: true });
+    expect(all('I paid, and I changed it to 5')[1]).toMatchObject({ pattern: 'with-quantity', clause: true });
+    expect(all('I paid, so sorry, make it 5')[1]).toMatchObject({ pattern: 'update', updates: { kind: 'quantity', expr: '5' }, clause: true });
+  });
+
+  it('a correction names the user\'s choice: its value kind when it has one, else the latest choice', () => {
+    fact("no wait, it's Saturday not Sunday.", ", it's not Sunday.", "no wait, it's Saturday not Sunday.", 'update', { updates: { kind: 'date', expr: 'Saturday' } });
+    fact('Sorry, Friday not Thursday', 'not Thursday', 'Sorry, Friday not Thursday', 'correction', { updates: { kind: 'date', expr: 'Friday' } });
+    fact('Wait, 3 not 2', 'not 2', 'Wait, 3 not 2', 'correction', { updates: { kind: 'quantity', expr: '3' } });
+    fact('Oops, the red one', 'the red one', 'Oops, the red one', 'correction', { updates: { kind: 'latest' } });
+    fact('nope, the blue pot please', 'the blue pot please', 'nope, the blue pot please', 'correction', { updates: { kind: 'latest' } });
+    fact('Nope — the small one', '— the small one', 'Nope — the small one', 'correction', { updates: { kind: 'latest' } });
+    fact('Changed my mind, the big pot', ', the big pot', 'Changed my mind, the big pot', 'correction', { updates: { kind: 'latest' } });
+    fact('I meant the green pot', 'the green pot', 'I meant the green pot', 'correction', { updates: { kind: 'latest' } });
+    fact('on second thought, the green pot', ', the green pot', 'on second thought, the green pot', 'correction', { updates: { kind: 'latest' } });
+    fact('That is not right, the green pot', 'That is , the green pot', 'That is not right, the green pot', 'correction', { updates: { kind: 'latest' } });
+    // One content word is too little to say what is chosen; a question or a closing chooses nothing.
+    plain('Oops, red');
+    fact('Sorry, Friday not Thursday?', 'Sorry, not Thursday?', 'Sorry, Friday not Thursday?', 'with-date');
+    plain("Sorry, that's all");
+    plain('No, that is everything');
+    plain('No, thanks, all I need');
+  });
+});
+
+describe('RuleExtractor: a short answer takes its topic from the question', () => {
+  const answer = (previous: string, text: string, key: string) =>
+    expect(one(text, previous), `${previous} -> ${text}`).toEqual({ key, value: text, text, pattern: 'answer', context: previous });
+
+  it('"your <detail>" gives the canonical topic, without "best/usual/current/new"', () => {
+    answer('What is your usual postcode?', 'WX1 2AB', 'my postcode');
+    answer('And your new email address, please?', 'jo@example.com', 'my email address');
+    answer('Thanks. And your best mobile?', '07700 900814', 'my phone number (mobile)');
+    answer('Your name?', 'Dana', 'my name');
+    answer("What's your name?", 'ok', 'my name');
+    answer("What's your current home address?", '4 Ash Way', 'my home address (where I live)');
+  });
+
+  it('"best/right number" and "number to call" ask for the phone number', () => {
+    answer('What is the best number?', '07700 900111', 'my phone number (mobile)');
+    answer('Right number to call?', '07700 900111', 'my phone number (mobile)');
+    answer('Is there a number to text?', '07700 900111', 'my phone number (mobile)');
+  });
+
+  it('a question a rule reads gives the rule\'s key; otherwise the asking sentence is the key', () => {
+    answer('When do you want the delivery?', 'Friday', 'my booking (delivery)');
+    answer('Which time? I can do 9am or 2pm.', '9am, thanks', 'I can do 9am or 2pm.');
+    answer('Do you want a pot? We have lots.', 'Yes, 2', 'Do you want a pot?');
+    answer('Let me know. Bye', '2 please', 'Let me know.');
+    answer('How many   trays?', '3', 'How many trays?');
+    answer('Would you like the Tourer serviced?', 'Yes, on Friday', 'Would you like the Tourer serviced?');
+  });
+
+  it('no answer after a statement, a question without content words, a question back, a long reply, or a later sentence', () => {
+    plain('Fine');
+    expect(one('Fine', 'OK?').pattern).toBe('sentence');
+    expect(one('Dana Whitfield?', "What's your name?").pattern).toBe('sentence');
+    expect(one('07700 900111', 'Give me the number to text.').pattern).toBe('sentence');
+    expect(one('I told you already, it is on the booking form from last week with the rest', "What's your name?").pattern).toBe('sentence');
+    expect(one('one two three four five six', 'Which words?')).toMatchObject({ pattern: 'answer', key: 'Which words?' });
+    expect(one('one two three four five six seven', 'Which words?').pattern).toBe('sentence');
+    const [first, second] = all('Dana. 07700 900111', 'Your name?');
+    expect(first).toEqual({ key: 'my name', value: 'Dana.', text: 'Dana.', pattern: 'answer', context: 'Your name?' });
+    expect(second).toEqual({ key: '07700 900111', value: '07700 900111', text: '07700 900111', pattern: 'sentence' });
+    // A rule-read reply keeps its own key.
+    expect(one("I'm vegan", 'Anything else?')).toEqual({ key: 'my diet', value: 'vegan', text: "I'm vegan", pattern: 'diet' });
+    // A dated reply is an answer too; an update is not.
+    expect(one('Friday at 9', 'When do you want the delivery?')).toMatchObject({ key: 'my booking (delivery)', pattern: 'answer' });
+    expect(one('Friday instead', 'When do you want the delivery?')).toEqual({
+      key: 'Friday instead', value: 'Friday instead', text: 'Friday instead', pattern: 'update', updates: { kind: 'date', expr: 'Friday' },
+    });
+  });
+});
