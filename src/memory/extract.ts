@@ -137,9 +137,10 @@ const RULES: Rule[] = [
     build: (m) => ({ key: 'my level', value: (m[1] ?? m[2])! }),
   },
   {
-    // "I work as a nurse", "I'm a hospital pharmacist": what someone does for work.
+    // "I work as a nurse", "I'm a hospital pharmacist": what someone does for work. "I'm a vegetarian"
+    // ends like a trade (-ian) but is a diet, read by the diet rule, so it never replaces the job.
     name: 'job',
-    re: /\bi\s+work\s+as\s+(?:an?\s+)?(.+)|\bi(?:'m| am)\s+(?:an?\s+)((?:[\p{L}-]+\s+){0,2}?[\p{L}-]*(?:ist|er|or|ian|ant|ent|nurse|chef|doctor|vet|midwife|surgeon|pilot|coach|clerk|cook|tutor|student|apprentice))\b/iu,
+    re: /\bi\s+work\s+as\s+(?:an?\s+)?(.+)|\bi(?:'m| am)\s+(?:an?\s+)((?:[\p{L}-]+\s+){0,2}?(?!(?:vegetarian|pescatarian)\b)[\p{L}-]*(?:ist|er|or|ian|ant|ent|nurse|chef|doctor|vet|midwife|surgeon|pilot|coach|clerk|cook|tutor|student|apprentice))\b/iu,
     build: (m) => ({ key: 'my job (what I do for work)', value: (m[1] ?? m[2])! }),
   },
   {

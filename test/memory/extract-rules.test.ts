@@ -191,6 +191,17 @@ describe('RuleExtractor rules: who the speaker is', () => {
     fact("I'm gluten-free", 'my diet', 'gluten-free', 'diet');
     fact("I'm lactose intolerant", 'my diet', 'lactose intolerant', 'diet');
   });
+
+  it('a diet said as "I\'m a vegetarian" is a diet, so it never replaces the job', () => {
+    fact("I'm a vegetarian", 'my diet', 'vegetarian', 'diet');
+    fact('I am a Pescatarian', 'my diet', 'Pescatarian', 'diet');
+    expect(all("I'm a nurse. I'm a vegetarian.").map((c) => [c.key, c.value])).toEqual([
+      ['my job (what I do for work)', 'nurse'],
+      ['my diet', 'vegetarian'],
+    ]);
+    // A trade with a diet word in it is still a job.
+    fact("I'm a vegetarian chef", 'my job (what I do for work)', 'vegetarian chef', 'job');
+  });
 });
 
 describe('RuleExtractor rules: "my X is Y" and the topics it shares', () => {
