@@ -303,8 +303,9 @@ const singularOf = (w: string): string => (/ies$/.test(w) ? w.slice(0, -3) + 'y'
 function bookingKey(sentence: string): string {
   const subject = /\b(?:the|my|our)\s+((?:[\p{L}]+\s+){0,2}?[\p{L}]+)\s+(?:is|was|got|has been)\s+(?:booked|scheduled|reserved|moved|rescheduled)\b/iu.exec(sentence);
   if (subject) return `my booking (${singular(subject[1]!.split(/\s+/).pop()!.toLowerCase())})`;
-  // Skip a few common adjectives so "book a full service" is keyed by "service", not "full".
-  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change|switch|swap)\s+(?:in\s+)?(?:(?:a|an|the|my|our|another)\s+)?(?:(?:full|quick|basic|new|short|long|small|big|first|second|annual|regular|private|group)\s+)?([\p{L}]+)/iu.exec(sentence);
+  // Skip a few common adjectives so "book a full service" is keyed by "service", not "full", and the
+  // bot's "your" so "shall I book your service" is keyed by "service", not "your".
+  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change|switch|swap)\s+(?:in\s+)?(?:(?:a|an|the|my|our|your|another)\s+)?(?:(?:full|quick|basic|new|short|long|small|big|first|second|annual|regular|private|group)\s+)?([\p{L}]+)/iu.exec(sentence);
   if (object && !/^(?:it|that|this|them|for|on|at|in|to|me|us)$/i.test(object[1]!)) return `my booking (${singular(object[1]!.toLowerCase())})`;
   const noun = /\b(appointment|delivery|lessons?|class|visit|pickup|collection|reservation|session|service)\b/i.exec(sentence);
   return noun ? `my booking (${singular(noun[1]!.toLowerCase())})` : 'my booking';

@@ -481,6 +481,9 @@ describe('RuleExtractor: a short answer takes its topic from the question', () =
 
   it('a question a rule reads gives the rule\'s key; otherwise the asking sentence is the key', () => {
     answer('When do you want the delivery?', 'Friday', 'my booking (delivery)');
+    // The bot's own offer names the booked thing after "your": two offers are two bookings, not one.
+    answer('Shall I book your service for Friday?', 'Yes', 'my booking (service)');
+    answer('Can I book your tyres in for Monday?', 'Yes please', 'my booking (tyre)');
     answer('Which time? I can do 9am or 2pm.', '9am, thanks', 'I can do 9am or 2pm.');
     answer('Do you want a pot? We have lots.', 'Yes, 2', 'Do you want a pot?');
     answer('Let me know. Bye', '2 please', 'Let me know.');
