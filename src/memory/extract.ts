@@ -253,7 +253,7 @@ function headOf(phrase: string): string {
     if (/^(?:a|an|the|my|your|our|some|more|it|them|this|that|these|those|two|three|four|five|\d+)$/.test(lw)) continue;
     if (out.length > 0 && (/^(?:with|for|from|in|on|at|about|than|to|and|or|but|so|because|when|if|that|which|who|please|now|instead|anymore)$/.test(lw) || /(?:ed|ing)$/.test(lw))) break;
     out.push(lw);
-    if (out.length === 1 && i === 0 && words[0]!.toLowerCase() === 'to') break; // "to print ..." -> the verb
+    if (out.length === 1 && words[0]!.toLowerCase() === 'to') break; // "to print ..." -> the verb
   }
   return out.length > 0 ? out[out.length - 1]! : '';
 }

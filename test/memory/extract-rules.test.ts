@@ -330,6 +330,10 @@ describe('RuleExtractor rules: likings, possessions, other people, bookings', ()
     expect(head('I dont like drills')).toBe('what I dislike: drills');
     expect(head('I dislike the noise')).toBe('what I dislike: noise');
     expect(head('I hate slugs')).toBe('what I dislike: slugs');
+    // "to <verb> ...": the verb is the head, not the last word.
+    expect(head('I hate to print them out')).toBe('what I dislike: print');
+    expect(head('I like to go out')).toBe('what I like: go');
+    expect(head('I like to cycle to work')).toBe('what I like: cycle');
   });
 
   it('possessions are keyed by their noun; the verb stays in the key unless it is have/got/own/bought', () => {
