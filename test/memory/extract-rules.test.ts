@@ -515,3 +515,76 @@ describe('RuleExtractor: a short answer takes its topic from the question', () =
     });
   });
 });
+
+describe('RuleExtractor: spacing and punctuation people type', () => {
+  it('extra spaces and missing ones split the same clauses', () => {
+    // A new sentence opens with "and": it is still a first clause, not split again.
+    expect(splitClauses('Thanks.  and I paid')).toEqual([
+      { text: 'Thanks.', first: true },
+      { text: 'and I paid', first: true },
+    ]);
+    expect(splitClauses('I paid;please confirm')).toEqual([
+      { text: 'I paid', first: true },
+      { text: 'please confirm', first: false },
+    ]);
+    expect(splitSentences("I left and  I'm fine")).toEqual(['I left', "I'm fine"]);
+    expect(splitSentences('Ok,  so sure')).toEqual(['Ok', 'sure']);
+    expect(splitClauses('So  my pot is blue')).toEqual([{ text: 'my pot is blue', first: true }]);
+  });
+
+  it('values lose trailing punctuation; names keep a second capitalised word across extra spaces', () => {
+    fact('My bike is red!!', 'my bike', 'red', 'my-x-is-y');
+    fact('My name is Dana  Whitfield', 'my name', 'Dana Whitfield', 'name');
+    fact('my name is Dana mcNeil', 'my name', 'Dana', 'name');
+    // Only the end of a contact preference loses its stop, not a time inside it.
+    fact("I'd rather you text than call at 9.30", 'how I want to be contacted', 'text than call at 9.30', 'update-contact', { updates: { kind: 'quantity', expr: '9.30' } });
+  });
+
+  it('the head of a liked thing ignores punctuation and numbers, and stops only at whole words', () => {
+    fact('I like ferns!', 'what I like: ferns', 'ferns', 'prefer', { accumulate: true });
+    fact('I like ferns/moss', 'what I like: moss', 'ferns/moss', 'prefer', { accumulate: true });
+    fact('I like the Corvane X3', 'what I like: x3', 'the Corvane X3', 'prefer', { accumulate: true });
+    fact('I like plot 12', 'what I like: plot', 'plot 12', 'prefer', { accumulate: true });
+    fact('I like ferns within reach', 'what I like: reach', 'ferns within reach', 'prefer', { accumulate: true });
+  });
+
+  it('a question whose rule match has no value gives the question as the topic', () => {
+    // "my email changed " matches the changed-detail rule with a blank value: no topic from the rule.
+    expect(one('Yes', 'Let me know if my email changed ')).toEqual({
+      key: 'Let me know if my email changed', value: 'Yes', text: 'Yes', pattern: 'answer', context: 'Let me know if my email changed ',
+    });
+  });
+});
+
+describe('RuleExtractor: the booked thing', () => {
+  const booked = (text: string) => one(text).key;
+
+  it('is the first word after the verb, past an article, "in" and a common adjective', () => {
+    expect(booked('Can I book a repair for Monday?')).toBe('my booking (repair)');
+    expect(booked('Can we book repairs for Monday?')).toBe('my booking (repair)');
+    expect(booked('Book  a repair for Monday')).toBe('my booking (repair)');
+    expect(booked('Book in  a repair for Monday.')).toBe('my booking (repair)');
+    expect(booked('Can I book a  repair for Monday?')).toBe('my booking (repair)');
+    expect(booked('Can I book a full  repair for Monday?')).toBe('my booking (repair)');
+    expect(booked('Can I book a cabin for Monday?')).toBe('my booking (cabin)');
+    expect(booked('Can I book a tour for Monday?')).toBe('my booking (tour)');
+    // Short words are not made singular ("plus" is not a plural).
+    expect(booked('Could I book a plus one for Friday?')).toBe('my booking (plus)');
+  });
+
+  it('is the head of the subject of "is scheduled", however spaced', () => {
+    expect(booked('The  oral  exam  is  scheduled for 3 June')).toBe('my booking (exam)');
+  });
+
+  it('is a booked noun named anywhere when no verb names it', () => {
+    expect(booked('I need a lesson on Monday')).toBe('my booking (lesson)');
+  });
+});
+
+describe('RuleExtractor: a possession named only by numbers', () => {
+  it('is keyed by the last number before a second item, with punctuation dropped', () => {
+    fact('I ride the 42!', 'what I ride: my 42', '42', 'have', { accumulate: true });
+    fact('I ride the 42/43', 'what I ride: my 43', '42/43', 'have', { accumulate: true });
+    fact('I ride the 42, the 43 on Sundays', 'what I ride: my 42', '42, the 43 on Sundays', 'have', { accumulate: true });
+  });
+});
