@@ -588,3 +588,50 @@ describe('RuleExtractor: a possession named only by numbers', () => {
     fact('I ride the 42, the 43 on Sundays', 'what I ride: my 42', '42, the 43 on Sundays', 'have', { accumulate: true });
   });
 });
+
+describe('RuleExtractor: which clause carries context, and what a question is', () => {
+  it('a later sentence that corrects carries the sentence before it; one that names its topic does not', () => {
+    const [, corrected] = all('I ordered the red pot. Sorry, I meant the blue pot');
+    expect(corrected).toEqual({
+      key: 'the blue pot', value: 'Sorry, I meant the blue pot', text: 'Sorry, I meant the blue pot', pattern: 'correction',
+      updates: { kind: 'latest' }, context: 'I ordered the red pot.',
+    });
+    const [, named] = all('I paid. My exam is now on May 3');
+    expect(named).toEqual({
+      key: 'my exam', value: 'on May 3', text: 'My exam is now on May 3', pattern: 'update-my-x-is-y', updates: { kind: 'date', expr: 'May 3' },
+    });
+    // A correction word glued to the text before it leaves a space in its place.
+    fact('Not the blue pot—I meant the green one', 'Not the blue pot— the green one', 'Not the blue pot—I meant the green one', 'correction', { updates: { kind: 'latest' } });
+  });
+
+  it('an update whose topic phrase is a clause has no named topic', () => {
+    fact('my plan when we met is now Friday', 'my plan when we met', 'my plan when we met is now Friday', 'update', { updates: { kind: 'date', expr: 'Friday' } });
+  });
+
+  it('a question is not a statement of fact unless it books something; "?!" ends no question', () => {
+    plain('Is my bike ready?');
+    fact('My bike is ready?!', 'my bike', 'ready', 'my-x-is-y');
+    fact('My bike is ...', 'My bike is ...', 'My bike is ...', 'sentence');
+  });
+
+  it('a booking request loses only its opening "can I" and its closing punctuation', () => {
+    fact('Please, can I book a service for Friday?', 'my booking (service)', 'Please, can I book a service for Friday', 'booking');
+    fact('Can  I book a service for Friday?', 'my booking (service)', 'book a service for Friday', 'booking');
+    fact('Can I  book a service for Friday?', 'my booking (service)', 'book a service for Friday', 'booking');
+    fact('Can I book a service for 10.30 on Friday?', 'my booking (service)', 'book a service for 10.30 on Friday', 'booking');
+  });
+
+  it('questions that name a detail only as "your newest" or "second best" keep those words; spacing does not matter', () => {
+    expect(one('07700 900111', "What's your newest number?")).toMatchObject({ key: 'my newest number', pattern: 'answer' });
+    expect(one('07700 900222', "What's your second best number?")).toMatchObject({ key: 'my second best number', pattern: 'answer' });
+    expect(one('07700 900333', "What's the best  number?")).toMatchObject({ key: 'my phone number (mobile)', pattern: 'answer' });
+    expect(one('Friday?!', 'When do you want the delivery?')).toMatchObject({ key: 'my booking (delivery)', pattern: 'answer' });
+  });
+
+  it('the other side\'s own name, likings and possessions are never the topic of the reply', () => {
+    plain('Dana');
+    expect(one('Dana', "You can call me Ada. What's yours?").pattern).toBe('sentence');
+    expect(one('Friday', 'I prefer mornings myself. Which day suits you?')).toMatchObject({ key: 'Which day suits you?', pattern: 'answer' });
+    expect(one('Yes', 'I have a slot on Friday, would you like it?')).toMatchObject({ key: 'I have a slot on Friday, would you like it?', pattern: 'answer' });
+  });
+});
