@@ -635,3 +635,27 @@ describe('RuleExtractor: which clause carries context, and what a question is', 
     expect(one('Yes', 'I have a slot on Friday, would you like it?')).toMatchObject({ key: 'I have a slot on Friday, would you like it?', pattern: 'answer' });
   });
 });
+
+describe('RuleExtractor: edges of the topic helpers', () => {
+  it('a passing modifier is dropped only at the start of a topic', () => {
+    fact('My brand new bike is red', 'my brand new bike', 'red', 'my-x-is-y');
+  });
+
+  it('a clause split after a comma leaves no comma behind', () => {
+    expect(splitSentences("I left,  and I'm fine")).toEqual(['I left', "I'm fine"]);
+  });
+
+  it('a possession named by a number then words is keyed by its last word, stopping only at whole stop words', () => {
+    fact('I ride the 42, via Atherton', 'what I ride: my atherton', '42, via Atherton', 'have', { accumulate: true });
+  });
+
+  it('a question with a fact in it is not read as the fact', () => {
+    plain('Did you know my bike is a Corvane?');
+  });
+
+  it('a value or cue glued to the words around it leaves a space in its place', () => {
+    fact('Actually, make it (3) trays instead', ', make it ( ) trays instead', 'Actually, make it (3) trays instead', 'update', { updates: { kind: 'quantity', expr: '3' } });
+    fact('Pots for me—actually—3', 'Pots for me— —', 'Pots for me—actually—3', 'update', { updates: { kind: 'quantity', expr: '3' } });
+    fact('The blue pot—scratch that—the green one', 'The blue pot— —the green one', 'The blue pot—scratch that—the green one', 'correction', { updates: { kind: 'latest' } });
+  });
+});
