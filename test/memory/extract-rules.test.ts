@@ -647,6 +647,8 @@ describe('RuleExtractor: edges of the topic helpers', () => {
 
   it('a possession named by a number then words is keyed by its last word, stopping only at whole stop words', () => {
     fact('I ride the 42, via Atherton', 'what I ride: my atherton', '42, via Atherton', 'have', { accumulate: true });
+    // A model number is not the noun: the last word with a letter is.
+    fact('I ride the 42, route 7', 'what I ride: my route', '42, route 7', 'have', { accumulate: true });
   });
 
   it('a question with a fact in it is not read as the fact', () => {
