@@ -137,9 +137,10 @@ const RULES: Rule[] = [
     build: (m) => ({ key: 'my level', value: (m[1] ?? m[2])! }),
   },
   {
-    // "I work as a nurse", "I'm a hospital pharmacist": what someone does for work.
+    // "I work as a nurse", "I'm a hospital pharmacist": what someone does for work. "I'm a vegetarian"
+    // ends like a trade (-ian) but is a diet, read by the diet rule, so it never replaces the job.
     name: 'job',
-    re: /\bi\s+work\s+as\s+(?:an?\s+)?(.+)|\bi(?:'m| am)\s+(?:an?\s+)((?:[\p{L}-]+\s+){0,2}?[\p{L}-]*(?:ist|er|or|ian|ant|ent|nurse|chef|doctor|vet|midwife|surgeon|pilot|coach|clerk|cook|tutor|student|apprentice))\b/iu,
+    re: /\bi\s+work\s+as\s+(?:an?\s+)?(.+)|\bi(?:'m| am)\s+(?:an?\s+)((?:[\p{L}-]+\s+){0,2}?(?!(?:vegetarian|pescatarian)\b)[\p{L}-]*(?:ist|er|or|ian|ant|ent|nurse|chef|doctor|vet|midwife|surgeon|pilot|coach|clerk|cook|tutor|student|apprentice))\b/iu,
     build: (m) => ({ key: 'my job (what I do for work)', value: (m[1] ?? m[2])! }),
   },
   {
@@ -252,7 +253,7 @@ function headOf(phrase: string): string {
     if (/^(?:a|an|the|my|your|our|some|more|it|them|this|that|these|those|two|three|four|five|\d+)$/.test(lw)) continue;
     if (out.length > 0 && (/^(?:with|for|from|in|on|at|about|than|to|and|or|but|so|because|when|if|that|which|who|please|now|instead|anymore)$/.test(lw) || /(?:ed|ing)$/.test(lw))) break;
     out.push(lw);
-    if (out.length === 1 && i === 0 && words[0]!.toLowerCase() === 'to') break; // "to print ..." -> the verb
+    if (out.length === 1 && words[0]!.toLowerCase() === 'to') break; // "to print ..." -> the verb
   }
   return out.length > 0 ? out[out.length - 1]! : '';
 }
@@ -302,8 +303,9 @@ const singularOf = (w: string): string => (/ies$/.test(w) ? w.slice(0, -3) + 'y'
 function bookingKey(sentence: string): string {
   const subject = /\b(?:the|my|our)\s+((?:[\p{L}]+\s+){0,2}?[\p{L}]+)\s+(?:is|was|got|has been)\s+(?:booked|scheduled|reserved|moved|rescheduled)\b/iu.exec(sentence);
   if (subject) return `my booking (${singular(subject[1]!.split(/\s+/).pop()!.toLowerCase())})`;
-  // Skip a few common adjectives so "book a full service" is keyed by "service", not "full".
-  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change|switch|swap)\s+(?:in\s+)?(?:(?:a|an|the|my|our|another)\s+)?(?:(?:full|quick|basic|new|short|long|small|big|first|second|annual|regular|private|group)\s+)?([\p{L}]+)/iu.exec(sentence);
+  // Skip a few common adjectives so "book a full service" is keyed by "service", not "full", and the
+  // bot's "your" so "shall I book your service" is keyed by "service", not "your".
+  const object = /\b(?:book|schedule|reschedule|reserve|move|arrange|change|switch|swap)\s+(?:in\s+)?(?:(?:a|an|the|my|our|your|another)\s+)?(?:(?:full|quick|basic|new|short|long|small|big|first|second|annual|regular|private|group)\s+)?([\p{L}]+)/iu.exec(sentence);
   if (object && !/^(?:it|that|this|them|for|on|at|in|to|me|us)$/i.test(object[1]!)) return `my booking (${singular(object[1]!.toLowerCase())})`;
   const noun = /\b(appointment|delivery|lessons?|class|visit|pickup|collection|reservation|session|service)\b/i.exec(sentence);
   return noun ? `my booking (${singular(noun[1]!.toLowerCase())})` : 'my booking';
