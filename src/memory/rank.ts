@@ -242,10 +242,13 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   // A slot or demoted value whose every source turn an item above already carries (the turn it came
   // from, or a successor that kept its provenance) would spend a place saying nothing new. Turns stay:
   // their own words and dates are what a value check and a prompt need.
+  // Turn ids are a session's own ("t3" in every session), so a source turn is its session and its id:
+  // in a user's scope another session's turn t3 is another turn.
   const covered = new Set<string>();
   const distinct: RankedItem[] = [];
   for (const x of ranked) {
-    const prov = x.slot ? x.slot.provenance : x.entry!.provenance;
+    const session = x.slot ? p.session : x.entry!.session;
+    const prov = (x.slot ? x.slot.provenance : x.entry!.provenance).map((t) => `${session}\u0000${t}`);
     const fresh = prov.some((t) => !covered.has(t));
     if (x.entry?.kind !== 'turn' && !fresh && !p.history) continue;
     for (const t of prov) covered.add(t);

@@ -324,10 +324,10 @@ describe('rankTiers: ambiguous updates', () => {
     const moved = slot('mv', 'they moved it', 'to November', { provenance: ['t9'], maybeReplaces: ['exam', 'gone'] });
     const r = rankTiers([exam, moved], lb([hit(said, 5), hit(elsewhere, 4)]), P);
     expect(r.items.map((x) => [x.id, x.placed])).toEqual([['mv', 'ambiguous'], [said.id, 'score'], [elsewhere.id, 'score']]);
-    // The turn of another session that shares the turn id is not one it is lifted over; the slot it
-    // may replace, whose source turn that one carries, gives way to it.
+    // The turn of another session that shares the turn id is not one it is lifted over, nor does it
+    // carry the slot's source turn (this session's t3 is another turn): the slot keeps its place.
     const only = rankTiers([moved, exam], lb([hit(elsewhere, 4)]), P);
-    expect(only.items.map((x) => [x.id, x.placed])).toEqual([[elsewhere.id, 'score'], ['mv', 'ambiguous']]);
+    expect(only.items.map((x) => [x.id, x.placed])).toEqual([[elsewhere.id, 'score'], ['mv', 'ambiguous'], ['exam', 'score']]);
   });
 
   it('is not moved when it already stands above what it may replace', () => {
