@@ -1,0 +1,249 @@
+// What the write path does at its less travelled corners: how long it backs off between conflicting
+// commits (fake timers, a fixed Math.random), the quarantine report of a reload, turn vectors kept
+// for a dense list, an ambiguous update on the write event, and which index a resize survivor keeps.
+
+import { afterEach, describe, expect, it, vi } from 'vitest';
+import { ErrorCodes } from '../../src/errors.js';
+import { hashingEmbedder } from '../../src/embed/hashing.js';
+import type { Embedder } from '../../src/embed/embedder.js';
+import { SlotTable } from '../../src/memory/slots.js';
+import { createTidemark } from '../../src/middleware/tidemark.js';
+import { resizeTable } from '../../src/middleware/write.js';
+import { InProcessStore, scopeOf } from '../../src/store/in-process.js';
+import type { Store } from '../../src/store/store.js';
+import type { SlotRecord } from '../../src/types.js';
+import { ControlledStore } from './helpers.js';
+
+afterEach(() => {
+  vi.useRealTimers();
+  vi.restoreAllMocks();
+});
+
+/** Answers the first `conflicts` commits as if another writer had won, noting the (fake) time of each attempt. */
+class BusyStore extends ControlledStore {
+  conflicts = 0;
+  readonly attemptsAt: number[] = [];
+  override async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
+    this.attemptsAt.push(Date.now());
+    if (this.conflicts > 0) {
+      this.conflicts--;
+      return { ok: false, conflict: true, version: 0 };
+    }
+    return super.commit(...a);
+  }
+}
+
+/** Gaps between successive attempts, in ms. */
+const gaps = (at: readonly number[]): number[] => at.slice(1).map((x, i) => x - at[i]!);
+
+describe('the backoff between conflicting commits', () => {
+  // With Math.random fixed at 0.75 the waits are 0.75 × min(50, 2^attempt) ms: 0.75, 1.5, 3, 6, 12, 24,
+  // 37.5 (the cap), which the fake clock counts in whole ms: 0, 1, 3, 6, 12, 24, 37.
+  const EXPECTED = [0, 1, 3, 6, 12, 24, 37];
+
+  it('a write waits a random share of a window that doubles per conflict, capped at 50 ms', async () => {
+    vi.useFakeTimers({ toFake: ['setTimeout', 'clearTimeout', 'Date'] });
+    vi.spyOn(Math, 'random').mockReturnValue(0.75);
+    const store = new BusyStore();
+    const tm = createTidemark({ store, commitRetries: 7 });
+    store.conflicts = 7;
+    const pending = tm.write({ session: 's', text: 'My name is Dana.' });
+    await vi.runAllTimersAsync();
+    expect(await pending).toMatchObject({ committed: true, allocated: 1 });
+    expect(gaps(store.attemptsAt)).toEqual(EXPECTED);
+    await tm.close();
+  });
+
+  it('pin() backs off the same way', async () => {
+    const store = new BusyStore();
+    const tm = createTidemark({ store, commitRetries: 7 });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    vi.useFakeTimers({ toFake: ['setTimeout', 'clearTimeout', 'Date'] });
+    vi.spyOn(Math, 'random').mockReturnValue(0.75);
+    store.attemptsAt.length = 0;
+    store.conflicts = 7;
+    const pending = tm.pin('s', 0);
+    await vi.runAllTimersAsync();
+    await pending;
+    expect(gaps(store.attemptsAt)).toEqual(EXPECTED);
+    vi.useRealTimers();
+    expect((await tm.inspect('s')).slots[0]!.pinned).toBe(true);
+    await tm.close();
+  });
+
+  it('pin() gives up after commitRetries + 1 attempts with STORE_CONFLICT', async () => {
+    const store = new BusyStore();
+    const tm = createTidemark({ store, commitRetries: 1 });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    store.attemptsAt.length = 0;
+    store.conflicts = 2;
+    await expect(tm.pin('s', 0)).rejects.toMatchObject({ code: ErrorCodes.STORE_CONFLICT, message: 'session kept changing under 2 attempts' });
+    expect(store.attemptsAt).toHaveLength(2);
+    expect((await tm.inspect('s')).slots[0]!.pinned).toBe(false);
+    await tm.close();
+  });
+});
+
+/** A store whose every load says `n` slot payloads were moved aside. */
+class QuarantiningStore extends ControlledStore {
+  override async load(...a: Parameters<Store['load']>): ReturnType<Store['load']> {
+    const snap = await super.load(...a);
+    return snap ? { ...snap, quarantined: 2 } : snap;
+  }
+}
+
+describe('slots moved aside by the store', () => {
+  const corrupt = (codes: string[]): number => codes.filter((c) => c === ErrorCodes.STORE_CORRUPT).length;
+
+  it('a write that loads the session itself reports them; one that plans on the read\'s snapshot leaves that to the read', async () => {
+    const store = new QuarantiningStore();
+    const tm = createTidemark({ store });
+    const codes: string[] = [];
+    const messages: string[] = [];
+    tm.on('error', (e) => {
+      codes.push(e.error.code);
+      messages.push(e.error.message);
+    });
+    await tm.write({ session: 's', text: 'My name is Dana.' }); // no session yet: nothing to report
+    expect(codes).toEqual([]);
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' }); // loads: reports
+    expect(corrupt(codes)).toBe(1);
+    expect(messages[0]).toBe('store controlled: 2 slot payloads of this session failed their check and were moved aside; the session continues without them');
+    await tm.read({ session: 's', text: 'What bike do I ride?' }); // the read reports
+    expect(corrupt(codes)).toBe(2);
+    await tm.write({ session: 's', text: 'I am allergic to chain wax.' }); // planned on the read's snapshot: not again
+    expect(corrupt(codes)).toBe(2);
+    await tm.close();
+  });
+});
+
+/** The hashing embedder, recording every text it is asked to embed. */
+function recording(): { embedder: Embedder; texts: string[] } {
+  const inner = hashingEmbedder();
+  const texts: string[] = [];
+  const embedder: Embedder = {
+    id: inner.id,
+    dim: inner.dim,
+    embed: (t) => {
+      texts.push(...t);
+      return inner.embed(t);
+    },
+  };
+  return { embedder, texts };
+}
+
+describe('turn vectors for the dense list (logbook.vectors)', () => {
+  const at = Date.UTC(2026, 11, 3, 12);
+  const turns = [
+    { session: 's', role: 'assistant' as const, text: 'Which day suits you for the service?', at },
+    { session: 's', text: 'Friday morning suits me.', at },
+  ];
+
+  it('each kept turn carries its own text\'s embedding; a turn of a role not kept is never embedded', async () => {
+    const { embedder, texts } = recording();
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, embedder, logbook: { vectors: true, roles: ['user'] } });
+    await tm.write(turns);
+    expect(texts).not.toContain(turns[0]!.text);
+    const kept = (await store.listLogbook(scopeOf({ tenant: 'default', session: 's' }))).filter((e) => e.kind === 'turn');
+    expect(kept.map((e) => e.value)).toEqual([turns[1]!.text]);
+    const [want] = await hashingEmbedder().embed([turns[1]!.text]);
+    expect(kept[0]!.key).toBeInstanceOf(Float32Array);
+    expect(Array.from(kept[0]!.key!)).toEqual(Array.from(want!));
+    await tm.close();
+  });
+
+  it('two kept turns get a vector each, in order', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, logbook: { vectors: true } });
+    await tm.write(turns);
+    const kept = (await store.listLogbook(scopeOf({ tenant: 'default', session: 's' }))).filter((e) => e.kind === 'turn');
+    const want = await hashingEmbedder().embed(turns.map((t) => t.text));
+    const byText = new Map(kept.map((e) => [e.value, Array.from(e.key!)]));
+    expect(byText.get(turns[0]!.text)).toEqual(Array.from(want[0]!));
+    expect(byText.get(turns[1]!.text)).toEqual(Array.from(want[1]!));
+    await tm.close();
+  });
+
+  it('without them (the hashing embedder\'s default) no turn carries a vector and a turn read for no fact is not embedded', async () => {
+    const { embedder, texts } = recording();
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, embedder });
+    await tm.write(turns);
+    const kept = (await store.listLogbook(scopeOf({ tenant: 'default', session: 's' }))).filter((e) => e.kind === 'turn');
+    expect(kept).toHaveLength(2);
+    for (const e of kept) expect(e).not.toHaveProperty('key');
+    // The bot's question is read for no fact, so nothing embeds it.
+    expect(texts).not.toContain(turns[0]!.text);
+    await tm.close();
+  });
+});
+
+describe('an ambiguous update', () => {
+  it('is written beside the facts it may replace, and its write event says so', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    const writes: Array<Record<string, unknown>> = [];
+    tm.on('write', (e) => writes.push(e as unknown as Record<string, unknown>));
+    await tm.write({ session: 's', text: 'My exam is on the 14th of October.' });
+    await tm.write({ session: 's', text: "My friend's wedding is on the 18th of October." });
+    // With a turn between, "it" no longer points at the wedding alone.
+    await tm.write({ session: 's', text: 'ok' });
+    const [exam, wedding] = (await tm.inspect('s')).slots;
+    writes.length = 0;
+    const report = await tm.write({ session: 's', text: "They moved it, it's in November instead." });
+    expect(report).toMatchObject({ allocated: 1, overwritten: 0 });
+    expect(writes).toEqual([expect.objectContaining({ outcome: 'allocated', slot: 2, ambiguous: true })]);
+    const added = (await tm.inspect('s')).slots[2]!;
+    expect(added.id).toBe(writes[0]!.id);
+    expect(added.maybeReplaces).toEqual([wedding!.id, exam!.id]);
+    await tm.close();
+  });
+});
+
+describe('resizeTable', () => {
+  const DIM = 4;
+  const rec = (id: string, over: Partial<SlotRecord> = {}): SlotRecord => ({
+    id, key: Float32Array.from({ length: DIM }, (_, j) => (j === id.length % DIM ? 1 : 0)), keyText: `key ${id}`, value: `value ${id}`,
+    provenance: [`t-${id}`], strength: 1, halfLife: 10, stamp: 0, created: 0, createdMs: 0, updatedMs: 0, reads: 0, pinned: false, ...over,
+  });
+  const tableOf = (records: Array<SlotRecord | null>): SlotTable => {
+    const t = new SlotTable(records.length, DIM);
+    records.forEach((r, i) => r && t.set(i, r));
+    return t;
+  };
+  const ids = (t: SlotTable): Array<string | null> => Array.from({ length: t.capacity }, (_, i) => t.get(i)?.id ?? null);
+
+  it('survivors keep their index when it fits; one past the end takes the first free slot; the weakest goes', () => {
+    // Slot 0 is the weakest once decayed to now = 10 (0.4 halved once); slot 2 outranks slot 1, so a
+    // survivor that moved by rank would swap them; the pinned slot 3 is weakest of all yet stays.
+    const t = tableOf([rec('weak', { strength: 0.4 }), rec('mid', { strength: 0.5, stamp: 10 }), rec('strong', { strength: 0.9, stamp: 10 }), rec('pin', { strength: 0.05, pinned: true })]);
+    const r = resizeTable(t, 3, 10);
+    expect(r.table.capacity).toBe(3);
+    expect(ids(r.table)).toEqual(['pin', 'mid', 'strong']);
+    expect(r.evictions).toHaveLength(1);
+    expect(r.evictions[0]).toMatchObject({ slot: 0, reason: 'capacity', logged: true });
+    expect(r.evictions[0]!.record.id).toBe('weak');
+    expect(r.evictions[0]!.strength).toBeCloseTo(0.2, 9);
+    expect(r.ops.map((o) => [o.index, o.slot?.id ?? null])).toEqual([[0, 'pin'], [1, 'mid'], [2, 'strong']]);
+    const demoted = r.demote({ tenant: 'default', session: 's' }, 11, 5_000);
+    expect(demoted.map((e) => [e.id, e.value, e.kind])).toEqual([['weak', 'value weak', 'capacity']]);
+  });
+
+  it('pinned slots go first, ranked by their undecayed strength; the rest by strength decayed to now', () => {
+    // Decayed to now = 10, pinA (0.9, half-life 1) would be ~0.0009 and pinB 0.5: a pinned slot does not decay.
+    const t = tableOf([rec('free', { strength: 1, stamp: 10 }), rec('pinB', { strength: 0.5, stamp: 10, pinned: true }), rec('pinA', { strength: 0.9, halfLife: 1, pinned: true })]);
+    const r = resizeTable(t, 1, 10);
+    expect(ids(r.table)).toEqual(['pinA']);
+    expect(r.evictions.map((e) => [e.slot, e.record.id])).toEqual([[1, 'pinB'], [0, 'free']]);
+    expect(r.evictions[0]!.strength).toBe(0.5);
+    expect(r.evictions[1]!.strength).toBe(1);
+  });
+
+  it('growing keeps every slot where it was and adds empty ones', () => {
+    const t = tableOf([null, rec('a'), rec('b', { strength: 0.3 })]);
+    const r = resizeTable(t, 5, 0);
+    expect(ids(r.table)).toEqual([null, 'a', 'b', null, null]);
+    expect(r.evictions).toEqual([]);
+    expect(r.ops.map((o) => [o.index, o.slot?.id ?? null])).toEqual([[0, null], [1, 'a'], [2, 'b'], [3, null], [4, null]]);
+  });
+});
