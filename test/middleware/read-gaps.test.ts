@@ -180,3 +180,85 @@ describe('the read deadline on fake timers', () => {
     await tm.close();
   });
 });
+
+describe('what each item and the trace carry', () => {
+  it('a session whose slots are all empty is not attended to; the read event names the configured capacity for a session never stored', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), capacity: 5, read: { hops: 2 } });
+    const reads: ReadEvent[] = [];
+    tm.on('read', (e) => reads.push(e));
+    await tm.write({ session: 'e', text: 'ok' });
+    const empty = await tm.read({ session: 'e', text: 'What is my name?' });
+    expect(empty.trace).toMatchObject({ scanned: 0, hops: 0, topCosine: -1, topWeight: 0, entropy: 0, logbookSize: 1 });
+    await tm.read({ session: 'nobody', text: 'What is my name?' });
+    expect(reads.map((e) => [e.capacity, e.slotsInUse, e.logbookSize])).toEqual([[5, 0, 1], [5, 0, 0]]);
+    await tm.close();
+  });
+
+  it('a slot decayed far below 1e-9 shows its true strength; a pinned one its stored strength', async () => {
+    const t0 = Date.UTC(2026, 11, 3, 12);
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, decayUnit: 'seconds', write: { halfLife: 1 } });
+    await tm.write({ session: 's', text: 'My name is Dana.', at: t0 });
+    await tm.write({ session: 's', text: 'I am allergic to chain wax.', at: t0 });
+    await tm.pin('s', 1);
+    const raw = (await store.load({ tenant: 'default', session: 's' }))!.table;
+    const stored = [raw.strength[0]!, raw.strength[1]!];
+    // 100 half-lives later (seconds): Dana is at 2^-100 of her strength.
+    const ctx = await tm.read({ session: 's', text: 'What is my name and my allergy?', at: t0 + 100_000 } as Parameters<Tidemark['read']>[0]);
+    const dana = ctx.items.find((x) => x.value === 'Dana')!;
+    const wax = ctx.items.find((x) => x.value === 'chain wax')!;
+    expect(dana.strength / (stored[0]! * 2 ** -100)).toBeCloseTo(1, 6);
+    expect(dana.strength).toBeLessThan(1e-9);
+    expect(wax.strength).toBe(stored[1]);
+    await tm.close();
+  });
+
+  it('items name their speaker (a slot\'s owner, a turn\'s speaker, a demoted value\'s owner) and a demoted value its strength and reason', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), capacity: 1 });
+    await tm.write({ session: 's', speaker: 'Dana', text: 'My name is Dana.' });
+    const slotCtx = await tm.read({ session: 's', text: 'What is my name?' });
+    expect(slotCtx.items.map((x) => [x.source, x.kind, x.speaker])).toEqual([['slot', 'slot', 'Dana'], ['logbook', 'turn', 'Dana']]);
+    // No turns kept: the demoted value is what the logbook finds.
+    const bare = createTidemark({ store: new InProcessStore(), capacity: 1, logbook: { roles: [] } });
+    await bare.write({ session: 's', speaker: 'Dana', text: 'My name is Dana.' });
+    const dana = (await bare.inspect('s')).slots[0]!;
+    await bare.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const ctx = await bare.read({ session: 's', text: 'What is my name?' });
+    const demoted = ctx.items.find((x) => x.kind === 'capacity')!;
+    expect(demoted).toMatchObject({ source: 'logbook', id: dana.id, value: 'Dana', speaker: 'Dana', reason: 'capacity', provenance: ['t1'] });
+    expect(demoted.strength).toBeGreaterThan(0);
+    expect(demoted.strength).toBeLessThanOrEqual(dana.strength);
+    expect(demoted).not.toHaveProperty('atMs');
+    expect(demoted).not.toHaveProperty('role');
+    await tm.close();
+    await bare.close();
+  });
+
+  it('an item\'s provenance is its own copy: changing it changes nothing stored', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, capacity: 1 });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const ctx = await tm.read({ session: 's', text: 'What is my name and my bike?' });
+    expect(new Set(ctx.items.map((x) => x.source))).toEqual(new Set(['slot', 'logbook']));
+    for (const x of ctx.items) x.provenance.push('tampered');
+    const again = await tm.read({ session: 's', text: 'What is my name and my bike?' });
+    for (const x of again.items) expect(x.provenance).not.toContain('tampered');
+    const view = await tm.inspect('s');
+    expect(view.slots[0]!.provenance).toEqual(['t2']);
+    await tm.close();
+  });
+
+  it('an ambiguous update comes back with the ids it may replace', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    for (const text of ['My exam is on the 14th of October.', "My friend's wedding is on the 18th of October.", 'ok', "They moved it, it's in November instead."]) await tm.write({ session: 's', text });
+    const [exam, wedding, moved] = (await tm.inspect('s')).slots;
+    const ctx = await tm.read({ session: 's', text: 'When was it moved to November?' });
+    const item = ctx.items.find((x) => x.id === moved!.id)!;
+    expect(item.maybeReplaces).toEqual([wedding!.id, exam!.id]);
+    item.maybeReplaces!.push('tampered');
+    expect((await tm.inspect('s')).slots[2]!.maybeReplaces).toEqual([wedding!.id, exam!.id]);
+    for (const x of ctx.items.filter((i) => i.id !== moved!.id)) expect(x).not.toHaveProperty('maybeReplaces');
+    await tm.close();
+  });
+});

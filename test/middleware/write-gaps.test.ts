@@ -247,3 +247,103 @@ describe('resizeTable', () => {
     expect(r.ops.map((o) => [o.index, o.slot?.id ?? null])).toEqual([[0, null], [1, 'a'], [2, 'b'], [3, null], [4, null]]);
   });
 });
+
+/** A store whose logbook deletes fail like a lost connection. */
+class DeleteFailStore extends ControlledStore {
+  deletes = 0;
+  override deleteLogbook(..._a: Parameters<Store['deleteLogbook']>): ReturnType<Store['deleteLogbook']> {
+    this.deletes++;
+    return Promise.reject(new Error('connection reset (test)'));
+  }
+}
+
+describe('what else a write takes from its input', () => {
+  it('a caller\'s own turn id names the turn in the report, the slot\'s provenance and the logbook; without one it is t<n>', async () => {
+    const at = Date.UTC(2026, 11, 3, 12);
+    const tm = createTidemark({ store: new InProcessStore() });
+    expect((await tm.write({ session: 's', text: 'My name is Dana.', turn: 'msg-17', at })).turns).toEqual(['msg-17']);
+    expect((await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.', at: at + 1000 })).turns).toEqual(['t2']);
+    const view = await tm.inspect('s');
+    expect(view.slots.map((x) => x.provenance)).toEqual([['msg-17'], ['t2']]);
+    const turns = view.logbook.filter((e) => e.kind === 'turn');
+    expect(turns.map((e) => [e.provenance, e.clock, e.seq, e.atMs, e.createdMs])).toEqual([[['t2'], 2, 2, at + 1000, at + 1000], [['msg-17'], 1, 1, at, at]]);
+    await tm.close();
+  });
+
+  it('a system turn is never read for facts, even with writeReplies: true', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), writeReplies: true });
+    let scored = 0;
+    tm.on('gate', () => scored++);
+    const r = await tm.write({ session: 's', role: 'system', text: 'My name is Dana.' });
+    expect(scored).toBe(0);
+    expect(r).toMatchObject({ allocated: 0, gatedOut: 0, logbook: 0 });
+    await tm.close();
+  });
+
+  it('with valueMix 0 a slot\'s key is its topic\'s embedding and no value is embedded', async () => {
+    const { embedder, texts } = recording();
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, embedder, valueMix: 0 });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const t = (await store.load({ tenant: 'default', session: 's' }))!.table;
+    expect(t.value[0]).toBe('a green Corvane Tourer');
+    expect(texts).not.toContain('a green Corvane Tourer');
+    const [want] = await hashingEmbedder().embed([t.keyText[0]!]);
+    expect(Array.from(t.keyRow(0))).toEqual(Array.from(want!));
+    await tm.close();
+  });
+
+  it('a write to a session stored with another embedder\'s dimension is refused with EMBED_DIM, naming migrate', async () => {
+    const store = new InProcessStore();
+    const old = createTidemark({ store });
+    await old.write({ session: 's', text: 'My name is Dana.' });
+    const tm = createTidemark({ store, embedder: hashingEmbedder({ dim: 128 }) });
+    await expect(tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' })).rejects.toMatchObject({ code: ErrorCodes.EMBED_DIM, message: expect.stringContaining('migrate') });
+    expect((await old.inspect('s')).slots.map((x) => x.value)).toEqual(['Dana']);
+    await old.close();
+    await tm.close();
+  });
+
+  it('an overwrite\'s write event carries the stored slot\'s strength and half-life', async () => {
+    const tm = createTidemark({ store: new InProcessStore(), write: { halfLife: 50 } });
+    const writes: Array<Record<string, unknown>> = [];
+    tm.on('write', (e) => writes.push(e as unknown as Record<string, unknown>));
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    await tm.write({ session: 's', text: 'hello' });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    await tm.write({ session: 's', text: 'Actually my bike is a red Corvane Tourer.' });
+    const over = writes.at(-1)!;
+    expect(over).toMatchObject({ outcome: 'overwritten', slot: 1 });
+    const slot = (await tm.inspect('s')).slots[1]!;
+    expect(over.strength).toBeCloseTo(slot.strength, 12);
+    expect(over.halfLife).toBe(slot.halfLife);
+    await tm.close();
+  });
+});
+
+describe('promotion when the logbook delete fails', () => {
+  it('the write stands, the failure is reported as a store error, and the value is not promoted twice', async () => {
+    const store = new DeleteFailStore();
+    const facts = ['My bike is a green Corvane Tourer with a dynamo hub.', 'My favourite fern is the maidenhair fern on the balcony.', 'My Spanish teacher is called Lucia Moreno.'];
+    const tm = createTidemark({ store, capacity: 2, logbook: { roles: [] } });
+    for (const text of facts) await tm.write({ session: 's', text });
+    const evicted = (await tm.inspect('s')).logbook[0]!;
+    const errors: Array<[string, string, string]> = [];
+    tm.on('error', (e) => errors.push([e.stage, e.error.code, e.error.message]));
+    const ctx = await tm.read({ session: 's', text: `What is ${evicted.keyText}?` });
+    const promote = tm.promotedBy(ctx, `It is ${evicted.value}.`);
+    expect(promote).toEqual([evicted.id]);
+    const report = await tm.write({ session: 's', text: 'Thanks!' }, { promote });
+    expect(report.committed).toBe(true);
+    await vi.waitFor(() => expect(errors).toHaveLength(1));
+    expect(errors[0]).toEqual(['store', ErrorCodes.STORE_UNAVAILABLE, 'connection reset (test)']);
+    expect(store.deletes).toBe(1);
+    const slots = (await tm.inspect('s')).slots;
+    expect(slots.map((x) => x.id)).toContain(evicted.id);
+    // The same ids again: the value is remembered no more, so nothing is promoted or deleted twice.
+    await tm.write({ session: 's', text: 'Thanks again!' }, { promote });
+    expect(store.deletes).toBe(1);
+    expect((await tm.inspect('s')).slots.filter((x) => x.id === evicted.id)).toHaveLength(1);
+    await tm.close();
+  });
+});
