@@ -21,7 +21,8 @@ describe('pin', () => {
     const tm = createTidemark({ store: new InProcessStore() });
     await tm.write({ session: 's', text: 'My name is Dana.' });
     await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
-    const bike = (await tm.inspect('s')).slots[1]!;
+    const before = await tm.inspect('s');
+    const bike = before.slots[1]!;
     await tm.pin('s', 1);
     expect((await tm.inspect('s')).slots[1]).toMatchObject({ id: bike.id, pinned: true, value: bike.value });
     await tm.pin('s', 1, false);
@@ -29,8 +30,9 @@ describe('pin', () => {
     expect(view.slots[1]).toMatchObject({ id: bike.id, pinned: false });
     expect(view.version).toBe(4);
     expect(view.events.slice(-2).map((e) => [e.type, e.slot, e.id, e.clock])).toEqual([['pin', 1, bike.id, 2], ['unpin', 1, bike.id, 2]]);
-    // A pin changes no clock and no turn count.
-    expect(view).toMatchObject({ clock: 2, turns: 2 });
+    // A pin changes no clock, no turn count and no logbook entry.
+    expect(view).toMatchObject({ clock: 2, turns: 2, capacity: before.capacity, dim: before.dim });
+    expect(view.logbook).toEqual(before.logbook);
     await tm.close();
   });
 
@@ -182,6 +184,38 @@ describe('inspect', () => {
   });
 });
 
+describe('inspect of pinned and copied values', () => {
+  it('a pinned slot shows its stored strength while the clock moves on; an unpinned one decays', async () => {
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, write: { halfLife: 2 } });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    await tm.write({ session: 's', text: 'I am allergic to chain wax.' });
+    await tm.pin('s', 1);
+    await tm.write({ session: 's', text: 'hello' });
+    await tm.write({ session: 's', text: 'What time do you open?' });
+    const raw = (await store.load({ tenant: 'default', session: 's' }))!.table;
+    const view = await tm.inspect('s');
+    expect(view.clock).toBe(4);
+    expect(view.slots[1]).toMatchObject({ pinned: true, strength: raw.strength[1], age: 2 });
+    expect(view.slots[0]!.strength).toBeCloseTo(raw.strength[0]! / 2 ** 1.5, 12);
+    await tm.close();
+  });
+
+  it('the provenance and the ambiguous ids it shows are copies', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    for (const text of ['My exam is on the 14th of October.', "My friend's wedding is on the 18th of October.", 'ok', "They moved it, it's in November instead."]) await tm.write({ session: 's', text });
+    const first = await tm.inspect('s');
+    const ids = first.slots[2]!.maybeReplaces!.slice();
+    expect(ids).toHaveLength(2);
+    first.slots[2]!.maybeReplaces!.push('tampered');
+    first.slots[2]!.provenance.push('tampered');
+    const again = await tm.inspect('s');
+    expect(again.slots[2]!.maybeReplaces).toEqual(ids);
+    expect(again.slots[2]!.provenance).toEqual(['t4']);
+    await tm.close();
+  });
+});
+
 describe('migrate', () => {
   it('a session with no slots moves to the new dimension with nothing to embed', async () => {
     const store = new InProcessStore();
@@ -201,7 +235,11 @@ describe('migrate', () => {
     await old.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
     const embedder = new HashingEmbedder({ dim: 256 });
     const tm = createTidemark({ store, capacity: 4, valueMix: 0, embedder });
+    const events = (await old.inspect('s')).events;
     expect(await tm.migrate('s')).toEqual({ slots: 2 });
+    // It changes keys only: no event, no logbook entry.
+    expect((await tm.inspect('s')).events).toEqual(events);
+    expect((await tm.inspect('s')).logbook).toHaveLength(2);
     const t = (await store.load({ tenant: 'default', session: 's' }))!.table;
     expect([0, 1, 2, 3].map((i) => t.isUsed(i))).toEqual([true, true, false, false]);
     const want = await embedder.embed([t.keyText[0]!, t.keyText[1]!]);
