@@ -262,3 +262,50 @@ describe('what each item and the trace carry', () => {
     await tm.close();
   });
 });
+
+describe('the erasure fence a read is made under', () => {
+  it('an erase while the reply is written wins even when the eraser\'s clock is behind: the read saw the session before it', async () => {
+    vi.useFakeTimers({ toFake: ['Date'] });
+    const t = Date.UTC(2026, 11, 3, 12);
+    vi.setSystemTime(t);
+    const tm = createTidemark({ store: new InProcessStore() });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const errors: string[] = [];
+    tm.on('error', (e) => errors.push(e.error.code));
+    const handler = tm.wrap(async () => {
+      // Another process, its clock a second behind, erases the session while this reply is made.
+      vi.setSystemTime(t - 1000);
+      await tm.erase({ session: 's' });
+      vi.setSystemTime(t + 10);
+      return 'Noted.';
+    });
+    expect(await handler({ session: 's', text: 'My name is Dana.' })).toBe('Noted.');
+    await tm.flush();
+    expect(errors).toEqual(['TIDEMARK_E_STORE_ERASED']);
+    expect((await tm.inspect('s')).slots).toEqual([]);
+    await tm.close();
+  });
+});
+
+describe('more of the trace', () => {
+  it('names the speakers a question names, whether it is about a time, and how long the search took', async () => {
+    const tm = createTidemark({ store: new InProcessStore() });
+    const at = Date.UTC(2026, 11, 3, 12);
+    await tm.write({ session: 's', speaker: 'Dana', text: 'My bike is a green Corvane Tourer.', at });
+    await tm.write({ session: 's', speaker: 'Robin', text: 'Can I book a service for Tuesday?', at });
+    const reads: ReadEvent[] = [];
+    tm.on('read', (e) => reads.push(e));
+    const who = await tm.read({ session: 's', text: 'Which bike does Dana ride?' });
+    expect(who.trace).toMatchObject({ speakersNamed: 1, temporal: false });
+    expect(who.trace.searchUs).toBeGreaterThan(0);
+    expect(reads[0]!.searchUs).toBe(who.trace.searchUs);
+    expect(reads[0]!.durationUs).toBe(who.trace.durationUs);
+    expect(reads[0]!.embedUs).toBeGreaterThanOrEqual(0);
+    const when = await tm.read({ session: 's', text: 'Which day did I book a service for?', history: true });
+    expect(when.trace).toMatchObject({ speakersNamed: 0, temporal: true });
+    const turn = when.items.find((x) => x.kind === 'turn' && x.value === 'Can I book a service for Tuesday?')!;
+    expect(turn).toMatchObject({ strength: 0, speaker: 'Robin', role: 'user', atMs: at });
+    expect(turn.dates?.map((d) => d.text)).toEqual(['Tuesday']);
+    await tm.close();
+  });
+});
