@@ -311,12 +311,26 @@ describe('what else a write takes from its input', () => {
     await tm.write({ session: 's', text: 'My name is Dana.' });
     await tm.write({ session: 's', text: 'hello' });
     await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    // A reinforcement lengthens the slot's half-life past the configured one; the overwrite keeps it.
+    const bikeId = (await tm.inspect('s')).slots[1]!.id;
+    await tm.write({ session: 's', text: 'ok' }, { reinforce: [bikeId] });
     await tm.write({ session: 's', text: 'Actually my bike is a red Corvane Tourer.' });
     const over = writes.at(-1)!;
     expect(over).toMatchObject({ outcome: 'overwritten', slot: 1 });
     const slot = (await tm.inspect('s')).slots[1]!;
     expect(over.strength).toBeCloseTo(slot.strength, 12);
     expect(over.halfLife).toBe(slot.halfLife);
+    expect(slot.halfLife).toBeGreaterThan(50);
+    await tm.close();
+  });
+
+  it.each([0.5, 0])('a turn with two facts addresses each by its own topic: an update of both overwrites both (valueMix %s)', async (valueMix) => {
+    const tm = createTidemark({ store: new InProcessStore(), valueMix });
+    await tm.write({ session: 's', text: 'My name is Dana.' });
+    await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const r = await tm.write({ session: 's', text: 'Actually my name is Dana Smith and my bike is a red Corvane Tourer.' });
+    expect(r).toMatchObject({ overwritten: 2, allocated: 0 });
+    expect((await tm.inspect('s')).slots.map((x) => x.value)).toEqual(['Dana Smith', 'a red Corvane Tourer']);
     await tm.close();
   });
 });
