@@ -328,9 +328,32 @@ describe('what else a write takes from its input', () => {
     const tm = createTidemark({ store: new InProcessStore(), valueMix });
     await tm.write({ session: 's', text: 'My name is Dana.' });
     await tm.write({ session: 's', text: 'My bike is a green Corvane Tourer.' });
+    const writes: Array<Record<string, unknown>> = [];
+    tm.on('write', (e) => writes.push(e as unknown as Record<string, unknown>));
     const r = await tm.write({ session: 's', text: 'Actually my name is Dana Smith and my bike is a red Corvane Tourer.' });
     expect(r).toMatchObject({ overwritten: 2, allocated: 0 });
-    expect((await tm.inspect('s')).slots.map((x) => x.value)).toEqual(['Dana Smith', 'a red Corvane Tourer']);
+    const slots = (await tm.inspect('s')).slots;
+    expect(slots.map((x) => x.value)).toEqual(['Dana Smith', 'a red Corvane Tourer']);
+    // Each write event carries its own slot's strength.
+    expect(slots[0]!.strength).not.toBeCloseTo(slots[1]!.strength, 9);
+    expect(writes.map((e) => e.slot)).toEqual([0, 1]);
+    for (const e of writes) expect(e.strength).toBeCloseTo(slots[e.slot as number]!.strength, 12);
+    await tm.close();
+  });
+});
+
+describe('promotion after a write in between', () => {
+  it('a value a read recalled can be promoted by a later write of the session, not only the next one', async () => {
+    const facts = ['My bike is a green Corvane Tourer with a dynamo hub.', 'My favourite fern is the maidenhair fern on the balcony.', 'My Spanish teacher is called Lucia Moreno.'];
+    const tm = createTidemark({ store: new InProcessStore(), capacity: 2, logbook: { roles: [] } });
+    for (const text of facts) await tm.write({ session: 's', text });
+    const evicted = (await tm.inspect('s')).logbook[0]!;
+    const ctx = await tm.read({ session: 's', text: `What is ${evicted.keyText}?` });
+    const promote = tm.promotedBy(ctx, `It is ${evicted.value}.`);
+    expect(promote).toEqual([evicted.id]);
+    await tm.write({ session: 's', text: 'ok' });
+    await tm.write({ session: 's', text: 'Thanks!' }, { promote });
+    expect((await tm.inspect('s')).slots.map((x) => x.id)).toContain(evicted.id);
     await tm.close();
   });
 });
