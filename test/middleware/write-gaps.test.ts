@@ -8,7 +8,7 @@ import { hashingEmbedder } from '../../src/embed/hashing.js';
 import type { Embedder } from '../../src/embed/embedder.js';
 import { SlotTable } from '../../src/memory/slots.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
-import { resizeTable } from '../../src/middleware/write.js';
+import { mixVectors, resizeTable } from '../../src/middleware/write.js';
 import { InProcessStore, scopeOf } from '../../src/store/in-process.js';
 import type { Store } from '../../src/store/store.js';
 import type { SlotRecord } from '../../src/types.js';
@@ -338,6 +338,26 @@ describe('what else a write takes from its input', () => {
     expect(slots[0]!.strength).not.toBeCloseTo(slots[1]!.strength, 9);
     expect(writes.map((e) => e.slot)).toEqual([0, 1]);
     for (const e of writes) expect(e.strength).toBeCloseTo(slots[e.slot as number]!.strength, 12);
+    await tm.close();
+  });
+});
+
+describe('the vector stored for each fact of a write', () => {
+  it('is normalize(key + valueMix × value), or the key\'s own vector when the value is the key, for every candidate in order', async () => {
+    const text = 'My name is Dana, my bike is a green Corvane Tourer, and I am allergic to chain wax.';
+    const facts: Array<[string, string]> = [['my name', 'Dana'], ['my bike', 'a green Corvane Tourer'], ['allergic to chain wax', 'allergic to chain wax']];
+    const extractor = { extract: () => facts.map(([key, value]) => ({ key, value, text, pattern: 'sentence', remember: true })) };
+    const store = new InProcessStore();
+    const tm = createTidemark({ store, extractor });
+    expect(await tm.write({ session: 's', text })).toMatchObject({ allocated: 3 });
+    const t = (await store.load({ tenant: 'default', session: 's' }))!.table;
+    const e = hashingEmbedder();
+    for (let i = 0; i < 3; i++) {
+      const [key, value] = facts[i]!;
+      const [k, v] = await e.embed([key, value]);
+      const want = key === value ? Array.from(k!) : Array.from(mixVectors(k!, v!, 0.5));
+      expect([t.keyText[i], Array.from(t.keyRow(i)).map((x, j) => Math.abs(x - want[j]!) < 1e-6).every(Boolean)]).toEqual([key, true]);
+    }
     await tm.close();
   });
 });
