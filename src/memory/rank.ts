@@ -244,14 +244,16 @@ export function rankTiers(slots: readonly SlotCandidate[], lb: LogbookSearchResu
   // their own words and dates are what a value check and a prompt need.
   // Turn ids are a session's own ("t3" in every session), so a source turn is its session and its id:
   // in a user's scope another session's turn t3 is another turn.
-  const covered = new Set<string>();
+  const covered = new Map<string, Set<string>>();
   const distinct: RankedItem[] = [];
   for (const x of ranked) {
     const session = x.slot ? p.session : x.entry!.session;
-    const prov = (x.slot ? x.slot.provenance : x.entry!.provenance).map((t) => `${session}\u0000${t}`);
-    const fresh = prov.some((t) => !covered.has(t));
+    const prov = x.slot ? x.slot.provenance : x.entry!.provenance;
+    let seen = covered.get(session);
+    if (!seen) covered.set(session, (seen = new Set()));
+    const fresh = prov.some((t) => !seen.has(t));
     if (x.entry?.kind !== 'turn' && !fresh && !p.history) continue;
-    for (const t of prov) covered.add(t);
+    for (const t of prov) seen.add(t);
     distinct.push(x);
   }
   // Items far below the best (a neighbour's faint share, a stray word) are noise in a prompt.
