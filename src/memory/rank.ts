@@ -310,7 +310,7 @@ function applyPrecedence(list: RankedItem[], all: readonly RankedItem[], live: R
           if (at < 0 || at > i) {
             if (at > i) out.splice(at, 1);
             out.splice(i, 0, succ);
-            if (succ.placed === 'score' && (at < 0 || at > i)) succ.placed = 'successor';
+            if (succ.placed === 'score') succ.placed = 'successor';
             moved = true;
             i++;
           }

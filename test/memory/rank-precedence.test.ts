@@ -34,3 +34,17 @@ describe('rankTiers: what an ambiguous update stands above', () => {
     expect(r.items.map((x) => [x.id, x.placed])).toEqual([['dem', 'score'], ['fees', 'score'], ['mv', 'ambiguous'], ['said', 'score']]);
   });
 });
+
+describe('rankTiers: an ambiguous update lifted again as a successor', () => {
+  // F was replaced by A, A by the live slot B, and B may replace the turn G. Pass one lifts A over F
+  // and places B over G ("ambiguous"); pass two lifts B over A. B keeps the reason it was first placed
+  // for: only an item standing by its score becomes a "successor".
+  it('keeps "ambiguous" when a later pass lifts it over the value it replaced', () => {
+    const f = entry('F', 1, 'exam in June', { kind: 'superseded', keyText: 'my exam' });
+    const a = entry('A', 2, 'exam in July', { kind: 'superseded', keyText: 'my exam' });
+    const g = entry('G', 3, 'the exam room is B4');
+    const b = slot('B', 'they moved it', 'to November', { maybeReplaces: ['G'] });
+    const r = rankTiers([b], result([{ ...hit(f, 9), supersededBy: 'A' }, hit(g, 5), { ...hit(a, 2), supersededBy: 'B' }]), P);
+    expect(r.items.map((x) => [x.id, x.placed])).toEqual([['B', 'ambiguous'], ['A', 'successor'], ['F', 'score'], ['G', 'score']]);
+  });
+});
