@@ -220,6 +220,9 @@ const RULES: Rule[] = [
     // The verb stays in the key ("what I ride: my roamer") so a question about riding finds it.
     // Possessions add up: "I've got the Tourer with me" does not replace "I've got two bikes".
     build: (m) => {
+      // "I have two in the shop": the noun is left out, and a key made from later words ("my shop")
+      // would be a guess. No candidate; the turn itself stays in the logbook.
+      if (PHRASE_STOP.test(m[2]!.trim().split(/\s+/)[0]!)) return null;
       const verb = m[1]!.toLowerCase();
       const noun = headOf(m[2]!) || lastNoun(m[2]!);
       return { key: verb === 'have' || verb === 'got' || verb === 'own' || verb === 'bought' ? `my ${noun}` : `what I ${verb}: my ${noun}`, value: m[2]!, accumulate: true };
@@ -311,10 +314,14 @@ function bookingKey(sentence: string): string {
   return noun ? `my booking (${singular(noun[1]!.toLowerCase())})` : 'my booking';
 }
 
+/** Words that end a noun phrase ("a Corvane with a basket") or show its noun is missing ("two in the shop"). */
+const PHRASE_STOP = /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i;
+
+/** The noun of a phrase that does not open with a PHRASE_STOP word. */
 function lastNoun(phrase: string): string {
   const words = phrase.replace(/[^\p{L}\p{N}\s'’-]/gu, ' ').trim().split(/\s+/);
   // "a green Corvane with a basket" -> "Corvane": stop at the first preposition.
-  const stop = words.findIndex((w, i) => i > 0 && /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i.test(w));
+  const stop = words.findIndex((w) => PHRASE_STOP.test(w));
   const head = stop > 0 ? words.slice(0, stop) : words;
   // A model number is not the noun: "a Orrin Sprint 2" -> "sprint".
   const wordy = head.filter((w) => /\p{L}/u.test(w));

@@ -347,6 +347,12 @@ describe('RuleExtractor rules: likings, possessions, other people, bookings', ()
     fact('I have a bike and a trailer', 'my bike', 'bike and a trailer', 'have', { accumulate: true });
     fact('I own an e-bike, but rarely ride', 'my e-bike', 'e-bike, but rarely ride', 'have', { accumulate: true });
   });
+
+  it('a possession whose noun is left out ("I have two in the shop") keeps the sentence, not a key guessed from later words', () => {
+    plain('I have two in the shop right now');
+    plain("I've got two with flat tyres");
+    plain('I own three from the old fleet');
+  });
 });
 
 describe('RuleExtractor rules: other people and bookings', () => {
