@@ -73,6 +73,13 @@ describe('resolveDates', () => {
     expect(resolveDates('at 5pm', SAID)).toEqual([]); // a time alone names no day
     expect(resolveDates('yesterday', Number.NaN)).toEqual([]);
   });
+
+  it('"now" and "in 5 minutes" name no date, though the parser gives them one', () => {
+    // chrono-node reads both as the day of speaking, certain; in chat they say nothing about a day
+    // (over the SGD and long-conversation replays, 303 turns had such a mention and no hint word).
+    expect(resolveDates("I'm at the shop now", SAID)).toEqual([]);
+    expect(resolveDates('the bus comes in 5 minutes', SAID)).toEqual([]);
+  });
 });
 
 describe('dateTerms, formatMention, asksWhen', () => {

@@ -199,6 +199,11 @@ describe('a contrast ("Saturday, not Sunday")', () => {
     expect(planTurn(d, [update('3.25 hours, not 2.5', { kind: 'quantity', expr: '3.25 hours' })]).ops[0]!.slot!.value).toBe('a 3.25 hours ride');
   });
 
+  it('a rejected phrase that does not open with a number takes the whole new expression ("12 people, not table 10")', () => {
+    const t = table(2, 3, [rec('booking', basis(3, 0), { keyText: 'my booking', value: 'a booking for table 10' })]);
+    expect(planTurn(t, [update('12 people, not table 10', { kind: 'quantity', expr: '12 people' })]).ops[0]!.slot!.value).toBe('a booking for 12 people');
+  });
+
   it('a word corrected by a number takes the whole new expression', () => {
     const t = table(2, 3, [rec('bikes', basis(3, 0), { keyText: 'the hire', value: 'the tandem for the day' })]);
     expect(planTurn(t, [update('2 bikes, not the tandem', { kind: 'quantity', expr: '2 bikes' })]).ops[0]!.slot!.value).toBe('the 2 bikes for the day');
