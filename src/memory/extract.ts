@@ -147,11 +147,19 @@ const RULES: Rule[] = [
     // "I'd rather you call than text", "please call rather than email".
     name: 'contact',
     re: /\b(?:i'?d|i would)\s+rather\s+you\s+(call|text|email|e-mail|message|phone|ring|write)\b(.*)|\bplease\s+(call|text|email|message|phone|ring)\s+(?:me\s+)?(?:rather|instead)\s+(?:than|of)\b(.*)/iu,
-    build: (m) => ({ key: 'how I want to be contacted', value: `${(m[1] ?? m[3])!}${(m[2] ?? m[4] ?? '').replace(/[.!?]+$/, '')}` }),
+    // "please email me rather than phone": what they want, and what they do not beside it, never run
+    // together ("email phone").
+    build: (m) => {
+      if (m[1] !== undefined) return { key: 'how I want to be contacted', value: `${m[1]}${m[2]!.replace(/[.!?]+$/, '')}` };
+      const not = m[4]!.replace(/[.!?]+$/, '').trim();
+      return { key: 'how I want to be contacted', value: not ? `${m[3]!} (not ${not})` : m[3]! };
+    },
   },
   {
     name: 'my-x-is-y',
-    re: /\bmy\s+((?:[\p{L}\p{N}'’-]+\s+){0,4}?[\p{L}\p{N}'’-]+)\s+(?:is|are|was|were|'s|will be|has been)\s+(?:now\s+|actually\s+)?(.+)/iu,
+    // "My bike's a Corvane": a joined "'s" is "is" only before what starts a value (an article, a
+    // preposition, a number); "my bike's saddle is torn" is a possessive.
+    re: /\bmy\s+((?:[\p{L}\p{N}'’-]+\s+){0,4}?[\p{L}\p{N}-]+?)(?:\s+(?:is|are|was|were|'s|will be|has been)|['’]s(?=\s+(?:a|an|the|in|at|on|not|now|still|actually|\d)\b))\s+(?:now\s+|actually\s+)?(.+)/iu,
     // A topic is a noun phrase: "my office plant died while I was away" has no "my X is Y" in it.
     build: (m) => (CLAUSE_WORD.test(m[1]!) ? null : { key: canonicalTopic(m[1]!), value: m[2]! }),
   },
@@ -253,8 +261,9 @@ function headOf(phrase: string): string {
     const w = words[i]!;
     const lw = w.toLowerCase();
     if (i === 0 && lw === 'to') continue;
-    if (/^(?:a|an|the|my|your|our|some|more|it|them|this|that|these|those|two|three|four|five|\d+)$/.test(lw)) continue;
+    // After the noun, "that" opens a clause ("a cat that I love"); before it, it is a determiner.
     if (out.length > 0 && (/^(?:with|for|from|in|on|at|about|than|to|and|or|but|so|because|when|if|that|which|who|please|now|instead|anymore)$/.test(lw) || /(?:ed|ing)$/.test(lw))) break;
+    if (/^(?:a|an|the|my|your|our|some|more|it|them|this|that|these|those|two|three|four|five|\d+)$/.test(lw)) continue;
     out.push(lw);
     if (out.length === 1 && words[0]!.toLowerCase() === 'to') break; // "to print ..." -> the verb
   }
@@ -315,7 +324,7 @@ function bookingKey(sentence: string): string {
 }
 
 /** Words that end a noun phrase ("a Corvane with a basket") or show its noun is missing ("two in the shop"). */
-const PHRASE_STOP = /^(with|for|from|in|on|at|that|which|called|named|the|and|but)$/i;
+const PHRASE_STOP = /^(with|for|from|in|on|at|that|which|called|named|the|and|but|or)$/i;
 
 /** The noun of a phrase that does not open with a PHRASE_STOP word. */
 function lastNoun(phrase: string): string {

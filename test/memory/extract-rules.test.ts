@@ -117,8 +117,9 @@ describe('RuleExtractor rules: names and contact details', () => {
     fact("I'd rather you text than call.", 'how I want to be contacted', 'text than call', 'contact', { revises: true });
     fact('I would rather you message me.', 'how I want to be contacted', 'message me', 'contact', { revises: true });
     fact("I'd rather you e-mail", 'how I want to be contacted', 'e-mail', 'contact', { revises: true });
-    fact('Please email me rather than phone!', 'how I want to be contacted', 'email phone', 'contact', { revises: true });
-    fact('please ring instead of texting', 'how I want to be contacted', 'ring texting', 'contact', { revises: true });
+    // What they want, and beside it what they do not, never run together ("email phone").
+    fact('Please email me rather than phone!', 'how I want to be contacted', 'email (not phone)', 'contact', { revises: true });
+    fact('please ring instead of texting', 'how I want to be contacted', 'ring (not texting)', 'contact', { revises: true });
   });
 });
 
@@ -215,6 +216,13 @@ describe('RuleExtractor rules: "my X is Y" and the topics it shares', () => {
     fact('My kids are Ana and Bo', 'my kids', 'Ana and Bo', 'my-x-is-y');
     plain('My office plant died while I was away');
     plain('My friend who visited is ill');
+  });
+
+  it('a joined "\'s" is "is" before what starts a value, and a possessive before a noun', () => {
+    fact("My bike's a Corvane", 'my bike', 'a Corvane', 'my-x-is-y');
+    fact("My bike’s in the shop", 'my bike', 'in the shop', 'my-x-is-y');
+    fact("My mum's still a nurse", 'my mum', 'still a nurse', 'my-x-is-y');
+    fact("My bike's saddle is torn", "my bike's saddle", 'torn', 'my-x-is-y');
   });
 
   it('one key for the common personal topics, whatever words name them', () => {
@@ -346,6 +354,11 @@ describe('RuleExtractor rules: likings, possessions, other people, bookings', ()
     fact('I have a Vanner called Bess', 'my vanner', 'Vanner called Bess', 'have', { accumulate: true });
     fact('I have a bike and a trailer', 'my bike', 'bike and a trailer', 'have', { accumulate: true });
     fact('I own an e-bike, but rarely ride', 'my e-bike', 'e-bike, but rarely ride', 'have', { accumulate: true });
+  });
+
+  it('a clause after the noun ("a cat that I love") or a second number ("42 (or 43)") does not become the key', () => {
+    fact('I have a cat that I love', 'my cat', 'cat that I love', 'have', { accumulate: true });
+    fact('I ride the 42 (or 43)', 'what I ride: my 42', '42 (or 43)', 'have', { accumulate: true });
   });
 
   it('a possession whose noun is left out ("I have two in the shop") keeps the sentence, not a key guessed from later words', () => {
