@@ -48,3 +48,14 @@ describe('rankTiers: an ambiguous update lifted again as a successor', () => {
     expect(r.items.map((x) => [x.id, x.placed])).toEqual([['B', 'ambiguous'], ['A', 'successor'], ['F', 'score'], ['G', 'score']]);
   });
 });
+
+describe('rankTiers: word counts cached per revision id', () => {
+  // A revision id seen again with another key or value (another store, a test) is counted afresh.
+  it('counts the words of a slot again when its key or its value is not the one counted', () => {
+    const ids = (slots: SlotCandidate[]) => rankTiers(slots, result([]), P).items.map((x) => x.id);
+    expect(ids([slot('rev-1', 'my exam', 'on the 14th')])).toEqual(['rev-1']);
+    expect(ids([slot('rev-1', 'my bike', 'on the 14th')])).toEqual([]);
+    expect(ids([slot('rev-1', 'my bike', 'an exam bike')])).toEqual(['rev-1']);
+    expect(ids([slot('rev-1', 'my bike', 'a red Corvane')])).toEqual([]);
+  });
+});
