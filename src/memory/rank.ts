@@ -102,19 +102,20 @@ export interface RankResult {
 // re-count every slot's words. The text is kept beside them and checked: an id seen again with other
 // text (another store, a test) is counted afresh. Erasure drops them all (`forgetSlotTerms`).
 interface SlotTerms {
-  text: string;
+  keyText: string;
+  value: string;
   len: number;
   tf: Map<string, number>;
 }
 const slotTerms = new Map<string, SlotTerms>();
 function termsOf(c: SlotCandidate): SlotTerms {
-  const text = c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value;
   let t = slotTerms.get(c.id);
-  if (!t || t.text !== text) {
-    const terms = analyze(text);
+  // Compared field by field: joining them first would build a string per slot per read.
+  if (!t || t.keyText !== c.keyText || t.value !== c.value) {
+    const terms = analyze(c.keyText && c.keyText !== c.value ? `${c.keyText} ${c.value}` : c.value);
     const tf = new Map<string, number>();
     for (const w of terms) tf.set(w, (tf.get(w) ?? 0) + 1);
-    t = { text, len: terms.length, tf };
+    t = { keyText: c.keyText, value: c.value, len: terms.length, tf };
     if (slotTerms.size >= 20_000) slotTerms.clear();
     slotTerms.set(c.id, t);
   }

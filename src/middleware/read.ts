@@ -92,13 +92,14 @@ export class ReadPath {
       }
       for (let i = 0; i < table.capacity; i++) {
         if (!table.isUsed(i)) continue;
+        // Optional fields last: fields written after a spread take a slow path in V8 (test/bench/turn-path-literals.test.ts).
         slots.push({
           slot: i, id: table.ids[i]!, keyText: table.keyText[i]!, value: table.value[i]!, provenance: table.provenance[i]!,
-          ...(table.owner[i] ? { owner: table.owner[i]! } : {}),
-          ...(table.subject[i] ? { subject: table.subject[i]! } : {}),
           // The attention's strength is this one unless it was clamped at 1e-9.
           strength: att.strength[i]! > 1e-9 ? att.strength[i]! : table.isPinned(i) ? table.strength[i]! : decayed(table.strength[i]!, table.stamp[i]!, table.halfLife[i]!, now),
           cosine: att.cosine[i]!, weight: att.weight[i]!, updatedMs: table.updatedMs[i]!, age: Math.max(0, now - table.stamp[i]!),
+          ...(table.owner[i] ? { owner: table.owner[i]! } : {}),
+          ...(table.subject[i] ? { subject: table.subject[i]! } : {}),
           ...(table.maybeReplaces[i] ? { maybeReplaces: table.maybeReplaces[i]! } : {}),
         });
       }
@@ -126,9 +127,10 @@ export class ReadPath {
       temporal: analysed.temporal,
       dense: core.dense,
       items: ranked.items.map((x, n) => ({
-        source: x.source, kind: items[n]!.kind, ...(x.slot ? { slot: x.slot.slot } : {}), id: x.id, cosine: x.cosine, lexical: x.lexical,
+        source: x.source, kind: items[n]!.kind, id: x.id, cosine: x.cosine, lexical: x.lexical,
         coverage: x.coverage, strength: items[n]!.strength, weight: items[n]!.weight, score: x.score, placed: x.placed,
         provenance: items[n]!.provenance, context: x.context, lexicalRank: x.lexicalRank, denseRank: x.denseRank, speakerMatch: x.speakerMatch,
+        ...(x.slot ? { slot: x.slot.slot } : {}),
       })),
       durationUs: usSince(t0),
       searchUs,
@@ -149,25 +151,23 @@ export class ReadPath {
 
   private itemOf(x: RankedItem, total: number): RecallItem {
     const weight = Math.max(0, x.score) / total;
-    const common = {
-      weight, score: x.score, cosine: x.cosine, lexical: x.lexical, coverage: x.coverage, placed: x.placed,
-    };
+    // Optional fields last: fields written after a spread take a slow path in V8 (test/bench/turn-path-literals.test.ts).
     if (x.slot) {
       const s = x.slot;
       // What the value's relative dates meant when it was said (only for the items returned).
       const dates = s.updatedMs !== undefined ? resolveDates(s.value, s.updatedMs).map(({ text, day, grain }) => ({ text, day, grain })) : [];
       return {
         source: 'slot', kind: 'slot', slot: s.slot, id: s.id, key: s.keyText, value: s.value, provenance: s.provenance.slice(),
-        ...(s.owner ? { speaker: s.owner } : {}), strength: s.strength, ...common,
-        ...(dates.length > 0 ? { dates } : {}), ...(s.maybeReplaces ? { maybeReplaces: [...s.maybeReplaces] } : {}),
+        strength: s.strength, weight, score: x.score, cosine: x.cosine, lexical: x.lexical, coverage: x.coverage, placed: x.placed,
+        ...(s.owner ? { speaker: s.owner } : {}), ...(dates.length > 0 ? { dates } : {}), ...(s.maybeReplaces ? { maybeReplaces: [...s.maybeReplaces] } : {}),
       };
     }
     const e = x.entry!;
     return {
       source: 'logbook', kind: e.kind, id: e.id, key: e.keyText, value: e.value, provenance: e.provenance.slice(),
+      strength: e.strength ?? 0, weight, score: x.score, cosine: x.cosine, lexical: x.lexical, coverage: x.coverage, placed: x.placed,
       ...(e.speaker ?? e.owner ? { speaker: (e.speaker ?? e.owner)! } : {}), ...(e.role ? { role: e.role } : {}),
       ...(e.kind === 'turn' ? { atMs: e.atMs } : {}), ...(e.dates && e.dates.length > 0 ? { dates: e.dates.map((d) => ({ ...d })) } : {}),
-      strength: e.strength ?? 0, ...common,
       ...(e.successor ? { successor: e.successor } : {}), ...(e.kind !== 'turn' ? { reason: e.kind } : {}),
     };
   }

@@ -26,25 +26,16 @@ describe('ids', () => {
   });
 });
 
-/** An in-process store whose named step throws a plain error. */
+/** An in-process store whose named steps throw a plain error. */
 class FailingStore extends InProcessStore {
   fail = new Set<'load' | 'listLogbook' | 'readEvents' | 'commit'>();
-  override async load(...a: Parameters<InProcessStore['load']>) {
-    if (this.fail.has('load')) throw new Error('disk gone');
-    return super.load(...a);
+  private check(step: 'load' | 'listLogbook' | 'readEvents' | 'commit'): void {
+    if (this.fail.has(step)) throw new Error('disk gone');
   }
-  override async listLogbook(...a: Parameters<InProcessStore['listLogbook']>) {
-    if (this.fail.has('listLogbook')) throw new Error('disk gone');
-    return super.listLogbook(...a);
-  }
-  override async readEvents(...a: Parameters<InProcessStore['readEvents']>) {
-    if (this.fail.has('readEvents')) throw new Error('disk gone');
-    return super.readEvents(...a);
-  }
-  override async commit(...a: Parameters<InProcessStore['commit']>) {
-    if (this.fail.has('commit')) throw new Error('disk gone');
-    return super.commit(...a);
-  }
+  override async load(...a: Parameters<InProcessStore['load']>) { this.check('load'); return super.load(...a); }
+  override async listLogbook(...a: Parameters<InProcessStore['listLogbook']>) { this.check('listLogbook'); return super.listLogbook(...a); }
+  override async readEvents(...a: Parameters<InProcessStore['readEvents']>) { this.check('readEvents'); return super.readEvents(...a); }
+  override async commit(...a: Parameters<InProcessStore['commit']>) { this.check('commit'); return super.commit(...a); }
 }
 
 describe('store failures', () => {
