@@ -120,6 +120,10 @@ describe('RuleExtractor rules: names and contact details', () => {
     // What they want, and beside it what they do not, never run together ("email phone").
     fact('Please email me rather than phone!', 'how I want to be contacted', 'email (not phone)', 'contact', { revises: true });
     fact('please ring instead of texting', 'how I want to be contacted', 'ring (not texting)', 'contact', { revises: true });
+    // Only the closing run of punctuation goes, all of it.
+    fact("I'd rather you text me!!", 'how I want to be contacted', 'text me', 'contact', { revises: true });
+    fact('Please email me rather than phone!!', 'how I want to be contacted', 'email (not phone)', 'contact', { revises: true });
+    expect(all('Please email me rather than phone, e.g. at work')[0]!.value).toBe('email (not phone, e.g)');
   });
 });
 
