@@ -2,7 +2,7 @@
 // The overall mutation score of src/ and adapters/ estimated from a seeded random sample of the code.
 // A whole run is about 15,000 mutants, many hours on 2 cores; a sample of a few hundred places in the
 // code gives the score within a few points in under an hour. Usage:
-//   npm run mutate:sample -- [--size N] [--seed S] [--plan]
+//   npm run mutate:sample -- [--size N] [--seed S] [--plan]      (runs under tsx: it shares bench/'s seeded generator)
 //
 //   1. List every mutant the way Stryker's own instrumenter does, over the files stryker.config.mjs
 //      mutates, and group them by the syntax node they change (one node can carry several mutants:
@@ -29,6 +29,7 @@ import { createHash } from 'node:crypto';
 import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { parseArgs } from 'node:util';
+import { rng } from '../bench/lib/stats.ts';
 import config from '../stryker.config.mjs';
 
 const { values: args } = parseArgs({
@@ -62,18 +63,6 @@ async function allMutants(files) {
     plugins: null, excludedMutations: [], ignorers: [], noHeader: true,
   });
   return mutants;
-}
-
-/** mulberry32: a small seeded generator; the draw only needs to be repeatable, not strong. */
-function generator(s) {
-  let a = s >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
 }
 
 /** Partial Fisher–Yates: the first n of a uniform shuffle. */
@@ -152,7 +141,7 @@ for (const m of mutants) {
   if (!nodes.has(k)) nodes.set(k, { fileName: m.fileName, location: m.location, mutants: [] });
   nodes.get(k).mutants.push(m);
 }
-const drawn = draw([...nodes.values()], size, generator(seed));
+const drawn = draw([...nodes.values()], size, rng(seed));
 // What the run tests: mutants inside a drawn range whose node is, or holds, a drawn mutant's node.
 const tested = mutants.filter((m) => {
   const same = drawn.filter((d) => d.fileName === m.fileName);
