@@ -1,4 +1,3 @@
-#!/usr/bin/env node
 // The overall mutation score of src/ and adapters/ estimated from a seeded random sample of the code.
 // A whole run is about 15,000 mutants, many hours on 2 cores; a sample of a few hundred places in the
 // code gives the score within a few points in under an hour. Usage:
@@ -7,11 +6,12 @@
 //   1. List every mutant the way Stryker's own instrumenter does, over the files stryker.config.mjs
 //      mutates, and group them by the syntax node they change (one node can carry several mutants:
 //      `a < b` gives `a <= b`, `a >= b`, `true` and `false`).
-//   2. Draw --size nodes uniformly without replacement (seeded, so a rerun draws the same set).
+//   2. Draw --size nodes uniformly without replacement (seeded: on the same code a rerun draws the
+//      same set; an edit to a mutated file shifts it).
 //   3. Run Stryker once per room (src/memory, adapters/redis, ...) on one range per drawn node
-//      (file:line:col-line:col), against that room's own tests (ROOM_TESTS below): the whole suite per
-//      mutant is hours even for a sample, and the per-room score is a lower bound (a mutant only another
-//      room's tests would kill counts as not detected). The ignorer in mutate-sample-ignorer.mjs skips
+//      (file:line:col-line:col), against the suites that exercise that room (ROOM_TESTS below): the
+//      whole suite per mutant is hours even for a sample, so the score is a lower bound (a mutant only
+//      the suites left out would kill counts as not detected). The ignorer in mutate-sample-ignorer.mjs skips
 //      the nodes nested in a range that hold no drawn node; mutants that still run outside the drawn
 //      nodes are not counted. Rooms with no tests here (see ROOM_TESTS) are not run: their drawn
 //      mutants count as not detected.
@@ -76,8 +76,10 @@ function draw(items, n, random) {
   return pool.slice(0, k);
 }
 
-const keyOf = (fileName, m) =>
-  `${fileName}|${m.location.start.line}:${m.location.start.column}-${m.location.end.line}:${m.location.end.column}|${m.mutatorName}|${m.replacement}`;
+/** A syntax node: its file and span (positions from 0, as the instrumenter gives them). */
+const nodeKey = (fileName, { start, end }) => `${fileName}|${start.line}:${start.column}-${end.line}:${end.column}`;
+/** One mutant of a node. */
+const keyOf = (fileName, location, m) => `${nodeKey(fileName, location)}|${m.mutatorName}|${m.replacement}`;
 
 // Stryker's ranges: lines from 1, columns from 0; the instrumenter's locations: both from 0.
 const rangeOf = (m) =>
@@ -134,18 +136,19 @@ const files = mutatedFiles();
 const digest = (f) => createHash('sha256').update(readFileSync(f)).digest('hex');
 const drawnFrom = new Map(files.map((f) => [f, digest(f)]));
 const mutants = await allMutants(files);
-const nodeKey = (m) => `${m.fileName}|${m.location.start.line}:${m.location.start.column}-${m.location.end.line}:${m.location.end.column}`;
 const nodes = new Map();
 for (const m of mutants) {
-  const k = nodeKey(m);
+  const k = nodeKey(m.fileName, m.location);
   if (!nodes.has(k)) nodes.set(k, { fileName: m.fileName, location: m.location, mutants: [] });
   nodes.get(k).mutants.push(m);
 }
 const drawn = draw([...nodes.values()], size, rng(seed));
-// What the run tests: mutants inside a drawn range whose node is, or holds, a drawn mutant's node.
+// What the run tests: mutants inside a drawn range whose node is, or holds, a drawn node.
+const drawnIn = new Map();
+for (const d of drawn) drawnIn.set(d.fileName, [...(drawnIn.get(d.fileName) ?? []), d.location]);
 const tested = mutants.filter((m) => {
-  const same = drawn.filter((d) => d.fileName === m.fileName);
-  return same.some((d) => inside(d.location, m.location)) && same.some((d) => inside(m.location, d.location));
+  const here = drawnIn.get(m.fileName) ?? [];
+  return here.some((d) => inside(d, m.location)) && here.some((d) => inside(m.location, d));
 });
 const counted = drawn.reduce((a, d) => a + d.mutants.length, 0);
 console.log(`${mutants.length} mutants on ${nodes.size} nodes in ${files.length} files; drew ${drawn.length} nodes (seed ${seed}) carrying ${counted} mutants; the run tests about ${tested.length}`);
@@ -199,12 +202,12 @@ for (const [room, nodes] of [...byRoom].sort()) {
     for (const m of file.mutants) {
       const { start, end } = m.location;
       const location = { start: { line: start.line - 1, column: start.column - 1 }, end: { line: end.line - 1, column: end.column - 1 } };
-      status.set(keyOf(fileName, { ...m, location }), m.status);
+      status.set(keyOf(fileName, location, m), m.status);
     }
   }
 }
 // A room with no tests of its own: its drawn mutants are not detected.
-for (const [room, nodes] of byRoom) if (!ROOM_TESTS[room]) for (const node of nodes) for (const m of node.mutants) status.set(keyOf(m.fileName, m), 'NoCoverage');
+for (const [room, nodes] of byRoom) if (!ROOM_TESTS[room]) for (const node of nodes) for (const m of node.mutants) status.set(keyOf(m.fileName, m.location, m), 'NoCoverage');
 
 const DETECTED = new Set(['Killed', 'Timeout']);
 const UNDETECTED = new Set(['Survived', 'NoCoverage']);
@@ -214,7 +217,7 @@ let missing = 0;
 for (const node of drawn) {
   const cluster = { detected: 0, total: 0 };
   for (const m of node.mutants) {
-    const s = status.get(keyOf(m.fileName, m));
+    const s = status.get(keyOf(m.fileName, m.location, m));
     if (s === undefined) { missing++; continue; }
     if (!DETECTED.has(s) && !UNDETECTED.has(s)) continue;
     cluster.total++;

@@ -230,7 +230,7 @@ const RULES: Rule[] = [
     build: (m) => {
       // "I have two in the shop": the noun is left out, and a key made from later words ("my shop")
       // would be a guess. No candidate; the turn itself stays in the logbook.
-      if (PHRASE_STOP.test(m[2]!.trim().split(/\s+/)[0]!)) return null;
+      if (PHRASE_STOP.test(m[2]!.split(/\s/, 1)[0]!)) return null;
       const verb = m[1]!.toLowerCase();
       const noun = headOf(m[2]!) || lastNoun(m[2]!);
       return { key: verb === 'have' || verb === 'got' || verb === 'own' || verb === 'bought' ? `my ${noun}` : `what I ${verb}: my ${noun}`, value: m[2]!, accumulate: true };
