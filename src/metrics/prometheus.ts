@@ -143,6 +143,16 @@ const EVICT_REASONS: readonly EvictReason[] = ['capacity', 'decayed', 'expired',
 const DEMOTE_REASONS: readonly string[] = ['superseded', 'capacity', 'decayed', 'expired'];
 const KNOWN_CODES: ReadonlySet<string> = new Set(Object.values(ErrorCodes));
 
+/**
+ * Leaves an unlabelled gauge out of the exposition until it is set again: unknown, not zero. prom-client's
+ * `reset()` puts such a gauge back to 0 (lib/gauge.js), which would read as "no sessions" while the store
+ * is down; an empty series map is what a labelled gauge has before its first value.
+ */
+function unset(gauge: PromClient.Gauge): void {
+  gauge.reset();
+  (gauge as unknown as { hashMap: Record<string, unknown> }).hashMap = {};
+}
+
 /** Label values come only from closed sets, so the number of series never depends on traffic. */
 function codeLabel(code: unknown): string {
   return typeof code === 'string' && KNOWN_CODES.has(code) ? code : 'other';
@@ -309,7 +319,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
         async collect() {
           await refresh();
           if (figures) this.set(pick(figures));
-          else this.reset();
+          else unset(this);
         },
       }) as unknown as { name: string };
     all.push(figure('store_sessions', 'Sessions of this tenant holding state in the store (the store\'s own count: the same from every process, aggregate with max()).', (f) => f.sessions));
@@ -360,7 +370,7 @@ export async function prometheusMetrics(tm: MetricsSource, options: PrometheusMe
         await resample();
         const b = sampled?.bytes ?? [];
         if (b.length > 0) this.set(b.reduce((x, y) => x + y, 0) / b.length);
-        else this.reset();
+        else unset(this);
       },
     }) as unknown as { name: string });
     all.push(new client.Gauge({
