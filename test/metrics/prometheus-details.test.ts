@@ -217,7 +217,7 @@ describe('prometheusMetrics: turns, errors, outbox, sessions', () => {
     store.failLoad = true;
     await tm.read({ session: 'w1', text: 'When is my bike ready?' });
     // A handler that throws something that is not a tidemark error.
-    const reply = tm.wrap(async () => {
+    const reply = tm.wrap(async (): Promise<string> => {
       throw new Error('bot crashed');
     });
     await expect(async () => {
