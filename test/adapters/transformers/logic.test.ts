@@ -79,11 +79,9 @@ const fake = vi.hoisted(() => {
       get env() {
         return state.envs[name];
       },
-      default: {
-        pipeline,
-        get env() {
-          return state.envs[name];
-        },
+      // Only a package of the 'default' kind has a default export.
+      get default() {
+        return state.modes[name] === 'default' ? { pipeline, env: state.envs[name] } : undefined;
       },
     };
   };
@@ -282,6 +280,8 @@ beforeAll(() => {
   modelFolder(models, 'wide', { hiddenSize: 3, weights: ['model_quantized.onnx'] });
   modelFolder(cacheDir, 'cached-only', { hiddenSize: 2, weights: ['model_quantized.onnx'] });
   modelFolder(join(dir, 'other-cache'), 'cached-only', { hiddenSize: 2 });
+  modelFolder(models, 'no-config', { weights: ['model_quantized.onnx'] });
+  modelFolder(cacheDir, 'no-config', { weights: ['model_quantized.onnx'] });
 });
 
 afterAll(() => {
@@ -882,6 +882,7 @@ describe('cache', () => {
     expect(got[1]).toBe(stored);
     expectRows([got[0]!, got[2]!], [INNER_TUBE, CHAIN_OIL]);
     expect(current.batches).toEqual([['chain oil', 'inner tube']]);
+    expect(cache.stats()).toEqual({ hits: 1, misses: 2, size: 3 });
     expect(cache.get(key(e, 'inner tube'))).toBe(got[0]);
     expect(cache.get(key(e, 'chain oil'))).toBe(got[2]);
     expect(e.stats()).toEqual({ modelCalls: 1, textsEmbedded: 2, library: '@xenova/transformers' });
@@ -1016,6 +1017,9 @@ describe('loading', () => {
     expect(notQ8.message).toBe(
       `model ${noWeights} in ${noWeights} has no onnx/model.onnx and remote download is off; add that file or set quantized: true to use onnx/model_quantized.onnx`,
     );
+    // A folder (here and in the cache) with weights but no config.json is not a model folder.
+    const noConfig = await rejection(transformersEmbedder({ model: 'no-config', localModelPath: models, cacheDir }).embed(['bell']));
+    expect(noConfig.message.startsWith(`model no-config not found in ${models} and remote download is off;`)).toBe(true);
     // The right weights file is enough.
     expectRows(await transformersEmbedder({ model: 'fp32-only', localModelPath: models, quantized: false }).embed(['bell']), [BELL]);
     expect(fake.state.calls.length).toBe(1);
@@ -1029,6 +1033,9 @@ describe('loading', () => {
     const other = join(dir, 'other-cache');
     const err = await rejection(transformersEmbedder({ model: 'cached-only', localModelPath: models, cacheDir: other }).embed(['bell']));
     expect(err.message.startsWith(`model cached-only in ${join(other, 'cached-only')} has no onnx/model_quantized.onnx`)).toBe(true);
+    // A cache that lacks the model does not stand in for it.
+    const absent = await rejection(transformersEmbedder({ model: 'workshop-2', localModelPath: models, cacheDir }).embed(['bell']));
+    expect(absent.message.startsWith(`model workshop-2 not found in ${models} and remote download is off;`)).toBe(true);
     expect(fake.state.calls.map((c) => c.model)).toEqual(['cached-only', 'cached-only']);
   });
 
@@ -1071,6 +1078,23 @@ describe('close', () => {
     expect(err.message).toBe(`transformers embedder ${folder} is closed; create a new one`);
     expect(current.disposed).toBe(1);
     expect(current.batches).toEqual([]);
+  });
+
+  it('rejects the waiting call when a pipeline without dispose finishes loading after close()', async () => {
+    const gate = deferred();
+    const bare = async (texts: string[]): Promise<LibTensor> => ({ dims: [texts.length, 2], data: new Float32Array([3, 4]) });
+    fake.state.load = async () => {
+      await gate.promise;
+      return bare;
+    };
+    const e = transformersEmbedder({ model: folder });
+    const waiting = rejection(e.embed(['bell']));
+    await until(() => fake.state.calls.length === 1);
+    const closing = e.close();
+    gate.resolve();
+    await closing;
+    const err = await waiting;
+    expect(err.message).toBe(`transformers embedder ${folder} is closed; create a new one`);
   });
 
   it('closes cleanly while a load is failing, and with nothing loaded or a pipeline without dispose', async () => {
