@@ -110,9 +110,9 @@ const roomOf = (file) => (file.split('/').length > 2 ? file.split('/').slice(0, 
  * exclusions): its own, and those of the rooms that drive it (the middleware drives the store, the
  * logbook and the metrics; the HTTP adapter serves the dashboard). Left out everywhere: the Redis
  * Cluster, multi-process proof and race suites, which start servers or processes for every mutant.
- * adapters/transformers has none: its tests load onnxruntime's native module, which cannot load in the
- * worker threads Stryker's vitest runner uses ("Module did not self-register"), so vitest.mutate.config.ts
- * leaves them out and its mutants count as not detected.
+ * adapters/transformers runs only logic.test.ts, its tests against a stand-in library: the real-model
+ * suites load onnxruntime's native module, which cannot load in the worker threads Stryker's vitest
+ * runner uses ("Module did not self-register"), so vitest.mutate.config.ts leaves them out.
  */
 const T = (...rooms) => rooms.map((r) => (r.endsWith('.ts') ? r : `test/${r}/**/*.test.ts`)).join(',');
 const REDIS_LIGHT = ['redis', 'codec', 'codec-seal', 'auto-pipeline', 'lifecycle', 'ready', 'seal-idle'].map((f) => `test/adapters/redis/${f}.test.ts`);
@@ -128,6 +128,7 @@ const ROOM_TESTS = {
   'src (top level)': T('test/*.test.ts', 'middleware'),
   'adapters/http': T('adapters/http', 'dashboard', 'metrics'),
   'adapters/redis': T(...REDIS_LIGHT, 'store'),
+  'adapters/transformers': T('test/adapters/transformers/logic.test.ts'),
 };
 
 const pct = (x) => `${(100 * x).toFixed(1)} %`;
