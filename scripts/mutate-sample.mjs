@@ -115,7 +115,7 @@ const roomOf = (file) => (file.split('/').length > 2 ? file.split('/').slice(0, 
  * runner uses ("Module did not self-register"), so vitest.mutate.config.ts leaves them out.
  */
 const T = (...rooms) => rooms.map((r) => (r.endsWith('.ts') ? r : `test/${r}/**/*.test.ts`)).join(',');
-const REDIS_LIGHT = ['redis', 'codec', 'codec-seal', 'auto-pipeline', 'lifecycle', 'ready', 'seal-idle'].map((f) => `test/adapters/redis/${f}.test.ts`);
+const REDIS_LIGHT = ['redis', 'codec', 'codec-seal', 'codec-fields', 'codec-crc', 'auto-pipeline', 'lifecycle', 'ready', 'seal-idle'].map((f) => `test/adapters/redis/${f}.test.ts`);
 const ROOM_TESTS = {
   'src/memory': T('memory'),
   'src/middleware': T('middleware', 'metrics', 'store', 'adapters/http'),
