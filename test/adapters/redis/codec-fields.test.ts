@@ -184,6 +184,51 @@ describe('slot records', () => {
     expect(decodeSlot(payload, 'test')).toEqual({ ...rec, key: encodeSlot(rec, 'int8').key });
   });
 
+  it('refuses a sparse key whose index runs past the vector or repeats, and an unknown key format', () => {
+    // Two non-zero components (at 3 and 10 of 48): written sparse, so the payload ends with
+    // dim(48) format(2) scale(f32) count(2) delta(3) q delta(7) q.
+    const key = new Float32Array(DIM);
+    key[3] = 0.6;
+    key[10] = -0.8;
+    const { payload, key: kept } = encodeSlot({ ...BASE_SLOT, key }, 'int8');
+    const n = payload.length;
+    expect([...payload.subarray(n - 10, n - 9)]).toEqual([2]);
+    expect([payload[n - 5], payload[n - 4], payload[n - 2]]).toEqual([2, 3, 7]);
+    const edited = (at: number, byte: number): Buffer => {
+      const out = Buffer.from(payload);
+      out[at] = byte;
+      out.writeUInt32LE(crc32(out.subarray(6)), 2);
+      return out;
+    };
+    const reason = (buf: Buffer): string | undefined => {
+      try {
+        decodeSlot(buf, 'test');
+        return undefined;
+      } catch (e) {
+        return (e as { details?: { reason?: string } }).details?.reason;
+      }
+    };
+    expect(reason(payload)).toBeUndefined();
+    // The second index moved to the last component (3 + 44 = 47) is still a key; one further is not.
+    const last = decodeSlot(edited(n - 2, 44), 'test').key;
+    expect(last[47]).toBeCloseTo(kept[10]!, 6);
+    expect(last[10]).toBe(0);
+    expect(reason(edited(n - 2, 45))).toMatch(/bad sparse key/);
+    // A repeated index (delta 0) is damage, not a second value for the same component.
+    expect(reason(edited(n - 2, 0))).toMatch(/bad sparse key/);
+    // The first index may be 0.
+    expect(decodeSlot(edited(n - 4, 0), 'test').key[0]).toBeCloseTo(kept[3]!, 6);
+    expect(reason(edited(n - 10, 9))).toMatch(/unknown key format 9/);
+    // A key of one component: its only index at 48, one past the end, is damage too.
+    const one = new Float32Array(DIM);
+    one[3] = 1;
+    const single = Buffer.from(encodeSlot({ ...BASE_SLOT, key: one }, 'int8').payload);
+    expect([single[single.length - 3], single[single.length - 2]]).toEqual([1, 3]);
+    single[single.length - 2] = 48;
+    single.writeUInt32LE(crc32(single.subarray(6)), 2);
+    expect(reason(single)).toMatch(/bad sparse key/);
+  });
+
   it('reads a slot written by 0.1 (format 1), which had no owner, subject, reply or links', () => {
     const rec: SlotRecord = { ...BASE_SLOT, key: stored(new Float32Array(DIM).fill(1 / Math.sqrt(DIM)), 'float32'), previous: 'r0', pinned: true };
     const { payload } = encodeSlot(rec, 'float32');
