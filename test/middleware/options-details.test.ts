@@ -175,7 +175,8 @@ describe('validateTurn', () => {
     for (const bad of [-1, NOW + MAX_AT_AHEAD_MS + 1]) {
       expect(field({ session: 's', text: 'Hi', at: bad })).toMatchObject({ field: 'at', message: expect.stringMatching(/^at must be a time from 1970 up to one day ahead of now/) });
     }
-    for (const bad of ['next Tuesday', true, {}, Number.NaN]) {
+    // An object that prints as a date is still not one, and a symbol is refused like any other value.
+    for (const bad of ['next Tuesday', true, {}, Number.NaN, { toString: () => '2026-03-01T10:00:00Z' }, Symbol('at')]) {
       expect(field({ session: 's', text: 'Hi', at: bad })).toMatchObject({ code: ErrorCodes.INPUT_FIELD, field: 'at', message: expect.stringMatching(/^at must be an ISO-8601 string, epoch ms or Date, got/) });
     }
   });
