@@ -12,6 +12,7 @@ import { createParser, type EventSourceMessage } from 'eventsource-parser';
 import { createHttpAdapter, HttpError, type ChatHandler, type HttpAdapter, type HttpAdapterOptions } from '../../../adapters/http/index.js';
 import { ErrorCodes, InputError, TidemarkError } from '../../../src/errors.js';
 import { DashboardCollector } from '../../../src/metrics/collector.js';
+import { StoreHealth } from '../../../src/metrics/health.js';
 import { createTidemark, type Tidemark } from '../../../src/middleware/tidemark.js';
 import { InProcessStore } from '../../../src/store/in-process.js';
 
@@ -224,6 +225,14 @@ describe('each route: status, content type, caching', () => {
     }
   });
 
+  it('HEAD through the Fetch front-end: headers, no body', async () => {
+    const { a } = adapterOf();
+    for (const path of ['/healthz', '/sessions/fern-1', '/dashboard/data']) {
+      const res = await a.fetch(new Request(`http://h${path}`, { method: 'HEAD' }), LOCAL);
+      expect({ path, status: res.status, type: res.headers.get('content-type'), body: res.body }).toEqual({ path, status: 200, type: JSON_TYPE, body: null });
+    }
+  });
+
   it('/sessions/:id: a bad or undecodable id is a 400 INPUT_ID; ?user= scopes the view', async () => {
     const { url, tm } = await served();
     for (const id of ['a%20b', '%E0%A4%A', '', 'x'.repeat(129)]) {
@@ -233,11 +242,15 @@ describe('each route: status, content type, caching', () => {
     }
     await tm.write({ session: 'pots-1', user: 'ilse', text: 'I prefer terracotta pots.' });
     await tm.write({ session: 'pots-1', user: 'ilse', text: 'My soil is heavy clay.' });
+    // An id that does not decode is judged as sent.
+    expect((await errorOf(await fetch(`${url}/sessions/%E0%A4%A`))).message).toMatch(/, got "%E0%A4%A"$/);
     const scoped = (await (await fetch(`${url}/sessions/pots-1?user=ilse`)).json()) as { logbook: unknown[] };
+    const empty = (await (await fetch(`${url}/sessions/pots-1?user=`)).json()) as { logbook: unknown[] };
     const unscoped = (await (await fetch(`${url}/sessions/pots-1`)).json()) as { logbook: unknown[] };
     const bad = await errorOf(await fetch(`${url}/sessions/pots-1?user=a%20b`));
     expect(bad.code).toBe('TIDEMARK_E_INPUT_ID');
     expect(scoped.logbook.length).not.toBe(unscoped.logbook.length);
+    expect(empty.logbook.length).toBe(unscoped.logbook.length);
   });
 
   it('/sessions/:id answers 503 with the store code when the store fails', async () => {
@@ -791,6 +804,24 @@ describe('the Node front-end', () => {
   });
 });
 
+describe('the Node front-end sends the stream headers before the first chunk', () => {
+  it('a client sees 200 and the event-stream type while the bot is still thinking', async () => {
+    let release!: () => void;
+    const thinking = new Promise<void>((r) => (release = r));
+    const { url } = await served({
+      memoryEvent: 'none',
+      handler: () => (async function* () {
+        await thinking;
+        yield 'Your ferns ship Friday.';
+      })(),
+    });
+    const res = await postJson(`${url}/chat`, { session: 'c9', text: 'hello' });
+    expect([res.status, res.headers.get('content-type')]).toEqual([200, 'text/event-stream; charset=utf-8']);
+    release();
+    expect(events(await res.text()).map((e) => e.data)[0]).toBe('Your ferns ship Friday.');
+  });
+});
+
 describe('errors to a client', () => {
   it('an error that is not a tidemark error is a 500 with no detail', async () => {
     const { a } = adapterOf({ metrics: { contentType: 'text/plain', registry: {} as never, metrics: async () => { throw new Error('registry at /srv/x broke'); }, recordTurn: () => undefined, stop: () => undefined } });
@@ -801,5 +832,70 @@ describe('errors to a client', () => {
     const { a } = adapterOf({ metrics: { contentType: 'text/plain', registry: {} as never, metrics: async () => { throw new TidemarkError(ErrorCodes.STORE_UNAVAILABLE, 'store redis failed (stats)'); }, recordTurn: () => undefined, stop: () => undefined } });
     const e = await errorOf(await a.fetch(new Request('http://h/metrics'), LOCAL));
     expect([e.status, e.code, e.message]).toEqual([503, 'TIDEMARK_E_STORE_UNAVAILABLE', 'store redis failed (stats)']);
+  });
+});
+
+describe('store recovery', () => {
+  it('a health given by the caller is not started by the adapter', async () => {
+    const tm = createTidemark();
+    const health = new StoreHealth(tm.store);
+    const { a } = adapterOf({ tidemark: tm, health });
+    const res = await a.fetch(new Request('http://h/readyz'));
+    expect(res.status).toBe(503);
+    expect(((await res.json()) as { reason: string }).reason).toBe('store memory has not answered yet');
+    a.close();
+    expect(health.state.up).toBe(null);
+  });
+
+  it('close() stops its own collector counting', async () => {
+    const tm = createTidemark();
+    const { a } = adapterOf({ tidemark: tm });
+    await tm.read({ session: 'till-5', text: 'hello' });
+    const reads = (): number => a.core.collector.snapshot().totals.reads.miss;
+    expect(reads()).toBe(1);
+    a.close();
+    await tm.read({ session: 'till-5', text: 'hello again' });
+    expect(reads()).toBe(1);
+  });
+
+  it('when the store answers again, the writes waiting in the outbox are sent at once, not at their next retry', async () => {
+    class FlakyStore extends InProcessStore {
+      down = false;
+      override async commit(...a: Parameters<InProcessStore['commit']>) {
+        if (this.down) throw new Error('connection reset');
+        return super.commit(...a);
+      }
+    }
+    const store = new FlakyStore();
+    const tm = createTidemark({ store });
+    // The health follows this source's events only; its probe timer is never started by a clock here.
+    const source = new (await import('node:events')).EventEmitter();
+    const health = new StoreHealth(store, { intervalMs: 3_600_000 });
+    await health.start(source);
+    const { a } = adapterOf({ tidemark: tm, health });
+    store.down = true;
+    await tm.write({ session: 'till-4', text: 'I ordered three olive trees.' }).catch(() => undefined);
+    expect(tm.outboxDepth).toBe(1);
+    source.emit('degraded', { code: 'TIDEMARK_E_STORE_UNAVAILABLE', stage: 'write' });
+    expect(health.state.up).toBe(false);
+    store.down = false;
+    source.emit('read', {});
+    expect(health.state.up).toBe(true);
+    // The outbox's own retry is seconds away; the drain the recovery starts needs no timer.
+    for (let i = 0; i < 50 && tm.outboxDepth > 0; i++) await new Promise((r) => setImmediate(r));
+    expect(tm.outboxDepth).toBe(0);
+    expect((await tm.inspect('till-4')).turns).toBe(1);
+    // Closed, the adapter leaves the caller's health running and no longer drains on recovery.
+    a.close();
+    source.emit('degraded', { code: 'TIDEMARK_E_STORE_UNAVAILABLE', stage: 'read' });
+    expect(health.state.up).toBe(false);
+    store.down = true;
+    await tm.write({ session: 'till-4', text: 'Make it four olive trees.' }).catch(() => undefined);
+    store.down = false;
+    source.emit('read', {});
+    expect(health.state.up).toBe(true);
+    for (let i = 0; i < 20; i++) await new Promise((r) => setImmediate(r));
+    expect(tm.outboxDepth).toBe(1);
+    health.stop();
   });
 });
