@@ -114,6 +114,7 @@ describe('options refused at construction', () => {
     ['basePath with a trailing slash', { basePath: '/memory/' }, 'basePath', /basePath/],
     ['basePath with a query', { basePath: '/memory?x' }, 'basePath', /basePath/],
     ['basePath with a fragment', { basePath: '/memory#x' }, 'basePath', /basePath/],
+    ['basePath with an inner slash only', { basePath: 'memory/x' }, 'basePath', /basePath/],
     ['basePath not a string', { basePath: 7 }, 'basePath', /got 7$/],
   ])('%s', (_name, options, option, message) => {
     const r = refusal(options);
@@ -422,6 +423,13 @@ describe('CORS', () => {
     await bad.text();
   });
 
+  it('without cors, a request with an Origin gets no CORS header and no Vary', async () => {
+    const { a } = adapterOf();
+    const res = await a.fetch(new Request('http://h/sessions/fern-1', { headers: { origin: 'https://pots.example' } }), LOCAL);
+    expect([res.status, res.headers.get('access-control-allow-origin'), res.headers.get('vary')]).toEqual([200, null, null]);
+    await res.text();
+  });
+
   it('a preflight lists the methods of its route, the headers and the max age', async () => {
     const { a } = adapterOf({ cors: { origin: 'https://pots.example' } });
     const pre = await a.fetch(new Request('http://h/metrics', { method: 'OPTIONS', headers: { origin: 'https://pots.example' } }));
@@ -450,7 +458,7 @@ describe('the /chat body', () => {
     const bare = await fetch(`${url}/chat`, { method: 'POST', body: new TextEncoder().encode(JSON.stringify({ session: 'c1', text: 'hello' })) });
     expect(bare.status).toBe(200);
     await bare.text();
-    for (const type of ['text/plain', 'application/jsonp', 'application/x-json', 'text/json']) {
+    for (const type of ['text/plain', 'application/jsonp', 'application/x-json', 'text/json', 'text/x-application/json']) {
       const e = await errorOf(await postJson(`${url}/chat`, { session: 'c1', text: 'hello' }, { 'content-type': type }));
       expect({ type, status: e.status, code: e.code, message: e.message }).toEqual({ type, status: 415, code: 'TIDEMARK_E_HTTP_BAD_REQUEST', message: `send the body as application/json, got ${JSON.stringify(type)}` });
     }
@@ -491,6 +499,15 @@ describe('the /chat body', () => {
     });
     const e = await errorOf(await a.fetch(new Request('http://h/chat', { method: 'POST', body: over, duplex: 'half' } as RequestInit), LOCAL));
     expect([e.status, e.message]).toEqual([413, 'the body is over the limit of 128 bytes; raise maxBodyBytes or send less']);
+    const exact = new ReadableStream<Uint8Array>({
+      start(c) {
+        c.enqueue(new TextEncoder().encode(`{"session":"c1","text":"ferns"}`.padEnd(128, ' ')));
+        c.close();
+      },
+    });
+    const atLimit = await a.fetch(new Request('http://h/chat', { method: 'POST', body: exact, duplex: 'half' } as RequestInit), LOCAL);
+    expect(atLimit.status).toBe(200);
+    await atLimit.text();
     // Under the limit, a body in several chunks is joined in order.
     const parts = ['{"session":', '"c1","text"', ':"hello ferns"}'];
     const joined = new ReadableStream<Uint8Array>({
@@ -519,14 +536,18 @@ describe('the /chat body', () => {
   });
 
   it('bad ids name the field and are 400 INPUT_ID; a turn over maxTextBytes is a 413', async () => {
-    const { url } = await served({ tidemark: createTidemark({ maxTextBytes: 64 }) });
+    const { url, tm } = await served({ tidemark: createTidemark({ maxTextBytes: 64 }) });
     const user = await errorOf(await postJson(`${url}/chat`, { session: 'c1', user: 7, text: 'hi' }));
     expect([user.status, user.code, user.message]).toEqual([400, 'TIDEMARK_E_INPUT_ID', 'user must be 1-128 characters of letters, digits and . _ : @ -, got 7']);
     const session = await errorOf(await postJson(`${url}/chat`, { session: 'a b', text: 'hi' }));
     expect(session.message).toBe('session must be 1-128 characters of letters, digits and . _ : @ -, got "a b"');
-    const ok = await postJson(`${url}/chat`, { session: 'c1', user: 'ilse', text: 'hi' });
+    const ok = await postJson(`${url}/chat`, { session: 'c1', user: 'ilse', text: 'My soil is heavy clay.' });
     expect(ok.status).toBe(200);
     await ok.text();
+    await tm.flush();
+    // The body's user scopes the turn's logbook entries.
+    expect((await tm.inspect('c1', tm.tenant, { user: 'ilse' })).logbook.length).toBeGreaterThan(0);
+    expect((await tm.inspect('c1')).logbook).toEqual([]);
     const long = await errorOf(await postJson(`${url}/chat`, { session: 'c1', text: 'fern '.repeat(20) }));
     expect([long.status, long.code]).toEqual([413, 'TIDEMARK_E_INPUT_TOO_LARGE']);
   });
@@ -547,6 +568,13 @@ describe('the /chat body', () => {
       const res = await fetch(`${url}/chat`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: '' });
       expect(events(await res.text()).filter((m) => m.event === undefined).map((m) => m.data)).toEqual(['Noted: hello pots']);
     }
+    // An upstream parser that left null (nothing parsed) does not stand for the body: the stream is read.
+    const streamed = await listen((req, res) => {
+      req.body = null;
+      a.middleware(req, res, () => res.end('next'));
+    });
+    const fromStream = await postJson(`${streamed}/chat`, turn);
+    expect(events(await fromStream.text()).filter((m) => m.event === undefined).map((m) => m.data)).toEqual(['Noted: hello pots']);
     bodies.push(Buffer.from(' '.repeat(200)));
     const e = await errorOf(await fetch(`${url}/chat`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: '' }));
     expect([e.status, e.message]).toEqual([413, 'the body is 200 bytes, over the limit of 128; raise maxBodyBytes or send less']);
@@ -721,6 +749,32 @@ describe('the chat stream', () => {
     expect(signal!.aborted).toBe(true);
   });
 
+  it('a Fetch Request whose signal aborts (the server saw the client go) aborts the handler', async () => {
+    let signal: AbortSignal | undefined;
+    const { a } = adapterOf({
+      memoryEvent: 'none',
+      handler: (_i, ctx) => (async function* () {
+        signal = ctx.signal;
+        yield 'Pruning ';
+        await untilAborted(ctx.signal!);
+      })(),
+    });
+    const client = new AbortController();
+    const res = await a.fetch(new Request('http://h/chat', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ session: 'c6', text: 'hello' }), signal: client.signal }), LOCAL);
+    const reader = res.body!.getReader();
+    await reader.read();
+    expect(signal!.aborted).toBe(false);
+    client.abort();
+    expect(signal!.aborted).toBe(true);
+    await reader.cancel();
+  });
+
+  it('with metrics off, a chat turn still streams to the end', async () => {
+    const { a } = adapterOf({ metrics: false, memoryEvent: 'none' });
+    const got = events(await (await a.fetch(chatRequest({ session: 'c7', text: 'hello' }), LOCAL)).text());
+    expect(got.map((e) => e.event ?? 'message')).toEqual(['message', 'done']);
+  });
+
   it('turns are timed for /metrics and the dashboard; revealSessionIds shows raw ids in the busiest table', async () => {
     for (const reveal of [false, true]) {
       const tm = createTidemark();
@@ -756,6 +810,21 @@ describe('the dashboard feed', () => {
     const next = reader.read();
     a.close();
     expect(await next).toEqual({ done: true, value: undefined });
+  });
+
+  it('waits a whole period between snapshots, and a client leaving during the wait ends the feed at once', async () => {
+    const { a } = adapterOf({ feedIntervalMs: 60_000 });
+    const res = await a.fetch(new Request('http://h/dashboard/feed'), LOCAL);
+    const reader = res.body!.getReader();
+    await reader.read();
+    await reader.read();
+    let settled = false;
+    const second = reader.read().then((r) => ((settled = true), r));
+    for (let i = 0; i < 30; i++) await new Promise((r) => setImmediate(r));
+    expect(settled).toBe(false);
+    // The cancel must wake the minute-long wait (the test would time out otherwise).
+    await reader.cancel();
+    expect(await second).toEqual({ done: true, value: undefined });
   });
 
   it('a client going away ends its feed; other feeds go on', async () => {
@@ -832,6 +901,29 @@ describe('errors to a client', () => {
     const { a } = adapterOf({ metrics: { contentType: 'text/plain', registry: {} as never, metrics: async () => { throw new TidemarkError(ErrorCodes.STORE_UNAVAILABLE, 'store redis failed (stats)'); }, recordTurn: () => undefined, stop: () => undefined } });
     const e = await errorOf(await a.fetch(new Request('http://h/metrics'), LOCAL));
     expect([e.status, e.code, e.message]).toEqual([503, 'TIDEMARK_E_STORE_UNAVAILABLE', 'store redis failed (stats)']);
+  });
+});
+
+describe('what the adapter wires together', () => {
+  it('the dashboard shows the store state and the outbox depth; /metrics has tidemark_store_up', async () => {
+    const tm = createTidemark();
+    const { a } = adapterOf({ tidemark: tm, health: undefined, instance: 'till-9' });
+    await a.core.health!.start();
+    const data = (await (await a.fetch(new Request('http://h/dashboard/data'), LOCAL)).json()) as { store?: { up: boolean | null }; fleet?: Array<{ instance: string; outboxDepth: number }> };
+    expect(data.store?.up).toBe(true);
+    expect(data.fleet?.find((f) => f.instance === 'till-9')?.outboxDepth).toBe(0);
+    expect(await (await a.fetch(new Request('http://h/metrics'), LOCAL)).text()).toMatch(/^tidemark_store_up 1$/m);
+  });
+
+  it('close() leaves metrics the caller passed in running, and redirects carry no body', async () => {
+    let stopped = 0;
+    const { a } = adapterOf({ token: TOKEN, metrics: { contentType: 'text/plain', registry: {} as never, metrics: async () => '', recordTurn: () => undefined, stop: () => void stopped++ } });
+    const url = await listen(a.listener);
+    const redirect = await fetch(`${url}/dashboard?token=${TOKEN}`, { redirect: 'manual' });
+    expect([redirect.status, await redirect.text()]).toEqual([303, '']);
+    a.close();
+    await new Promise((r) => setImmediate(r));
+    expect(stopped).toBe(0);
   });
 });
 
