@@ -12,9 +12,8 @@ import type { CommitEvent, DemoteEvent, EvictEvent, GateEvent, ReadEvent, Tidema
 import { createTidemark } from '../../src/middleware/tidemark.js';
 import { StoreHealth } from '../../src/metrics/health.js';
 import { DURATION_BUCKETS_SECONDS, prometheusMetrics } from '../../src/metrics/prometheus.js';
-import type { Store } from '../../src/store/store.js';
 import { InProcessStore } from '../../src/store/in-process.js';
-import { ControlledStore } from '../middleware/helpers.js';
+import { ConflictingStore, ControlledStore } from '../middleware/helpers.js';
 
 function family(parsed: ParsedFamily[], name: string): ParsedFamily | undefined {
   return parsed.find((x) => x.name === name);
@@ -44,19 +43,6 @@ function labelledHist(text: string, name: string, label: string): { count: numbe
 }
 const total = (xs: readonly number[]): number => xs.reduce((a, b) => a + b, 0);
 
-/** Answers the first `conflicts` commits as if another writer had won (a version conflict). */
-class BusyStore extends ControlledStore {
-  conflicts = 0;
-  override async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
-    if (this.conflicts > 0) {
-      this.conflicts--;
-      this.commits++;
-      return { ok: false, conflict: true, version: 0 };
-    }
-    return super.commit(...a);
-  }
-}
-
 const NURSERY = [
   'My name is Ilse.',
   'I have a maidenhair fern on the north windowsill.',
@@ -74,7 +60,7 @@ afterEach(() => {
 
 describe('prometheusMetrics: values equal the events of the same run', () => {
   it('histogram counts and sums, in seconds and ratios, and counters by label', async () => {
-    const store = new BusyStore();
+    const store = new ConflictingStore();
     // capacity 2: the later facts evict earlier ones, so lifetimes and demotions are observed too.
     const tm = createTidemark({ store, capacity: 2 });
     const reads: ReadEvent[] = [];

@@ -70,6 +70,19 @@ export class ControlledStore implements Store {
   }
 }
 
+/** Answers the first `conflicts` commits as if another writer had won (a version conflict), counting each attempt. */
+export class ConflictingStore extends ControlledStore {
+  conflicts = 0;
+  override async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
+    if (this.conflicts > 0) {
+      this.conflicts--;
+      this.commits++;
+      return { ok: false, conflict: true, version: 0 };
+    }
+    return super.commit(...a);
+  }
+}
+
 /** A promise the test opens by hand. */
 export function gate(): { promise: Promise<void>; open: () => void } {
   let open!: () => void;

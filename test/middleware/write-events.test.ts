@@ -9,8 +9,7 @@ import type { CommitEvent, DemoteEvent, EvictEvent, GateEvent, LogbookEvent, Ove
 import { createTidemark, type Tidemark, type WriteReport } from '../../src/middleware/tidemark.js';
 import { mixVectors, newRevisionId, turnEntryId } from '../../src/middleware/write.js';
 import { InProcessStore } from '../../src/store/in-process.js';
-import type { Store } from '../../src/store/store.js';
-import { ControlledStore } from './helpers.js';
+import { ConflictingStore, ControlledStore } from './helpers.js';
 
 const NAMES = ['logbook', 'evict', 'demote', 'gate', 'write', 'overwrite', 'commit'] as const;
 type Name = (typeof NAMES)[number];
@@ -185,22 +184,9 @@ describe('a capacity change and a new fact in one commit', () => {
   });
 });
 
-/** Answers the first `conflicts` commits as if another writer had won. */
-class BusyStore extends ControlledStore {
-  conflicts = 0;
-  override async commit(...a: Parameters<Store['commit']>): ReturnType<Store['commit']> {
-    if (this.conflicts > 0) {
-      this.conflicts--;
-      this.commits++;
-      return { ok: false, conflict: true, version: 0 };
-    }
-    return super.commit(...a);
-  }
-}
-
 describe('version conflicts on the write path', () => {
   it('plans again and commits; the commit event counts the retries, and the first plan reused the read\'s load', async () => {
-    const store = new BusyStore();
+    const store = new ConflictingStore();
     const tm = createTidemark({ store });
     const commits: CommitEvent[] = [];
     tm.on('commit', (e) => commits.push(e));
@@ -219,7 +205,7 @@ describe('version conflicts on the write path', () => {
   });
 
   it('gives up after commitRetries + 1 attempts with STORE_CONFLICT, and the write waits in the outbox', async () => {
-    const store = new BusyStore();
+    const store = new ConflictingStore();
     const tm = createTidemark({ store, commitRetries: 2, outbox: { retryMs: 60_000, maxRetryMs: 60_000 } });
     const errors: Array<[string, string, string]> = [];
     tm.on('error', (e) => errors.push([e.stage, e.error.code, e.error.message]));
