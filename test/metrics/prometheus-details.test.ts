@@ -1,12 +1,12 @@
 // The Prometheus exposition checked value by value against the events the real middleware emitted in
 // the same run: each histogram's count and sum equal what the events carried (in the metric's unit),
 // each counter equals the events of its label, and the options refuse what would break the exposition.
-// Read back with an independent parser (npm: parse-prometheus-text-format 1.1.1).
+// Read back with an independent parser (test/metrics/exposition.ts).
 
 import { afterEach, describe, expect, it, vi } from 'vitest';
 import { EventEmitter } from 'eventemitter3';
 import * as client from 'prom-client';
-import parsePrometheusTextFormat, { type ParsedFamily } from 'parse-prometheus-text-format';
+import { findFamily as family, hist, labelledHist, parsePrometheusTextFormat, value } from './exposition.js';
 import { ErrorCodes, StoreError } from '../../src/errors.js';
 import type { CommitEvent, DemoteEvent, EvictEvent, GateEvent, ReadEvent, TidemarkEvents, WriteEvent } from '../../src/middleware/events.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
@@ -15,32 +15,6 @@ import { DURATION_BUCKETS_SECONDS, prometheusMetrics } from '../../src/metrics/p
 import { InProcessStore } from '../../src/store/in-process.js';
 import { ConflictingStore, ControlledStore } from '../middleware/helpers.js';
 
-function family(parsed: ParsedFamily[], name: string): ParsedFamily | undefined {
-  return parsed.find((x) => x.name === name);
-}
-
-function sample(parsed: ParsedFamily[], name: string, labels: Record<string, string> = {}): { value?: string; count?: string; sum?: string; buckets?: Record<string, string> } {
-  const f = family(parsed, name);
-  if (!f) throw new Error(`no metric family ${name}`);
-  const s = f.metrics.find((m) => Object.entries(labels).every(([k, v]) => m.labels?.[k] === v));
-  if (!s) throw new Error(`no sample ${name}${JSON.stringify(labels)}`);
-  return s as never;
-}
-
-const value = (parsed: ParsedFamily[], name: string, labels: Record<string, string> = {}): number => Number(sample(parsed, name, labels).value);
-const hist = (parsed: ParsedFamily[], name: string, labels: Record<string, string> = {}): { count: number; sum: number; buckets: Record<string, number> } => {
-  const s = sample(parsed, name, labels);
-  return { count: Number(s.count), sum: Number(s.sum), buckets: Object.fromEntries(Object.entries(s.buckets ?? {}).map(([k, v]) => [k, Number(v)])) };
-};
-/** Count and sum of a labelled histogram series, from the raw text (the parser drops a histogram's labels). */
-function labelledHist(text: string, name: string, label: string): { count: number; sum: number } {
-  const read = (suffix: string): number => {
-    const line = text.split('\n').find((l) => l.startsWith(`${name}_${suffix}{${label}}`));
-    if (line === undefined) throw new Error(`no ${name}_${suffix}{${label}}`);
-    return Number(line.slice(line.lastIndexOf(' ') + 1));
-  };
-  return { count: read('count'), sum: read('sum') };
-}
 const total = (xs: readonly number[]): number => xs.reduce((a, b) => a + b, 0);
 
 const NURSERY = [

@@ -7,9 +7,7 @@ import { execFileSync } from 'node:child_process';
 import { existsSync, readFileSync } from 'node:fs';
 import { EventEmitter } from 'eventemitter3';
 import * as client from 'prom-client';
-// Independent parser of the Prometheus text exposition format (npm: parse-prometheus-text-format 1.1.1,
-// ported from the Prometheus Python client's parser), so the test does not trust prom-client's own output.
-import parsePrometheusTextFormat, { type ParsedFamily } from 'parse-prometheus-text-format';
+import { family, parsePrometheusTextFormat, value, type ParsedFamily } from './exposition.js';
 import { ErrorCodes } from '../../src/errors.js';
 import type { TidemarkEvents } from '../../src/middleware/events.js';
 import { createTidemark } from '../../src/middleware/tidemark.js';
@@ -20,18 +18,6 @@ import { InProcessStore } from '../../src/store/in-process.js';
 
 const PROMTOOL = '/usr/bin/promtool';
 const inCI = process.env.CI === 'true';
-
-function family(parsed: ParsedFamily[], name: string): ParsedFamily {
-  const f = parsed.find((x) => x.name === name);
-  if (!f) throw new Error(`no metric family ${name} in ${parsed.map((x) => x.name).join(', ')}`);
-  return f;
-}
-
-function value(parsed: ParsedFamily[], name: string, labels: Record<string, string> = {}): number {
-  const sample = family(parsed, name).metrics.find((m) => Object.entries(labels).every(([k, v]) => m.labels?.[k] === v));
-  if (!sample) throw new Error(`no sample ${name}${JSON.stringify(labels)}`);
-  return Number(sample.value ?? sample.count);
-}
 
 function seriesCount(parsed: ParsedFamily[]): number {
   let n = 0;
